@@ -1,0 +1,3 @@
+/*!
+TODO: module under construction.
+*/

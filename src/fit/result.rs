@@ -1,0 +1,135 @@
+/*!
+What the engine hands on: the χ²(z) curves, the ranked candidates, the class
+decision with its warnings, and the emission-line measurements.
+*/
+use crate::ObjectClass;
+use serde::{Deserialize, Serialize};
+
+/// Warning bits of our own naming (see each constant).
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Hash, Serialize, Deserialize)]
+pub struct Warnings(pub u32);
+
+impl Warnings {
+    /// Δχ² to the next distinct solution is small.
+    pub const AMBIGUOUS: u32 = 1 << 0;
+    /// The best minimum sits at an edge of the redshift grid.
+    pub const AT_GRID_EDGE: u32 = 1 << 1;
+    /// The leading template coefficient is negative (unphysical).
+    pub const NEGATIVE_TEMPLATE: u32 = 1 << 2;
+    /// Too few good pixels for a trustworthy fit.
+    pub const FEW_PIXELS: u32 = 1 << 3;
+    /// Reduced χ² of the best fit is far above 1.
+    pub const POOR_FIT: u32 = 1 << 4;
+    /// The file had no error array; the noise was estimated.
+    pub const NOISE_ESTIMATED: u32 = 1 << 5;
+    /// Names of the bits, in bit order.
+    pub const NAMES: [(u32, &'static str); 6] = [
+        (Self::AMBIGUOUS, "ambiguous"),
+        (Self::AT_GRID_EDGE, "at_grid_edge"),
+        (Self::NEGATIVE_TEMPLATE, "negative_template"),
+        (Self::FEW_PIXELS, "few_pixels"),
+        (Self::POOR_FIT, "poor_fit"),
+        (Self::NOISE_ESTIMATED, "noise_estimated"),
+    ];
+
+    /// True when bit `b` is set.
+    pub fn has(self, b: u32) -> bool {
+        self.0 & b != 0
+    }
+
+    /// Set bit `b`.
+    pub fn set(&mut self, b: u32) {
+        self.0 |= b;
+    }
+
+    /// Names of the set bits joined by `|` (empty string when none).
+    pub fn names(self) -> String {
+        Self::NAMES
+            .iter()
+            .filter(|(b, _)| self.has(*b))
+            .map(|(_, n)| *n)
+            .collect::<Vec<_>>()
+            .join("|")
+    }
+}
+
+/// A local minimum of χ²(z), refined.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Candidate {
+    /// Class of the templates that gave it.
+    pub class: ObjectClass,
+    /// Template name (stars: the stellar type; bases: the class basis name).
+    pub template: String,
+    /// Refined redshift.
+    pub z: f64,
+    /// 1σ redshift uncertainty from the χ² curvature (Δχ² = 1).
+    pub z_err: f64,
+    /// χ² at the refined redshift.
+    pub chi2: f64,
+    /// Template coefficients followed by the polynomial coefficients.
+    pub coeffs: Vec<f64>,
+}
+
+/// χ²(z) over the redshift grid for one class (or one stellar template).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Chi2Curve {
+    /// Class.
+    pub class: ObjectClass,
+    /// Template name (or class basis name).
+    pub template: String,
+    /// Trial redshifts.
+    pub z: Vec<f64>,
+    /// χ² at each trial z (f64::INFINITY where the fit was impossible).
+    pub chi2: Vec<f64>,
+}
+
+/// One emission line measured at the chosen redshift.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct LineMeasurement {
+    /// Line name as in the line list, e.g. `Hα` / `[O III] 5008`.
+    pub name: String,
+    /// Rest vacuum wavelength (Å).
+    pub rest_wave: f64,
+    /// Observed centre (Å).
+    pub obs_wave: f64,
+    /// Integrated Gaussian flux (flux unit × Å).
+    pub flux: f64,
+    /// 1σ uncertainty of `flux`.
+    pub flux_err: f64,
+    /// Gaussian σ in km/s.
+    pub sigma_kms: f64,
+    /// Rest-frame equivalent width (Å, positive for emission).
+    pub ew_rest: f64,
+    /// flux / flux_err.
+    pub snr: f64,
+}
+
+/// Everything the engine found for one spectrum.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FitResult {
+    /// Object id.
+    pub object_id: String,
+    /// Candidates over all classes, best (lowest χ²) first.
+    pub candidates: Vec<Candidate>,
+    /// χ² of the runner-up distinct solution minus the best.
+    pub delta_chi2: f64,
+    /// Best χ² / degrees of freedom.
+    pub chi2_reduced: f64,
+    /// Good pixels used.
+    pub n_good: usize,
+    /// Median per-pixel S/N.
+    pub snr_median: f64,
+    /// Warning bits.
+    pub warnings: Warnings,
+    /// χ²(z) curves (one per class; stars: the best template's curve).
+    pub curves: Vec<Chi2Curve>,
+    /// Emission lines measured at the best redshift.
+    pub lines: Vec<LineMeasurement>,
+}
+
+impl FitResult {
+    /// The best candidate, if any.
+    pub fn best(&self) -> Option<&Candidate> {
+        self.candidates.first()
+    }
+}

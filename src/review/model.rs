@@ -1,0 +1,265 @@
+/*!
+The words of a verdict: class, redshift and where it came from, a confidence on
+a four-step scale, flags, a note; and the events that the review log records.
+*/
+use crate::ObjectClass;
+use chrono::{DateTime, Utc};
+use serde::{Deserialize, Serialize};
+use std::collections::BTreeSet;
+
+/// Class in a verdict: the engine's three, or undecidable.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum VerdictClass {
+    /// Galaxy.
+    Galaxy,
+    /// Quasar.
+    Quasar,
+    /// Star.
+    Star,
+    /// The spectrum does not allow a decision.
+    Unclear,
+}
+
+impl From<ObjectClass> for VerdictClass {
+    fn from(c: ObjectClass) -> Self {
+        match c {
+            ObjectClass::Galaxy => VerdictClass::Galaxy,
+            ObjectClass::Quasar => VerdictClass::Quasar,
+            ObjectClass::Star => VerdictClass::Star,
+        }
+    }
+}
+
+impl VerdictClass {
+    /// The engine class, or `None` for `Unclear`.
+    pub fn object_class(self) -> Option<ObjectClass> {
+        match self {
+            VerdictClass::Galaxy => Some(ObjectClass::Galaxy),
+            VerdictClass::Quasar => Some(ObjectClass::Quasar),
+            VerdictClass::Star => Some(ObjectClass::Star),
+            VerdictClass::Unclear => None,
+        }
+    }
+
+    /// Lower-case name.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            VerdictClass::Galaxy => "galaxy",
+            VerdictClass::Quasar => "quasar",
+            VerdictClass::Star => "star",
+            VerdictClass::Unclear => "unclear",
+        }
+    }
+}
+
+/// How sure the inspector is, four steps from weakest to strongest.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Confidence {
+    /// A guess; do not train on it.
+    Doubtful,
+    /// Plausible, one feature or weak features.
+    Tentative,
+    /// Several features agree.
+    Solid,
+    /// Beyond doubt.
+    Certain,
+}
+
+impl Confidence {
+    /// All levels, weakest first.
+    pub const ALL: [Confidence; 4] = [
+        Confidence::Doubtful,
+        Confidence::Tentative,
+        Confidence::Solid,
+        Confidence::Certain,
+    ];
+
+    /// Level number 1–4.
+    pub fn level(self) -> u8 {
+        self as u8 + 1
+    }
+
+    /// Lower-case name.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Confidence::Doubtful => "doubtful",
+            Confidence::Tentative => "tentative",
+            Confidence::Solid => "solid",
+            Confidence::Certain => "certain",
+        }
+    }
+}
+
+/// Problems an inspector can mark on a spectrum.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Flag {
+    /// Too little signal to see features.
+    LowSignal,
+    /// Residuals of night-sky subtraction.
+    SkyResidual,
+    /// Light of two objects in one spectrum.
+    Blend,
+    /// Instrumental artefact (cosmic ray, bad column, dead fibre, join).
+    Artefact,
+    /// Broad absorption troughs (quasars).
+    BroadAbsorption,
+    /// The spectrum is not the catalogue's object.
+    WrongTarget,
+}
+
+impl Flag {
+    /// All flags in display order.
+    pub const ALL: [Flag; 6] = [
+        Flag::LowSignal,
+        Flag::SkyResidual,
+        Flag::Blend,
+        Flag::Artefact,
+        Flag::BroadAbsorption,
+        Flag::WrongTarget,
+    ];
+
+    /// snake_case name used in files.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Flag::LowSignal => "low_signal",
+            Flag::SkyResidual => "sky_residual",
+            Flag::Blend => "blend",
+            Flag::Artefact => "artefact",
+            Flag::BroadAbsorption => "broad_absorption",
+            Flag::WrongTarget => "wrong_target",
+        }
+    }
+}
+
+/// Where the verdict's redshift came from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum ZSource {
+    /// The engine's best solution, accepted.
+    Automatic,
+    /// Another engine candidate, chosen by the inspector.
+    Candidate,
+    /// A refit of the engine restricted near a redshift the inspector chose.
+    Refit,
+    /// Typed in by hand.
+    Typed,
+}
+
+impl ZSource {
+    /// Lower-case name.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            ZSource::Automatic => "automatic",
+            ZSource::Candidate => "candidate",
+            ZSource::Refit => "refit",
+            ZSource::Typed => "typed",
+        }
+    }
+}
+
+/// The current verdict on one object (what replaying the log yields).
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+pub struct Verdict {
+    /// Class, once set.
+    pub class: Option<VerdictClass>,
+    /// Redshift, once set.
+    pub z: Option<f64>,
+    /// Its 1σ error, if known.
+    pub z_err: Option<f64>,
+    /// Where `z` came from.
+    pub z_source: Option<ZSource>,
+    /// Confidence, once set.
+    pub confidence: Option<Confidence>,
+    /// Flags raised.
+    pub flags: BTreeSet<Flag>,
+    /// Free note.
+    pub note: String,
+}
+
+/// What the engine showed the inspector when the event was recorded.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FitSeen {
+    /// Automatic class.
+    pub class: ObjectClass,
+    /// Automatic redshift.
+    pub z: f64,
+    /// Its χ².
+    pub chi2: f64,
+}
+
+/// One action of an inspector on one object.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "action", rename_all = "snake_case")]
+pub enum Change {
+    /// Set class, redshift and confidence at once (e.g. accepting the fit).
+    Verdict {
+        /// Class.
+        class: VerdictClass,
+        /// Redshift (None for unclear).
+        z: Option<f64>,
+        /// Redshift error.
+        z_err: Option<f64>,
+        /// Where z came from.
+        source: ZSource,
+        /// Confidence.
+        confidence: Confidence,
+    },
+    /// Set the class only.
+    Class {
+        /// Class.
+        class: VerdictClass,
+    },
+    /// Set the redshift only.
+    Redshift {
+        /// Redshift.
+        z: f64,
+        /// Its error.
+        z_err: Option<f64>,
+        /// Where it came from.
+        source: ZSource,
+    },
+    /// Set the confidence.
+    Confidence {
+        /// Level.
+        confidence: Confidence,
+    },
+    /// Raise or clear a flag.
+    Flag {
+        /// Which.
+        flag: Flag,
+        /// Raised (true) or cleared.
+        on: bool,
+    },
+    /// Replace the note.
+    Note {
+        /// New text.
+        text: String,
+    },
+    /// Undo this inspector's latest not-yet-undone change on the object.
+    Undo,
+    /// Redo the latest undone change on the object.
+    Redo,
+}
+
+/// One line of a review log.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Event {
+    /// Format version of the line.
+    pub v: u32,
+    /// Sequence number within this log (1, 2, …).
+    pub seq: u64,
+    /// When it was recorded (UTC).
+    pub time: DateTime<Utc>,
+    /// Who recorded it.
+    pub inspector: String,
+    /// The object.
+    pub object_id: String,
+    /// The automatic fit the inspector saw, if any.
+    pub fit: Option<FitSeen>,
+    /// What changed.
+    #[serde(flatten)]
+    pub change: Change,
+}

@@ -1,0 +1,4 @@
+//! The integration tests: one binary, one module per area.
+mod support;
+
+mod smoke;

