@@ -1,7 +1,9 @@
 //! The `zvet` binary: parse the command line, open the GUI or run a subcommand.
 use clap::Parser;
 use std::process::ExitCode;
-use zvet::cli::{Cli, Command};
+use zvet::cli::Cli;
+#[cfg(feature = "gui")]
+use zvet::cli::Command;
 
 fn main() -> ExitCode {
     let cli = Cli::parse();

@@ -165,7 +165,9 @@ mod tests {
     use approx::assert_relative_eq;
 
     fn linear_spec(n: usize, lo: f64, hi: f64, f: impl Fn(f64) -> f64) -> Spectrum {
-        let wave: Vec<f64> = (0..n).map(|i| lo + (hi - lo) * i as f64 / (n - 1) as f64).collect();
+        let wave: Vec<f64> = (0..n)
+            .map(|i| lo + (hi - lo) * i as f64 / (n - 1) as f64)
+            .collect();
         let flux = wave.iter().map(|w| f(*w)).collect();
         Spectrum::new(wave, flux, Some(vec![4.0; n]), None, SpectrumMeta::default()).unwrap()
     }
@@ -189,7 +191,12 @@ mod tests {
             let lam = g.wave(j);
             let n_in = lam * (10f64.powf(1e-4) - 10f64.powf(-1e-4)) / 1.0;
             // ivar of a mean of n_in equal-weight pixels of ivar 4 is ≈ 4 n_in
-            assert!((r.ivar[j] / (4.0 * n_in) - 1.0).abs() < 0.25, "j={j} ivar={} expected≈{}", r.ivar[j], 4.0 * n_in);
+            assert!(
+                (r.ivar[j] / (4.0 * n_in) - 1.0).abs() < 0.25,
+                "j={j} ivar={} expected≈{}",
+                r.ivar[j],
+                4.0 * n_in
+            );
         }
     }
 
@@ -212,8 +219,8 @@ mod tests {
         let r = s.resample(&g);
         for j in 0..g.n {
             let w = g.wave(j);
-            if (5402.0..5498.0).contains(&w) || w < 4999.0 || w > 6001.0 {
-                assert_eq!(r.ivar[j], 0.0, "pixel at {w} should be bad");
+            if (5402.0..5498.0).contains(&w) || !(4999.0..=6001.0).contains(&w) {
+                assert!(r.ivar[j] <= 0.0, "pixel at {w} should be bad");
             }
             assert!(r.flux[j].is_finite());
         }

@@ -58,7 +58,7 @@ impl Template {
     /// `None` outside the template's coverage.
     pub fn at(&self, lam: f64) -> Option<f64> {
         let x = (lam.log10() - self.loglam0) / self.dloglam;
-        if !(x >= 0.0) || x > (self.flux.len() - 1) as f64 {
+        if x.is_nan() || x < 0.0 || x > (self.flux.len() - 1) as f64 {
             return None;
         }
         let i = (x.floor() as usize).min(self.flux.len().saturating_sub(2));

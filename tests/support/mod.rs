@@ -45,7 +45,15 @@ pub fn reference_wheel(spec: &str) -> PathBuf {
     let wheels = root.join("wheels");
     std::fs::create_dir_all(&wheels).expect("create target/reference/wheels");
     let out = Command::new("python3")
-        .args(["-m", "pip", "download", "--no-deps", "--only-binary=:all:", "-q", "-d"])
+        .args([
+            "-m",
+            "pip",
+            "download",
+            "--no-deps",
+            "--only-binary=:all:",
+            "-q",
+            "-d",
+        ])
         .arg(&wheels)
         .arg(spec)
         .output()
@@ -61,9 +69,9 @@ pub fn reference_wheel(spec: &str) -> PathBuf {
         .expect("read wheels dir")
         .filter_map(|e| e.ok().map(|e| e.path()))
         .find(|p| {
-            p.file_name()
-                .and_then(|f| f.to_str())
-                .is_some_and(|f| f.to_ascii_lowercase().starts_with(&stem.to_ascii_lowercase()) && f.ends_with(".whl"))
+            p.file_name().and_then(|f| f.to_str()).is_some_and(|f| {
+                f.to_ascii_lowercase().starts_with(&stem.to_ascii_lowercase()) && f.ends_with(".whl")
+            })
         })
         .unwrap_or_else(|| panic!("no wheel for {spec} in {}", wheels.display()));
     let _ = std::fs::remove_dir_all(&dir);
@@ -96,7 +104,11 @@ pub fn reference_file_with_prefix(spec: &str, rel_dir: &str, prefix: &str) -> Pa
     let mut hits: Vec<PathBuf> = std::fs::read_dir(&d)
         .unwrap_or_else(|e| panic!("{rel_dir} missing in the {spec} wheel: {e}"))
         .filter_map(|e| e.ok().map(|e| e.path()))
-        .filter(|p| p.file_name().and_then(|f| f.to_str()).is_some_and(|f| f.starts_with(prefix)))
+        .filter(|p| {
+            p.file_name()
+                .and_then(|f| f.to_str())
+                .is_some_and(|f| f.starts_with(prefix))
+        })
         .collect();
     hits.sort();
     hits.into_iter()
