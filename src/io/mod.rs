@@ -327,7 +327,7 @@ impl RawSpectrum {
             }
         }
         let (lo, hi) = (s.wave()[0], s.wave()[s.len() - 1]);
-        if lo < 100.0 || hi > 1.0e7 {
+        if lo < 1.0 || hi > 1.0e8 {
             s.meta.warnings.push(format!(
                 "wavelengths span {lo:.4}–{hi:.4} Å; is the unit right?"
             ));
