@@ -240,14 +240,19 @@ impl LoadError {
         }
     }
 
+    /// A truncation found at `at`.
+    pub(crate) fn truncated_at(at: &Loc, message: &str) -> LoadError {
+        LoadError::Truncated(format!("{}{message}", At(at)))
+    }
+
     /// Wrap a FITS library error at `at`; end-of-file errors mean truncation.
     pub fn fits(e: fitsio::errors::Error, at: Loc) -> LoadError {
         let message = match &e {
             fitsio::errors::Error::Fits(fe) => {
-                // cfitsio status 107 = END_OF_FILE ("tried to move past end of file"),
-                // 108 = READ_ERROR, 252 = NO_END keyword? (cfitsio fitsio.h).
+                // cfitsio status 107 = END_OF_FILE ("tried to move past end
+                // of file"), 108 = READ_ERROR (cfitsio's fitsio.h).
                 if fe.status == 107 || fe.status == 108 {
-                    return LoadError::Truncated(format!("{at}: {}", fe.message));
+                    return LoadError::Truncated(format!("{}{}", At(&at), fe.message));
                 }
                 format!("{} (status {})", fe.message, fe.status)
             }

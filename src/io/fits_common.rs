@@ -119,6 +119,8 @@ pub(crate) struct OpenFits {
     pub primary: Primary,
     /// File stem, the fallback object id.
     pub stem: String,
+    /// The error met when looking past the last readable HDU, if any.
+    pub trailing: Option<LoadError>,
 }
 
 impl OpenFits {
@@ -128,7 +130,7 @@ impl OpenFits {
         let e = LoadError::fits(e, at);
         if let LoadError::Fits { at, message } = &e {
             if is_short(&self.path) {
-                return LoadError::Truncated(format!("{at}: {message}"));
+                return LoadError::truncated_at(at, message);
             }
         }
         e
@@ -160,9 +162,7 @@ fn open(path: &Path) -> Result<OpenFits, LoadError> {
     let short = |e: fitsio::errors::Error, at: Loc| {
         let e = LoadError::fits(e, at);
         match e {
-            LoadError::Fits { at, message } if is_short(path) => {
-                LoadError::Truncated(format!("{at}: {message}"))
-            }
+            LoadError::Fits { at, message } if is_short(path) => LoadError::truncated_at(&at, &message),
             e => e,
         }
     };
@@ -194,7 +194,16 @@ fn open(path: &Path) -> Result<OpenFits, LoadError> {
             kind,
         });
     }
+    // cfitsio counts HDUs up to the first one it cannot read; probe the next
+    // so that a damaged extension is reported rather than silently missed.
+    let trailing = match f.hdu(n) {
+        Err(fitsio::errors::Error::Fits(fe)) if fe.status != 107 => {
+            Some(short(fitsio::errors::Error::Fits(fe), Loc::hdu(n, None)))
+        }
+        _ => None,
+    };
     Ok(OpenFits {
+        trailing,
         file: f.threadsafe(),
         path: path.to_path_buf(),
         hdus,
@@ -293,7 +302,24 @@ fn plan(fits: &OpenFits, opts: &ReadOptions) -> Result<Vec<Source>, LoadError> {
         }
     }
     if sources.is_empty() {
-        // Say why: a table that lacks a column is the usual case.
+        // Say why: a damaged or cut-off extension, else a table that lacks a
+        // column (the usual case), else what the file holds.
+        if let Some(e) = &fits.trailing {
+            return Err(match e {
+                LoadError::Truncated(m) => LoadError::Truncated(m.clone()),
+                LoadError::Fits { at, message } => LoadError::Fits {
+                    at: at.clone(),
+                    message: message.clone(),
+                },
+                other => LoadError::Malformed(other.to_string()),
+            });
+        }
+        if is_short(&fits.path) {
+            return Err(LoadError::Truncated(format!(
+                "the file ends inside HDU {} (its length is not a whole number of 2880-byte FITS blocks)",
+                fits.hdus.len()
+            )));
+        }
         if let Some(h) = table_misses.first() {
             if let Some(e) = fits_table::explain_miss(h, opts) {
                 return Err(e);
