@@ -92,6 +92,9 @@ pub enum LoadError {
     /// The file could not be opened or read at all.
     #[error("cannot read file: {0}")]
     Io(#[from] std::io::Error),
+    /// A file name the FITS library cannot take.
+    #[error("unusable file name: {0}")]
+    BadFileName(String),
     /// Neither FITS nor a text table.
     #[error("not a FITS file or a text table ({0})")]
     UnknownFormat(String),

@@ -147,6 +147,20 @@ fn is_short(path: &Path) -> bool {
 }
 
 fn open(path: &Path) -> Result<OpenFits, LoadError> {
+    // The FITS library takes the name as UTF-8 text and gives `[`, `+` at the
+    // end, `!` and `-` meanings of their own (cfitsio's extended file-name
+    // syntax), so such names cannot be opened as they are.
+    let Some(name) = path.to_str() else {
+        return Err(LoadError::BadFileName(
+            "the FITS library needs a UTF-8 file name".into(),
+        ));
+    };
+    let base = path.file_name().and_then(|n| n.to_str()).unwrap_or(name);
+    if name.contains('[') || base.starts_with('!') || base.starts_with('-') {
+        return Err(LoadError::BadFileName(
+            "the FITS library reads '[', a leading '!' or '-' in a file name as instructions; rename the file".into(),
+        ));
+    }
     let mut f = match FitsFile::open(path) {
         Ok(f) => f,
         Err(e) => {
