@@ -10,6 +10,14 @@ published line wavelengths (`zvet templates build`) and stored in
 use crate::ObjectClass;
 use serde::{Deserialize, Serialize};
 
+mod builtin;
+pub mod galaxies;
+pub mod profiles;
+pub mod quasars;
+pub mod stars;
+
+pub use builtin::{builtin, generate as generate_builtin};
+
 /// Whether a template is dominated by emission or absorption features
 /// (used to choose templates for classic cross-correlation).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
