@@ -21,6 +21,9 @@ pub const QUASAR_GRID: (f64, f64) = (2.85, 4.05);
 /// Rest-frame grid of the stars: 2884–11749 Å.
 pub const STAR_GRID: (f64, f64) = (3.46, 4.07);
 
+/// Folder (relative to the crate root) holding the committed built-in set.
+pub const DEFAULT_DIR: &str = "templates-spectra";
+
 /// Name of the built-in set.
 pub const NAME: &str = "builtin";
 
@@ -162,4 +165,13 @@ pub fn parameters() -> Parameters {
         galaxies: galaxies::parameters(),
         quasars: quasars::parameters(),
     }
+}
+
+/// Generate the built-in set and write it with its generator parameters to `dir`.
+pub fn write_builtin(dir: &std::path::Path) -> Result<(), super::TemplateError> {
+    let params = serde_json::to_value(parameters()).map_err(|e| super::TemplateError::BadSet {
+        name: NAME.to_string(),
+        message: e.to_string(),
+    })?;
+    super::write_set_with(builtin(), dir, Some(params))
 }
