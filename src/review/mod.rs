@@ -1,14 +1,15 @@
 /*!
-Verdicts and the review log: the words of a verdict ([`model`]), replaying
+Verdicts and the review log: the words of a verdict (`model.rs`), replaying
 events into verdicts with undo/redo ([`replay`]), the crash-safe append-only
 log of one inspector ([`ReviewLog`]), and the merge of several inspectors with
 agreement statistics ([`merge`], [`stats`]).
 */
 mod lock;
 mod log;
-
+pub mod merge;
 mod model;
 mod replay;
+pub mod stats;
 
 pub use lock::lock_path;
 pub use log::{read_log, LogProblem, ReviewLog, LOG_FORMAT_VERSION};
