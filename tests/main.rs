@@ -1,5 +1,6 @@
 //! The integration tests: one binary, one module per area.
 mod support;
 
+mod records;
 mod review;
 mod smoke;
