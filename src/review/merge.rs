@@ -23,7 +23,7 @@ mostly cover the conflicts and would bias them).
 use super::model::{Verdict, VerdictClass};
 use super::stats::{confusion_matrix, kappa_from_matrix, specific_agreement};
 use super::{read_log, replay, LogProblem, ReviewError};
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 use std::collections::{BTreeMap, BTreeSet};
 use std::path::Path;
 
@@ -85,7 +85,7 @@ impl Default for MergeOptions {
 }
 
 /// How an object's consensus came about.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
 pub enum ConsensusState {
     /// Reviewed by one inspector.
