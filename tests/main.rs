@@ -2,4 +2,6 @@
 mod support;
 
 mod io;
+mod records;
+mod review;
 mod smoke;
