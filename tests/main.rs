@@ -1,4 +1,5 @@
 //! The integration tests: one binary, one module per area.
 mod support;
 
+mod fit;
 mod smoke;
