@@ -210,3 +210,25 @@ fn synthetic_recovery_with_test_templates() {
         .count();
     assert_eq!(ok, results.len());
 }
+
+#[test]
+fn cross_correlation_finds_the_redshift_of_test_galaxies() {
+    use zvet::fit::Method;
+    let set = synthetic_set();
+    let engine = Engine::new(
+        &set,
+        FitConfig { method: Method::XCorr, classes: vec![ObjectClass::Galaxy], ..FitConfig::default() },
+    )
+    .unwrap();
+    let mut rng = ChaCha8Rng::seed_from_u64(5);
+    for z in [0.05, 0.31, 0.77] {
+        let s = mock(&set, ObjectClass::Galaxy, z, 20.0, 4000, &mut rng);
+        let r = engine.fit(&s).unwrap();
+        let b = r.best().unwrap();
+        let peaks = engine.xcorr(&s, None).unwrap();
+        eprintln!("xcorr z={z}: {} r={:.1} z_err={:.2e}", b.z, peaks[0].r, b.z_err);
+        assert!(((b.z - z) / (1.0 + z)).abs() < 5e-4, "z {z} → {}", b.z);
+        assert!(peaks[0].r > 3.0);
+        assert!(b.z_err > 0.0 && b.z_err < 1e-3);
+    }
+}

@@ -49,7 +49,7 @@ struct Minimum {
 }
 
 /// Whole-shift range for a redshift interval.
-fn shift_range(z: (f64, f64), dll: f64) -> (i64, i64) {
+pub(crate) fn shift_range(z: (f64, f64), dll: f64) -> (i64, i64) {
     let lo = ((1.0 + z.0).max(1e-6).log10() / dll).ceil() as i64;
     let hi = ((1.0 + z.1).max(1e-6).log10() / dll).floor() as i64;
     (lo, hi.max(lo))
@@ -79,6 +79,14 @@ impl Engine {
             }
         }
         let units = build_units(templates, &config.classes, config.dloglam)?;
+        if let Some(u) = units.iter().find(|u| u.k() + config.poly_terms > 32) {
+            return Err(FitError::InvalidConfig(format!(
+                "{} has {} templates; with {} polynomial terms that exceeds 32 columns",
+                u.name,
+                u.k(),
+                config.poly_terms
+            )));
+        }
         Ok(Engine {
             config: FitConfig {
                 n_candidates: config.n_candidates.max(1),
@@ -362,10 +370,8 @@ impl Engine {
         (self.config.min_separation_kms / C_KMS).ln_1p() / std::f64::consts::LN_10 / self.config.dloglam
     }
 
-    pub(crate) fn unit_for(&self, c: &Candidate) -> Option<&Unit> {
-        self.units
-            .iter()
-            .find(|u| u.class == c.class && u.name == c.template)
+    pub(crate) fn cache(&self) -> &FftCache {
+        &self.cache
     }
 }
 

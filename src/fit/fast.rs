@@ -73,7 +73,7 @@ impl std::fmt::Debug for FftCache {
 const MAX_CACHED: usize = 64;
 
 impl FftCache {
-    fn plan(&self, len: usize, forward: bool) -> Arc<dyn Fft<f64>> {
+    pub(crate) fn plan(&self, len: usize, forward: bool) -> Arc<dyn Fft<f64>> {
         let mut plans = self.plans.lock().unwrap_or_else(|e| e.into_inner());
         if let Some(p) = plans.get(&(len, forward)) {
             return p.clone();
@@ -90,7 +90,7 @@ impl FftCache {
     }
 
     /// Forward transform of a real array zero-padded to `len`.
-    fn forward_real(&self, x: &[f64], len: usize) -> Vec<C> {
+    pub(crate) fn forward_real(&self, x: &[f64], len: usize) -> Vec<C> {
         let mut buf: Vec<C> = x.iter().map(|&v| C::new(v, 0.0)).collect();
         buf.resize(len, C::new(0.0, 0.0));
         self.plan(len, true).process(&mut buf);

@@ -17,8 +17,9 @@ pub mod reference;
 mod refine;
 mod result;
 mod sky;
+pub mod synth;
 mod units;
-mod xcorr;
+pub mod xcorr;
 
 pub use config::{FitConfig, FitError, Method};
 pub use engine::{velocity_sep_kms, Engine, AMBIGUOUS_DCHI2, C_KMS, FEW_PIXELS, POOR_FIT_CHI2R};

@@ -128,27 +128,85 @@ impl Prepared {
 
 /// Solve the symmetric normal equations `a c = b` (row-major `dim × dim`).
 /// Columns with `active[i] == false` get coefficient 0 and are left out.
-/// The system is scaled to unit diagonal, solved by Cholesky, and by a
-/// truncated SVD when Cholesky fails (singular or nearly so).
+/// The system is scaled to unit diagonal and solved by a Cholesky
+/// factorisation written out in plain loops (nalgebra's generic code is
+/// compiled at the caller's optimisation level, far too slow for the
+/// thousands of tiny solves per spectrum in a debug build); when a pivot
+/// shows the system is singular or nearly so, nalgebra's SVD solves it with
+/// small singular values dropped.
 pub fn solve_normal(a: &[f64], b: &[f64], active: &[bool]) -> Vec<f64> {
     let dim = b.len();
-    let idx: Vec<usize> = (0..dim).filter(|&i| active[i] && a[i * dim + i] > 0.0).collect();
     let mut c = vec![0.0; dim];
-    let k = idx.len();
+    let mut idx = [0usize; 32];
+    let mut k = 0;
+    for i in 0..dim {
+        if active[i] && a[i * dim + i] > 0.0 && k < idx.len() {
+            idx[k] = i;
+            k += 1;
+        }
+    }
     if k == 0 {
         return c;
     }
-    let d: Vec<f64> = idx.iter().map(|&i| a[i * dim + i].sqrt()).collect();
-    let m = DMatrix::from_fn(k, k, |r, s| a[idx[r] * dim + idx[s]] / (d[r] * d[s]));
-    let v = DVector::from_fn(k, |r, _| b[idx[r]] / d[r]);
-    let x = match m.clone().cholesky() {
-        Some(ch) => ch.solve(&v),
-        None => {
-            let svd = m.svd(true, true);
-            match svd.solve(&v, 1e-12) {
-                Ok(x) => x,
-                Err(_) => DVector::zeros(k),
+    let idx = &idx[..k];
+    let mut d = [0.0f64; 32];
+    for r in 0..k {
+        d[r] = a[idx[r] * dim + idx[r]].sqrt();
+    }
+    // scaled matrix (lower triangle used) and right-hand side
+    let mut l = [0.0f64; 32 * 32];
+    let mut v = [0.0f64; 32];
+    for r in 0..k {
+        v[r] = b[idx[r]] / d[r];
+        for s in 0..=r {
+            l[r * 32 + s] = a[idx[r] * dim + idx[s]] / (d[r] * d[s]);
+        }
+    }
+    let mut ok = true;
+    'outer: for j in 0..k {
+        let mut sum = l[j * 32 + j];
+        for p in 0..j {
+            sum -= l[j * 32 + p] * l[j * 32 + p];
+        }
+        // relative pivot test on the unit-diagonal matrix
+        if sum <= 1e-10 {
+            ok = false;
+            break 'outer;
+        }
+        let piv = sum.sqrt();
+        l[j * 32 + j] = piv;
+        for i in j + 1..k {
+            let mut s2 = l[i * 32 + j];
+            for p in 0..j {
+                s2 -= l[i * 32 + p] * l[j * 32 + p];
             }
+            l[i * 32 + j] = s2 / piv;
+        }
+    }
+    let x: Vec<f64> = if ok {
+        let mut y = [0.0f64; 32];
+        for i in 0..k {
+            let mut s2 = v[i];
+            for p in 0..i {
+                s2 -= l[i * 32 + p] * y[p];
+            }
+            y[i] = s2 / l[i * 32 + i];
+        }
+        let mut x = vec![0.0; k];
+        for i in (0..k).rev() {
+            let mut s2 = y[i];
+            for p in i + 1..k {
+                s2 -= l[p * 32 + i] * x[p];
+            }
+            x[i] = s2 / l[i * 32 + i];
+        }
+        x
+    } else {
+        let m = DMatrix::from_fn(k, k, |r, s| a[idx[r] * dim + idx[s]] / (d[r] * d[s]));
+        let rhs = DVector::from_fn(k, |r, _| v[r]);
+        match m.svd(true, true).solve(&rhs, 1e-10) {
+            Ok(x) => x.iter().copied().collect(),
+            Err(_) => vec![0.0; k],
         }
     };
     for r in 0..k {
@@ -170,6 +228,16 @@ mod tests {
             assert_relative_eq!(p[2], 0.5 * (3.0 * x * x - 1.0), epsilon = 1e-14);
             assert_relative_eq!(p[3], 0.5 * (5.0 * x * x * x - 3.0 * x), epsilon = 1e-14);
         }
+    }
+
+    #[test]
+    fn cholesky_solves_a_known_system() {
+        // a = [[4, 2], [2, 3]], b = [2, 1] → c = [0.5, 0] (by hand)
+        let c = solve_normal(&[4.0, 2.0, 2.0, 3.0], &[2.0, 1.0], &[true, true]);
+        assert_relative_eq!(c[0], 0.5, epsilon = 1e-14);
+        assert_relative_eq!(c[1], 0.0, epsilon = 1e-14);
+        let c = solve_normal(&[4.0, 2.0, 2.0, 3.0], &[2.0, 1.0], &[true, false]);
+        assert_relative_eq!(c[0], 0.5, epsilon = 1e-14);
     }
 
     #[test]

@@ -24,6 +24,10 @@ pub struct Unit {
     pub t0: i64,
     /// Template arrays, all of the same length.
     pub t: Vec<Vec<f64>>,
+    /// Name of each template.
+    pub names: Vec<String>,
+    /// Kind of each template.
+    pub kinds: Vec<TemplateKind>,
 }
 
 impl Unit {
@@ -105,6 +109,8 @@ fn class_units(ct: &ClassTemplates, dll: f64) -> Result<Vec<Unit>, FitError> {
                 kind: t.kind,
                 t0: lo,
                 t: vec![sample(t, lo, hi, dll)],
+                names: vec![t.name.clone()],
+                kinds: vec![t.kind],
             })
             .collect()),
         FitMode::Basis => {
@@ -122,6 +128,8 @@ fn class_units(ct: &ClassTemplates, dll: f64) -> Result<Vec<Unit>, FitError> {
                 kind: ct.templates[0].kind,
                 t0: lo,
                 t: ct.templates.iter().map(|t| sample(t, lo, hi, dll)).collect(),
+                names: ct.templates.iter().map(|t| t.name.clone()).collect(),
+                kinds: ct.templates.iter().map(|t| t.kind).collect(),
             }])
         }
     }
