@@ -334,7 +334,7 @@ fn plan(fits: &OpenFits, opts: &ReadOptions) -> Result<Vec<Source>, LoadError> {
             })
             .collect();
         return Err(LoadError::NoSpectrum(format!(
-            "no 1-D image with a spectral WCS and no table with wavelength and flux columns ({})",
+            "no 1-D image with a spectral WCS (CTYPE1 a wavelength axis, CRVAL1, a pixel step) and no table with wavelength and flux columns ({})",
             list.join("; ")
         )));
     }

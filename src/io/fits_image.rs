@@ -28,6 +28,18 @@ use super::{synonyms, unit_to_angstrom, ErrKind, LoadError, Loc, RawSpectrum, Re
 use crate::spectrum::{Spectrum, SpectrumMeta};
 use fitsio::FitsFile;
 
+/// CTYPE1 values of a wavelength axis (empty = not given, taken as linear λ).
+const SPECTRAL_CTYPES: &[&str] = &[
+    "",
+    "WAVE",
+    "AWAV",
+    "LINEAR",
+    "WAVELENGTH",
+    "LAMBDA",
+    "WAVE-LOG",
+    "AWAV-LOG",
+];
+
 /// What a companion image holds.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 enum Role {
@@ -149,6 +161,16 @@ pub(crate) fn plan(
         _ => None,
     });
     let hdu = f.hdu(h.index).map_err(|e| fits.err(e, loc.clone()))?;
+    // Without a wavelength HDU, an image needs a spectral axis to be a
+    // spectrum; other 1-D images (unless chosen with --hdu) are skipped.
+    if !forced && wave.is_none() {
+        let ctype = key_string(f, &hdu, "CTYPE1")
+            .unwrap_or_default()
+            .to_ascii_uppercase();
+        if key_f64(f, &hdu, "CRVAL1").is_none() || !SPECTRAL_CTYPES.contains(&ctype.as_str()) {
+            return Ok(None);
+        }
+    }
     let facts = header_facts(f, &hdu);
     let id = facts
         .id

@@ -315,7 +315,10 @@ def main():
         fits.Column(name="WAVE", format="D", array=np.zeros(0)),
         fits.Column(name="FLUX", format="E", array=np.zeros(0, dtype=np.float32))])
     fits.HDUList([fits.PrimaryHDU(), t]).writeto(os.path.join(BAD, "empty_table.fits"), overwrite=True)
+    # a 1-D image without any spectral WCS
+    fits.PrimaryHDU(np.ones(16, dtype=np.float32)).writeto(os.path.join(BAD, "no_wcs.fits"), overwrite=True)
     expected["bad"] = {
+        "no_wcs.fits": "NoSpectrum",
         "truncated.fits": "Truncated",
         "wrong_column_type.fits": "ColumnType",
         "mismatched_lengths.fits": "LengthMismatch",
