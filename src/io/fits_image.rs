@@ -1,6 +1,6 @@
 /*!
-FITS 1-D images with a spectral WCS (FITS WCS Paper III, Greisen et al.
-2006, A&A 446, 747).
+FITS 1-D images with a spectral WCS (the FITS WCS standard, Paper III on
+spectral coordinates: A&A 446, 747, 2006).
 
 Pixel p (1-based) has wavelength
 - linear (`CTYPE1` = `WAVE`, `AWAV`, `LINEAR` or absent):
