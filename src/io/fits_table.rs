@@ -17,9 +17,11 @@ multi-object table without an id column get `#row` appended.
 */
 use super::fits_common::{header_facts, key_string, HduKind, HduSummary, OpenFits, Source};
 use super::{
-    find_name, synonyms, tried, unit_to_angstrom, ErrKind, LoadError, Loc, RawSpectrum, ReadOptions, WaveScale,
+    find_name, synonyms, tried, unit_to_angstrom, ErrKind, LoadError, Loc, RawSpectrum, ReadOptions,
+    WaveScale,
 };
 use crate::spectrum::{Spectrum, SpectrumMeta};
+use fitsio::hdu::FitsHdu;
 use fitsio::tables::{ColumnDataType, ConcreteColumnDescription};
 use fitsio::FitsFile;
 
@@ -136,7 +138,11 @@ pub(crate) fn plan(
                     at: loc,
                     role: "uncertainty",
                     tried: tried(Some(n), &[]),
-                    flag: if kind == ErrKind::Ivar { "ivar-col" } else { "err-col" },
+                    flag: if kind == ErrKind::Ivar {
+                        "ivar-col"
+                    } else {
+                        "err-col"
+                    },
                 })
             }
         },
@@ -172,7 +178,11 @@ pub(crate) fn plan(
     // Vector shape: the flux holds several values per row.
     let vector = flux.repeat > 1;
     let per_row = if vector { flux.repeat } else { 1 };
-    for (what, c) in [("wavelength", Some(&wave)), ("uncertainty", err.as_ref().map(|e| &e.0)), ("mask", mask.as_ref())] {
+    for (what, c) in [
+        ("wavelength", Some(&wave)),
+        ("uncertainty", err.as_ref().map(|e| &e.0)),
+        ("mask", mask.as_ref()),
+    ] {
         if let Some(c) = c {
             if c.repeat != per_row {
                 return Err(LoadError::LengthMismatch {
@@ -193,7 +203,11 @@ pub(crate) fn plan(
     if tunit.to_ascii_lowercase().starts_with("log(") || tunit.eq_ignore_ascii_case("dex") {
         scale = WaveScale::Log10;
     }
-    let unit_for_factor = if tunit.eq_ignore_ascii_case("dex") { "" } else { tunit.as_str() };
+    let unit_for_factor = if tunit.eq_ignore_ascii_case("dex") {
+        ""
+    } else {
+        tunit.as_str()
+    };
     let Some(to_aa) = unit_to_angstrom(unit_for_factor) else {
         return Err(LoadError::UnknownUnit {
             at: loc,
@@ -315,12 +329,11 @@ pub(crate) fn explain_miss(h: &HduSummary, opts: &ReadOptions) -> Option<LoadErr
 fn col_f64(
     f: &mut FitsFile,
     fits: &OpenFits,
-    p: &TablePlan,
+    hdu: &FitsHdu,
     c: &Col,
     range: std::ops::Range<usize>,
     at: &Loc,
 ) -> Result<Vec<f64>, LoadError> {
-    let hdu = f.hdu(p.hdu).map_err(|e| fits.err(e, at.clone()))?;
     hdu.read_col_range::<f64>(f, &c.name, &range)
         .map_err(|e| fits.err(e, at.clone()))
 }
@@ -333,18 +346,19 @@ fn assemble(
     range: std::ops::Range<usize>,
     at: &Loc,
 ) -> Result<RawSpectrum, LoadError> {
-    let wave: Vec<f64> = col_f64(f, fits, p, &p.wave, range.clone(), at)?
+    let hdu = &f.hdu(p.hdu).map_err(|e| fits.err(e, at.clone()))?;
+    let wave: Vec<f64> = col_f64(f, fits, hdu, &p.wave, range.clone(), at)?
         .into_iter()
         .map(|v| p.scale.apply(v) * p.to_aa)
         .collect();
-    let flux = col_f64(f, fits, p, &p.flux, range.clone(), at)?;
+    let flux = col_f64(f, fits, hdu, &p.flux, range.clone(), at)?;
     let ivar = match &p.err {
-        Some((c, kind)) => Some(kind.to_ivar(&col_f64(f, fits, p, c, range.clone(), at)?)),
+        Some((c, kind)) => Some(kind.to_ivar(&col_f64(f, fits, hdu, c, range.clone(), at)?)),
         None => None,
     };
     let bad = match &p.mask {
         Some(c) => Some(
-            col_f64(f, fits, p, c, range, at)?
+            col_f64(f, fits, hdu, c, range, at)?
                 .iter()
                 .map(|m| *m != 0.0)
                 .collect(),
@@ -414,10 +428,16 @@ pub(crate) fn read_row(
         None => format!("{}#{row}", p.base.id),
     };
     if let Some(c) = &p.ra_col {
-        raw.meta.ra = col_f64(f, fits, p, c, row..row + 1, &at)?.first().copied().filter(|v| v.is_finite());
+        raw.meta.ra = col_f64(f, fits, &hdu, c, row..row + 1, &at)?
+            .first()
+            .copied()
+            .filter(|v| v.is_finite());
     }
     if let Some(c) = &p.dec_col {
-        raw.meta.dec = col_f64(f, fits, p, c, row..row + 1, &at)?.first().copied().filter(|v| v.is_finite());
+        raw.meta.dec = col_f64(f, fits, &hdu, c, row..row + 1, &at)?
+            .first()
+            .copied()
+            .filter(|v| v.is_finite());
     }
     raw.finish(at)
 }
