@@ -1,4 +1,6 @@
 //! The integration tests: one binary, one module per area.
 mod support;
 
+mod lines;
 mod smoke;
+mod templates;
