@@ -5,4 +5,6 @@ mod fit;
 mod io;
 mod records;
 mod review;
+mod lines;
 mod smoke;
+mod templates;
