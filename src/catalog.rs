@@ -153,16 +153,34 @@ impl Default for ColumnMap {
     ///
     /// A bare `z` is the z-band magnitude, never a redshift.
     fn default() -> Self {
-        let band = |b: &str, pats: &[&str]| -> Vec<String> { pats.iter().map(|p| p.replace("{b}", b)).collect() };
+        let band =
+            |b: &str, pats: &[&str]| -> Vec<String> { pats.iter().map(|p| p.replace("{b}", b)).collect() };
         let mag_pats = ["{b}", "mag_{b}", "{b}mag", "{b}_mag", "mag_{b}_ab", "{b}_ab"];
         let err_pats = [
-            "{b}_err", "err_{b}", "e_{b}", "{b}err", "{b}mag_err", "{b}_mag_err", "mag_{b}_err", "magerr_{b}",
-            "e_{b}mag", "sigma_{b}",
+            "{b}_err",
+            "err_{b}",
+            "e_{b}",
+            "{b}err",
+            "{b}mag_err",
+            "{b}_mag_err",
+            "mag_{b}_err",
+            "magerr_{b}",
+            "e_{b}mag",
+            "sigma_{b}",
         ];
         ColumnMap {
             id: names(&[
-                "id", "objid", "obj_id", "object_id", "objectid", "object", "name", "targetid", "target_id",
-                "source_id", "specid",
+                "id",
+                "objid",
+                "obj_id",
+                "object_id",
+                "objectid",
+                "object",
+                "name",
+                "targetid",
+                "target_id",
+                "source_id",
+                "specid",
             ]),
             ra: names(&["ra", "ra_deg", "raj2000", "ra_j2000"]),
             dec: names(&["dec", "dec_deg", "dej2000", "decj2000", "dec_j2000"]),
@@ -170,9 +188,16 @@ impl Default for ColumnMap {
             mag_err: BANDS.map(|b| band(b, &err_pats)),
             phot_class: names(&["phot_class", "photclass", "class_phot", "photo_class", "class"]),
             phot_class_prob: names(&[
-                "phot_class_prob", "phot_prob", "class_prob", "prob_class", "p_class", "class_probability",
+                "phot_class_prob",
+                "phot_prob",
+                "class_prob",
+                "prob_class",
+                "p_class",
+                "class_probability",
             ]),
-            phot_z: names(&["phot_z", "photo_z", "photoz", "zphot", "z_phot", "photz", "z_photo"]),
+            phot_z: names(&[
+                "phot_z", "photo_z", "photoz", "zphot", "z_phot", "photz", "z_photo",
+            ]),
             explicit: Vec::new(),
         }
     }
@@ -180,8 +205,22 @@ impl Default for ColumnMap {
 
 /// The field names [`ColumnMap::set`] accepts.
 pub const FIELDS: &[&str] = &[
-    "id", "ra", "dec", "u", "g", "r", "i", "z", "u_err", "g_err", "r_err", "i_err", "z_err", "phot_class",
-    "phot_class_prob", "phot_z",
+    "id",
+    "ra",
+    "dec",
+    "u",
+    "g",
+    "r",
+    "i",
+    "z",
+    "u_err",
+    "g_err",
+    "r_err",
+    "i_err",
+    "z_err",
+    "phot_class",
+    "phot_class_prob",
+    "phot_z",
 ];
 
 impl ColumnMap {
@@ -218,7 +257,10 @@ impl ColumnMap {
         for o in overrides {
             let o = o.as_ref();
             let Some((field, column)) = o.split_once('=') else {
-                return Err(CatalogError::UnknownField(o.to_string(), "expected field=column".into()));
+                return Err(CatalogError::UnknownField(
+                    o.to_string(),
+                    "expected field=column".into(),
+                ));
             };
             self.set(field, column.trim())?;
         }
@@ -235,7 +277,10 @@ fn find(header: &[String], wanted: &[String]) -> Option<usize> {
 
 fn is_missing(s: &str) -> bool {
     let t = s.trim();
-    t.is_empty() || ["nan", "null", "na", "n/a", "--", "none"].iter().any(|m| t.eq_ignore_ascii_case(m))
+    t.is_empty()
+        || ["nan", "null", "na", "n/a", "--", "none"]
+            .iter()
+            .any(|m| t.eq_ignore_ascii_case(m))
 }
 
 /// Read a catalogue CSV.
@@ -251,7 +296,11 @@ pub fn read_csv(path: &Path, map: &ColumnMap) -> Result<Vec<CatalogRow>, Catalog
         .find(|l| !l.trim().is_empty() && !l.trim_start().starts_with('#'))
         .unwrap_or_default()
         .to_string();
-    let delim = if first.contains('\t') && !first.contains(',') { b'\t' } else { b',' };
+    let delim = if first.contains('\t') && !first.contains(',') {
+        b'\t'
+    } else {
+        b','
+    };
     let mut rdr = csv::ReaderBuilder::new()
         .delimiter(delim)
         .comment(Some(b'#'))
@@ -263,7 +312,12 @@ pub fn read_csv(path: &Path, map: &ColumnMap) -> Result<Vec<CatalogRow>, Catalog
         line: e.position().map_or(0, |p| p.line()),
         message: e.to_string(),
     };
-    let header: Vec<String> = rdr.headers().map_err(csv_err)?.iter().map(|s| s.to_string()).collect();
+    let header: Vec<String> = rdr
+        .headers()
+        .map_err(csv_err)?
+        .iter()
+        .map(|s| s.to_string())
+        .collect();
     for (field, c) in &map.explicit {
         if find(&header, std::slice::from_ref(c)).is_none() {
             return Err(CatalogError::MissingColumn {
@@ -310,9 +364,8 @@ pub fn read_csv(path: &Path, map: &ColumnMap) -> Result<Vec<CatalogRow>, Catalog
                 }),
             }
         };
-        let magnitude = |col| -> Result<Option<f64>, CatalogError> {
-            Ok(num(col)?.filter(|m| m.abs() < 90.0))
-        };
+        let magnitude =
+            |col| -> Result<Option<f64>, CatalogError> { Ok(num(col)?.filter(|m| m.abs() < 90.0)) };
         let id = rec.get(id_col).unwrap_or("").trim().to_string();
         if id.is_empty() {
             return Err(CatalogError::BadId {
@@ -329,13 +382,15 @@ pub fn read_csv(path: &Path, map: &ColumnMap) -> Result<Vec<CatalogRow>, Catalog
             });
         }
         let phot_class = match class.map(|c| rec.get(c).unwrap_or("")) {
-            Some(v) if !is_missing(v) => Some(v.parse::<ObjectClass>().map_err(|_| CatalogError::BadValue {
-                path: path.to_path_buf(),
-                line,
-                column: header[class.unwrap_or(0)].clone(),
-                value: v.to_string(),
-                expected: "a class (galaxy, quasar or star)",
-            })?),
+            Some(v) if !is_missing(v) => {
+                Some(v.parse::<ObjectClass>().map_err(|_| CatalogError::BadValue {
+                    path: path.to_path_buf(),
+                    line,
+                    column: header[class.unwrap_or(0)].clone(),
+                    value: v.to_string(),
+                    expected: "a class (galaxy, quasar or star)",
+                })?)
+            }
             _ => None,
         };
         let mut row = CatalogRow {
@@ -415,7 +470,10 @@ mod tests {
         let a = &rows[0];
         assert_eq!(a.id, "a1");
         assert_eq!((a.ra, a.dec), (Some(10.5), Some(-3.25)));
-        assert_eq!(a.mag, [Some(21.0), Some(20.1), Some(19.5), Some(19.2), Some(19.0)]);
+        assert_eq!(
+            a.mag,
+            [Some(21.0), Some(20.1), Some(19.5), Some(19.2), Some(19.0)]
+        );
         assert_eq!(a.mag_err[1], Some(0.03));
         assert_eq!(a.phot_class, Some(ObjectClass::Galaxy));
         assert_eq!(a.phot_class_prob, Some(0.9));
@@ -440,13 +498,22 @@ mod tests {
         let rows = read_csv(&p, &map).unwrap();
         assert_eq!(rows[0].mag[2], Some(18.5));
         assert_eq!(rows[0].phot_z, Some(0.7));
-        assert!(matches!(read_csv(&p, &ColumnMap::default()), Err(CatalogError::MissingId { .. })));
+        assert!(matches!(
+            read_csv(&p, &ColumnMap::default()),
+            Err(CatalogError::MissingId { .. })
+        ));
         let mut m = ColumnMap::default();
         m.set("ra", "RA_NOT_THERE").unwrap();
-        assert!(matches!(read_csv(&p, &m), Err(CatalogError::MissingColumn { .. })));
+        assert!(matches!(
+            read_csv(&p, &m),
+            Err(CatalogError::MissingColumn { .. })
+        ));
         assert!(m.set("y", "Y").is_err());
         let p = write("d.csv", "id,r\nq,1\nq,2\n");
-        assert!(matches!(read_csv(&p, &ColumnMap::default()), Err(CatalogError::BadId { line: 3, .. })));
+        assert!(matches!(
+            read_csv(&p, &ColumnMap::default()),
+            Err(CatalogError::BadId { line: 3, .. })
+        ));
     }
 
     #[test]

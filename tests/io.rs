@@ -31,24 +31,53 @@ fn check_object(file: &str, s: &Spectrum, e: &Value) {
     assert_eq!(s.meta.hdu.map(|h| h as u64), e["hdu"].as_u64(), "{ctx}: hdu");
     assert_eq!(s.meta.row.map(|h| h as u64), e["row"].as_u64(), "{ctx}: row");
     let air = e["medium"] == "air";
-    assert_eq!(s.meta.medium_as_read, if air { Medium::Air } else { Medium::Vacuum }, "{ctx}");
-    assert_eq!(s.meta.noise_estimated, e["noise_estimated"].as_bool().unwrap(), "{ctx}");
-    assert_eq!(s.meta.flux_unit.as_deref(), e["flux_unit"].as_str(), "{ctx}: flux unit");
+    assert_eq!(
+        s.meta.medium_as_read,
+        if air { Medium::Air } else { Medium::Vacuum },
+        "{ctx}"
+    );
+    assert_eq!(
+        s.meta.noise_estimated,
+        e["noise_estimated"].as_bool().unwrap(),
+        "{ctx}"
+    );
+    assert_eq!(
+        s.meta.flux_unit.as_deref(),
+        e["flux_unit"].as_str(),
+        "{ctx}: flux unit"
+    );
     let wave = e["wave"].as_array().unwrap();
     assert_eq!(s.len(), wave.len(), "{ctx}: pixels");
-    let good: Vec<bool> = e["good"].as_array().unwrap().iter().map(|g| g.as_bool().unwrap()).collect();
+    let good: Vec<bool> = e["good"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|g| g.as_bool().unwrap())
+        .collect();
     assert_eq!(s.good(), &good[..], "{ctx}: good-pixel mask");
     for i in 0..s.len() {
         // astropy's wavelength in the file's medium; air is converted by our
         // IAU-standard formula (itself tested against published pairs).
         let w = wave[i].as_f64().unwrap();
         let w = if air { air_to_vacuum(w) } else { w };
-        assert!(close(s.wave()[i], w, 1e-10), "{ctx}: wave[{i}] {} vs {w}", s.wave()[i]);
+        assert!(
+            close(s.wave()[i], w, 1e-10),
+            "{ctx}: wave[{i}] {} vs {w}",
+            s.wave()[i]
+        );
         if good[i] {
             let f = e["flux"][i].as_f64().unwrap();
-            assert!(close(s.flux()[i], f, 1e-9), "{ctx}: flux[{i}] {} vs {f}", s.flux()[i]);
+            assert!(
+                close(s.flux()[i], f, 1e-9),
+                "{ctx}: flux[{i}] {} vs {f}",
+                s.flux()[i]
+            );
             if let Some(iv) = e["ivar"][i].as_f64() {
-                assert!(close(s.ivar()[i], iv, 1e-9), "{ctx}: ivar[{i}] {} vs {iv}", s.ivar()[i]);
+                assert!(
+                    close(s.ivar()[i], iv, 1e-9),
+                    "{ctx}: ivar[{i}] {} vs {iv}",
+                    s.ivar()[i]
+                );
             }
         }
     }
@@ -135,7 +164,10 @@ fn options_override_what_the_file_says() {
         ..Default::default()
     };
     let e = read_file(&data_dir().join("tab_pixel_sigma.fits"), &opts).unwrap_err();
-    assert!(matches!(e.kind(), LoadError::MissingColumn { role: "flux", .. }), "{e}");
+    assert!(
+        matches!(e.kind(), LoadError::MissingColumn { role: "flux", .. }),
+        "{e}"
+    );
     let opts = ReadOptions {
         hdu: Some(7),
         ..Default::default()
@@ -184,14 +216,21 @@ fn damaged_files_never_panic() {
         if name.ends_with(".fits") {
             // garble a table format and an axis length
             let text = String::from_utf8_lossy(&bytes).into_owned();
-            for (from, to) in [("TFORM2  = '", "TFORM2  = '9"), ("NAXIS1  =", "NAXIS1  = -"), ("BITPIX  =", "BITPIX  = 7")] {
+            for (from, to) in [
+                ("TFORM2  = '", "TFORM2  = '9"),
+                ("NAXIS1  =", "NAXIS1  = -"),
+                ("BITPIX  =", "BITPIX  = 7"),
+            ] {
                 if let Some(i) = text.find(from) {
                     let mut b = bytes.clone();
                     let at = i + from.len();
                     for (j, c) in to[from.len()..].bytes().enumerate() {
                         b[at + j] = c;
                     }
-                    let p = dir.join(format!("garbled_{}_{name}", from.split_whitespace().next().unwrap()));
+                    let p = dir.join(format!(
+                        "garbled_{}_{name}",
+                        from.split_whitespace().next().unwrap()
+                    ));
                     std::fs::write(&p, &b).unwrap();
                     let _ = read_file(&p, &ReadOptions::default());
                 }
@@ -209,13 +248,21 @@ fn check_samples(s: &Spectrum, r: &Value, what: &str, has_ivar: bool) {
     for smp in r["samples"].as_array().unwrap() {
         let i = smp["index"].as_u64().unwrap() as usize;
         let w = smp["wave"].as_f64().unwrap();
-        assert!(close(s.wave()[i], w, 1e-9), "{what}: wave[{i}] {} vs {w}", s.wave()[i]);
+        assert!(
+            close(s.wave()[i], w, 1e-9),
+            "{what}: wave[{i}] {} vs {w}",
+            s.wave()[i]
+        );
         if let Some(f) = smp["flux"].as_f64() {
             assert!(close(s.flux()[i], f, 1e-9), "{what}: flux[{i}]");
         }
         if has_ivar {
             match smp["ivar"].as_f64() {
-                Some(iv) => assert!(close(s.ivar()[i], iv, 1e-9), "{what}: ivar[{i}] {} vs {iv}", s.ivar()[i]),
+                Some(iv) => assert!(
+                    close(s.ivar()[i], iv, 1e-9),
+                    "{what}: ivar[{i}] {} vs {iv}",
+                    s.ivar()[i]
+                ),
                 None => assert!(!s.good()[i], "{what}: pixel {i} has no usable ivar in the file"),
             }
         }
@@ -236,7 +283,11 @@ fn the_nearby_passive_galaxy_reads_as_astropy_reads_it() {
     // 3826.5–9208.7 Å vacuum (the numbers; astropy's below)
     assert!((s.wave()[0] - 3826.5).abs() < 0.05 && (s.wave()[s.len() - 1] - 9208.7).abs() < 0.05);
     assert!(close(s.wave()[0], r["wave_min"].as_f64().unwrap(), 1e-10));
-    assert!(close(s.wave()[s.len() - 1], r["wave_max"].as_f64().unwrap(), 1e-10));
+    assert!(close(
+        s.wave()[s.len() - 1],
+        r["wave_max"].as_f64().unwrap(),
+        1e-10
+    ));
     assert_eq!(s.meta.medium_as_read, Medium::Vacuum);
     assert_eq!(s.n_good() as u64, r["n_good"].as_u64().unwrap());
     assert_eq!(s.meta.flux_unit.as_deref(), r["flux_unit"].as_str());
@@ -257,7 +308,11 @@ fn the_a0v_star_reads_as_astropy_reads_it() {
     let s = &read_file(&support::a0v_star(), &ReadOptions::default()).unwrap()[0];
     assert_eq!(s.len() as u64, r["pixels"].as_u64().unwrap());
     assert!(close(s.wave()[0], r["wave_min"].as_f64().unwrap(), 1e-10));
-    assert!(close(s.wave()[s.len() - 1], r["wave_max"].as_f64().unwrap(), 1e-10));
+    assert!(close(
+        s.wave()[s.len() - 1],
+        r["wave_max"].as_f64().unwrap(),
+        1e-10
+    ));
     // σ = STATERROR → ivar = 1/σ²; σ = 0 pixels are bad
     assert_eq!(s.n_good() as u64, r["n_good"].as_u64().unwrap());
     assert_eq!(s.meta.id, r["id"].as_str().unwrap());
@@ -271,7 +326,11 @@ fn the_g2_model_reads_with_an_estimated_noise() {
     let s = &read_file(&support::g2_model(), &ReadOptions::default()).unwrap()[0];
     assert_eq!(s.len() as u64, r["pixels"].as_u64().unwrap());
     assert!(close(s.wave()[0], r["wave_min"].as_f64().unwrap(), 1e-10));
-    assert!(close(s.wave()[s.len() - 1], r["wave_max"].as_f64().unwrap(), 1e-10));
+    assert!(close(
+        s.wave()[s.len() - 1],
+        r["wave_max"].as_f64().unwrap(),
+        1e-10
+    ));
     // no uncertainty in the file: the fallback is flagged and said
     assert!(s.meta.noise_estimated);
     assert!(s.meta.warnings.iter().any(|w| w.contains("no uncertainty")));
@@ -292,7 +351,11 @@ fn inspect_reports_good_files_and_one_line_per_bad_file() {
         .arg(&dir)
         .output()
         .unwrap();
-    assert_eq!(out.status.code(), Some(1), "a bad file makes the exit code non-zero");
+    assert_eq!(
+        out.status.code(),
+        Some(1),
+        "a bad file makes the exit code non-zero"
+    );
     let stdout = String::from_utf8(out.stdout).unwrap();
     let lines: Vec<Value> = stdout.lines().map(|l| serde_json::from_str(l).unwrap()).collect();
     // 1 object from the image + 3 from the table, in file order
@@ -313,5 +376,10 @@ fn inspect_reports_good_files_and_one_line_per_bad_file() {
         .unwrap();
     assert!(out.status.success());
     let text = String::from_utf8(out.stdout).unwrap();
-    assert!(text.contains("lin-1") && text.contains("air (converted to vacuum)") && text.contains("noise estimated"), "{text}");
+    assert!(
+        text.contains("lin-1")
+            && text.contains("air (converted to vacuum)")
+            && text.contains("noise estimated"),
+        "{text}"
+    );
 }

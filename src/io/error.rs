@@ -153,13 +153,19 @@ pub enum LoadError {
         detail: String,
     },
     /// Every flux value is missing or not finite (or every pixel is masked).
-    #[error("{}no usable pixel: every flux (or its uncertainty) is NaN, infinite, zero-weight or masked", At(at))]
+    #[error(
+        "{}no usable pixel: every flux (or its uncertainty) is NaN, infinite, zero-weight or masked",
+        At(at)
+    )]
     NoGoodPixels {
         /// where
         at: Loc,
     },
     /// A wavelength unit this reader does not know.
-    #[error("{}unknown wavelength unit '{unit}' in {keyword} (known: Angstrom, nm, um, m)", At(at))]
+    #[error(
+        "{}unknown wavelength unit '{unit}' in {keyword} (known: Angstrom, nm, um, m)",
+        At(at)
+    )]
     UnknownUnit {
         /// where
         at: Loc,

@@ -91,9 +91,7 @@ pub(crate) fn key_i64(f: &mut FitsFile, hdu: &FitsHdu, key: &str) -> Option<i64>
 
 /// Object id, flux unit, position and medium keywords of one header.
 pub(crate) fn header_facts(f: &mut FitsFile, hdu: &FitsHdu) -> Primary {
-    let id = synonyms::ID_KEYWORDS
-        .iter()
-        .find_map(|k| key_string(f, hdu, k));
+    let id = synonyms::ID_KEYWORDS.iter().find_map(|k| key_string(f, hdu, k));
     let flux_unit = key_string(f, hdu, "BUNIT");
     let ra = synonyms::RA
         .iter()
@@ -139,10 +137,7 @@ impl OpenFits {
 
 /// True for an uncompressed file whose length is not a whole number of FITS blocks.
 fn is_short(path: &Path) -> bool {
-    let gz = path
-        .to_string_lossy()
-        .to_ascii_lowercase()
-        .ends_with(".gz");
+    let gz = path.to_string_lossy().to_ascii_lowercase().ends_with(".gz");
     !gz && std::fs::metadata(path).is_ok_and(|m| m.len() % 2880 != 0)
 }
 
@@ -166,9 +161,7 @@ fn open(path: &Path) -> Result<OpenFits, LoadError> {
         Err(e) => {
             let e = LoadError::fits(e, Loc::default());
             return Err(match e {
-                LoadError::Fits { message, .. } if is_short(path) => {
-                    LoadError::Truncated(message)
-                }
+                LoadError::Fits { message, .. } if is_short(path) => LoadError::Truncated(message),
                 e => e,
             });
         }
@@ -190,9 +183,7 @@ fn open(path: &Path) -> Result<OpenFits, LoadError> {
             primary = header_facts(&mut f, &hdu);
         }
         let kind = match &hdu.info {
-            HduInfo::ImageInfo { shape, .. } => HduKind::Image {
-                shape: shape.clone(),
-            },
+            HduInfo::ImageInfo { shape, .. } => HduKind::Image { shape: shape.clone() },
             HduInfo::TableInfo {
                 column_descriptions,
                 num_rows,
@@ -202,11 +193,7 @@ fn open(path: &Path) -> Result<OpenFits, LoadError> {
             },
             HduInfo::AnyInfo => continue,
         };
-        hdus.push(HduSummary {
-            index: i,
-            name,
-            kind,
-        });
+        hdus.push(HduSummary { index: i, name, kind });
     }
     // cfitsio counts HDUs up to the first one it cannot read; probe the next
     // so that a damaged extension is reported rather than silently missed.
@@ -274,10 +261,7 @@ impl Source {
 /// single exposures) are one object: the first is read, the others are named
 /// in a warning.
 fn plan(fits: &OpenFits, opts: &ReadOptions) -> Result<Vec<Source>, LoadError> {
-    let mut f = fits
-        .file
-        .lock()
-        .map_err(|e| LoadError::fits(e, Loc::default()))?;
+    let mut f = fits.file.lock().map_err(|e| LoadError::fits(e, Loc::default()))?;
     let f = &mut *f;
     if let Some(want) = opts.hdu {
         let Some(h) = fits.hdus.iter().find(|h| h.index == want) else {
@@ -433,10 +417,7 @@ impl Iterator for FitsStream {
             let (fits, opts) = (&self.fits, &self.opts);
             let one = |read: &dyn Fn(&mut FitsFile) -> Result<Spectrum, LoadError>| {
                 guard(|| {
-                    let mut f = fits
-                        .file
-                        .lock()
-                        .map_err(|e| LoadError::fits(e, Loc::default()))?;
+                    let mut f = fits.file.lock().map_err(|e| LoadError::fits(e, Loc::default()))?;
                     read(&mut f)
                 })
             };

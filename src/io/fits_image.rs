@@ -135,9 +135,7 @@ pub(crate) fn plan(
         Role::Wave(s) => Some((i, s)),
         _ => None,
     });
-    let hdu = f
-        .hdu(h.index)
-        .map_err(|e| fits.err(e, loc.clone()))?;
+    let hdu = f.hdu(h.index).map_err(|e| fits.err(e, loc.clone()))?;
     let facts = header_facts(f, &hdu);
     let id = facts
         .id
@@ -176,12 +174,19 @@ fn read_pixels(f: &mut FitsFile, fits: &OpenFits, index: usize, what: &str) -> R
 }
 
 /// Wavelengths (Å, in the file's medium) of an image from its WCS keywords.
-fn wcs_wave(f: &mut FitsFile, hdu: &fitsio::hdu::FitsHdu, n: usize, loc: &Loc) -> Result<(Vec<f64>, bool), LoadError> {
+fn wcs_wave(
+    f: &mut FitsFile,
+    hdu: &fitsio::hdu::FitsHdu,
+    n: usize,
+    loc: &Loc,
+) -> Result<(Vec<f64>, bool), LoadError> {
     let bad = |reason: String| LoadError::BadWcs {
         at: loc.clone(),
         reason,
     };
-    let ctype = key_string(f, hdu, "CTYPE1").unwrap_or_default().to_ascii_uppercase();
+    let ctype = key_string(f, hdu, "CTYPE1")
+        .unwrap_or_default()
+        .to_ascii_uppercase();
     let (air, log_wcs) = match ctype.as_str() {
         "" | "WAVE" | "LINEAR" | "WAVELENGTH" | "LAMBDA" => (false, false),
         "AWAV" => (true, false),
@@ -236,17 +241,30 @@ fn wcs_wave(f: &mut FitsFile, hdu: &fitsio::hdu::FitsHdu, n: usize, loc: &Loc) -
 }
 
 /// Read the spectrum an [`ImagePlan`] describes.
-pub(crate) fn read(f: &mut FitsFile, fits: &OpenFits, p: &ImagePlan, opts: &ReadOptions) -> Result<Spectrum, LoadError> {
+pub(crate) fn read(
+    f: &mut FitsFile,
+    fits: &OpenFits,
+    p: &ImagePlan,
+    opts: &ReadOptions,
+) -> Result<Spectrum, LoadError> {
     let hdu = f.hdu(p.hdu).map_err(|e| fits.err(e, p.loc.clone()))?;
     let facts = header_facts(f, &hdu);
-    let flux = hdu.read_image::<Vec<f64>>(f).map_err(|e| fits.err(e, p.loc.clone()))?;
+    let flux = hdu
+        .read_image::<Vec<f64>>(f)
+        .map_err(|e| fits.err(e, p.loc.clone()))?;
     let (wave, mut air) = match p.wave {
         Some((i, scale)) => {
             let w = read_pixels(f, fits, i, "wavelength")?;
             let wh = f.hdu(i).map_err(|e| fits.err(e, Loc::hdu(i, None)))?;
-            let unit = key_string(f, &wh, "BUNIT").or_else(|| key_string(f, &wh, "CUNIT1")).unwrap_or_default();
+            let unit = key_string(f, &wh, "BUNIT")
+                .or_else(|| key_string(f, &wh, "CUNIT1"))
+                .unwrap_or_default();
             let Some(to_aa) = unit_to_angstrom(&unit) else {
-                return Err(LoadError::UnknownUnit { at: Loc::hdu(i, None), keyword: "BUNIT".into(), unit });
+                return Err(LoadError::UnknownUnit {
+                    at: Loc::hdu(i, None),
+                    keyword: "BUNIT".into(),
+                    unit,
+                });
             };
             (w.into_iter().map(|v| scale.apply(v) * to_aa).collect(), false)
         }

@@ -17,7 +17,8 @@ multi-object table without an id column get `#row` appended.
 */
 use super::fits_common::{header_facts, key_string, HduKind, HduSummary, OpenFits, Source};
 use super::{
-    find_name, synonyms, tried, unit_to_angstrom, ErrKind, LoadError, Loc, RawSpectrum, ReadOptions, WaveScale,
+    find_name, synonyms, tried, unit_to_angstrom, ErrKind, LoadError, Loc, RawSpectrum, ReadOptions,
+    WaveScale,
 };
 use crate::spectrum::{Spectrum, SpectrumMeta};
 use fitsio::tables::{ColumnDataType, ConcreteColumnDescription};
@@ -136,7 +137,11 @@ pub(crate) fn plan(
                     at: loc,
                     role: "uncertainty",
                     tried: tried(Some(n), &[]),
-                    flag: if kind == ErrKind::Ivar { "ivar-col" } else { "err-col" },
+                    flag: if kind == ErrKind::Ivar {
+                        "ivar-col"
+                    } else {
+                        "err-col"
+                    },
                 })
             }
         },
@@ -172,7 +177,11 @@ pub(crate) fn plan(
     // Vector shape: the flux holds several values per row.
     let vector = flux.repeat > 1;
     let per_row = if vector { flux.repeat } else { 1 };
-    for (what, c) in [("wavelength", Some(&wave)), ("uncertainty", err.as_ref().map(|e| &e.0)), ("mask", mask.as_ref())] {
+    for (what, c) in [
+        ("wavelength", Some(&wave)),
+        ("uncertainty", err.as_ref().map(|e| &e.0)),
+        ("mask", mask.as_ref()),
+    ] {
         if let Some(c) = c {
             if c.repeat != per_row {
                 return Err(LoadError::LengthMismatch {
@@ -193,7 +202,11 @@ pub(crate) fn plan(
     if tunit.to_ascii_lowercase().starts_with("log(") || tunit.eq_ignore_ascii_case("dex") {
         scale = WaveScale::Log10;
     }
-    let unit_for_factor = if tunit.eq_ignore_ascii_case("dex") { "" } else { tunit.as_str() };
+    let unit_for_factor = if tunit.eq_ignore_ascii_case("dex") {
+        ""
+    } else {
+        tunit.as_str()
+    };
     let Some(to_aa) = unit_to_angstrom(unit_for_factor) else {
         return Err(LoadError::UnknownUnit {
             at: loc,
@@ -414,10 +427,16 @@ pub(crate) fn read_row(
         None => format!("{}#{row}", p.base.id),
     };
     if let Some(c) = &p.ra_col {
-        raw.meta.ra = col_f64(f, fits, p, c, row..row + 1, &at)?.first().copied().filter(|v| v.is_finite());
+        raw.meta.ra = col_f64(f, fits, p, c, row..row + 1, &at)?
+            .first()
+            .copied()
+            .filter(|v| v.is_finite());
     }
     if let Some(c) = &p.dec_col {
-        raw.meta.dec = col_f64(f, fits, p, c, row..row + 1, &at)?.first().copied().filter(|v| v.is_finite());
+        raw.meta.dec = col_f64(f, fits, p, c, row..row + 1, &at)?
+            .first()
+            .copied()
+            .filter(|v| v.is_finite());
     }
     raw.finish(at)
 }

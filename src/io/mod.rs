@@ -206,11 +206,12 @@ pub(crate) fn unit_to_angstrom(unit: &str) -> Option<f64> {
     let l = u.to_ascii_lowercase();
     let l = l.trim_start_matches("log(").trim_end_matches(')');
     match l {
-        "" | "a" | "aa" | "å" | "angstrom" | "angstroms" | "angstroem" | "ang" | "0.1nm"
-        | "0.1 nm" | "1e-10 m" | "10**-10 m" | "1e-10m" => Some(1.0),
+        "" | "a" | "aa" | "å" | "angstrom" | "angstroms" | "angstroem" | "ang" | "0.1nm" | "0.1 nm"
+        | "1e-10 m" | "10**-10 m" | "1e-10m" => Some(1.0),
         "nm" | "nanometer" | "nanometers" | "nanometre" | "nanometres" => Some(10.0),
-        "um" | "µm" | "μm" | "micron" | "microns" | "micrometer" | "micrometers"
-        | "micrometre" => Some(1.0e4),
+        "um" | "µm" | "μm" | "micron" | "microns" | "micrometer" | "micrometers" | "micrometre" => {
+            Some(1.0e4)
+        }
         "m" | "meter" | "meters" | "metre" | "metres" => Some(1.0e10),
         _ if u == "Å" => Some(1.0),
         _ => None,
@@ -328,9 +329,9 @@ impl RawSpectrum {
         }
         let (lo, hi) = (s.wave()[0], s.wave()[s.len() - 1]);
         if lo < 1.0 || hi > 1.0e8 {
-            s.meta.warnings.push(format!(
-                "wavelengths span {lo:.4}–{hi:.4} Å; is the unit right?"
-            ));
+            s.meta
+                .warnings
+                .push(format!("wavelengths span {lo:.4}–{hi:.4} Å; is the unit right?"));
         }
         Ok(s)
     }
@@ -347,9 +348,7 @@ pub fn has_spectrum_extension(p: &Path) -> bool {
         return false;
     };
     let l = name.to_ascii_lowercase();
-    SPECTRUM_EXTENSIONS
-        .iter()
-        .any(|e| l.ends_with(&format!(".{e}")))
+    SPECTRUM_EXTENSIONS.iter().any(|e| l.ends_with(&format!(".{e}")))
 }
 
 /// Expand folders into the spectrum files below them (recursively, by
@@ -462,9 +461,15 @@ mod tests {
 
     #[test]
     fn synonyms_match_case_insensitively_in_list_order() {
-        let names: Vec<String> = ["FLUX", "LogLam", "Err", "IVAR"].iter().map(|s| s.to_string()).collect();
+        let names: Vec<String> = ["FLUX", "LogLam", "Err", "IVAR"]
+            .iter()
+            .map(|s| s.to_string())
+            .collect();
         assert_eq!(find_name(&names, None, &[synonyms::IVAR, synonyms::ERR]), Some(3));
-        assert_eq!(find_name(&names, None, &[synonyms::WAVE, synonyms::LOG10_WAVE]), Some(1));
+        assert_eq!(
+            find_name(&names, None, &[synonyms::WAVE, synonyms::LOG10_WAVE]),
+            Some(1)
+        );
         assert_eq!(find_name(&names, Some("err"), &[synonyms::IVAR]), Some(2));
         assert_eq!(find_name(&names, Some("nope"), &[synonyms::FLUX]), None);
     }

@@ -13,8 +13,8 @@ white space, with a header line naming the columns.
 - Empty fields and `nan` are missing values (the pixel is masked).
 */
 use super::{
-    file_stem, find_name, synonyms, tried, unit_to_angstrom, ErrKind, LoadError, Loc, RawSpectrum, ReadOptions,
-    WaveScale,
+    file_stem, find_name, synonyms, tried, unit_to_angstrom, ErrKind, LoadError, Loc, RawSpectrum,
+    ReadOptions, WaveScale,
 };
 use crate::spectrum::{Spectrum, SpectrumMeta};
 use std::path::Path;
@@ -42,14 +42,20 @@ fn parse_num(s: &str) -> Option<f64> {
         return Some(f64::NAN);
     }
     // Fortran-style exponents (1.0D+03) appear in old tables.
-    t.replace(['D', 'd'], "e").parse::<f64>().ok().or_else(|| t.parse().ok())
+    t.replace(['D', 'd'], "e")
+        .parse::<f64>()
+        .ok()
+        .or_else(|| t.parse().ok())
 }
 
 /// `wave[nm]` → (`wave`, `nm`).
 fn name_and_unit(h: &str) -> (String, Option<String>) {
     for (open, close) in [('[', ']'), ('(', ')')] {
         if let (Some(a), true) = (h.find(open), h.ends_with(close)) {
-            return (h[..a].trim().to_string(), Some(h[a + 1..h.len() - 1].trim().to_string()));
+            return (
+                h[..a].trim().to_string(),
+                Some(h[a + 1..h.len() - 1].trim().to_string()),
+            );
         }
     }
     (h.trim().to_string(), None)
@@ -106,7 +112,12 @@ pub(crate) fn read_text(path: &Path, opts: &ReadOptions) -> Result<Spectrum, Loa
             warnings.push("no header line: columns taken as wavelength, flux, σ".to_string());
             let base = ["wave", "flux", "err"];
             (0..ncols)
-                .map(|i| (base.get(i).map_or(format!("col{}", i + 1), |s| s.to_string()), None))
+                .map(|i| {
+                    (
+                        base.get(i).map_or(format!("col{}", i + 1), |s| s.to_string()),
+                        None,
+                    )
+                })
                 .unzip()
         }
     };
@@ -114,16 +125,20 @@ pub(crate) fn read_text(path: &Path, opts: &ReadOptions) -> Result<Spectrum, Loa
     if names.len() != ncols {
         return Err(LoadError::LengthMismatch {
             at: hloc,
-            detail: format!("the header names {} columns, the first data line has {ncols}", names.len()),
+            detail: format!(
+                "the header names {} columns, the first data line has {ncols}",
+                names.len()
+            ),
         });
     }
     let wave_syn: &[&[&str]] = &[synonyms::WAVE, synonyms::LOG10_WAVE, synonyms::LN_WAVE];
-    let wi = find_name(&names, opts.wave_col.as_deref(), wave_syn).ok_or_else(|| LoadError::MissingColumn {
-        at: hloc.clone(),
-        role: "wavelength",
-        tried: tried(opts.wave_col.as_deref(), wave_syn),
-        flag: "wave-col",
-    })?;
+    let wi =
+        find_name(&names, opts.wave_col.as_deref(), wave_syn).ok_or_else(|| LoadError::MissingColumn {
+            at: hloc.clone(),
+            role: "wavelength",
+            tried: tried(opts.wave_col.as_deref(), wave_syn),
+            flag: "wave-col",
+        })?;
     let fi = find_name(&names, opts.flux_col.as_deref(), &[synonyms::FLUX]).ok_or_else(|| {
         LoadError::MissingColumn {
             at: hloc.clone(),

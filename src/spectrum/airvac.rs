@@ -79,9 +79,15 @@ mod tests {
     fn published_pairs() {
         for &(air, vac, name) in PAIRS {
             let v = air_to_vacuum(air);
-            assert!((v - vac).abs() < 0.011, "{name}: air {air} -> {v}, published {vac}");
+            assert!(
+                (v - vac).abs() < 0.011,
+                "{name}: air {air} -> {v}, published {vac}"
+            );
             let a = vacuum_to_air(vac);
-            assert!((a - air).abs() < 0.011, "{name}: vac {vac} -> {a}, published {air}");
+            assert!(
+                (a - air).abs() < 0.011,
+                "{name}: vac {vac} -> {a}, published {air}"
+            );
         }
     }
 
