@@ -279,3 +279,414 @@ fn export_matches_astropy_view() {
     assert_eq!(csv["note"][1].as_str().unwrap(), rows[1].note);
     assert_relative_eq!(csv["vetted_z"][1].as_f64().unwrap(), rows[1].vetted_z.unwrap());
 }
+
+// ------------------------------------------------- campaign, merge, report
+
+use std::collections::BTreeMap;
+use zvet::campaign::{Campaign, InitOptions};
+use zvet::fit::{Candidate, FitResult, Warnings};
+use zvet::review::{Change, ReviewLog};
+
+/// The scenario of [`build_campaign`], kept to compute expectations.
+struct Scenario {
+    ids: Vec<String>,
+    truth: Vec<VerdictClass>,
+    phot: Vec<VerdictClass>,
+    /// ana's redshift per object (None for unclear).
+    z: Vec<Option<f64>>,
+    conf: Vec<Confidence>,
+    catastrophic: Vec<usize>,
+    flags: Vec<Vec<Flag>>,
+}
+
+const N_AGREED: usize = 30;
+const N_CONFLICT: usize = 10;
+
+fn ana_z(i: usize, c: VerdictClass) -> Option<f64> {
+    match c {
+        VerdictClass::Galaxy => Some(0.1 + 0.005 * i as f64),
+        VerdictClass::Quasar => Some(1.0 + 0.01 * i as f64),
+        VerdictClass::Star => Some(0.0),
+        VerdictClass::Unclear => None,
+    }
+}
+
+fn other_class(c: VerdictClass) -> VerdictClass {
+    let i = CLASSES.iter().position(|x| *x == c).unwrap();
+    CLASSES[(i + 1) % CLASSES.len()]
+}
+
+/// A campaign of 200 objects whose vetted and photometric classes are the
+/// scikit-learn "200 objects" case: ana reviews all, ben the first 40 (agrees
+/// on 30, disagrees on class on 10), the adjudicator settles those 10 with
+/// ana's class. Automatic fits agree with ana except for a few catastrophic
+/// redshifts.
+fn build_campaign(name: &str) -> (Campaign, Scenario) {
+    let r = data("sklearn_reference.json");
+    let case = &r["confusion"][0];
+    assert_eq!(case["name"], "200 objects");
+    let truth: Vec<VerdictClass> = strings(&case["truth"]).iter().map(|s| class(s)).collect();
+    let phot: Vec<VerdictClass> = strings(&case["pred"]).iter().map(|s| class(s)).collect();
+    let n = truth.len();
+    let ids: Vec<String> = (0..n).map(|i| format!("o{i:03}")).collect();
+    let z: Vec<Option<f64>> = (0..n).map(|i| ana_z(i, truth[i])).collect();
+    let conf: Vec<Confidence> = (0..n).map(|i| Confidence::ALL[i % 4]).collect();
+    let flags: Vec<Vec<Flag>> = (0..n)
+        .map(|i| {
+            let mut f = Vec::new();
+            if i % 10 == 0 {
+                f.push(Flag::LowSignal);
+            }
+            if i % 15 == 0 {
+                f.push(Flag::Blend);
+            }
+            f
+        })
+        .collect();
+    let catastrophic: Vec<usize> = [3, 50, 77, 120, 150, 181, 199, 5, 8, 13]
+        .into_iter()
+        .filter(|&i| truth[i] != VerdictClass::Unclear)
+        .take(7)
+        .collect();
+    assert_eq!(catastrophic.len(), 7);
+
+    let dir = support::scratch(name);
+    let spectra = dir.join("spectra");
+    std::fs::create_dir_all(&spectra).unwrap();
+    let cat_path = dir.join("catalogue.csv");
+    let mut cat =
+        String::from("id,ra,dec,u,g,r,i,z,u_err,g_err,r_err,i_err,z_err,phot_class,phot_class_prob,phot_z\n");
+    for i in 0..n {
+        let pc = phot[i].as_str();
+        cat.push_str(&format!(
+            "{},{},{},21.0,20.5,20.0,19.8,19.7,0.1,0.05,0.04,0.04,0.08,{pc},0.9,0.3\n",
+            ids[i],
+            10.0 + 0.01 * i as f64,
+            -1.0 - 0.01 * i as f64
+        ));
+    }
+    std::fs::write(&cat_path, cat).unwrap();
+    let camp_dir = dir.join("campaign");
+    let mut c = Campaign::init(
+        &camp_dir,
+        &InitOptions {
+            spectra: vec![spectra],
+            catalog: Some(cat_path),
+            inspectors: vec!["ana".into(), "ben".into()],
+            adjudicator: Some("judge".into()),
+            ..InitOptions::default()
+        },
+    )
+    .unwrap();
+
+    let fits: Vec<FitResult> = (0..n)
+        .map(|i| {
+            let auto_class = truth[i].object_class().unwrap_or(ObjectClass::Galaxy);
+            let mut az = z[i].unwrap_or(0.2);
+            if catastrophic.contains(&i) {
+                az += 0.2;
+            }
+            FitResult {
+                object_id: ids[i].clone(),
+                candidates: vec![Candidate {
+                    class: auto_class,
+                    template: "t".into(),
+                    z: az,
+                    z_err: 1e-4,
+                    chi2: 1000.0,
+                    coeffs: vec![1.0],
+                }],
+                delta_chi2: if i % 2 == 0 { f64::INFINITY } else { 50.0 },
+                chi2_reduced: 1.0,
+                n_good: 3000,
+                snr_median: 8.0,
+                warnings: Warnings::default(),
+                curves: vec![],
+                lines: vec![],
+            }
+        })
+        .collect();
+    c.save_fits(&fits).unwrap();
+
+    let verdict = |class: VerdictClass, z: Option<f64>, confidence| Change::Verdict {
+        class,
+        z,
+        z_err: z.map(|_| 1e-4),
+        source: ZSource::Automatic,
+        confidence,
+    };
+    {
+        let (mut ana, _) = c.open_review_log("ana").unwrap();
+        for i in 0..n {
+            ana.record(&ids[i], None, verdict(truth[i], z[i], conf[i]))
+                .unwrap();
+            for f in &flags[i] {
+                ana.record(&ids[i], None, Change::Flag { flag: *f, on: true })
+                    .unwrap();
+            }
+        }
+        let (mut ben, _) = c.open_review_log("ben").unwrap();
+        for i in 0..N_AGREED + N_CONFLICT {
+            let (cl, zz) = if i < N_AGREED {
+                (truth[i], z[i].map(|z| z + 0.0005 * (1.0 + z)))
+            } else {
+                let o = other_class(truth[i]);
+                (o, ana_z(i, o))
+            };
+            ben.record(&ids[i], None, verdict(cl, zz, Confidence::Certain))
+                .unwrap();
+        }
+        let (mut judge, _) = c.open_review_log("judge").unwrap();
+        for i in N_AGREED..N_AGREED + N_CONFLICT {
+            judge
+                .record(&ids[i], None, verdict(truth[i], z[i], Confidence::Certain))
+                .unwrap();
+        }
+    }
+    let scenario = Scenario {
+        ids,
+        truth,
+        phot,
+        z,
+        conf,
+        catastrophic,
+        flags,
+    };
+    (c, scenario)
+}
+
+#[test]
+fn campaign_reopens_with_its_manifest() {
+    let (c, s) = build_campaign("campaign_reopen");
+    let c2 = Campaign::open(c.dir()).unwrap();
+    assert_eq!(c2.manifest(), c.manifest());
+    assert_eq!(c2.manifest().inspectors, vec!["ana", "ben", "judge"]);
+    assert_eq!(c2.log_inspectors().unwrap(), vec!["ana", "ben", "judge"]);
+    let (fits, problems) = c2.load_fits().unwrap();
+    assert!(problems.is_empty());
+    assert_eq!(fits.len(), s.ids.len());
+    assert!(fits["o000"].delta_chi2.is_infinite());
+    let (cat, problems) = c2.load_catalog().unwrap();
+    assert!(problems.is_empty());
+    assert_eq!(cat.len(), 200);
+    assert_eq!(cat["o001"].phot_class.map(VerdictClass::from), Some(s.phot[1]));
+    // init refuses an existing campaign; open refuses a plain folder.
+    assert!(Campaign::init(c.dir(), &InitOptions::default()).is_err());
+    let plain = support::scratch("campaign_plain");
+    let err = Campaign::open(&plain).unwrap_err().to_string();
+    assert!(err.contains("not a campaign folder"), "{err}");
+    // A second process (here: a second handle) on ana's log is refused.
+    let mut c3 = c2.clone();
+    let (_held, _) = c3.open_review_log("ana").unwrap();
+    assert!(c3.open_review_log("ana").is_err());
+    assert!(c3.open_review_log("../evil").is_err());
+}
+
+#[test]
+fn merge_of_the_campaign_matches_the_logs() {
+    let (c, s) = build_campaign("campaign_merge");
+    let (m, problems) = c.merge(None).unwrap();
+    assert!(problems.is_empty());
+    let counts = m.counts();
+    assert_eq!(counts[&ConsensusState::Single], 200 - N_AGREED - N_CONFLICT);
+    assert_eq!(counts[&ConsensusState::Agreed], N_AGREED);
+    assert_eq!(counts[&ConsensusState::Adjudicated], N_CONFLICT);
+    assert_eq!(m.conflicts().count(), 0);
+    let p = &m.stats.pairs[0];
+    assert_eq!((p.a.as_str(), p.b.as_str()), ("ana", "ben"));
+    assert_eq!(p.n_common, N_AGREED + N_CONFLICT);
+    assert_relative_eq!(p.class_agreement.unwrap(), N_AGREED as f64 / 40.0);
+    // κ of the same label lists through the tested function.
+    let a: Vec<_> = s.truth[..40].to_vec();
+    let b: Vec<_> = (0..40)
+        .map(|i| {
+            if i < N_AGREED {
+                s.truth[i]
+            } else {
+                other_class(s.truth[i])
+            }
+        })
+        .collect();
+    assert_relative_eq!(p.kappa.unwrap(), cohen_kappa(&a, &b).unwrap(), epsilon = 1e-12);
+    // Without the adjudicator the ten disagreements are conflicts.
+    let (logs, _) = c.read_logs().unwrap();
+    let no_judge: Vec<_> = logs.into_iter().filter(|l| l.inspector != "judge").collect();
+    let m2 = zvet::review::merge::merge(&no_judge, &Default::default());
+    assert_eq!(m2.conflicts().count(), N_CONFLICT);
+    // A tighter tolerance than ben's 0.0005·(1+z) offsets turns agreements
+    // into conflicts (except unclear objects, which carry no redshift).
+    let (m3, _) = c.merge(Some(0.0001)).unwrap();
+    let zero_offset = (0..N_AGREED).filter(|&i| s.z[i].is_none()).count();
+    assert_eq!(m3.counts()[&ConsensusState::Conflict], N_AGREED - zero_offset);
+}
+
+#[test]
+fn report_numbers_match_the_logs_and_scikit_learn() {
+    let (c, s) = build_campaign("campaign_report");
+    let input = zvet::report::input_from_campaign(&c).unwrap();
+    let n = zvet::report::numbers(&input);
+    // Confusion matrix (rows vetted, columns photometric) equals
+    // scikit-learn's confusion_matrix(truth, pred) recorded by
+    // tests/scripts/sklearn_reference.py.
+    let r = data("sklearn_reference.json");
+    let want: Vec<Vec<usize>> = serde_json::from_value(r["confusion"][0]["matrix"].clone()).unwrap();
+    assert_eq!(n.photometric.matrix, want);
+    assert_eq!(n.photometric.n, 200);
+    for (i, acc) in n.photometric.accuracy.iter().enumerate().take(3) {
+        let row: usize = want[i].iter().sum();
+        assert_relative_eq!(acc.unwrap(), want[i][i] as f64 / row as f64);
+    }
+    assert_eq!(n.photometric.accuracy[3], None);
+    // Redshifts: every non-unclear object is compared; the planted
+    // catastrophic ones and only they are outliers.
+    let n_z = s.truth.iter().filter(|c| **c != VerdictClass::Unclear).count();
+    assert_eq!(n.z_pairs.len(), n_z);
+    assert_eq!(n.z_catastrophic, s.catastrophic.len());
+    assert_relative_eq!(n.z_catastrophic_rate.unwrap(), 7.0 / n_z as f64);
+    let mut out_ids: Vec<&str> = n.outliers.iter().map(|o| o.id.as_str()).collect();
+    out_ids.sort();
+    let mut want_ids: Vec<&str> = s.catastrophic.iter().map(|&i| s.ids[i].as_str()).collect();
+    want_ids.sort();
+    assert_eq!(out_ids, want_ids);
+    for o in &n.outliers {
+        // The consensus redshift is the most confident inspector's: ben's
+        // (certain) where ana was less sure, else ana's.
+        let i = s.ids.iter().position(|id| *id == o.id).unwrap();
+        let za = s.z[i].unwrap();
+        let zv = if i < N_AGREED && s.conf[i] != Confidence::Certain {
+            za + 0.0005 * (1.0 + za)
+        } else {
+            za
+        };
+        assert_relative_eq!(o.vetted_z, zv, epsilon = 1e-12);
+        assert_relative_eq!(o.dz, (za + 0.2 - zv).abs() / (1.0 + zv), epsilon = 1e-12);
+    }
+    // Progress per inspector.
+    let prog: BTreeMap<&str, usize> = n
+        .inspectors
+        .iter()
+        .map(|p| (p.name.as_str(), p.reviewed))
+        .collect();
+    assert_eq!(prog, BTreeMap::from([("ana", 200), ("ben", 40), ("judge", 10)]));
+    // Confidence of consensus verdicts: ana's (the lower one where ben agreed),
+    // certain for the adjudicated.
+    let mut want_conf = [0usize; 5];
+    for i in 0..200 {
+        let level = if (N_AGREED..N_AGREED + N_CONFLICT).contains(&i) {
+            Confidence::Certain
+        } else {
+            s.conf[i]
+        };
+        want_conf[level.level() as usize - 1] += 1;
+    }
+    let got_conf: Vec<usize> = n.confidence.iter().map(|(_, v)| *v).collect();
+    assert_eq!(got_conf, want_conf.to_vec());
+    // Flags: ana's flags survive the merge except on adjudicated objects.
+    let count = |f: Flag| {
+        (0..200)
+            .filter(|i| !(N_AGREED..N_AGREED + N_CONFLICT).contains(i) && s.flags[*i].contains(&f))
+            .count()
+    };
+    let flags: BTreeMap<&str, usize> = n.flags.iter().map(|(k, v)| (k.as_str(), *v)).collect();
+    assert_eq!(flags["low_signal"], count(Flag::LowSignal));
+    assert_eq!(flags["blend"], count(Flag::Blend));
+    assert_eq!(n.n_objects, Some(200));
+
+    // Writing: every file, the HTML self-contained with the plots inline.
+    let out = support::scratch("campaign_report_out");
+    let written = zvet::report::write_report(&out, &n).unwrap();
+    assert_eq!(written.len(), zvet::report::REPORT_FILES.len());
+    for f in zvet::report::REPORT_FILES {
+        assert!(std::fs::metadata(out.join(f)).unwrap().len() > 200, "{f}");
+    }
+    let html = std::fs::read_to_string(out.join("report.html")).unwrap();
+    assert_eq!(html.matches("<svg").count(), 6);
+    assert!(!html.contains("src=\"http"));
+    let json: Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("report.json")).unwrap()).unwrap();
+    assert_eq!(json["z_catastrophic"], 7);
+    let svg = std::fs::read_to_string(out.join("confusion_photometric.svg")).unwrap();
+    assert!(
+        svg.contains(&format!("\n{}\n</text>", want[0][0])),
+        "count in the matrix plot"
+    );
+}
+
+#[test]
+fn export_of_the_campaign_applies_filters() {
+    let (c, s) = build_campaign("campaign_export");
+    let out = c.exports_dir().join("all.fits");
+    let sum = export::export_campaign(&c, &out, &Default::default()).unwrap();
+    assert_eq!((sum.rows, sum.filtered, sum.conflicts), (200, 0, 0));
+    let (rows, prov) = export::read(&out).unwrap();
+    assert_eq!(rows.len(), 200);
+    assert_eq!(prov.template_set, "builtin");
+    let r7 = rows.iter().find(|r| r.id == "o007").unwrap();
+    assert_eq!(r7.vetted_class, s.truth[7]);
+    assert_eq!(r7.phot_class.map(VerdictClass::from), Some(s.phot[7]));
+    assert_relative_eq!(r7.ra.unwrap(), 10.07);
+    assert_relative_eq!(r7.colours()[0].unwrap(), 0.5);
+    assert_eq!(r7.inspectors, vec!["ana", "ben"]);
+
+    let opts = export::ExportOptions {
+        min_confidence: Some(Confidence::Solid),
+        exclude_flags: vec![Flag::LowSignal],
+    };
+    let out = c.exports_dir().join("solid.csv");
+    let sum = export::export_campaign(&c, &out, &opts).unwrap();
+    let want = (0..200)
+        .filter(|&i| {
+            let adjudicated = (N_AGREED..N_AGREED + N_CONFLICT).contains(&i);
+            let conf = if adjudicated {
+                Confidence::Certain
+            } else {
+                s.conf[i]
+            };
+            let low = !adjudicated && s.flags[i].contains(&Flag::LowSignal);
+            conf >= Confidence::Solid && !low
+        })
+        .count();
+    assert_eq!(sum.rows, want);
+    assert_eq!(sum.filtered, 200 - want);
+    let (rows, prov) = export::read(&out).unwrap();
+    assert_eq!(rows.len(), want);
+    assert_eq!(prov.min_confidence, Some(Confidence::Solid));
+    assert!(rows.iter().all(|r| r.confidence >= Some(Confidence::Solid)));
+}
+
+#[test]
+fn command_line_merge_export_report() {
+    let (c, _) = build_campaign("campaign_cli");
+    let exe = env!("CARGO_BIN_EXE_zvet");
+    let run = |args: &[&str]| {
+        let o = std::process::Command::new(exe).args(args).output().unwrap();
+        let text = String::from_utf8_lossy(&o.stdout).into_owned() + &String::from_utf8_lossy(&o.stderr);
+        (o.status.success(), text)
+    };
+    let dir = c.dir().to_str().unwrap();
+    let (ok, text) = run(&["merge", dir]);
+    assert!(ok, "{text}");
+    assert!(text.contains("adjudicated  10"), "{text}");
+    assert!(text.contains("ana – ben: 40 in common"), "{text}");
+    let out = c.exports_dir().join("cli.csv");
+    let (ok, text) = run(&[
+        "export",
+        dir,
+        "--out",
+        out.to_str().unwrap(),
+        "--min-confidence",
+        "certain",
+        "--exclude-flags",
+        "blend,low_signal",
+    ]);
+    assert!(ok, "{text}");
+    assert!(out.exists());
+    let (ok, text) = run(&["export", dir, "--out", "x.csv", "--min-confidence", "sure"]);
+    assert!(!ok && text.contains("expected one of"), "{text}");
+    let rep = c.dir().join("rep");
+    let (ok, text) = run(&["report", dir, "--out", rep.to_str().unwrap()]);
+    assert!(ok, "{text}");
+    assert!(rep.join("report.html").exists());
+    let (ok, text) = run(&["campaign", "status", dir]);
+    assert!(ok && text.contains("ben"), "{text}");
+}
