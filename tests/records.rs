@@ -690,3 +690,81 @@ fn command_line_merge_export_report() {
     let (ok, text) = run(&["campaign", "status", dir]);
     assert!(ok && text.contains("ben"), "{text}");
 }
+
+/// A campaign over real files: spectra written as text tables (simulated
+/// from the built-in templates), a catalogue with non-default column names;
+/// `load_objects` joins them and `fit_objects` fills `fits.jsonl`.
+#[test]
+fn campaign_over_spectrum_files_loads_and_fits() {
+    use rand::SeedableRng;
+    use zvet::fit::synth::{simulate, SimSpec};
+    let dir = support::scratch("campaign_files");
+    let spectra = dir.join("spectra");
+    std::fs::create_dir_all(&spectra).unwrap();
+    let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(7);
+    let truth = [(ObjectClass::Galaxy, 0.35), (ObjectClass::Quasar, 2.1)];
+    for (k, (class, z)) in truth.iter().enumerate() {
+        let spec = SimSpec {
+            class: *class,
+            z: *z,
+            snr: 15.0,
+            n: 2500,
+            max_masks: 0,
+            ..SimSpec::default()
+        };
+        let (s, _) = simulate(zvet::templates::builtin(), &spec, &mut rng).unwrap();
+        let mut text = String::from("# wave flux err\n");
+        for i in 0..s.wave().len() {
+            let ivar = s.ivar()[i];
+            text.push_str(&format!(
+                "{} {} {}\n",
+                s.wave()[i],
+                s.flux()[i],
+                1.0 / ivar.sqrt()
+            ));
+        }
+        std::fs::write(spectra.join(format!("obj{k}.txt")), text).unwrap();
+    }
+    std::fs::write(spectra.join("broken.txt"), "not a spectrum\n").unwrap();
+    let cat = dir.join("cat.csv");
+    std::fs::write(
+        &cat,
+        "OBJ,RA,DEC,pc\nobj0,1.5,2.5,galaxy\nobj1,3.5,4.5,star\nobj9,0,0,star\n",
+    )
+    .unwrap();
+    let columns = BTreeMap::from([
+        ("id".to_string(), "OBJ".to_string()),
+        ("phot_class".to_string(), "pc".to_string()),
+    ]);
+    let c = Campaign::init(
+        &dir.join("camp"),
+        &InitOptions {
+            spectra: vec![spectra],
+            catalog: Some(cat),
+            columns,
+            ..InitOptions::default()
+        },
+    )
+    .unwrap();
+    let (mut objects, problems) = c.load_objects().unwrap();
+    assert_eq!(objects.len(), 2, "{problems:?}");
+    assert!(problems.iter().any(|p| p.contains("broken.txt")), "{problems:?}");
+    assert_eq!(objects[0].id(), "obj0");
+    assert_eq!(
+        objects[1].catalog.as_ref().unwrap().phot_class,
+        Some(ObjectClass::Star)
+    );
+    assert_relative_eq!(objects[0].catalog.as_ref().unwrap().ra.unwrap(), 1.5);
+    let (n, failed) = c.fit_objects(&mut objects, false).unwrap();
+    assert_eq!((n, failed.len()), (2, 0));
+    // The engine recovers the simulated redshifts; the cache gives them back.
+    let (objects, _) = Campaign::open(c.dir()).unwrap().load_objects().unwrap();
+    for (o, (class, z)) in objects.iter().zip(truth) {
+        let best = o.fit.as_ref().unwrap().best().unwrap().clone();
+        assert_eq!(best.class, class);
+        assert!((best.z - z).abs() / (1.0 + z) < 0.002, "{} {}", best.z, z);
+    }
+    // Nothing left to fit.
+    let mut objects = objects;
+    assert_eq!(c.fit_objects(&mut objects, false).unwrap().0, 0);
+}
