@@ -21,7 +21,7 @@ pub struct Args {
 #[derive(Debug, clap::Subcommand)]
 pub enum Action {
     /// Create a campaign folder (manifest, reviews/, exports/).
-    Init(InitArgs),
+    Init(Box<InitArgs>),
     /// Fit the spectra that have no cached fit (or all with --refit).
     Fit(FitArgs),
     /// Print the campaign's inputs, fits and review progress.
@@ -85,7 +85,7 @@ pub struct StatusArgs {
 /// Run `zvet campaign`.
 pub fn run(args: Args) -> anyhow::Result<ExitCode> {
     match args.action {
-        Action::Init(a) => init(a),
+        Action::Init(a) => init(*a),
         Action::Fit(a) => {
             let c = Campaign::open(&a.dir)?;
             fit(&c, a.refit)

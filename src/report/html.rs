@@ -65,9 +65,9 @@ pub fn render(n: &ReportNumbers, svgs: &[(String, String)]) -> String {
          th{{background:#eee}}td.diag{{background:#dfd}}figure{{display:inline-block;margin:0 1em 1em 0}}\
          figcaption{{font-size:small;color:#666}}</style></head><body>\n<h1>{title}</h1>\n"
     );
-    let _ = write!(
+    let _ = writeln!(
         o,
-        "<p>Generated {} by zvet {}. Objects in the campaign: {}; reviewed by anyone: {}.</p>\n",
+        "<p>Generated {} by zvet {}. Objects in the campaign: {}; reviewed by anyone: {}.</p>",
         n.generated.format("%Y-%m-%d %H:%M UTC"),
         env!("CARGO_PKG_VERSION"),
         n.n_objects.map_or("unknown".into(), |x| x.to_string()),
