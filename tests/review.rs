@@ -300,7 +300,7 @@ fn crash_test_sigkill() {
         // open/replay); the rest a random 0–12 ms into the writing loop (an
         // fsync takes about 2–3 ms here, so that is a few events).
         let mut saw_ready = false;
-        if rand() % 8 == 0 {
+        if round > 0 && rand() % 8 == 0 {
             std::thread::sleep(Duration::from_micros(rand() % 3000));
         } else {
             for l in lines.by_ref() {
@@ -308,6 +308,11 @@ fn crash_test_sigkill() {
                     saw_ready = true;
                     break;
                 }
+            }
+            if round == 0 {
+                // Another process holds the log: refused, naming the holder.
+                let err = ReviewLog::open(&path, "crash").unwrap_err().to_string();
+                assert!(err.contains(&format!("process {}", child.id())), "{err}");
             }
             std::thread::sleep(Duration::from_micros(rand() % 12_000));
         }
