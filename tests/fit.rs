@@ -232,3 +232,68 @@ fn cross_correlation_finds_the_redshift_of_test_galaxies() {
         assert!(b.z_err > 0.0 && b.z_err < 1e-3);
     }
 }
+
+#[test]
+fn result_tables_round_trip_in_every_format_and_merge_keeps_first_rows() {
+    use zvet::cli::fit::{fit_items, merge, ReadFailure};
+    use zvet::fit::table::{read_rows, RowWriter};
+    let set = synthetic_set();
+    let engine = Engine::new(&set, FitConfig { classes: vec![ObjectClass::Galaxy], ..FitConfig::default() }).unwrap();
+    let mut rng = ChaCha8Rng::seed_from_u64(9);
+    let mut items: Vec<zvet::cli::fit::Item> = (0..5)
+        .map(|i| {
+            let mut s = mock(&set, ObjectClass::Galaxy, 0.1 + 0.1 * i as f64, 10.0, 1500, &mut rng);
+            s.meta.id = format!("obj{i}");
+            Ok(s)
+        })
+        .collect();
+    items.push(Err(ReadFailure {
+        object_id: "broken".into(),
+        source: "broken.fits".into(),
+        message: "no good pixels".into(),
+    }));
+    let dir = crate::support::scratch("fit-tables");
+    for ext in ["csv", "jsonl", "fits"] {
+        let out = dir.join(format!("all.{ext}"));
+        let mut w = RowWriter::create(&out, false).unwrap();
+        let sum = fit_items(&engine, items.clone().into_iter(), &mut w, &Default::default(), None, None).unwrap();
+        w.finish().unwrap();
+        assert_eq!((sum.fitted, sum.failed), (5, 1));
+        let rows = read_rows(&out).unwrap();
+        assert_eq!(rows.len(), 6, "{ext}");
+        assert_eq!(rows[5].object_id, "broken");
+        assert_eq!(rows[5].error, "no good pixels");
+        assert!(rows[5].z.is_none());
+        for (i, r) in rows[..5].iter().enumerate() {
+            assert_eq!(r.class, "galaxy");
+            assert!((r.z.unwrap() - (0.1 + 0.1 * i as f64)).abs() < 2e-3, "{ext}: {r:?}");
+            assert!(r.error.is_empty(), "{ext}: {r:?}");
+        }
+        // shards 1/2 and 2/2 together hold every object exactly once
+        let mut parts = Vec::new();
+        for k in 1..=2 {
+            let p = dir.join(format!("part{k}.{ext}"));
+            let mut w = RowWriter::create(&p, false).unwrap();
+            fit_items(&engine, items.clone().into_iter(), &mut w, &Default::default(), Some((k, 2)), None).unwrap();
+            w.finish().unwrap();
+            parts.push(p);
+        }
+        parts.push(out.clone()); // duplicates: merge keeps the first row of each id
+        let merged = dir.join(format!("merged.{ext}"));
+        assert_eq!(merge(&parts, &merged).unwrap(), 6);
+        let mut ids: Vec<String> = read_rows(&merged).unwrap().into_iter().map(|r| r.object_id).collect();
+        ids.sort();
+        assert_eq!(ids, ["broken", "obj0", "obj1", "obj2", "obj3", "obj4"]);
+        // resume: ids already present are skipped, the rest appended
+        let partial = dir.join(format!("resume.{ext}"));
+        let mut w = RowWriter::create(&partial, false).unwrap();
+        fit_items(&engine, items[..2].to_vec().into_iter(), &mut w, &Default::default(), None, None).unwrap();
+        w.finish().unwrap();
+        let skip = read_rows(&partial).unwrap().into_iter().map(|r| r.object_id).collect();
+        let mut w = RowWriter::create(&partial, true).unwrap();
+        let sum = fit_items(&engine, items.clone().into_iter(), &mut w, &skip, None, None).unwrap();
+        w.finish().unwrap();
+        assert_eq!(sum.skipped, 2);
+        assert_eq!(read_rows(&partial).unwrap().len(), 6, "{ext}");
+    }
+}

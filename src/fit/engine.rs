@@ -312,7 +312,7 @@ impl Engine {
         let delta_chi2 = runner.map_or(f64::MAX, |(c, _, _)| c.chi2 - best.chi2);
         let n_good = prep.n_good();
         let n_par = self.units[best_min.unit].k() + prep.j();
-        let chi2_reduced = best.chi2 / (n_good.saturating_sub(n_par)).max(1) as f64;
+        let chi2_reduced = best.chi2 / prep.dof(n_par);
         let mut warnings = Warnings::default();
         if delta_chi2 < AMBIGUOUS_DCHI2 {
             warnings.set(Warnings::AMBIGUOUS);

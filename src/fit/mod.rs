@@ -18,6 +18,8 @@ mod refine;
 mod result;
 mod sky;
 pub mod synth;
+pub mod table;
+mod table_fits;
 mod units;
 pub mod xcorr;
 

@@ -120,6 +120,12 @@ impl Prepared {
         self.good.len()
     }
 
+    /// Degrees of freedom for `n_par` fitted parameters: independent pixels
+    /// (good grid pixels / oversampling) minus parameters, at least 1.
+    pub fn dof(&self, n_par: usize) -> f64 {
+        (self.good.len() as f64 / self.oversampling - n_par as f64).max(1.0)
+    }
+
     /// Number of polynomial terms.
     pub fn j(&self) -> usize {
         self.p.len()
