@@ -2,4 +2,7 @@
 mod support;
 
 mod fit;
+mod io;
+mod records;
+mod review;
 mod smoke;
