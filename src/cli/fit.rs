@@ -9,12 +9,14 @@ every N-th object (the K-th of each N, K from 1), so that the tasks of a
 cluster job array split one list of inputs; `--merge` joins their outputs.
 An object that cannot be read or fitted gets a row with `error` filled.
 */
+use super::read_opts::ReadArgs;
 use crate::fit::table::{read_rows, write_rows, FitRow, RowWriter};
 use crate::fit::{Engine, FitConfig, Method};
+use crate::io::ReadOptions;
 use crate::spectrum::Spectrum;
 use crate::templates::TemplateSet;
 use crate::ObjectClass;
-use anyhow::{bail, Context};
+use anyhow::Context;
 use rayon::prelude::*;
 use std::collections::HashSet;
 use std::io::IsTerminal;
@@ -30,9 +32,9 @@ pub struct Args {
     /// Output table: .csv, .jsonl or .fits.
     #[arg(long, short)]
     pub out: PathBuf,
-    /// Wavelengths in the files are in air (converted to vacuum).
-    #[arg(long)]
-    pub air: bool,
+    /// How to read the spectrum files.
+    #[command(flatten)]
+    pub read: ReadArgs,
     /// Worker threads (default: all cores).
     #[arg(long)]
     pub threads: Option<usize>,
@@ -64,8 +66,14 @@ pub fn parse_shard(s: &str) -> Result<(usize, usize), String> {
     let (k, n) = s
         .split_once('/')
         .ok_or_else(|| format!("shard '{s}' must look like K/N, e.g. 3/10"))?;
-    let k: usize = k.trim().parse().map_err(|_| format!("shard '{s}': K is not a number"))?;
-    let n: usize = n.trim().parse().map_err(|_| format!("shard '{s}': N is not a number"))?;
+    let k: usize = k
+        .trim()
+        .parse()
+        .map_err(|_| format!("shard '{s}': K is not a number"))?;
+    let n: usize = n
+        .trim()
+        .parse()
+        .map_err(|_| format!("shard '{s}': N is not a number"))?;
     if n == 0 || k == 0 || k > n {
         return Err(format!("shard '{s}': need 1 ≤ K ≤ N"));
     }
@@ -228,7 +236,7 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
         HashSet::new()
     };
     let mut writer = RowWriter::create(&args.out, args.resume)?;
-    let items = open_inputs(&args.inputs, args.air)?;
+    let items = open_inputs(&args.inputs, args.read.to_options());
     let progress = std::io::stderr().is_terminal().then(|| {
         let p = indicatif::ProgressBar::new_spinner();
         if let Ok(style) =
@@ -242,7 +250,8 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
         .num_threads(args.threads.unwrap_or(0))
         .build()
         .context("starting the worker threads")?;
-    let summary = pool.install(|| fit_items(&engine, items, &mut writer, &skip, args.shard, progress.as_ref()))?;
+    let summary =
+        pool.install(|| fit_items(&engine, items, &mut writer, &skip, args.shard, progress.as_ref()))?;
     writer.finish()?;
     if let Some(p) = progress {
         p.finish_and_clear();
@@ -265,15 +274,42 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
 /// The template set: a user folder or the built-in set.
 fn load_templates(path: Option<&Path>) -> anyhow::Result<TemplateSet> {
     match path {
-        Some(p) => bail!("reading template set {} needs the templates module (not merged yet)", p.display()),
-        None => bail!("the built-in templates are not merged yet"),
+        Some(p) => {
+            crate::templates::read_set(p).with_context(|| format!("reading the template set {}", p.display()))
+        }
+        None => Ok(crate::templates::builtin().clone()),
     }
 }
 
-/// Every object of the inputs, streamed.
-fn open_inputs(paths: &[PathBuf], _air: bool) -> anyhow::Result<Box<dyn Iterator<Item = Item> + Send>> {
-    let _ = paths;
-    bail!("reading spectrum files needs the io module (not merged yet)")
+/// Every object of the inputs, streamed file by file; a file that cannot be
+/// opened becomes one failed item (id = file stem) and the run goes on.
+pub fn open_inputs(paths: &[PathBuf], opts: ReadOptions) -> impl Iterator<Item = Item> + Send {
+    crate::io::expand_inputs(paths).into_iter().flat_map(move |path| {
+        let source = path.display().to_string();
+        let stem = path
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_else(|| source.clone());
+        let stem = stem.split('.').next().unwrap_or(&stem).to_string();
+        let items: Box<dyn Iterator<Item = Item> + Send> = match crate::io::stream_file(&path, &opts) {
+            Ok(it) => {
+                let (source, stem) = (source.clone(), stem.clone());
+                Box::new(it.map(move |r| {
+                    r.map_err(|e| ReadFailure {
+                        object_id: stem.clone(),
+                        source: source.clone(),
+                        message: e.to_string(),
+                    })
+                }))
+            }
+            Err(e) => Box::new(std::iter::once(Err(ReadFailure {
+                object_id: stem,
+                source,
+                message: e.to_string(),
+            }))),
+        };
+        items
+    })
 }
 
 #[cfg(test)]

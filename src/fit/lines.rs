@@ -152,7 +152,11 @@ pub fn measure_list(s: &Spectrum, z: f64, class: ObjectClass, list: &[(&str, f64
             sig_lim: (smin, smax),
             vmax: 0.5 * half_kms,
         };
-        let simplex = vec![vec![0.0, s0.ln()], vec![0.3 * s0, s0.ln()], vec![0.0, (1.8 * s0).ln()]];
+        let simplex = vec![
+            vec![0.0, s0.ln()],
+            vec![0.3 * s0, s0.ln()],
+            vec![0.0, (1.8 * s0).ln()],
+        ];
         let Ok(nm) = NelderMead::new(simplex).with_sd_tolerance(1e-6) else {
             continue;
         };
@@ -178,7 +182,11 @@ pub fn measure_list(s: &Spectrum, z: f64, class: ObjectClass, list: &[(&str, f64
         let flux = amp * norm;
         let flux_err = amp_err * norm;
         let cont = fit.coef[0] + fit.coef[1] * (mu - obs) / obs;
-        let ew_rest = if cont > 0.0 { flux / (cont * (1.0 + z)) } else { 0.0 };
+        let ew_rest = if cont > 0.0 {
+            flux / (cont * (1.0 + z))
+        } else {
+            0.0
+        };
         if !(flux.is_finite() && flux_err.is_finite()) {
             continue;
         }
@@ -196,15 +204,20 @@ pub fn measure_list(s: &Spectrum, z: f64, class: ObjectClass, list: &[(&str, f64
     out
 }
 
-/// Measure the listed emission lines in coverage at the candidate's redshift.
+/// Measure the emission lines of the line list in coverage at the candidate's redshift.
 pub fn measure(s: &Spectrum, _p: &Prepared, _e: &Engine, c: &Candidate) -> Vec<LineMeasurement> {
     let list = emission_list();
     measure_list(s, c.z, c.class, &list)
 }
 
-/// The emission lines to measure: (name, rest vacuum Å).
+/// The emission lines to measure: every emission line of the line list
+/// ([`crate::lines::all`]) as (name, rest vacuum Å).
 fn emission_list() -> Vec<(&'static str, f64)> {
-    Vec::new()
+    crate::lines::all()
+        .iter()
+        .filter(|l| l.kind == crate::lines::LineKind::Emission)
+        .map(|l| (l.name, l.wave))
+        .collect()
 }
 
 #[cfg(test)]

@@ -55,7 +55,10 @@ pub fn write(path: &Path, rows: &[FitRow]) -> Result<(), TableError> {
         let text_cols: Vec<(&str, Vec<String>)> = TEXT
             .iter()
             .map(|(n, g)| (*n, rows.iter().map(|r| g(r).to_string()).collect()))
-            .chain(std::iter::once(("error", rows.iter().map(|r| r.error.clone()).collect())))
+            .chain(std::iter::once((
+                "error",
+                rows.iter().map(|r| r.error.clone()).collect(),
+            )))
             .collect();
         for (name, vals) in &text_cols {
             let width = vals.iter().map(|v| v.len()).max().unwrap_or(1).max(1);
@@ -67,9 +70,17 @@ pub fn write(path: &Path, rows: &[FitRow]) -> Result<(), TableError> {
             );
         }
         for (name, _) in NUM {
-            cols.push(ColumnDescription::new(name).with_type(ColumnDataType::Double).create()?);
+            cols.push(
+                ColumnDescription::new(name)
+                    .with_type(ColumnDataType::Double)
+                    .create()?,
+            );
         }
-        cols.push(ColumnDescription::new("warnings").with_type(ColumnDataType::LongLong).create()?);
+        cols.push(
+            ColumnDescription::new("warnings")
+                .with_type(ColumnDataType::LongLong)
+                .create()?,
+        );
         let hdu = f.create_table(EXTNAME.to_string(), &cols)?;
         if rows.is_empty() {
             return Ok(());
@@ -113,12 +124,23 @@ pub fn read(path: &Path) -> Result<Vec<FitRow>, TableError> {
         let v: Vec<String> = hdu.read_col(&mut f, name).map_err(|e| err(path, e))?;
         // FITS pads strings with blanks; an empty value comes back as " "
         let v: Vec<String> = v.into_iter().map(|s| s.trim_end().to_string()).collect();
-        (v.len() == n).then_some(v).ok_or_else(|| err(path, format!("column {name} is short")))
+        (v.len() == n)
+            .then_some(v)
+            .ok_or_else(|| err(path, format!("column {name} is short")))
     };
-    let cols: Vec<Vec<String>> = ["source", "class", "warning_names", "template", "class_2", "class_3", "method", "error"]
-        .iter()
-        .map(|c| text(c))
-        .collect::<Result<_, _>>()?;
+    let cols: Vec<Vec<String>> = [
+        "source",
+        "class",
+        "warning_names",
+        "template",
+        "class_2",
+        "class_3",
+        "method",
+        "error",
+    ]
+    .iter()
+    .map(|c| text(c))
+    .collect::<Result<_, _>>()?;
     for (i, r) in rows.iter_mut().enumerate() {
         r.source = cols[0][i].clone();
         r.class = cols[1][i].clone();
