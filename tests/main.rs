@@ -2,3 +2,5 @@
 mod support;
 
 mod smoke;
+#[cfg(feature = "gui")]
+mod gui;
