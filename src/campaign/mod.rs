@@ -1,10 +1,29 @@
 /*!
-A review campaign: the objects under review and, on disk, a campaign folder
-(manifest, cached fits, review logs, exports). (Folder handling: under construction.)
+A review campaign: the objects under review and, on disk, a campaign folder.
+
+```text
+DIR/
+  campaign.toml        manifest (inputs, catalogue + columns, templates, engine, inspectors)
+  fits.jsonl           cached automatic fits, one object per line
+  reviews/NAME.jsonl   one append-only review log per inspector (+ NAME.jsonl.lock)
+  exports/             catalogues and reports written by `zvet export` / `zvet report`
+```
+Every file but the review logs is rewritten only through [`atomic_write`].
 */
+mod atomic;
+pub mod fitcache;
+pub mod manifest;
+
+pub use atomic::{atomic_create, atomic_write};
+pub use manifest::{CatalogSettings, EngineSettings, Manifest, ReadSettings, MANIFEST_FORMAT};
+
 use crate::catalog::CatalogRow;
 use crate::fit::FitResult;
+use crate::review::merge::{merge, InspectorLog, MergeOptions, Merged, DEFAULT_TOLERANCE};
+use crate::review::{LogProblem, ReviewError, ReviewLog};
 use crate::Spectrum;
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
 
 /// One object under review: its spectrum, its catalogue row and its automatic fit.
 #[derive(Debug, Clone)]
@@ -21,5 +40,358 @@ impl SurveyObject {
     /// The object id.
     pub fn id(&self) -> &str {
         &self.spectrum.meta.id
+    }
+}
+
+/// File name of the manifest.
+pub const MANIFEST_FILE: &str = "campaign.toml";
+/// File name of the fit cache.
+pub const FITS_FILE: &str = "fits.jsonl";
+/// Folder of the review logs.
+pub const REVIEWS_DIR: &str = "reviews";
+/// Folder of the exports.
+pub const EXPORTS_DIR: &str = "exports";
+
+/// What can go wrong with a campaign folder.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum CampaignError {
+    /// A file could not be read or written.
+    #[error("{}: {source}", path.display())]
+    Io {
+        /// The file.
+        path: PathBuf,
+        /// The cause.
+        source: std::io::Error,
+    },
+    /// The manifest is not valid.
+    #[error("{}: {message}", path.display())]
+    Manifest {
+        /// The manifest.
+        path: PathBuf,
+        /// What is wrong.
+        message: String,
+    },
+    /// The folder has no manifest.
+    #[error("{} is not a campaign folder (no {MANIFEST_FILE}); create one with `zvet campaign init`", .0.display())]
+    NotACampaign(PathBuf),
+    /// `init` on a folder that already is a campaign.
+    #[error("{} already holds a campaign ({MANIFEST_FILE} exists)", .0.display())]
+    Exists(PathBuf),
+    /// An unusable inspector name.
+    #[error("bad inspector name '{0}': use letters, digits, '-', '_' or '.', not starting with '.'")]
+    BadInspector(String),
+    /// A review log failed.
+    #[error(transparent)]
+    Review(#[from] ReviewError),
+    /// Something else, explained.
+    #[error("{0}")]
+    Other(String),
+}
+
+fn io_err(path: &Path) -> impl FnOnce(std::io::Error) -> CampaignError + '_ {
+    move |source| CampaignError::Io {
+        path: path.to_path_buf(),
+        source,
+    }
+}
+
+/// Check an inspector name: it becomes a file name.
+pub fn check_inspector(name: &str) -> Result<(), CampaignError> {
+    let ok = !name.is_empty()
+        && name.chars().count() <= 64
+        && !name.starts_with('.')
+        && name
+            .chars()
+            .all(|c| c.is_alphanumeric() || matches!(c, '-' | '_' | '.'));
+    if ok {
+        Ok(())
+    } else {
+        Err(CampaignError::BadInspector(name.to_string()))
+    }
+}
+
+/// What `zvet campaign init` needs.
+#[derive(Debug, Clone, Default)]
+pub struct InitOptions {
+    /// Campaign name (default: the folder name).
+    pub name: Option<String>,
+    /// Spectrum files or folders.
+    pub spectra: Vec<PathBuf>,
+    /// How to read them.
+    pub read: ReadSettings,
+    /// Photometric catalogue.
+    pub catalog: Option<PathBuf>,
+    /// Catalogue column mapping (field → column).
+    pub columns: BTreeMap<String, String>,
+    /// Template-set folder (`None`: the built-in set).
+    pub templates: Option<PathBuf>,
+    /// Engine settings.
+    pub engine: EngineSettings,
+    /// Inspectors to register.
+    pub inspectors: Vec<String>,
+    /// The adjudicator.
+    pub adjudicator: Option<String>,
+    /// Merge tolerance (`None`: the default).
+    pub tolerance: Option<f64>,
+}
+
+/// An open campaign folder.
+#[derive(Debug, Clone)]
+pub struct Campaign {
+    dir: PathBuf,
+    manifest: Manifest,
+}
+
+impl Campaign {
+    /// Create a campaign folder (the folder may exist but must not hold a
+    /// campaign yet).
+    pub fn init(dir: &Path, opts: &InitOptions) -> Result<Campaign, CampaignError> {
+        let mpath = dir.join(MANIFEST_FILE);
+        if mpath.exists() {
+            return Err(CampaignError::Exists(dir.to_path_buf()));
+        }
+        for p in opts.spectra.iter().chain(&opts.catalog) {
+            if !p.exists() {
+                return Err(CampaignError::Io {
+                    path: p.clone(),
+                    source: std::io::Error::new(std::io::ErrorKind::NotFound, "no such file or folder"),
+                });
+            }
+        }
+        for n in opts.inspectors.iter().chain(&opts.adjudicator) {
+            check_inspector(n)?;
+        }
+        if let Some(t) = opts.tolerance.filter(|t| !(t.is_finite() && *t >= 0.0)) {
+            return Err(CampaignError::Other(format!(
+                "the merge tolerance must be a number ≥ 0, got {t}"
+            )));
+        }
+        for sub in [REVIEWS_DIR, EXPORTS_DIR] {
+            let d = dir.join(sub);
+            std::fs::create_dir_all(&d).map_err(io_err(&d))?;
+        }
+        let name = opts.name.clone().unwrap_or_else(|| {
+            std::fs::canonicalize(dir)
+                .ok()
+                .and_then(|p| p.file_name().map(|n| n.to_string_lossy().into_owned()))
+                .unwrap_or_else(|| "campaign".into())
+        });
+        let mut inspectors = opts.inspectors.clone();
+        inspectors.dedup();
+        let manifest = Manifest {
+            format: MANIFEST_FORMAT,
+            name,
+            created: chrono::Utc::now(),
+            zvet_version: env!("CARGO_PKG_VERSION").into(),
+            spectra: opts
+                .spectra
+                .iter()
+                .map(|p| manifest::store_path(dir, p))
+                .collect(),
+            read: opts.read.clone(),
+            catalog: opts.catalog.as_ref().map(|p| CatalogSettings {
+                path: manifest::store_path(dir, p),
+                columns: opts.columns.clone(),
+            }),
+            templates: opts.templates.as_ref().map_or("builtin".into(), |p| {
+                manifest::store_path(dir, p).display().to_string()
+            }),
+            engine: opts.engine.clone(),
+            inspectors,
+            adjudicator: opts.adjudicator.clone(),
+            tolerance: opts.tolerance.unwrap_or(DEFAULT_TOLERANCE),
+        };
+        let c = Campaign {
+            dir: dir.to_path_buf(),
+            manifest,
+        };
+        c.save_manifest()?;
+        Ok(c)
+    }
+
+    /// Open an existing campaign folder.
+    pub fn open(dir: &Path) -> Result<Campaign, CampaignError> {
+        let mpath = dir.join(MANIFEST_FILE);
+        let text = match std::fs::read_to_string(&mpath) {
+            Ok(t) => t,
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
+                return Err(CampaignError::NotACampaign(dir.to_path_buf()))
+            }
+            Err(e) => return Err(io_err(&mpath)(e)),
+        };
+        let manifest: Manifest = toml::from_str(&text).map_err(|e| CampaignError::Manifest {
+            path: mpath.clone(),
+            message: e.to_string(),
+        })?;
+        if manifest.format > MANIFEST_FORMAT {
+            return Err(CampaignError::Manifest {
+                path: mpath,
+                message: format!(
+                    "written in manifest format {} by a newer zvet (this one reads up to {MANIFEST_FORMAT})",
+                    manifest.format
+                ),
+            });
+        }
+        Ok(Campaign {
+            dir: dir.to_path_buf(),
+            manifest,
+        })
+    }
+
+    /// The folder.
+    pub fn dir(&self) -> &Path {
+        &self.dir
+    }
+
+    /// The manifest.
+    pub fn manifest(&self) -> &Manifest {
+        &self.manifest
+    }
+
+    /// Change the manifest and write it (atomically).
+    pub fn update_manifest(&mut self, f: impl FnOnce(&mut Manifest)) -> Result<(), CampaignError> {
+        let old = self.manifest.clone();
+        f(&mut self.manifest);
+        if let Err(e) = self.save_manifest() {
+            self.manifest = old;
+            return Err(e);
+        }
+        Ok(())
+    }
+
+    fn save_manifest(&self) -> Result<(), CampaignError> {
+        let path = self.dir.join(MANIFEST_FILE);
+        let text = toml::to_string_pretty(&self.manifest).map_err(|e| CampaignError::Manifest {
+            path: path.clone(),
+            message: e.to_string(),
+        })?;
+        atomic_write(&path, |w| {
+            w.write_all(b"# zvet campaign manifest (format documented in the README)\n")?;
+            w.write_all(text.as_bytes())
+        })
+        .map_err(io_err(&path))
+    }
+
+    /// Spectrum inputs, resolved against the folder.
+    pub fn spectra_paths(&self) -> Vec<PathBuf> {
+        self.manifest
+            .spectra
+            .iter()
+            .map(|p| manifest::resolve_path(&self.dir, p))
+            .collect()
+    }
+
+    /// The catalogue path, resolved.
+    pub fn catalog_path(&self) -> Option<PathBuf> {
+        self.manifest
+            .catalog
+            .as_ref()
+            .map(|c| manifest::resolve_path(&self.dir, &c.path))
+    }
+
+    /// Path of an inspector's review log: `reviews/<inspector>.jsonl`.
+    pub fn review_log_path(&self, inspector: &str) -> PathBuf {
+        self.dir.join(REVIEWS_DIR).join(format!("{inspector}.jsonl"))
+    }
+
+    /// The exports folder.
+    pub fn exports_dir(&self) -> PathBuf {
+        self.dir.join(EXPORTS_DIR)
+    }
+
+    /// Open (creating if needed) an inspector's log, registering the
+    /// inspector in the manifest.
+    pub fn open_review_log(
+        &mut self,
+        inspector: &str,
+    ) -> Result<(ReviewLog, Vec<LogProblem>), CampaignError> {
+        check_inspector(inspector)?;
+        let opened = ReviewLog::open(&self.review_log_path(inspector), inspector)?;
+        if !self.manifest.inspectors.iter().any(|n| n == inspector) {
+            self.update_manifest(|m| m.inspectors.push(inspector.to_string()))?;
+        }
+        Ok(opened)
+    }
+
+    /// Every inspector with a log in `reviews/` (sorted), whether or not the
+    /// manifest lists them.
+    pub fn log_inspectors(&self) -> Result<Vec<String>, CampaignError> {
+        let d = self.dir.join(REVIEWS_DIR);
+        let rd = match std::fs::read_dir(&d) {
+            Ok(rd) => rd,
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(vec![]),
+            Err(e) => return Err(io_err(&d)(e)),
+        };
+        let mut names = Vec::new();
+        for entry in rd {
+            let p = entry.map_err(io_err(&d))?.path();
+            if p.extension().is_some_and(|e| e == "jsonl") {
+                if let Some(stem) = p.file_stem().and_then(|s| s.to_str()) {
+                    names.push(stem.to_string());
+                }
+            }
+        }
+        names.sort();
+        Ok(names)
+    }
+
+    /// Read (without locking) and replay every inspector's log. Problems
+    /// name the log and line.
+    pub fn read_logs(&self) -> Result<(Vec<InspectorLog>, Vec<String>), CampaignError> {
+        let mut logs = Vec::new();
+        let mut problems = Vec::new();
+        for name in self.log_inspectors()? {
+            let log = InspectorLog::read(&self.review_log_path(&name), &name)?;
+            problems.extend(log.problems.iter().map(|p| format!("reviews/{name}.jsonl {p}")));
+            logs.push(log);
+        }
+        Ok((logs, problems))
+    }
+
+    /// Merge all logs with the manifest's tolerance (or `tolerance`) and
+    /// adjudicator. A log named `adjudicator` counts as the adjudicator when
+    /// the manifest names none.
+    pub fn merge(&self, tolerance: Option<f64>) -> Result<(Merged, Vec<String>), CampaignError> {
+        let (logs, problems) = self.read_logs()?;
+        let adjudicator = self.manifest.adjudicator.clone().or_else(|| {
+            logs.iter()
+                .any(|l| l.inspector == "adjudicator")
+                .then(|| "adjudicator".to_string())
+        });
+        let opts = MergeOptions {
+            tolerance: tolerance.unwrap_or(self.manifest.tolerance),
+            adjudicator,
+        };
+        Ok((merge(&logs, &opts), problems))
+    }
+
+    /// The cached automatic fits by object id (empty when none were
+    /// computed); unreadable lines come back as problems.
+    pub fn load_fits(&self) -> Result<(BTreeMap<String, FitResult>, Vec<String>), CampaignError> {
+        let path = self.dir.join(FITS_FILE);
+        let text = match std::fs::read_to_string(&path) {
+            Ok(t) => t,
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(Default::default()),
+            Err(e) => return Err(io_err(&path)(e)),
+        };
+        let (fits, problems) = fitcache::parse(&text);
+        Ok((
+            fits.into_iter().map(|f| (f.object_id.clone(), f)).collect(),
+            problems,
+        ))
+    }
+
+    /// Store fits in the cache: objects already there are replaced, others
+    /// kept; the file is rewritten atomically.
+    pub fn save_fits(&self, fits: &[FitResult]) -> Result<(), CampaignError> {
+        let (mut all, _) = self.load_fits()?;
+        for f in fits {
+            all.insert(f.object_id.clone(), f.clone());
+        }
+        let path = self.dir.join(FITS_FILE);
+        let refs: Vec<&FitResult> = all.values().collect();
+        let text = fitcache::to_text(&refs).map_err(|e| CampaignError::Other(e.to_string()))?;
+        atomic_write(&path, |w| w.write_all(text.as_bytes())).map_err(io_err(&path))
     }
 }

@@ -15,6 +15,7 @@ pub mod export;
 pub mod fit;
 pub mod inspect;
 pub mod merge;
+pub mod read_opts;
 pub mod report;
 pub mod templates;
 

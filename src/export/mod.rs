@@ -1,3 +1,247 @@
 /*!
-TODO: module under construction.
+The training catalogue: one row per vetted object, joining the photometric
+catalogue (position, magnitudes, colours, photometric class and redshift), the
+automatic fit and the merged verdict, with provenance in the header. Written
+as CSV (provenance as leading `#` lines) or as a FITS binary table
+(provenance as header keywords, units in TUNITn); both are read back by this
+module for the round-trip tests.
 */
+mod columns;
+mod csv;
+mod fits;
+
+pub use columns::{Cell, ColumnSpec, Kind, COLUMNS};
+pub use csv::{read_csv, write_csv};
+pub use fits::{from_ascii, read_fits, to_ascii, write_fits, FITS_EXTNAME};
+
+use crate::campaign::{Campaign, CampaignError, EngineSettings};
+use crate::catalog::CatalogRow;
+use crate::fit::FitResult;
+use crate::review::merge::{ConsensusState, Merged};
+use crate::review::{Confidence, Flag, VerdictClass, ZSource};
+use crate::ObjectClass;
+use chrono::{DateTime, Utc};
+use std::collections::{BTreeMap, BTreeSet};
+use std::path::{Path, PathBuf};
+
+/// What can go wrong while exporting or reading an export back.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum ExportError {
+    /// A file could not be read or written.
+    #[error("{}: {source}", path.display())]
+    Io {
+        /// The file.
+        path: PathBuf,
+        /// The cause.
+        source: std::io::Error,
+    },
+    /// The FITS library failed.
+    #[error("{}: FITS: {message}", path.display())]
+    Fits {
+        /// The file.
+        path: PathBuf,
+        /// Its message.
+        message: String,
+    },
+    /// A catalogue file with unexpected contents.
+    #[error("{0}")]
+    Format(String),
+    /// The output name has neither `.csv` nor `.fits`/`.fit`.
+    #[error("{}: the output must end in .csv or .fits", .0.display())]
+    UnknownFormat(PathBuf),
+    /// The campaign could not be read.
+    #[error(transparent)]
+    Campaign(#[from] CampaignError),
+}
+
+/// One row of the training catalogue.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ExportRow {
+    /// Object id.
+    pub id: String,
+    /// Right ascension (deg).
+    pub ra: Option<f64>,
+    /// Declination (deg).
+    pub dec: Option<f64>,
+    /// u g r i z magnitudes.
+    pub mag: [Option<f64>; 5],
+    /// Their errors.
+    pub mag_err: [Option<f64>; 5],
+    /// Photometric class.
+    pub phot_class: Option<ObjectClass>,
+    /// Its probability.
+    pub phot_class_prob: Option<f64>,
+    /// Photometric redshift.
+    pub phot_z: Option<f64>,
+    /// Automatic class.
+    pub auto_class: Option<ObjectClass>,
+    /// Automatic redshift.
+    pub auto_z: Option<f64>,
+    /// Its error.
+    pub auto_z_err: Option<f64>,
+    /// Δχ² to the runner-up.
+    pub auto_delta_chi2: Option<f64>,
+    /// Engine warning names.
+    pub auto_warnings: String,
+    /// Vetted class.
+    pub vetted_class: VerdictClass,
+    /// Vetted redshift.
+    pub vetted_z: Option<f64>,
+    /// Its error.
+    pub vetted_z_err: Option<f64>,
+    /// Where it came from.
+    pub z_source: Option<ZSource>,
+    /// Confidence.
+    pub confidence: Option<Confidence>,
+    /// Flags.
+    pub flags: BTreeSet<Flag>,
+    /// Notes.
+    pub note: String,
+    /// Inspectors whose verdicts counted.
+    pub inspectors: Vec<String>,
+    /// Consensus state.
+    pub consensus: ConsensusState,
+}
+
+/// Which vetted objects to keep.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct ExportOptions {
+    /// Keep only objects at or above this confidence (objects without a
+    /// confidence are dropped when set).
+    pub min_confidence: Option<Confidence>,
+    /// Drop objects with any of these flags.
+    pub exclude_flags: Vec<Flag>,
+}
+
+/// Where the catalogue came from, written into its header.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Provenance {
+    /// zvet version.
+    pub zvet_version: String,
+    /// Campaign name.
+    pub campaign: String,
+    /// Template set (`builtin` or a path).
+    pub template_set: String,
+    /// Engine settings.
+    pub engine: EngineSettings,
+    /// When the export was made.
+    pub date: DateTime<Utc>,
+    /// Merge tolerance on |Δz|/(1+z).
+    pub tolerance: f64,
+    /// The confidence filter used.
+    pub min_confidence: Option<Confidence>,
+    /// The flag filter used.
+    pub exclude_flags: Vec<Flag>,
+}
+
+impl Provenance {
+    /// Provenance of an export of `campaign` made now.
+    pub fn for_campaign(campaign: &Campaign, merged: &Merged, opts: &ExportOptions) -> Provenance {
+        let m = campaign.manifest();
+        Provenance {
+            zvet_version: env!("CARGO_PKG_VERSION").into(),
+            campaign: m.name.clone(),
+            template_set: m.templates.clone(),
+            engine: m.engine.clone(),
+            date: Utc::now(),
+            tolerance: merged.tolerance,
+            min_confidence: opts.min_confidence,
+            exclude_flags: opts.exclude_flags.clone(),
+        }
+    }
+}
+
+fn finite(x: f64) -> Option<f64> {
+    x.is_finite().then_some(x)
+}
+
+/// Rows for every object with a consensus verdict that passes the filters,
+/// sorted by id. Conflicts have no verdict and are left out.
+pub fn build_rows(
+    merged: &Merged,
+    catalog: &BTreeMap<String, CatalogRow>,
+    fits: &BTreeMap<String, FitResult>,
+    opts: &ExportOptions,
+) -> Vec<ExportRow> {
+    let mut rows = Vec::new();
+    for (id, c) in &merged.objects {
+        let Some(v) = &c.verdict else { continue };
+        let Some(class) = v.class else { continue };
+        if let Some(min) = opts.min_confidence {
+            if v.confidence.is_none_or(|x| x < min) {
+                continue;
+            }
+        }
+        if opts.exclude_flags.iter().any(|f| v.flags.contains(f)) {
+            continue;
+        }
+        let cat = catalog.get(id);
+        let best = fits.get(id).and_then(|f| f.best().map(|b| (f, b)));
+        rows.push(ExportRow {
+            id: id.clone(),
+            ra: cat.and_then(|r| r.ra),
+            dec: cat.and_then(|r| r.dec),
+            mag: cat.map_or([None; 5], |r| r.mag),
+            mag_err: cat.map_or([None; 5], |r| r.mag_err),
+            phot_class: cat.and_then(|r| r.phot_class),
+            phot_class_prob: cat.and_then(|r| r.phot_class_prob),
+            phot_z: cat.and_then(|r| r.phot_z),
+            auto_class: best.map(|(_, b)| b.class),
+            auto_z: best.and_then(|(_, b)| finite(b.z)),
+            auto_z_err: best.and_then(|(_, b)| finite(b.z_err)),
+            auto_delta_chi2: best.and_then(|(f, _)| finite(f.delta_chi2)),
+            auto_warnings: best.map_or(String::new(), |(f, _)| f.warnings.names()),
+            vetted_class: class,
+            vetted_z: v.z,
+            vetted_z_err: v.z_err,
+            z_source: v.z_source,
+            confidence: v.confidence,
+            flags: v.flags.clone(),
+            note: v.note.clone(),
+            inspectors: c.inspectors.clone(),
+            consensus: c.state,
+        });
+    }
+    rows
+}
+
+/// Output format by file name.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Format {
+    /// CSV with `#` provenance lines.
+    Csv,
+    /// FITS binary table.
+    Fits,
+}
+
+impl Format {
+    /// From the extension (`.csv`, `.fits`, `.fit`, `.fts`; case-insensitive).
+    pub fn of(path: &Path) -> Result<Format, ExportError> {
+        let ext = path
+            .extension()
+            .and_then(|e| e.to_str())
+            .map(str::to_ascii_lowercase);
+        match ext.as_deref() {
+            Some("csv") => Ok(Format::Csv),
+            Some("fits" | "fit" | "fts") => Ok(Format::Fits),
+            _ => Err(ExportError::UnknownFormat(path.to_path_buf())),
+        }
+    }
+}
+
+/// Write rows to `path` in the format its extension names (atomically).
+pub fn write(path: &Path, rows: &[ExportRow], prov: &Provenance) -> Result<(), ExportError> {
+    match Format::of(path)? {
+        Format::Csv => write_csv(path, rows, prov),
+        Format::Fits => write_fits(path, rows, prov),
+    }
+}
+
+/// Read an export back (either format).
+pub fn read(path: &Path) -> Result<(Vec<ExportRow>, Provenance), ExportError> {
+    match Format::of(path)? {
+        Format::Csv => read_csv(path),
+        Format::Fits => read_fits(path),
+    }
+}

@@ -1,7 +1,28 @@
 /*!
-The redshift engine: χ²(z) of every class's templates over a grid uniform in
+The redshift engine: χ² of every class's templates over a grid uniform in
 log(1+z), candidate minima, refinement, class decision and line measurement.
-*/
-mod result;
 
+- [`Engine`] prepares the templates once ([`FitConfig`] gives the grid step,
+  classes, redshift ranges and polynomial terms) and fits spectra from any
+  number of threads.
+- The fast path computes χ²(z) from FFT cross-correlations; [`reference`]
+  holds the direct oracle with the same definition of χ².
+*/
+mod config;
+mod engine;
+mod fast;
+mod lines;
+mod prep;
+pub mod reference;
+mod refine;
+mod result;
+mod sky;
+pub mod synth;
+mod units;
+pub mod xcorr;
+
+pub use config::{FitConfig, FitError, Method};
+pub use engine::{velocity_sep_kms, Engine, AMBIGUOUS_DCHI2, C_KMS, FEW_PIXELS, POOR_FIT_CHI2R};
+pub use prep::Prepared;
 pub use result::{Candidate, Chi2Curve, FitResult, LineMeasurement, Warnings};
+pub use units::Unit;

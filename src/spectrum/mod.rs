@@ -8,9 +8,13 @@ inverse variance, and a good-pixel mask. Invariants are checked once, in
 every pixel whose flux or inverse variance is not finite or whose inverse
 variance is not positive marked bad (kept, never dropped).
 */
+mod airvac;
 mod grid;
+mod smooth;
 
+pub use airvac::{air_to_vacuum, vacuum_to_air};
 pub use grid::{LogGrid, Resampled};
+pub use smooth::Smoothed;
 
 use serde::{Deserialize, Serialize};
 use std::path::PathBuf;

@@ -10,6 +10,19 @@ published line wavelengths (`zvet templates build`) and stored in
 use crate::ObjectClass;
 use serde::{Deserialize, Serialize};
 
+mod builtin;
+mod fits_io;
+pub mod galaxies;
+pub mod profiles;
+pub mod quasars;
+pub mod stars;
+
+pub use builtin::{builtin, generate as generate_builtin, write_builtin, DEFAULT_DIR};
+pub use fits_io::{
+    read_descriptor, read_set, set_files, write_set, write_set_with, Descriptor, DescriptorEntry,
+    TemplateError,
+};
+
 /// Whether a template is dominated by emission or absorption features
 /// (used to choose templates for classic cross-correlation).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]

@@ -1,0 +1,168 @@
+/*!
+`campaign.toml`, the manifest of a campaign folder: what is being reviewed
+(spectrum inputs and how to read them, the photometric catalogue and its
+column mapping), with which templates and engine settings, by whom.
+
+Paths inside the campaign folder are stored relative to it, others absolute,
+so the folder can be moved together with its inputs.
+*/
+use crate::ObjectClass;
+use chrono::{DateTime, Utc};
+use serde::{Deserialize, Serialize};
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+/// Format version of `campaign.toml`.
+pub const MANIFEST_FORMAT: u32 = 1;
+
+/// How to read the spectrum files (mirrors the reader options).
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct ReadSettings {
+    /// Wavelengths are in air (converted to vacuum on reading).
+    pub air: bool,
+    /// Wavelength column of tables.
+    pub wave_col: Option<String>,
+    /// Flux column.
+    pub flux_col: Option<String>,
+    /// Inverse-variance column.
+    pub ivar_col: Option<String>,
+    /// 1σ error column.
+    pub err_col: Option<String>,
+    /// Mask column.
+    pub mask_col: Option<String>,
+    /// Object-id column.
+    pub id_col: Option<String>,
+    /// FITS HDU to read.
+    pub hdu: Option<usize>,
+}
+
+/// The photometric catalogue and which of its columns mean what.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct CatalogSettings {
+    /// The CSV file.
+    pub path: PathBuf,
+    /// Field → column name, for columns whose names differ from the
+    /// reader's defaults (e.g. `id = "objid"`, `u = "mag_u"`).
+    #[serde(default)]
+    pub columns: BTreeMap<String, String>,
+}
+
+/// Engine settings (mirrors the engine's configuration).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct EngineSettings {
+    /// Step of the log10-λ grid.
+    pub dloglam: f64,
+    /// Classes fitted.
+    pub classes: Vec<ObjectClass>,
+    /// Galaxy redshift range.
+    pub z_galaxy: (f64, f64),
+    /// Quasar redshift range.
+    pub z_quasar: (f64, f64),
+    /// Star redshift range.
+    pub z_star: (f64, f64),
+    /// Legendre continuum terms.
+    pub poly_terms: usize,
+    /// Candidates kept per class.
+    pub n_candidates: usize,
+    /// Minimum separation of candidates (km/s).
+    pub min_separation_kms: f64,
+    /// Mask night-sky lines and telluric bands.
+    pub mask_sky: bool,
+    /// `chi2` or `xcorr`.
+    pub method: String,
+}
+
+impl Default for EngineSettings {
+    /// The engine's documented defaults.
+    fn default() -> Self {
+        EngineSettings {
+            dloglam: 1e-4,
+            classes: ObjectClass::ALL.to_vec(),
+            z_galaxy: (-0.005, 1.7),
+            z_quasar: (0.05, 7.0),
+            z_star: (-0.005, 0.005),
+            poly_terms: 3,
+            n_candidates: 3,
+            min_separation_kms: 1000.0,
+            mask_sky: false,
+            method: "chi2".into(),
+        }
+    }
+}
+
+impl EngineSettings {
+    /// One line for provenance headers.
+    pub fn summary(&self) -> String {
+        let classes: Vec<&str> = self.classes.iter().map(|c| c.as_str()).collect();
+        format!(
+            "method={} dloglam={} classes={} z_galaxy={}..{} z_quasar={}..{} z_star={}..{} \
+             poly_terms={} n_candidates={} min_separation_kms={} mask_sky={}",
+            self.method,
+            self.dloglam,
+            classes.join(","),
+            self.z_galaxy.0,
+            self.z_galaxy.1,
+            self.z_quasar.0,
+            self.z_quasar.1,
+            self.z_star.0,
+            self.z_star.1,
+            self.poly_terms,
+            self.n_candidates,
+            self.min_separation_kms,
+            self.mask_sky
+        )
+    }
+}
+
+/// The manifest.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Manifest {
+    /// Format version ([`MANIFEST_FORMAT`]).
+    pub format: u32,
+    /// Campaign name (defaults to the folder name).
+    pub name: String,
+    /// When the campaign was created.
+    pub created: DateTime<Utc>,
+    /// zvet version that created it.
+    pub zvet_version: String,
+    /// Spectrum files or folders.
+    pub spectra: Vec<PathBuf>,
+    /// How to read them.
+    #[serde(default)]
+    pub read: ReadSettings,
+    /// The photometric catalogue, if any.
+    pub catalog: Option<CatalogSettings>,
+    /// Template set: `builtin` or a path to a template-set folder.
+    pub templates: String,
+    /// Engine settings.
+    #[serde(default)]
+    pub engine: EngineSettings,
+    /// Inspectors known to the campaign.
+    #[serde(default)]
+    pub inspectors: Vec<String>,
+    /// The inspector whose verdicts settle conflicts.
+    pub adjudicator: Option<String>,
+    /// Redshift tolerance of the merge on |Δz|/(1+z).
+    pub tolerance: f64,
+}
+
+/// Store `p` relative to `dir` when it lies inside it, else absolute.
+pub fn store_path(dir: &Path, p: &Path) -> PathBuf {
+    let abs = std::fs::canonicalize(p).unwrap_or_else(|_| p.to_path_buf());
+    let dir_abs = std::fs::canonicalize(dir).unwrap_or_else(|_| dir.to_path_buf());
+    match abs.strip_prefix(&dir_abs) {
+        Ok(rel) => rel.to_path_buf(),
+        Err(_) => abs,
+    }
+}
+
+/// Resolve a stored path against the campaign folder.
+pub fn resolve_path(dir: &Path, p: &Path) -> PathBuf {
+    if p.is_absolute() {
+        p.to_path_buf()
+    } else {
+        dir.join(p)
+    }
+}

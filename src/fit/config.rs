@@ -1,0 +1,106 @@
+/*!
+Settings of the redshift engine and its errors.
+*/
+use crate::ObjectClass;
+use serde::{Deserialize, Serialize};
+
+/// How the redshift is measured.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Method {
+    /// χ²(z) of templates + Legendre polynomials (the default).
+    #[default]
+    Chi2,
+    /// Classic Fourier cross-correlation with the Tonry & Davis (1979) r statistic.
+    XCorr,
+}
+
+impl std::str::FromStr for Method {
+    type Err = String;
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        match s.trim().to_ascii_lowercase().as_str() {
+            "chi2" => Ok(Method::Chi2),
+            "xcorr" => Ok(Method::XCorr),
+            o => Err(format!("unknown method '{o}' (expected chi2 or xcorr)")),
+        }
+    }
+}
+
+/// Settings of an [`Engine`](super::Engine).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FitConfig {
+    /// Step of the common grid in log10 λ (one trial redshift per step).
+    pub dloglam: f64,
+    /// Classes to fit.
+    pub classes: Vec<ObjectClass>,
+    /// Redshift range for galaxies.
+    pub z_galaxy: (f64, f64),
+    /// Redshift range for quasars.
+    pub z_quasar: (f64, f64),
+    /// Redshift range for stars.
+    pub z_star: (f64, f64),
+    /// Number of Legendre polynomial terms added to every model (0 = none).
+    pub poly_terms: usize,
+    /// Candidates kept per class.
+    pub n_candidates: usize,
+    /// Minimum velocity separation (km/s) between candidates of one class.
+    pub min_separation_kms: f64,
+    /// Mask strong night-sky lines and telluric bands before fitting.
+    pub mask_sky: bool,
+    /// χ² or cross-correlation.
+    pub method: Method,
+}
+
+impl Default for FitConfig {
+    fn default() -> Self {
+        FitConfig {
+            dloglam: 1e-4,
+            classes: ObjectClass::ALL.to_vec(),
+            z_galaxy: (-0.005, 1.7),
+            z_quasar: (0.05, 7.0),
+            z_star: (-0.005, 0.005),
+            poly_terms: 3,
+            n_candidates: 3,
+            min_separation_kms: 1000.0,
+            mask_sky: false,
+            method: Method::Chi2,
+        }
+    }
+}
+
+impl FitConfig {
+    /// Redshift range configured for `class`.
+    pub fn z_range(&self, class: ObjectClass) -> (f64, f64) {
+        match class {
+            ObjectClass::Galaxy => self.z_galaxy,
+            ObjectClass::Quasar => self.z_quasar,
+            ObjectClass::Star => self.z_star,
+        }
+    }
+}
+
+/// Why a fit could not be done.
+#[derive(Debug, thiserror::Error, PartialEq)]
+#[non_exhaustive]
+pub enum FitError {
+    /// A setting is out of range.
+    #[error("invalid fit setting: {0}")]
+    InvalidConfig(String),
+    /// The template set cannot be used.
+    #[error("unusable templates: {0}")]
+    BadTemplates(String),
+    /// Too few good pixels on the engine grid.
+    #[error("only {good} good pixels after resampling; at least {needed} are needed")]
+    TooFewPixels {
+        /// good pixels found
+        good: usize,
+        /// pixels needed
+        needed: usize,
+    },
+    /// No class of the configuration can reach this spectrum.
+    #[error("no template covers this spectrum at any trial redshift")]
+    NoCoverage,
+    /// The refinement could not run.
+    #[error("refinement failed: {0}")]
+    Refine(String),
+}

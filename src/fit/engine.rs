@@ -1,0 +1,430 @@
+/*!
+The [`Engine`]: templates prepared once, then for each spectrum χ²(z) of every
+unit by the fast path, candidate minima per class, refinement, the class
+decision and the warning bits.
+
+Definition of χ² (shared by the fast path and the oracle): over **every good
+pixel** of the spectrum on the engine grid; model = Σ a_k T_k(λ/(1+z)) +
+Σ b_j P_j(λ) with the templates taken as zero where they do not cover, so
+that χ² at every trial z and for every class is summed over the same pixels
+and can be compared directly (where a template does not reach, only the
+polynomial is left to fit and χ² grows).
+*/
+use super::config::{FitConfig, FitError, Method};
+use super::fast::{self, DataCache, FftCache};
+use super::prep::{legendre, Prepared};
+use super::reference::thresholds;
+use super::refine::refine;
+use super::result::{Candidate, Chi2Curve, FitResult, Warnings};
+use super::units::{build_units, Unit};
+use crate::spectrum::Spectrum;
+use crate::templates::TemplateSet;
+use crate::ObjectClass;
+
+/// Speed of light in km/s (CODATA exact value).
+pub const C_KMS: f64 = 299_792.458;
+/// Δχ² below which the answer is called ambiguous: 9 is Δχ² for 3σ with one
+/// free parameter (common practice for a redshift-confusion cut).
+pub const AMBIGUOUS_DCHI2: f64 = 9.0;
+/// Fewer good grid pixels than this set [`Warnings::FEW_PIXELS`].
+pub const FEW_PIXELS: usize = 100;
+/// Reduced χ² above this sets [`Warnings::POOR_FIT`].
+pub const POOR_FIT_CHI2R: f64 = 2.0;
+
+/// The redshift engine. `Send + Sync`: share one engine across threads.
+#[derive(Debug)]
+pub struct Engine {
+    config: FitConfig,
+    units: Vec<Unit>,
+    cache: FftCache,
+}
+
+/// A grid minimum of one unit.
+#[derive(Debug, Clone, Copy)]
+struct Minimum {
+    unit: usize,
+    shift: i64,
+    chi2: f64,
+    edge: bool,
+}
+
+/// Whole-shift range for a redshift interval.
+pub(crate) fn shift_range(z: (f64, f64), dll: f64) -> (i64, i64) {
+    let lo = ((1.0 + z.0).max(1e-6).log10() / dll).ceil() as i64;
+    let hi = ((1.0 + z.1).max(1e-6).log10() / dll).floor() as i64;
+    (lo, hi.max(lo))
+}
+
+impl Engine {
+    /// Prepare `templates` for `config` (resampling them onto the engine step).
+    pub fn new(templates: &TemplateSet, config: FitConfig) -> Result<Engine, FitError> {
+        if !(config.dloglam > 0.0 && config.dloglam < 0.01) {
+            return Err(FitError::InvalidConfig(format!(
+                "dloglam {} must be in (0, 0.01)",
+                config.dloglam
+            )));
+        }
+        if config.classes.is_empty() {
+            return Err(FitError::InvalidConfig("no class to fit".into()));
+        }
+        if config.poly_terms > 10 {
+            return Err(FitError::InvalidConfig("at most 10 polynomial terms".into()));
+        }
+        for c in &config.classes {
+            let (a, b) = config.z_range(*c);
+            if !(a > -1.0 && b >= a && b.is_finite()) {
+                return Err(FitError::InvalidConfig(format!(
+                    "redshift range {a}…{b} for {c} is not valid"
+                )));
+            }
+        }
+        let units = build_units(templates, &config.classes, config.dloglam)?;
+        if let Some(u) = units.iter().find(|u| u.k() + config.poly_terms > 32) {
+            return Err(FitError::InvalidConfig(format!(
+                "{} has {} templates; with {} polynomial terms that exceeds 32 columns",
+                u.name,
+                u.k(),
+                config.poly_terms
+            )));
+        }
+        Ok(Engine {
+            config: FitConfig {
+                n_candidates: config.n_candidates.max(1),
+                ..config
+            },
+            units,
+            cache: FftCache::default(),
+        })
+    }
+
+    /// The settings.
+    pub fn config(&self) -> &FitConfig {
+        &self.config
+    }
+
+    /// Classes that have templates in this engine.
+    pub fn classes(&self) -> Vec<ObjectClass> {
+        let mut v: Vec<ObjectClass> = self.units.iter().map(|u| u.class).collect();
+        v.dedup();
+        v
+    }
+
+    /// The prepared fit units (used by the oracle tests and the benches).
+    pub fn units(&self) -> &[Unit] {
+        &self.units
+    }
+
+    /// Fit every configured class over its whole redshift range.
+    pub fn fit(&self, s: &Spectrum) -> Result<FitResult, FitError> {
+        if self.config.method == Method::XCorr {
+            return super::xcorr::fit(self, s);
+        }
+        let ranges: Vec<(ObjectClass, (i64, i64))> = self
+            .classes()
+            .into_iter()
+            .map(|c| (c, shift_range(self.config.z_range(c), self.config.dloglam)))
+            .collect();
+        self.fit_ranges(s, &ranges)
+    }
+
+    /// The engine restricted to |Δv| ≤ `half_width_kms` around `z` (one class or all).
+    pub fn refit_near(
+        &self,
+        s: &Spectrum,
+        z: f64,
+        class: Option<ObjectClass>,
+        half_width_kms: f64,
+    ) -> Result<FitResult, FitError> {
+        if !(z > -1.0 && z.is_finite() && half_width_kms >= 0.0) {
+            return Err(FitError::InvalidConfig(format!(
+                "cannot refit near z = {z} ± {half_width_kms} km/s"
+            )));
+        }
+        let dll = self.config.dloglam;
+        let centre = (1.0 + z).log10() / dll;
+        let half = (half_width_kms / C_KMS).ln_1p() / std::f64::consts::LN_10 / dll;
+        let range = ((centre - half).ceil() as i64, (centre + half).floor() as i64);
+        let range = if range.1 < range.0 {
+            let r = centre.round() as i64;
+            (r, r)
+        } else {
+            range
+        };
+        let ranges: Vec<(ObjectClass, (i64, i64))> = self
+            .classes()
+            .into_iter()
+            .filter(|c| class.is_none_or(|k| k == *c))
+            .map(|c| (c, range))
+            .collect();
+        if ranges.is_empty() {
+            return Err(FitError::NoCoverage);
+        }
+        self.fit_ranges(s, &ranges)
+    }
+
+    /// Model flux at `s.wave()` for candidate `c` (NaN where the template does not cover).
+    pub fn model(&self, s: &Spectrum, c: &Candidate) -> Vec<f64> {
+        let dll = self.config.dloglam;
+        let nanv = vec![f64::NAN; s.len()];
+        let Some(unit) = self
+            .units
+            .iter()
+            .find(|u| u.class == c.class && u.name == c.template)
+        else {
+            return nanv;
+        };
+        let k = unit.k();
+        let j = self.config.poly_terms;
+        if c.coeffs.len() != k + j || !(c.z > -1.0) {
+            return nanv;
+        }
+        let grid = s.log_grid(dll);
+        let (l0, l1) = (grid.wave(0), grid.wave(grid.n - 1));
+        let shift = (1.0 + c.z).log10() / dll;
+        s.wave()
+            .iter()
+            .map(|&lam| {
+                let x = lam.log10() / dll - shift - unit.t0 as f64;
+                if x < 0.0 || x > (unit.m() - 1) as f64 {
+                    return f64::NAN;
+                }
+                let mut v = 0.0;
+                for a in 0..k {
+                    v += c.coeffs[a] * unit.interp(a, x);
+                }
+                let p = legendre(j, 2.0 * (lam - l0) / (l1 - l0) - 1.0);
+                for q in 0..j {
+                    v += c.coeffs[k + q] * p[q];
+                }
+                v
+            })
+            .collect()
+    }
+
+    /// Prepare a spectrum as the engine sees it (resampled, masked if configured).
+    pub(crate) fn prepare(&self, s: &Spectrum) -> Result<Prepared, FitError> {
+        if self.config.mask_sky {
+            let mut m = s.clone();
+            super::sky::mask(&mut m);
+            Prepared::new(&m, self.config.dloglam, self.config.poly_terms)
+        } else {
+            Prepared::new(s, self.config.dloglam, self.config.poly_terms)
+        }
+    }
+
+    /// χ² curves of every unit of the configured classes by the fast path
+    /// (whole shifts `lo..=hi` per class); for tests and benches.
+    pub fn chi2_curves_fast(&self, s: &Spectrum) -> Result<Vec<Vec<f64>>, FitError> {
+        let prep = self.prepare(s)?;
+        let mut data = DataCache::default();
+        Ok(self
+            .units
+            .iter()
+            .enumerate()
+            .map(|(ui, u)| {
+                let (lo, hi) = shift_range(self.config.z_range(u.class), self.config.dloglam);
+                fast::chi2_curve(&self.cache, &mut data, &prep, ui, u, lo, hi)
+            })
+            .collect())
+    }
+
+    /// The same curves by the direct oracle ([`super::reference`]).
+    pub fn chi2_curves_oracle(&self, s: &Spectrum) -> Result<Vec<Vec<f64>>, FitError> {
+        let prep = self.prepare(s)?;
+        Ok(self
+            .units
+            .iter()
+            .map(|u| {
+                let (lo, hi) = shift_range(self.config.z_range(u.class), self.config.dloglam);
+                super::reference::chi2_curve(&prep, u, lo, hi)
+            })
+            .collect())
+    }
+
+    fn fit_ranges(
+        &self,
+        s: &Spectrum,
+        ranges: &[(ObjectClass, (i64, i64))],
+    ) -> Result<FitResult, FitError> {
+        let dll = self.config.dloglam;
+        let prep = self.prepare(s)?;
+        let mut data = DataCache::default();
+        let mut curves_by_unit: Vec<Option<Vec<f64>>> = vec![None; self.units.len()];
+        let mut minima_by_class: Vec<(ObjectClass, Vec<Minimum>)> = Vec::new();
+        for &(class, (lo, hi)) in ranges {
+            let mut minima = Vec::new();
+            for (ui, u) in self.units.iter().enumerate().filter(|(_, u)| u.class == class) {
+                let chi2 = fast::chi2_curve(&self.cache, &mut data, &prep, ui, u, lo, hi);
+                minima.extend(local_minima(&chi2).into_iter().map(|i| Minimum {
+                    unit: ui,
+                    shift: lo + i as i64,
+                    chi2: chi2[i],
+                    edge: i == 0 || i + 1 == chi2.len(),
+                }));
+                curves_by_unit[ui] = Some(chi2);
+            }
+            minima.sort_by(|a, b| a.chi2.total_cmp(&b.chi2));
+            let min_sep = self.min_sep_pixels();
+            let mut kept: Vec<Minimum> = Vec::new();
+            for m in minima {
+                if kept.len() >= self.config.n_candidates {
+                    break;
+                }
+                if kept.iter().all(|k| (k.shift - m.shift).abs() as f64 >= min_sep) {
+                    kept.push(m);
+                }
+            }
+            minima_by_class.push((class, kept));
+        }
+        // refine
+        let mut cands: Vec<(Candidate, Minimum, f64)> = Vec::new();
+        for (_, kept) in &minima_by_class {
+            for m in kept {
+                let u = &self.units[m.unit];
+                let thr = thresholds(&prep, u);
+                let r = refine(&prep, u, &thr, m.shift);
+                let z = 10f64.powf(r.shift * dll) - 1.0;
+                let dzdx = std::f64::consts::LN_10 * dll * (1.0 + z);
+                let tmpl_mean = template_part_mean(&prep, u, r.shift, &r.fit.coeffs);
+                cands.push((
+                    Candidate {
+                        class: u.class,
+                        template: u.name.clone(),
+                        z,
+                        z_err: r.sigma_shift * dzdx,
+                        chi2: r.fit.chi2,
+                        coeffs: r.fit.coeffs,
+                    },
+                    *m,
+                    tmpl_mean,
+                ));
+            }
+        }
+        if cands.is_empty() {
+            return Err(FitError::NoCoverage);
+        }
+        cands.sort_by(|a, b| a.0.chi2.total_cmp(&b.0.chi2));
+        let (best, best_min, best_tmean) = cands[0].clone();
+        let min_sep_v = self.config.min_separation_kms;
+        let runner = cands.iter().skip(1).find(|(c, _, _)| {
+            c.class != best.class || velocity_sep_kms(c.z, best.z) >= min_sep_v
+        });
+        let delta_chi2 = runner.map_or(f64::MAX, |(c, _, _)| c.chi2 - best.chi2);
+        let n_good = prep.n_good();
+        let n_par = self.units[best_min.unit].k() + prep.j();
+        let chi2_reduced = best.chi2 / (n_good.saturating_sub(n_par)).max(1) as f64;
+        let mut warnings = Warnings::default();
+        if delta_chi2 < AMBIGUOUS_DCHI2 {
+            warnings.set(Warnings::AMBIGUOUS);
+        }
+        if best_min.edge {
+            warnings.set(Warnings::AT_GRID_EDGE);
+        }
+        if best_tmean < 0.0 {
+            warnings.set(Warnings::NEGATIVE_TEMPLATE);
+        }
+        if n_good < FEW_PIXELS {
+            warnings.set(Warnings::FEW_PIXELS);
+        }
+        if chi2_reduced > POOR_FIT_CHI2R {
+            warnings.set(Warnings::POOR_FIT);
+        }
+        if s.meta.noise_estimated {
+            warnings.set(Warnings::NOISE_ESTIMATED);
+        }
+        // curves: one per class (stars: the unit of the class's best candidate)
+        let mut curves = Vec::new();
+        for &(class, (lo, _)) in ranges {
+            let unit = cands
+                .iter()
+                .find(|(c, _, _)| c.class == class)
+                .map(|(_, m, _)| m.unit);
+            if let Some(ui) = unit {
+                if let Some(chi2) = &curves_by_unit[ui] {
+                    curves.push(Chi2Curve {
+                        class,
+                        template: self.units[ui].name.clone(),
+                        z: (0..chi2.len())
+                            .map(|i| 10f64.powf((lo + i as i64) as f64 * dll) - 1.0)
+                            .collect(),
+                        chi2: chi2.clone(),
+                    });
+                }
+            }
+        }
+        let lines = super::lines::measure(s, &prep, self, &best);
+        Ok(FitResult {
+            object_id: s.meta.id.clone(),
+            candidates: cands.into_iter().map(|(c, _, _)| c).collect(),
+            delta_chi2,
+            chi2_reduced,
+            n_good,
+            snr_median: s.median_snr(),
+            warnings,
+            curves,
+            lines,
+        })
+    }
+
+    fn min_sep_pixels(&self) -> f64 {
+        (self.config.min_separation_kms / C_KMS).ln_1p() / std::f64::consts::LN_10 / self.config.dloglam
+    }
+
+    pub(crate) fn cache(&self) -> &FftCache {
+        &self.cache
+    }
+}
+
+/// |Δv| between two redshifts in km/s (relativistic-free, c·|Δln(1+z)|).
+pub fn velocity_sep_kms(z1: f64, z2: f64) -> f64 {
+    C_KMS * ((1.0 + z1) / (1.0 + z2)).ln().abs()
+}
+
+/// Indices of local minima (plateaus give their first point; ends count).
+fn local_minima(v: &[f64]) -> Vec<usize> {
+    let n = v.len();
+    (0..n)
+        .filter(|&i| {
+            let left = i == 0 || v[i] < v[i - 1];
+            let right = i + 1 == n || v[i] <= v[i + 1];
+            left && right && v[i].is_finite()
+        })
+        .collect()
+}
+
+/// Mean over good pixels of the template part Σ a_k T_k of the model.
+fn template_part_mean(prep: &Prepared, u: &Unit, shift: f64, coeffs: &[f64]) -> f64 {
+    let x0 = super::reference::offset(prep, u, shift);
+    let mut sum = 0.0;
+    for &i in &prep.good {
+        for a in 0..u.k() {
+            sum += coeffs[a] * u.interp(a, i as f64 + x0);
+        }
+    }
+    sum / prep.good.len().max(1) as f64
+}
+
+#[allow(dead_code)]
+fn assert_send_sync() {
+    fn is<T: Send + Sync>() {}
+    is::<Engine>();
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn minima_found_and_separated() {
+        let v = [3.0, 1.0, 2.0, 2.0, 0.5, 0.6];
+        assert_eq!(local_minima(&v), vec![1, 4]);
+    }
+
+    #[test]
+    fn shift_range_brackets_the_redshifts() {
+        let (lo, hi) = shift_range((-0.005, 0.005), 1e-4);
+        assert!((10f64.powf(lo as f64 * 1e-4) - 1.0) >= -0.005);
+        assert!((10f64.powf(hi as f64 * 1e-4) - 1.0) <= 0.005);
+        assert_eq!((lo, hi), (-21, 21));
+    }
+}

@@ -1,0 +1,282 @@
+/*!
+The fast path: χ²(z) of one unit at every whole-pixel shift from FFT
+cross-correlations.
+
+At shift s, grid pixel i sees template pixel i + c with c = g0 − t0 − s, so
+every normal-equation sum that involves a template is a cross-correlation
+X(c) = Σ_i D[i] T[i + c] of a data array D (w, w·f or w·P_j) with a template
+array T (T_a or the product T_a·T_b):
+
+- Σ w T_a T_b  = corr(w,      T_a·T_b)
+- Σ w T_a P_j  = corr(w·P_j,  T_a)
+- Σ w T_a f    = corr(w·f,    T_a)
+
+The polynomial-only sums do not depend on z (templates are zero outside
+their coverage and χ² always runs over every good pixel), so they come from
+[`Prepared`]. With L ≥ n + m − 1, X(c) = IFFT(conj(D̂)·T̂)[c mod L] / L
+without wrap-around for every overlapping lag −n < c < m. Template
+transforms are cached per (unit, L) in the engine; two real correlations
+share one complex inverse FFT (real and imaginary part).
+*/
+use super::prep::{solve_normal, Prepared};
+use super::reference::thresholds;
+use super::units::Unit;
+use rustfft::num_complex::Complex;
+use rustfft::{Fft, FftPlanner};
+use std::collections::HashMap;
+use std::sync::{Arc, Mutex, RwLock};
+
+type C = Complex<f64>;
+
+/// Smallest 2^a·3^b·5^c ≥ `min` (fast FFT sizes).
+pub fn nice_len(min: usize) -> usize {
+    let mut best = usize::MAX;
+    let mut p2 = 1usize;
+    while p2 < 2 * min.max(1) {
+        let mut p3 = p2;
+        while p3 < 2 * min.max(1) {
+            let mut p5 = p3;
+            while p5 < 2 * min.max(1) {
+                if p5 >= min && p5 < best {
+                    best = p5;
+                }
+                p5 *= 5;
+            }
+            p3 *= 3;
+        }
+        p2 *= 2;
+    }
+    best
+}
+
+/// Transforms of one unit's templates and their pairwise products at one L.
+struct UnitTransforms {
+    t: Vec<Vec<C>>,
+    tt: Vec<Vec<C>>,
+}
+
+/// FFT plans and cached template transforms (shared by all threads).
+#[derive(Default)]
+pub struct FftCache {
+    plans: Mutex<HashMap<(usize, bool), Arc<dyn Fft<f64>>>>,
+    planner: Mutex<Option<FftPlanner<f64>>>,
+    units: RwLock<HashMap<(usize, usize), Arc<UnitTransforms>>>,
+}
+
+impl std::fmt::Debug for FftCache {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str("FftCache")
+    }
+}
+
+/// Most (unit, L) transform sets kept before the cache is emptied.
+const MAX_CACHED: usize = 64;
+
+impl FftCache {
+    pub(crate) fn plan(&self, len: usize, forward: bool) -> Arc<dyn Fft<f64>> {
+        let mut plans = self.plans.lock().unwrap_or_else(|e| e.into_inner());
+        if let Some(p) = plans.get(&(len, forward)) {
+            return p.clone();
+        }
+        let mut planner = self.planner.lock().unwrap_or_else(|e| e.into_inner());
+        let planner = planner.get_or_insert_with(FftPlanner::new);
+        let p = if forward {
+            planner.plan_fft_forward(len)
+        } else {
+            planner.plan_fft_inverse(len)
+        };
+        plans.insert((len, forward), p.clone());
+        p
+    }
+
+    /// Forward transform of a real array zero-padded to `len`.
+    pub(crate) fn forward_real(&self, x: &[f64], len: usize) -> Vec<C> {
+        let mut buf: Vec<C> = x.iter().map(|&v| C::new(v, 0.0)).collect();
+        buf.resize(len, C::new(0.0, 0.0));
+        self.plan(len, true).process(&mut buf);
+        buf
+    }
+
+    fn unit_transforms(&self, key: usize, unit: &Unit, len: usize) -> Arc<UnitTransforms> {
+        if let Some(u) = self
+            .units
+            .read()
+            .unwrap_or_else(|e| e.into_inner())
+            .get(&(key, len))
+        {
+            return u.clone();
+        }
+        let k = unit.k();
+        let t = unit.t.iter().map(|a| self.forward_real(a, len)).collect();
+        let mut tt = Vec::with_capacity(k * (k + 1) / 2);
+        for a in 0..k {
+            for b in a..k {
+                let prod: Vec<f64> = unit.t[a].iter().zip(&unit.t[b]).map(|(x, y)| x * y).collect();
+                tt.push(self.forward_real(&prod, len));
+            }
+        }
+        let u = Arc::new(UnitTransforms { t, tt });
+        let mut map = self.units.write().unwrap_or_else(|e| e.into_inner());
+        if map.len() >= MAX_CACHED {
+            map.clear();
+        }
+        map.insert((key, len), u.clone());
+        u
+    }
+}
+
+/// Conjugated transforms of the data arrays w, w·f, w·P_j at one L.
+pub struct DataTransforms {
+    w: Vec<C>,
+    wf: Vec<C>,
+    wp: Vec<Vec<C>>,
+}
+
+/// Data transforms per FFT length, made lazily for one spectrum.
+#[derive(Default)]
+pub struct DataCache {
+    by_len: HashMap<usize, DataTransforms>,
+}
+
+impl DataCache {
+    fn get(&mut self, cache: &FftCache, prep: &Prepared, len: usize) -> &DataTransforms {
+        self.by_len.entry(len).or_insert_with(|| {
+            let conj = |v: Vec<C>| v.into_iter().map(|c| c.conj()).collect::<Vec<_>>();
+            let wf: Vec<f64> = prep.w.iter().zip(&prep.flux).map(|(w, f)| w * f).collect();
+            DataTransforms {
+                w: conj(cache.forward_real(&prep.w, len)),
+                wf: conj(cache.forward_real(&wf, len)),
+                wp: prep
+                    .p
+                    .iter()
+                    .map(|p| {
+                        let x: Vec<f64> = prep.w.iter().zip(p).map(|(w, p)| w * p).collect();
+                        conj(cache.forward_real(&x, len))
+                    })
+                    .collect(),
+            }
+        })
+    }
+}
+
+/// χ² of `unit` at every shift `s_lo..=s_hi` by the fast path.
+/// `key` identifies the unit in the cache.
+#[allow(clippy::too_many_arguments)]
+pub fn chi2_curve(
+    cache: &FftCache,
+    data: &mut DataCache,
+    prep: &Prepared,
+    key: usize,
+    unit: &Unit,
+    s_lo: i64,
+    s_hi: i64,
+) -> Vec<f64> {
+    let n = prep.grid.n;
+    let m = unit.m();
+    let k = unit.k();
+    let j = prep.j();
+    let len = nice_len(n + m - 1);
+    let ut = cache.unit_transforms(key, unit, len);
+    let dt = data.get(cache, prep, len);
+    // the list of correlations: (data spectrum, template spectrum)
+    let mut pairs: Vec<(&[C], &[C])> = Vec::new();
+    for tt in &ut.tt {
+        pairs.push((&dt.w, tt));
+    }
+    for a in 0..k {
+        for q in 0..j {
+            pairs.push((&dt.wp[q], &ut.t[a]));
+        }
+    }
+    for a in 0..k {
+        pairs.push((&dt.wf, &ut.t[a]));
+    }
+    let ncorr = pairs.len();
+    let ns = (s_hi - s_lo + 1).max(0) as usize;
+    // out[si * ncorr + ci] = correlation ci at shift s_lo + si
+    let mut out = vec![0.0; ns * ncorr];
+    let inv = cache.plan(len, false);
+    let scale = 1.0 / len as f64;
+    let mut buf = vec![C::new(0.0, 0.0); len];
+    let lagpos = |s: i64| -> Option<usize> {
+        let c = prep.g0 - unit.t0 - s;
+        (c > -(n as i64) && c < m as i64).then(|| c.rem_euclid(len as i64) as usize)
+    };
+    for (ci, chunk) in pairs.chunks(2).enumerate() {
+        let (d1, t1) = chunk[0];
+        let second = chunk.get(1);
+        for (x, b) in buf.iter_mut().enumerate() {
+            let mut v = d1[x] * t1[x];
+            if let Some((d2, t2)) = second {
+                // i·(d2·t2): both correlations are real, so they come back as Re and Im
+                let p = d2[x] * t2[x];
+                v += C::new(-p.im, p.re);
+            }
+            *b = v;
+        }
+        inv.process(&mut buf);
+        for si in 0..ns {
+            if let Some(pos) = lagpos(s_lo + si as i64) {
+                out[si * ncorr + 2 * ci] = buf[pos].re * scale;
+                if second.is_some() {
+                    out[si * ncorr + 2 * ci + 1] = buf[pos].im * scale;
+                }
+            }
+        }
+    }
+    let thr = thresholds(prep, unit);
+    let dim = k + j;
+    let mut a = vec![0.0; dim * dim];
+    let mut b = vec![0.0; dim];
+    let mut active = vec![true; dim];
+    let mut chi2 = Vec::with_capacity(ns);
+    for si in 0..ns {
+        let row = &out[si * ncorr..(si + 1) * ncorr];
+        let mut ci = 0;
+        for p in 0..k {
+            for q in p..k {
+                a[p * dim + q] = row[ci];
+                a[q * dim + p] = row[ci];
+                ci += 1;
+            }
+        }
+        for p in 0..k {
+            for q in 0..j {
+                a[p * dim + k + q] = row[ci];
+                a[(k + q) * dim + p] = row[ci];
+                ci += 1;
+            }
+        }
+        for p in 0..k {
+            b[p] = row[ci];
+            ci += 1;
+        }
+        for p in 0..j {
+            b[k + p] = prep.pf[p];
+            for q in 0..j {
+                a[(k + p) * dim + k + q] = prep.pp[p * j + q];
+            }
+        }
+        for p in 0..k {
+            active[p] = a[p * dim + p] > thr[p];
+        }
+        let c = solve_normal(&a, &b, &active);
+        let fit: f64 = c.iter().zip(&b).map(|(c, b)| c * b).sum();
+        chi2.push(prep.fww - fit);
+    }
+    chi2
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn nice_lengths_are_smooth_and_minimal() {
+        assert_eq!(nice_len(1), 1);
+        assert_eq!(nice_len(7), 8);
+        assert_eq!(nice_len(11), 12);
+        assert_eq!(nice_len(1001), 1024);
+        assert_eq!(nice_len(14415), 14580);
+    }
+}

@@ -1,0 +1,251 @@
+/*!
+A spectrum made ready for the engine: resampled onto the log10 λ grid, noise
+scaled for correlated pixels, and the Legendre polynomials of the continuum
+evaluated with their redshift-independent normal-equation sums.
+*/
+use super::config::FitError;
+use crate::spectrum::{LogGrid, Spectrum};
+use nalgebra::{DMatrix, DVector};
+
+/// Fewest good grid pixels the engine accepts.
+pub const MIN_PIXELS: usize = 20;
+
+/// A spectrum on the engine grid.
+#[derive(Debug, Clone)]
+pub struct Prepared {
+    /// The grid.
+    pub grid: LogGrid,
+    /// Global index of grid pixel 0 (`grid.index0()`).
+    pub g0: i64,
+    /// Flux (0 where bad).
+    pub flux: Vec<f64>,
+    /// Weights = inverse variance / oversampling (0 where bad).
+    pub w: Vec<f64>,
+    /// Indices of pixels with w > 0.
+    pub good: Vec<usize>,
+    /// Legendre polynomials P_j at each grid pixel.
+    pub p: Vec<Vec<f64>>,
+    /// Σ w f².
+    pub fww: f64,
+    /// Σ w P_i P_j (row-major J×J).
+    pub pp: Vec<f64>,
+    /// Σ w f P_j.
+    pub pf: Vec<f64>,
+    /// The resampler's oversampling factor the weights were divided by.
+    pub oversampling: f64,
+}
+
+/// Legendre polynomials P_0..P_{j-1} at x ∈ [−1, 1] (Bonnet's recursion).
+pub fn legendre(j: usize, x: f64) -> Vec<f64> {
+    let mut out = Vec::with_capacity(j);
+    for k in 0..j {
+        let v = match k {
+            0 => 1.0,
+            1 => x,
+            _ => {
+                let kf = k as f64;
+                ((2.0 * kf - 1.0) * x * out[k - 1] - (kf - 1.0) * out[k - 2]) / kf
+            }
+        };
+        out.push(v);
+    }
+    out
+}
+
+impl Prepared {
+    /// Resample `s` onto its grid of step `dll` and prepare the sums.
+    pub fn new(s: &Spectrum, dll: f64, poly_terms: usize) -> Result<Prepared, FitError> {
+        let grid = s.log_grid(dll);
+        let r = s.resample(&grid);
+        let os = if r.oversampling.is_finite() && r.oversampling >= 1.0 {
+            r.oversampling
+        } else {
+            1.0
+        };
+        let n = grid.n;
+        let mut w = vec![0.0; n];
+        let mut flux = vec![0.0; n];
+        let mut good = Vec::new();
+        for i in 0..n {
+            if r.ivar[i] > 0.0 && r.ivar[i].is_finite() && r.flux[i].is_finite() {
+                w[i] = r.ivar[i] / os;
+                flux[i] = r.flux[i];
+                good.push(i);
+            }
+        }
+        let needed = MIN_PIXELS.max(poly_terms + 2);
+        if good.len() < needed {
+            return Err(FitError::TooFewPixels {
+                good: good.len(),
+                needed,
+            });
+        }
+        let (l0, l1) = (grid.wave(0), grid.wave(n - 1));
+        let mut p = vec![vec![0.0; n]; poly_terms];
+        for i in 0..n {
+            let x = 2.0 * (grid.wave(i) - l0) / (l1 - l0) - 1.0;
+            for (j, v) in legendre(poly_terms, x).into_iter().enumerate() {
+                p[j][i] = v;
+            }
+        }
+        let j = poly_terms;
+        let mut pp = vec![0.0; j * j];
+        let mut pf = vec![0.0; j];
+        let mut fww = 0.0;
+        for &i in &good {
+            fww += w[i] * flux[i] * flux[i];
+            for a in 0..j {
+                pf[a] += w[i] * flux[i] * p[a][i];
+                for b in 0..j {
+                    pp[a * j + b] += w[i] * p[a][i] * p[b][i];
+                }
+            }
+        }
+        Ok(Prepared {
+            grid,
+            g0: grid.index0(),
+            flux,
+            w,
+            good,
+            p,
+            fww,
+            pp,
+            pf,
+            oversampling: os,
+        })
+    }
+
+    /// Number of good pixels.
+    pub fn n_good(&self) -> usize {
+        self.good.len()
+    }
+
+    /// Number of polynomial terms.
+    pub fn j(&self) -> usize {
+        self.p.len()
+    }
+}
+
+/// Solve the symmetric normal equations `a c = b` (row-major `dim × dim`).
+/// Columns with `active[i] == false` get coefficient 0 and are left out.
+/// The system is scaled to unit diagonal and solved by a Cholesky
+/// factorisation written out in plain loops (nalgebra's generic code is
+/// compiled at the caller's optimisation level, far too slow for the
+/// thousands of tiny solves per spectrum in a debug build); when a pivot
+/// shows the system is singular or nearly so, nalgebra's SVD solves it with
+/// small singular values dropped.
+pub fn solve_normal(a: &[f64], b: &[f64], active: &[bool]) -> Vec<f64> {
+    let dim = b.len();
+    let mut c = vec![0.0; dim];
+    let mut idx = [0usize; 32];
+    let mut k = 0;
+    for i in 0..dim {
+        if active[i] && a[i * dim + i] > 0.0 && k < idx.len() {
+            idx[k] = i;
+            k += 1;
+        }
+    }
+    if k == 0 {
+        return c;
+    }
+    let idx = &idx[..k];
+    let mut d = [0.0f64; 32];
+    for r in 0..k {
+        d[r] = a[idx[r] * dim + idx[r]].sqrt();
+    }
+    // scaled matrix (lower triangle used) and right-hand side
+    let mut l = [0.0f64; 32 * 32];
+    let mut v = [0.0f64; 32];
+    for r in 0..k {
+        v[r] = b[idx[r]] / d[r];
+        for s in 0..=r {
+            l[r * 32 + s] = a[idx[r] * dim + idx[s]] / (d[r] * d[s]);
+        }
+    }
+    let mut ok = true;
+    'outer: for j in 0..k {
+        let mut sum = l[j * 32 + j];
+        for p in 0..j {
+            sum -= l[j * 32 + p] * l[j * 32 + p];
+        }
+        // relative pivot test on the unit-diagonal matrix
+        if sum <= 1e-10 {
+            ok = false;
+            break 'outer;
+        }
+        let piv = sum.sqrt();
+        l[j * 32 + j] = piv;
+        for i in j + 1..k {
+            let mut s2 = l[i * 32 + j];
+            for p in 0..j {
+                s2 -= l[i * 32 + p] * l[j * 32 + p];
+            }
+            l[i * 32 + j] = s2 / piv;
+        }
+    }
+    let x: Vec<f64> = if ok {
+        let mut y = [0.0f64; 32];
+        for i in 0..k {
+            let mut s2 = v[i];
+            for p in 0..i {
+                s2 -= l[i * 32 + p] * y[p];
+            }
+            y[i] = s2 / l[i * 32 + i];
+        }
+        let mut x = vec![0.0; k];
+        for i in (0..k).rev() {
+            let mut s2 = y[i];
+            for p in i + 1..k {
+                s2 -= l[p * 32 + i] * x[p];
+            }
+            x[i] = s2 / l[i * 32 + i];
+        }
+        x
+    } else {
+        let m = DMatrix::from_fn(k, k, |r, s| a[idx[r] * dim + idx[s]] / (d[r] * d[s]));
+        let rhs = DVector::from_fn(k, |r, _| v[r]);
+        match m.svd(true, true).solve(&rhs, 1e-10) {
+            Ok(x) => x.iter().copied().collect(),
+            Err(_) => vec![0.0; k],
+        }
+    };
+    for r in 0..k {
+        c[idx[r]] = x[r] / d[r];
+    }
+    c
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use approx::assert_relative_eq;
+
+    #[test]
+    fn legendre_matches_closed_forms() {
+        // P2 = (3x²−1)/2, P3 = (5x³−3x)/2 (closed forms, common practice).
+        for &x in &[-1.0, -0.3, 0.0, 0.7, 1.0] {
+            let p = legendre(4, x);
+            assert_relative_eq!(p[2], 0.5 * (3.0 * x * x - 1.0), epsilon = 1e-14);
+            assert_relative_eq!(p[3], 0.5 * (5.0 * x * x * x - 3.0 * x), epsilon = 1e-14);
+        }
+    }
+
+    #[test]
+    fn cholesky_solves_a_known_system() {
+        // a = [[4, 2], [2, 3]], b = [2, 1] → c = [0.5, 0] (by hand)
+        let c = solve_normal(&[4.0, 2.0, 2.0, 3.0], &[2.0, 1.0], &[true, true]);
+        assert_relative_eq!(c[0], 0.5, epsilon = 1e-14);
+        assert_relative_eq!(c[1], 0.0, epsilon = 1e-14);
+        let c = solve_normal(&[4.0, 2.0, 2.0, 3.0], &[2.0, 1.0], &[true, false]);
+        assert_relative_eq!(c[0], 0.5, epsilon = 1e-14);
+    }
+
+    #[test]
+    fn singular_system_falls_back() {
+        // two identical columns: any split of the coefficient fits; the sum must be right
+        let a = [2.0, 2.0, 2.0, 2.0];
+        let b = [4.0, 4.0];
+        let c = solve_normal(&a, &b, &[true, true]);
+        assert_relative_eq!(c[0] + c[1], 2.0, epsilon = 1e-9);
+    }
+}

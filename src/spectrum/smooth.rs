@@ -1,0 +1,123 @@
+/*!
+Smoothing of a spectrum for display and line finding: boxcar and Gaussian
+kernels in pixel space, weighted by the inverse variance, with bad pixels
+left out.
+
+Each output pixel is the weighted mean f̂ᵢ = Σ wₖ ivarₖ fₖ / Σ wₖ ivarₖ over the
+good pixels k in the kernel (wₖ the kernel value). Its variance is that of a
+weighted mean, var(f̂ᵢ) = Σ wₖ² ivarₖ / (Σ wₖ ivarₖ)² (common practice), so the
+returned inverse variance is (Σ wₖ ivarₖ)² / Σ wₖ² ivarₖ. Pixels whose kernel
+holds no good pixel get flux 0 and ivar 0. Neighbouring smoothed pixels are
+correlated; the ivar is per pixel, not for sums over pixels.
+*/
+use super::Spectrum;
+
+/// A smoothed flux with its inverse variance, on the spectrum's own pixels.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Smoothed {
+    /// Smoothed flux (0 where no good pixel was in reach).
+    pub flux: Vec<f64>,
+    /// Inverse variance of each smoothed pixel (0 = no data).
+    pub ivar: Vec<f64>,
+}
+
+impl Spectrum {
+    /// Boxcar smoothing over `width` pixels (rounded up to an odd number;
+    /// `width ≤ 1` returns the spectrum's own flux and ivar).
+    pub fn smooth_boxcar(&self, width: usize) -> Smoothed {
+        let half = width.saturating_sub(1).div_ceil(2);
+        let kernel = vec![1.0; 2 * half + 1];
+        self.convolve_weighted(&kernel)
+    }
+
+    /// Gaussian smoothing with standard deviation `sigma_pix` pixels; the
+    /// kernel is cut at ±4σ. `sigma_pix ≤ 0` (or not finite) returns the
+    /// spectrum's own flux and ivar.
+    pub fn smooth_gaussian(&self, sigma_pix: f64) -> Smoothed {
+        if !(sigma_pix > 0.0 && sigma_pix.is_finite()) {
+            return self.convolve_weighted(&[1.0]);
+        }
+        let half = (4.0 * sigma_pix).ceil().min(1.0e6) as usize;
+        let kernel: Vec<f64> = (0..=2 * half)
+            .map(|k| {
+                let x = (k as f64 - half as f64) / sigma_pix;
+                (-0.5 * x * x).exp()
+            })
+            .collect();
+        self.convolve_weighted(&kernel)
+    }
+
+    /// Ivar-weighted convolution with an odd-length kernel centred on each pixel.
+    fn convolve_weighted(&self, kernel: &[f64]) -> Smoothed {
+        let n = self.len();
+        let half = kernel.len() / 2;
+        let (flux, ivar, good) = (self.flux(), self.ivar(), self.good());
+        let mut out_f = vec![0.0; n];
+        let mut out_iv = vec![0.0; n];
+        for i in 0..n {
+            let (mut swi, mut swif, mut sw2i) = (0.0, 0.0, 0.0);
+            let lo = i.saturating_sub(half);
+            let hi = (i + half).min(n - 1);
+            for k in lo..=hi {
+                if !good[k] {
+                    continue;
+                }
+                let w = kernel[k + half - i];
+                swi += w * ivar[k];
+                swif += w * ivar[k] * flux[k];
+                sw2i += w * w * ivar[k];
+            }
+            if swi > 0.0 && sw2i > 0.0 {
+                out_f[i] = swif / swi;
+                out_iv[i] = swi * swi / sw2i;
+            }
+        }
+        Smoothed {
+            flux: out_f,
+            ivar: out_iv,
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::spectrum::SpectrumMeta;
+    use approx::assert_abs_diff_eq;
+
+    fn spec(flux: Vec<f64>, ivar: Vec<f64>) -> Spectrum {
+        let wave = (0..flux.len()).map(|i| 5000.0 + i as f64).collect();
+        Spectrum::new(wave, flux, Some(ivar), None, SpectrumMeta::default()).unwrap()
+    }
+
+    #[test]
+    fn boxcar_of_equal_weights_is_the_plain_mean() {
+        let s = spec(vec![1.0, 2.0, 3.0, 4.0, 5.0], vec![4.0; 5]);
+        let b = s.smooth_boxcar(3);
+        assert_abs_diff_eq!(b.flux[2], 3.0, epsilon = 1e-12);
+        // mean of 3 pixels of σ² = 1/4 has σ² = 1/12 (variance of a mean)
+        assert_abs_diff_eq!(b.ivar[2], 12.0, epsilon = 1e-9);
+        // edges use what is in reach
+        assert_abs_diff_eq!(b.flux[0], 1.5, epsilon = 1e-12);
+    }
+
+    #[test]
+    fn masked_pixels_are_left_out_and_weights_follow_ivar() {
+        // pixel 2 is NaN → masked; pixel 1 has 3× the weight of pixel 3
+        let s = spec(vec![0.0, 1.0, f64::NAN, 5.0, 0.0], vec![1.0, 3.0, 1.0, 1.0, 1.0]);
+        let b = s.smooth_boxcar(3);
+        assert_abs_diff_eq!(b.flux[2], (3.0 * 1.0 + 5.0) / 4.0, epsilon = 1e-12);
+    }
+
+    #[test]
+    fn gaussian_keeps_a_constant_and_lowers_noise_by_the_kernel_sum() {
+        let s = spec(vec![7.0; 101], vec![1.0; 101]);
+        let g = s.smooth_gaussian(2.0);
+        assert!(g.flux.iter().all(|f| (f - 7.0).abs() < 1e-12));
+        // ivar gain = (Σw)²/Σw² ≈ 2√π σ for a sampled Gaussian (common practice)
+        let expect = 2.0 * std::f64::consts::PI.sqrt() * 2.0;
+        assert!((g.ivar[50] - expect).abs() / expect < 0.01, "{}", g.ivar[50]);
+        // a zero width is the identity
+        assert_eq!(s.smooth_gaussian(0.0).flux, s.flux());
+    }
+}

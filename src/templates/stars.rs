@@ -1,0 +1,286 @@
+/*!
+Stellar templates: a spectral sequence from hot to cool stars plus a hydrogen
+white dwarf, built from a Planck continuum and optical-depth profiles.
+
+Every ingredient follows the textbook behaviour of the sequence (from memory,
+common practice in spectral classification):
+- hydrogen (Balmer, Paschen) lines and the Balmer jump are strongest near
+  T ≈ 9500 K (A0) and fade towards hot and cool stars;
+- metal lines (Ca II H&K, Ca I, the G band, Mg b, Fe, Na D, the Ca II triplet,
+  K I, the Na I doublet) grow towards cool types, and line blanketing depresses
+  the blue and ultraviolet, producing the 4000 Å break;
+- He I lines mark B stars, He II lines O stars;
+- TiO bands (heads degraded to the red) dominate M stars;
+- a DA white dwarf has only hydrogen lines, pressure-broadened to very wide wings.
+*/
+use super::profiles::{add_band, apply_tau, hydrogen_wave, median_in, planck, sigmoid, Absorber, Grid};
+use crate::lines::wave_of;
+use serde::Serialize;
+
+/// One stellar type of the sequence.
+#[derive(Debug, Clone, Copy, Serialize)]
+pub struct StarType {
+    /// Template name.
+    pub name: &'static str,
+    /// Effective temperature (K), typical of the type (from memory).
+    pub teff: f64,
+    /// A pressure-broadened hydrogen-atmosphere white dwarf.
+    pub white_dwarf: bool,
+}
+
+/// The built-in sequence (effective temperatures from memory, common practice).
+pub const SEQUENCE: &[StarType] = &[
+    StarType {
+        name: "star-O",
+        teff: 38_000.0,
+        white_dwarf: false,
+    },
+    StarType {
+        name: "star-B",
+        teff: 17_000.0,
+        white_dwarf: false,
+    },
+    StarType {
+        name: "star-A",
+        teff: 9_500.0,
+        white_dwarf: false,
+    },
+    StarType {
+        name: "star-F",
+        teff: 6_800.0,
+        white_dwarf: false,
+    },
+    StarType {
+        name: "star-G",
+        teff: 5_800.0,
+        white_dwarf: false,
+    },
+    StarType {
+        name: "star-K",
+        teff: 4_600.0,
+        white_dwarf: false,
+    },
+    StarType {
+        name: "star-M0",
+        teff: 3_850.0,
+        white_dwarf: false,
+    },
+    StarType {
+        name: "star-M4",
+        teff: 3_200.0,
+        white_dwarf: false,
+    },
+    StarType {
+        name: "star-WD-DA",
+        teff: 16_000.0,
+        white_dwarf: true,
+    },
+];
+
+/// Velocity dispersion (km/s) of the stellar templates' lines: thermal,
+/// turbulent and rotational broadening together, typical of dwarfs (common practice).
+pub const STAR_SIGMA_KMS: f64 = 40.0;
+
+/// Strength (0–1) of the hydrogen lines: peaks at A0 (9500 K).
+pub fn hydrogen_strength(t: f64) -> f64 {
+    0.06 + 0.94 * (-(((t / 9_500.0).log10()) / 0.17).powi(2)).exp()
+}
+
+/// Strength (0–1) of the neutral and singly ionised metal lines: grows below ~6500 K.
+pub fn metal_strength(t: f64) -> f64 {
+    sigmoid((6_400.0 - t) / 650.0)
+}
+
+/// Strength (0–1) of TiO: appears below ~4000 K.
+pub fn tio_strength(t: f64) -> f64 {
+    sigmoid((3_950.0 - t) / 160.0)
+}
+
+/// Metal lines: (line name, central τ at full strength, extra Lorentz γ Å,
+/// exponent on the metal strength — 2 for lines only cool stars show).
+const METALS: &[(&str, f64, f64, i32)] = &[
+    ("Mg II 2796", 6.0, 3.0, 1),
+    ("Mg II 2804", 5.0, 3.0, 1),
+    ("Mg I 2853", 2.5, 1.0, 1),
+    ("Ca II K", 8.0, 5.0, 1),
+    ("Ca II H", 6.0, 4.0, 1),
+    ("Ca I 4228", 1.8, 1.0, 2),
+    ("Fe I 4385", 0.7, 0.0, 1),
+    ("Mg b 5169", 1.0, 0.8, 1),
+    ("Mg b 5174", 1.2, 0.8, 1),
+    ("Mg b 5185", 1.4, 0.8, 1),
+    ("Fe I 5271", 0.6, 0.0, 1),
+    ("Fe I 5330", 0.4, 0.0, 1),
+    ("Na D2", 1.8, 1.0, 1),
+    ("Na D1", 1.5, 1.0, 1),
+    ("K I 7667", 1.0, 0.5, 2),
+    ("K I 7701", 0.8, 0.5, 2),
+    ("Na I 8186", 0.8, 0.3, 2),
+    ("Na I 8197", 0.9, 0.3, 2),
+    ("Ca II 8500", 1.0, 1.0, 1),
+    ("Ca II 8544", 1.6, 1.5, 1),
+    ("Ca II 8664", 1.3, 1.2, 1),
+    ("Mg I 8809", 0.4, 0.0, 1),
+];
+
+/// TiO band heads (vacuum Å, air values from memory converted), central τ at
+/// full strength, e-folding length (Å).
+const TIO: &[(f64, f64, f64)] = &[
+    (4955.4, 0.5, 60.0),
+    (5168.4, 0.7, 80.0),
+    (5449.5, 0.7, 100.0),
+    (5848.6, 0.6, 100.0),
+    (6160.7, 0.9, 120.0),
+    (6652.8, 0.6, 150.0),
+    (7055.9, 1.2, 200.0),
+    (7591.1, 0.8, 150.0),
+    (8434.3, 0.5, 150.0),
+    (8861.4, 0.4, 150.0),
+];
+
+/// Hydrogen lines: lower level 2 (Balmer, n ≤ 30), 3 (Paschen, n ≤ 30).
+fn hydrogen_lines() -> Vec<(u32, u32, f64)> {
+    let named = [
+        (2, 3, "Hα"),
+        (2, 4, "Hβ"),
+        (2, 5, "Hγ"),
+        (2, 6, "Hδ"),
+        (2, 7, "Hε"),
+        (2, 8, "H8"),
+        (2, 9, "H9"),
+        (2, 10, "H10"),
+        (3, 7, "Paδ"),
+        (3, 8, "Paε"),
+        (3, 6, "Paγ"),
+    ];
+    let mut out = Vec::new();
+    for lower in [2u32, 3] {
+        for upper in lower + 1..=30 {
+            let w = named
+                .iter()
+                .find(|(a, b, _)| *a == lower && *b == upper)
+                .map(|(_, _, n)| wave_of(n))
+                .unwrap_or_else(|| hydrogen_wave(lower, upper));
+            out.push((lower, upper, w));
+        }
+    }
+    out
+}
+
+/// One star on `grid`, lines broadened to `sigma_kms`, normalised to a median
+/// of 1 over 5400–5600 Å.
+pub fn star(st: &StarType, grid: &Grid, sigma_kms: f64) -> Vec<f64> {
+    let t = st.teff;
+    let waves = grid.waves();
+    let mut flux: Vec<f64> = waves.iter().map(|&l| planck(l, t)).collect();
+    let mut tau = vec![0.0; grid.n];
+
+    let h = if st.white_dwarf { 1.0 } else { hydrogen_strength(t) };
+    let m = if st.white_dwarf { 0.0 } else { metal_strength(t) };
+    let tio = if st.white_dwarf { 0.0 } else { tio_strength(t) };
+
+    // Bound-free continua: Balmer jump (3646 Å) and Paschen jump (8206 Å);
+    // hydrogenic cross-section ∝ λ³ below the edge.
+    let balmer_edge = hydrogen_wave(2, 10_000);
+    let paschen_edge = hydrogen_wave(3, 10_000);
+    for (i, &l) in waves.iter().enumerate() {
+        if l < balmer_edge {
+            tau[i] += (0.1 + 1.0 * h) * (l / balmer_edge).powi(3);
+        }
+        if l < paschen_edge {
+            tau[i] += 0.3 * h * (l / paschen_edge).powi(3);
+        }
+        // Line blanketing by the many metal lines of cool stars: a step at
+        // ~4000 Å that deepens towards the ultraviolet.
+        let blue = sigmoid((4_000.0 - l) / 30.0);
+        tau[i] += m * (0.55 * blue * (1.0 + (4_000.0 - l).max(0.0) / 700.0) + 0.08 * (4_500.0 / l).powi(4));
+        // Lyman continuum of hot stars.
+        if l < 912.0 {
+            tau[i] += 3.0;
+        }
+    }
+
+    // Hydrogen lines: Stark wings in dwarfs, very wide in white dwarfs;
+    // upper members weaker (oscillator strengths fall roughly as n⁻³).
+    let (gamma0, tau_h) = if st.white_dwarf {
+        (14.0, 4.0)
+    } else {
+        (3.0 * h, 3.5 * h)
+    };
+    for (lower, upper, w) in hydrogen_lines() {
+        let first = lower + 1;
+        let k = f64::from(upper - first);
+        let series = if lower == 2 { 1.0 } else { 0.45 };
+        Absorber {
+            center: w,
+            tau0: tau_h * series * (1.0 + k).powf(-0.7),
+            sigma_kms: sigma_kms.max(20.0),
+            gamma: gamma0 * (w / 4_861.0),
+            eta: 0.6,
+        }
+        .add_to(&mut tau, grid);
+    }
+
+    // Helium: He I in B stars, He II in O stars.
+    let he1 = (-((t / 18_000.0).log10() / 0.12).powi(2)).exp();
+    let he2 = sigmoid((t - 30_000.0) / 3_000.0);
+    if !st.white_dwarf {
+        for (name, s) in [("He I 4473", 0.5), ("He I 5877", 0.4), ("He I 6680", 0.3)] {
+            Absorber {
+                center: wave_of(name),
+                tau0: s * he1,
+                sigma_kms: sigma_kms.max(60.0),
+                gamma: 0.0,
+                eta: 0.0,
+            }
+            .add_to(&mut tau, grid);
+        }
+        Absorber {
+            center: wave_of("He II 4687"),
+            tau0: 0.4 * he2,
+            sigma_kms: sigma_kms.max(80.0),
+            gamma: 0.0,
+            eta: 0.0,
+        }
+        .add_to(&mut tau, grid);
+    }
+
+    // Metals, with the weak interstellar-like Ca II K kept visible in A stars.
+    for &(name, t0, gamma, power) in METALS {
+        let s = if name.starts_with("Ca II") || name.starts_with("Mg II") {
+            m.max(0.04)
+        } else {
+            m
+        };
+        let s = if st.white_dwarf { 0.0 } else { s.powi(power) };
+        Absorber {
+            center: wave_of(name),
+            tau0: t0 * s,
+            sigma_kms,
+            gamma: gamma * s,
+            eta: if gamma > 0.0 { 0.3 } else { 0.0 },
+        }
+        .add_to(&mut tau, grid);
+    }
+    // The G band (CH molecule) is a band, not a line: ~15 Å wide, strongest in G–K stars.
+    let ch = m * (1.0 - 0.6 * tio);
+    Absorber {
+        center: wave_of("G band"),
+        tau0: 0.45 * ch,
+        sigma_kms: 350.0,
+        gamma: 0.0,
+        eta: 0.0,
+    }
+    .add_to(&mut tau, grid);
+
+    for &(head, t0, len) in TIO {
+        add_band(&mut tau, grid, head, t0 * tio, len);
+    }
+
+    apply_tau(&mut flux, &tau);
+    let norm = median_in(&flux, grid, 5_400.0, 5_600.0);
+    for f in &mut flux {
+        *f /= norm;
+    }
+    flux
+}
