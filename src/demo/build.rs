@@ -28,23 +28,32 @@ const CIV: f64 = 1549.06;
 const SIIV: f64 = 1396.75;
 const NV: f64 = 1240.14;
 
-fn galaxy(z: f64, young: f64, old: f64, rng: &mut impl Rng) -> Model {
-    let tilt = Normal::new(0.0, 0.15).map(|d| d.sample(rng)).unwrap_or(0.0);
-    let mut components = vec![Component {
-        class: ObjectClass::Galaxy,
-        template: synth::template_of(ObjectClass::Galaxy, TemplateKind::Absorption),
-        weight: old,
+/// A component of the built-in set by template name (the quasar and galaxy
+/// bases are physical parts: populations, continua, line sets).
+fn part(class: ObjectClass, name: &str, kind: TemplateKind, weight: f64, z: f64, tilt: f64) -> Component {
+    Component {
+        class,
+        template: synth::template_of(class, name, kind),
+        weight,
         z,
         tilt,
-    }];
+    }
+}
+
+/// A galaxy: `old` and `young` are light fractions at 5500 Å of the passive
+/// and star-forming populations (the galaxy templates are normalised there).
+fn galaxy(z: f64, young: f64, old: f64, rng: &mut impl Rng) -> Model {
+    use ObjectClass::Galaxy;
+    use TemplateKind::{Absorption, Emission};
+    let tilt = Normal::new(0.0, 0.12).map(|d| d.sample(rng)).unwrap_or(0.0);
+    let mut components = vec![
+        part(Galaxy, "galaxy-old", Absorption, old, z, tilt),
+        part(Galaxy, "galaxy-intermediate", Absorption, rng.random_range(0.0..0.3), z, tilt),
+    ];
     if young > 0.0 {
-        components.push(Component {
-            class: ObjectClass::Galaxy,
-            template: synth::template_of(ObjectClass::Galaxy, TemplateKind::Emission),
-            weight: young,
-            z,
-            tilt,
-        });
+        components.push(part(Galaxy, "galaxy-young", Emission, young, z, tilt));
+        let extra = young * rng.random_range(0.0..0.4);
+        components.push(part(Galaxy, "galaxy-emission", Emission, extra, z, tilt));
     }
     Model {
         components,
@@ -53,17 +62,19 @@ fn galaxy(z: f64, young: f64, old: f64, rng: &mut impl Rng) -> Model {
     }
 }
 
+/// A quasar from the continuum and line parts, each scaled a little differently.
 fn quasar(z: f64, rng: &mut impl Rng) -> Model {
-    let tilt = Normal::new(0.0, 0.3).map(|d| d.sample(rng)).unwrap_or(0.0);
+    use ObjectClass::Quasar;
+    use TemplateKind::Emission;
+    let tilt = Normal::new(0.0, 0.25).map(|d| d.sample(rng)).unwrap_or(0.0);
     Model {
-        components: vec![Component {
-            class: ObjectClass::Quasar,
-            template: 0,
-            weight: 1.0,
-            z,
-            tilt,
-        }],
-        igm_z: Some(z),
+        components: vec![
+            part(Quasar, "qso-continuum", Emission, 1.0, z, tilt),
+            part(Quasar, "qso-uv-lines", Emission, rng.random_range(0.6..1.4), z, tilt),
+            part(Quasar, "qso-balmer", Emission, rng.random_range(0.6..1.4), z, tilt),
+            part(Quasar, "qso-red", Emission, rng.random_range(0.0..0.3), z, tilt),
+        ],
+        trough_z: Some(z),
         scale: 1.0,
         ..Default::default()
     }

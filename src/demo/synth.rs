@@ -59,8 +59,8 @@ pub struct Model {
     pub constant: f64,
     /// Broad absorption troughs: (line rest Å, v_min km/s, v_max km/s, depth).
     pub troughs: Vec<(f64, f64, f64, f64)>,
-    /// Redshift of the quasar for intergalactic absorption (None: none).
-    pub igm_z: Option<f64>,
+    /// Redshift of the quasar whose troughs these are (None: no troughs).
+    pub trough_z: Option<f64>,
     /// Overall scale.
     pub scale: f64,
 }
@@ -81,7 +81,7 @@ impl Model {
         for &(mu, s, a) in &self.lines {
             f += a * (-0.5 * ((lam - mu) / s).powi(2)).exp();
         }
-        if let Some(z) = self.igm_z {
+        if let Some(z) = self.trough_z {
             let rest = lam / (1.0 + z);
             for &(line, v1, v2, depth) in &self.troughs {
                 let (lo, hi) = (line * (1.0 - v2 / C_KMS), line * (1.0 - v1 / C_KMS));
@@ -90,14 +90,6 @@ impl Model {
                     let x = (rest - lo) / (hi - lo);
                     f *= 1.0 - depth * (std::f64::consts::PI * x).sin().powf(0.5);
                 }
-            }
-            if rest < 912.0 {
-                f *= 0.05; // Lyman limit (common practice: nearly opaque)
-            } else if rest < 1215.67 {
-                // Mean Lyα-forest transmission, τ = 0.0025 (1+z_abs)^3.7
-                // (a common approximation, from memory).
-                let z_abs = lam / 1215.67 - 1.0;
-                f *= (-0.0025 * (1.0 + z_abs).powf(3.7)).exp();
             }
         }
         f
@@ -122,11 +114,15 @@ impl Model {
     }
 }
 
-/// Index of the first template of `class` whose kind is `kind` (else 0).
-pub fn template_of(class: ObjectClass, kind: TemplateKind) -> usize {
-    templates::builtin()
-        .class(class)
-        .and_then(|g| g.templates.iter().position(|t| t.kind == kind))
+/// Index of the template of `class` named `name`, else the first of `kind`, else 0.
+pub fn template_of(class: ObjectClass, name: &str, kind: TemplateKind) -> usize {
+    let Some(g) = templates::builtin().class(class) else {
+        return 0;
+    };
+    g.templates
+        .iter()
+        .position(|t| t.name == name)
+        .or_else(|| g.templates.iter().position(|t| t.kind == kind))
         .unwrap_or(0)
 }
 

@@ -82,27 +82,70 @@ pub fn read_templates(path: &Path) -> Loaded {
     }
 }
 
-/// Read a campaign folder.
+/// Read a campaign folder: its spectra (with the manifest's reader options),
+/// its catalogue joined by id, and the folder of its review logs.
 pub fn read_campaign(path: &Path) -> Loaded {
     let campaign = match crate::campaign::Campaign::open(path) {
         Ok(c) => c,
         Err(e) => return Loaded::Failed(format!("{}: {e}", path.display())),
     };
-    match campaign.load_objects() {
-        Ok((objects, problems)) => {
-            let log = campaign.review_log_path("x");
-            let log_folder = log
-                .parent()
-                .map(Path::to_path_buf)
-                .unwrap_or_else(|| path.join("reviews"));
-            Loaded::Campaign {
-                title: path.display().to_string(),
-                objects,
-                log_folder,
-                problems,
-            }
+    let m = campaign.manifest();
+    let r = &m.read;
+    let opts = ReadOptions {
+        air: r.air,
+        wave_col: r.wave_col.clone(),
+        flux_col: r.flux_col.clone(),
+        ivar_col: r.ivar_col.clone(),
+        err_col: r.err_col.clone(),
+        mask_col: r.mask_col.clone(),
+        id_col: r.id_col.clone(),
+        hdu: r.hdu,
+    };
+    let mut problems = Vec::new();
+    let mut objects = Vec::new();
+    for f in io::expand_inputs(&campaign.spectra_paths()) {
+        match io::read_file(&f, &opts) {
+            Ok(v) => objects.extend(v.into_iter().map(|spectrum| SurveyObject {
+                spectrum,
+                catalog: None,
+                fit: None,
+            })),
+            Err(e) => problems.push(e.to_string()),
         }
-        Err(e) => Loaded::Failed(format!("{}: {e}", path.display())),
+    }
+    if let (Some(cat), Some(settings)) = (campaign.catalog_path(), m.catalog.as_ref()) {
+        let mut map = crate::catalog::ColumnMap::default();
+        let overrides: Vec<String> = settings
+            .columns
+            .iter()
+            .map(|(k, v)| format!("{k}={v}"))
+            .collect();
+        let rows = map
+            .apply_overrides(&overrides)
+            .map_err(|e| e.to_string())
+            .and_then(|_| crate::catalog::read_csv(&cat, &map).map_err(|e| e.to_string()));
+        match rows {
+            Ok(rows) => {
+                let ids: Vec<String> = objects.iter().map(|o| o.id().to_string()).collect();
+                for (si, ri) in crate::catalog::join(&ids, &rows).matched {
+                    if let (Some(o), Some(row)) = (objects.get_mut(si), rows.get(ri)) {
+                        o.catalog = Some(row.clone());
+                    }
+                }
+            }
+            Err(e) => problems.push(format!("{}: {e}", cat.display())),
+        }
+    }
+    let log = campaign.review_log_path("x");
+    let log_folder = log
+        .parent()
+        .map(Path::to_path_buf)
+        .unwrap_or_else(|| path.join("reviews"));
+    Loaded::Campaign {
+        title: m.name.clone(),
+        objects,
+        log_folder,
+        problems,
     }
 }
 
