@@ -187,10 +187,10 @@ pub fn object(
             (m, None, 0.0, "dead fibre: no light reached the spectrograph".into(), r)
         }
         DemoKind::Catastrophic => {
-            let z = rng.random_range(0.6..0.9);
-            let m = galaxy(z, rng.random_range(0.4..0.8), rng.random_range(0.3..0.6), rng);
-            let note = "faint galaxy; an arm step, an unmasked cosmic ray and a hot column mislead the fit";
-            (m, Some(ObjectClass::Galaxy), z, note.into(), rng.random_range(21.6..22.3))
+            let z = rng.random_range(0.4..0.8);
+            let m = galaxy(z, 0.0, 1.0, rng);
+            let note = "faint passive galaxy; two unmasked cosmic rays and an arm step mislead the fit";
+            (m, Some(ObjectClass::Galaxy), z, note.into(), rng.random_range(22.0..22.5))
         }
         _ => {
             let (m, c, z, n, r) = normal(kind, ordinal, rng);
@@ -324,20 +324,19 @@ fn defects(
         }
         DemoKind::Catastrophic => {
             let sigma = |i: usize, iv: &[f64]| 1.0 / iv[i].max(1e-12).sqrt();
-            // The red arm is calibrated 2.2× too bright.
+            // The red arm is calibrated 1.6× too bright.
             for i in 0..n {
                 if wave[i] > ARM_JOIN {
-                    flux[i] *= 2.2;
+                    flux[i] *= 1.6;
                 }
             }
-            // An unmasked cosmic ray and a hot column.
-            let cr = rng.random_range(200..n / 2);
-            for i in cr..cr + 3 {
-                flux[i] += 40.0 * sigma(i, ivar);
-            }
-            let col = rng.random_range(n / 2..n - 40);
-            for i in col..col + 25 {
-                flux[i] += 15.0 * sigma(i, ivar);
+            // Two unmasked cosmic rays, each two pixels wide — narrower than
+            // any real line, which is how a person tells them apart.
+            for _ in 0..2 {
+                let cr = rng.random_range(300..n - 300);
+                for (k, i) in (cr..cr + 2).enumerate() {
+                    flux[i] += (30.0 - 8.0 * k as f64) * sigma(i, ivar);
+                }
             }
         }
         _ => {}

@@ -168,3 +168,42 @@ fn write_truth(survey: &DemoSurvey, path: &Path) -> Result<(), String> {
     }
     w.flush().map_err(|e| e.to_string())
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::io::{read_file, ReadOptions};
+
+    #[test]
+    fn written_survey_reads_back_through_the_readers() {
+        let survey = crate::demo::generate_n(11, 4);
+        let dir = tempfile::tempdir().unwrap();
+        let w = write_survey(&survey, dir.path()).unwrap();
+        assert_eq!(w.objects, 4);
+        for o in &survey.objects {
+            let path = w.spectra.join(format!("{}.fits", o.id()));
+            let back = read_file(&path, &ReadOptions::default()).unwrap();
+            assert_eq!(back.len(), 1);
+            let b = &back[0];
+            assert_eq!(b.meta.id, o.id());
+            assert_eq!(b.wave(), o.spectrum.wave());
+            assert_eq!(b.flux(), o.spectrum.flux());
+            assert_eq!(b.good(), o.spectrum.good());
+            assert_eq!(b.meta.ra, o.spectrum.meta.ra);
+        }
+        let rows = crate::catalog::read_csv(&w.catalog, &crate::catalog::ColumnMap::default()).unwrap();
+        assert_eq!(rows.len(), 4);
+        for (r, o) in rows.iter().zip(&survey.objects) {
+            let c = o.catalog.as_ref().unwrap();
+            assert_eq!(r.id, c.id);
+            assert_eq!(r.phot_class, c.phot_class);
+            for b in 0..5 {
+                match (r.mag[b], c.mag[b]) {
+                    (Some(x), Some(y)) => assert!((x - y).abs() < 6e-4),
+                    (x, y) => assert_eq!(x.is_some(), y.is_some()),
+                }
+            }
+        }
+        assert!(std::fs::read_to_string(&w.truth).unwrap().lines().count() == 5);
+    }
+}
