@@ -8,3 +8,5 @@ mod review;
 mod lines;
 mod smoke;
 mod templates;
+#[cfg(feature = "gui")]
+mod gui;
