@@ -72,6 +72,8 @@ pub struct EngineSettings {
     pub mask_sky: bool,
     /// `chi2` or `xcorr`.
     pub method: String,
+    /// Template amplitudes constrained to be ≥ 0.
+    pub nonnegative: bool,
 }
 
 impl Default for EngineSettings {
@@ -95,6 +97,7 @@ impl EngineSettings {
             min_separation_kms: self.min_separation_kms,
             mask_sky: self.mask_sky,
             method: self.method.parse()?,
+            nonnegative: self.nonnegative,
         })
     }
 
@@ -114,6 +117,7 @@ impl EngineSettings {
                 crate::fit::Method::Chi2 => "chi2".into(),
                 crate::fit::Method::XCorr => "xcorr".into(),
             },
+            nonnegative: c.nonnegative,
         }
     }
 
