@@ -87,7 +87,7 @@ fn check_object(file: &str, s: &Spectrum, e: &Value) {
 fn fixtures_match_what_astropy_reads() {
     let exp = json("expected.json");
     let files = exp["files"].as_object().unwrap();
-    assert!(files.len() >= 13, "every reader shape has a fixture");
+    assert!(files.len() >= 15, "every reader shape has a fixture");
     for (name, objects) in files {
         let spectra = read_file(&data_dir().join(name), &ReadOptions::default())
             .unwrap_or_else(|e| panic!("{name}: {e}"));
@@ -114,6 +114,7 @@ fn bad_fixtures_give_their_own_error() {
             LoadError::NoGoodPixels { .. } => "NoGoodPixels",
             LoadError::UnknownUnit { .. } => "UnknownUnit",
             LoadError::EmptyTable { .. } => "EmptyTable",
+            LoadError::NoSpectrum(_) => "NoSpectrum",
             _ => "other",
         };
         assert_eq!(got, variant.as_str().unwrap(), "{name}: {err}");
@@ -174,6 +175,13 @@ fn options_override_what_the_file_says() {
     };
     let e = read_file(&data_dir().join("tab_pixel_sigma.fits"), &opts).unwrap_err();
     assert!(matches!(e.kind(), LoadError::BadHdu { .. }), "{e}");
+    // a 1-D image without a spectral WCS is skipped, unless chosen by hand
+    let opts = ReadOptions {
+        hdu: Some(0),
+        ..Default::default()
+    };
+    let e = read_file(&data_dir().join("bad/no_wcs.fits"), &opts).unwrap_err();
+    assert!(matches!(e.kind(), LoadError::BadWcs { .. }), "{e}");
     // a mask column named by hand on a file whose synonyms would not find it
     let opts = ReadOptions {
         mask_col: Some("Quality".into()),
@@ -190,8 +198,8 @@ fn folders_expand_to_all_spectrum_files_in_stable_order() {
         .iter()
         .map(|p| p.strip_prefix(data_dir()).unwrap().display().to_string())
         .collect();
-    // 13 good fixtures + 6 bad; the JSON files are not spectra
-    assert_eq!(names.len(), 19, "{names:?}");
+    // 15 good fixtures + 7 bad; the JSON files are not spectra
+    assert_eq!(names.len(), 22, "{names:?}");
     let mut sorted = names.clone();
     sorted.sort();
     assert_eq!(names, sorted);

@@ -5,4 +5,8 @@ mod fit;
 mod io;
 mod records;
 mod review;
+mod lines;
 mod smoke;
+mod templates;
+#[cfg(feature = "gui")]
+mod gui;

@@ -49,6 +49,9 @@ pub struct FitConfig {
     pub mask_sky: bool,
     /// χ² or cross-correlation.
     pub method: Method,
+    /// Constrain template amplitudes to be ≥ 0 (physical templates; turn off
+    /// for signed bases such as principal components).
+    pub nonnegative: bool,
 }
 
 impl Default for FitConfig {
@@ -64,6 +67,7 @@ impl Default for FitConfig {
             min_separation_kms: 1000.0,
             mask_sky: false,
             method: Method::Chi2,
+            nonnegative: true,
         }
     }
 }

@@ -26,6 +26,12 @@ pub const C_KMS: f64 = 299_792.458;
 /// Δχ² below which the answer is called ambiguous: 9 is Δχ² for 3σ with one
 /// free parameter (common practice for a redshift-confusion cut).
 pub const AMBIGUOUS_DCHI2: f64 = 9.0;
+/// Fastest heliocentric velocity (km/s) accepted for a star as the best
+/// solution: the Galaxy's escape speed near the Sun (≈ 550 km/s) plus the
+/// Sun's own orbital speed (≈ 250 km/s), both from memory. A star solution
+/// beyond it stays among the candidates but ranks after every other class
+/// (a passive galaxy at cz ≈ 1200 km/s otherwise can look like a G star).
+pub const STAR_VMAX_KMS: f64 = 800.0;
 /// Fewer good grid pixels than this set [`Warnings::FEW_PIXELS`].
 pub const FEW_PIXELS: usize = 100;
 /// Reduced χ² above this sets [`Warnings::POOR_FIT`].
@@ -37,6 +43,7 @@ pub struct Engine {
     config: FitConfig,
     units: Vec<Unit>,
     cache: FftCache,
+    reach: (f64, f64),
 }
 
 /// A grid minimum of one unit.
@@ -87,7 +94,14 @@ impl Engine {
                 config.poly_terms
             )));
         }
+        let reach = reach(&units, &config);
+        if !(reach.1 > reach.0) {
+            return Err(FitError::BadTemplates(
+                "the classes' templates share no observed wavelength range".into(),
+            ));
+        }
         Ok(Engine {
+            reach,
             config: FitConfig {
                 n_candidates: config.n_candidates.max(1),
                 ..config
@@ -162,7 +176,8 @@ impl Engine {
         self.fit_ranges(s, &ranges)
     }
 
-    /// Model flux at `s.wave()` for candidate `c` (NaN where the template does not cover).
+    /// Model flux at `s.wave()` for candidate `c` (NaN where the template
+    /// does not cover and outside [`Engine::fit_range`]).
     pub fn model(&self, s: &Spectrum, c: &Candidate) -> Vec<f64> {
         let dll = self.config.dloglam;
         let nanv = vec![f64::NAN; s.len()];
@@ -178,14 +193,17 @@ impl Engine {
         if c.coeffs.len() != k + j || !(c.z > -1.0) {
             return nanv;
         }
-        let grid = s.log_grid(dll);
+        let w = s.wave();
+        let grid =
+            crate::spectrum::LogGrid::covering(w[0].max(self.reach.0), w[w.len() - 1].min(self.reach.1), dll);
         let (l0, l1) = (grid.wave(0), grid.wave(grid.n - 1));
         let shift = (1.0 + c.z).log10() / dll;
         s.wave()
             .iter()
             .map(|&lam| {
                 let x = lam.log10() / dll - shift - unit.t0 as f64;
-                if x < 0.0 || x > (unit.m() - 1) as f64 {
+                // outside the fitted range the polynomial is not constrained
+                if x < 0.0 || x > (unit.m() - 1) as f64 || lam < l0 || lam > l1 {
                     return f64::NAN;
                 }
                 let mut v = 0.0;
@@ -203,13 +221,24 @@ impl Engine {
 
     /// Prepare a spectrum as the engine sees it (resampled, masked if configured).
     pub(crate) fn prepare(&self, s: &Spectrum) -> Result<Prepared, FitError> {
-        if self.config.mask_sky {
+        let (dll, j) = (self.config.dloglam, self.config.poly_terms);
+        let mut p = if self.config.mask_sky {
             let mut m = s.clone();
             super::sky::mask(&mut m);
-            Prepared::new(&m, self.config.dloglam, self.config.poly_terms)
+            Prepared::new(&m, dll, j, self.reach)?
         } else {
-            Prepared::new(s, self.config.dloglam, self.config.poly_terms)
-        }
+            Prepared::new(s, dll, j, self.reach)?
+        };
+        p.nonneg = self.config.nonnegative;
+        Ok(p)
+    }
+
+    /// The observed range (Å) every configured class can reach: a spectrum
+    /// is fitted only there, so that every class is judged on the same
+    /// pixels and no class loses χ² merely because its templates stop short
+    /// (e.g. stellar templates in the far UV or infrared).
+    pub fn fit_range(&self) -> (f64, f64) {
+        self.reach
     }
 
     /// χ² curves of every unit of the configured classes by the fast path
@@ -299,17 +328,27 @@ impl Engine {
         if cands.is_empty() {
             return Err(FitError::NoCoverage);
         }
-        cands.sort_by(|a, b| a.0.chi2.total_cmp(&b.0.chi2));
+        // rank by χ², except that a star faster than STAR_VMAX_KMS is not
+        // allowed to win over a solution of another class
+        let implausible =
+            |c: &Candidate| c.class == ObjectClass::Star && velocity_sep_kms(c.z, 0.0) > STAR_VMAX_KMS;
+        let any_other = cands.iter().any(|(c, _, _)| !implausible(c));
+        cands.sort_by(|a, b| {
+            let ka = any_other && implausible(&a.0);
+            let kb = any_other && implausible(&b.0);
+            ka.cmp(&kb).then(a.0.chi2.total_cmp(&b.0.chi2))
+        });
         let (best, best_min, best_tmean) = cands[0].clone();
         let min_sep_v = self.config.min_separation_kms;
         let runner = cands
             .iter()
             .skip(1)
             .find(|(c, _, _)| c.class != best.class || velocity_sep_kms(c.z, best.z) >= min_sep_v);
+        // negative when a lower-χ² star was set aside as too fast (then also ambiguous)
         let delta_chi2 = runner.map_or(f64::MAX, |(c, _, _)| c.chi2 - best.chi2);
         let n_good = prep.n_good();
         let n_par = self.units[best_min.unit].k() + prep.j();
-        let chi2_reduced = best.chi2 / (n_good.saturating_sub(n_par)).max(1) as f64;
+        let chi2_reduced = best.chi2 / prep.dof(n_par);
         let mut warnings = Warnings::default();
         if delta_chi2 < AMBIGUOUS_DCHI2 {
             warnings.set(Warnings::AMBIGUOUS);
@@ -370,6 +409,30 @@ impl Engine {
     pub(crate) fn cache(&self) -> &FftCache {
         &self.cache
     }
+}
+
+/// Intersection over classes of the observed range (Å) the class's
+/// templates reach at some trial redshift of its range.
+fn reach(units: &[Unit], config: &FitConfig) -> (f64, f64) {
+    let dll = config.dloglam;
+    let mut lo = 0.0f64;
+    let mut hi = f64::INFINITY;
+    let mut classes: Vec<ObjectClass> = units.iter().map(|u| u.class).collect();
+    classes.dedup();
+    for c in classes {
+        let (z0, z1) = config.z_range(c);
+        let us = units.iter().filter(|u| u.class == c);
+        let rest_lo = us
+            .clone()
+            .map(|u| u.t0 as f64 * dll)
+            .fold(f64::INFINITY, f64::min);
+        let rest_hi = us
+            .map(|u| (u.t0 + u.m() as i64 - 1) as f64 * dll)
+            .fold(f64::NEG_INFINITY, f64::max);
+        lo = lo.max(10f64.powf(rest_lo) * (1.0 + z0));
+        hi = hi.min(10f64.powf(rest_hi) * (1.0 + z1));
+    }
+    (lo, hi)
 }
 
 /// |Δv| between two redshifts in km/s (relativistic-free, c·|Δln(1+z)|).

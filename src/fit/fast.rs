@@ -18,7 +18,7 @@ without wrap-around for every overlapping lag −n < c < m. Template
 transforms are cached per (unit, L) in the engine; two real correlations
 share one complex inverse FFT (real and imaginary part).
 */
-use super::prep::{solve_normal, Prepared};
+use super::prep::{solve_constrained, Prepared};
 use super::reference::thresholds;
 use super::units::Unit;
 use rustfft::num_complex::Complex;
@@ -260,7 +260,7 @@ pub fn chi2_curve(
         for p in 0..k {
             active[p] = a[p * dim + p] > thr[p];
         }
-        let c = solve_normal(&a, &b, &active);
+        let c = solve_constrained(&a, &b, &active, k, prep.nonneg);
         let fit: f64 = c.iter().zip(&b).map(|(c, b)| c * b).sum();
         chi2.push(prep.fww - fit);
     }

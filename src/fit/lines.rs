@@ -204,15 +204,20 @@ pub fn measure_list(s: &Spectrum, z: f64, class: ObjectClass, list: &[(&str, f64
     out
 }
 
-/// Measure the listed emission lines in coverage at the candidate's redshift.
+/// Measure the emission lines of the line list in coverage at the candidate's redshift.
 pub fn measure(s: &Spectrum, _p: &Prepared, _e: &Engine, c: &Candidate) -> Vec<LineMeasurement> {
     let list = emission_list();
     measure_list(s, c.z, c.class, &list)
 }
 
-/// The emission lines to measure: (name, rest vacuum Å).
+/// The emission lines to measure: every emission line of the line list
+/// ([`crate::lines::all`]) as (name, rest vacuum Å).
 fn emission_list() -> Vec<(&'static str, f64)> {
-    Vec::new()
+    crate::lines::all()
+        .iter()
+        .filter(|l| l.kind == crate::lines::LineKind::Emission)
+        .map(|l| (l.name, l.wave))
+        .collect()
 }
 
 #[cfg(test)]

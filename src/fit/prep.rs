@@ -33,6 +33,8 @@ pub struct Prepared {
     pub pf: Vec<f64>,
     /// The resampler's oversampling factor the weights were divided by.
     pub oversampling: f64,
+    /// Template amplitudes are constrained to be ≥ 0.
+    pub nonneg: bool,
 }
 
 /// Legendre polynomials P_0..P_{j-1} at x ∈ [−1, 1] (Bonnet's recursion).
@@ -53,9 +55,16 @@ pub fn legendre(j: usize, x: f64) -> Vec<f64> {
 }
 
 impl Prepared {
-    /// Resample `s` onto its grid of step `dll` and prepare the sums.
-    pub fn new(s: &Spectrum, dll: f64, poly_terms: usize) -> Result<Prepared, FitError> {
-        let grid = s.log_grid(dll);
+    /// Resample `s` onto its grid of step `dll`, cut to the observed range
+    /// `lam` (Å), and prepare the sums.
+    pub fn new(s: &Spectrum, dll: f64, poly_terms: usize, lam: (f64, f64)) -> Result<Prepared, FitError> {
+        let w = s.wave();
+        let lo = w[0].max(lam.0);
+        let hi = w[w.len() - 1].min(lam.1);
+        if !(hi > lo) {
+            return Err(FitError::NoCoverage);
+        }
+        let grid = crate::spectrum::LogGrid::covering(lo, hi, dll);
         let r = s.resample(&grid);
         let os = if r.oversampling.is_finite() && r.oversampling >= 1.0 {
             r.oversampling
@@ -112,6 +121,7 @@ impl Prepared {
             pp,
             pf,
             oversampling: os,
+            nonneg: false,
         })
     }
 
@@ -120,10 +130,47 @@ impl Prepared {
         self.good.len()
     }
 
+    /// Degrees of freedom for `n_par` fitted parameters: independent pixels
+    /// (good grid pixels / oversampling) minus parameters, at least 1.
+    pub fn dof(&self, n_par: usize) -> f64 {
+        (self.good.len() as f64 / self.oversampling - n_par as f64).max(1.0)
+    }
+
     /// Number of polynomial terms.
     pub fn j(&self) -> usize {
         self.p.len()
     }
+}
+
+/// Least squares with the first `k` (template) coefficients constrained to
+/// be ≥ 0 when `nonneg` is set: the unconstrained solution when it is
+/// feasible, else the best feasible solution over the subsets of template
+/// columns (exact for these small systems: the constrained optimum is the
+/// unconstrained optimum on its own support). Returns the coefficients; the
+/// fitted part of χ² is c·b.
+pub fn solve_constrained(a: &[f64], b: &[f64], active: &[bool], k: usize, nonneg: bool) -> Vec<f64> {
+    let c = solve_normal(a, b, active);
+    if !nonneg || c[..k].iter().all(|v| *v >= 0.0) {
+        return c;
+    }
+    let on: Vec<usize> = (0..k).filter(|&i| active[i]).collect();
+    let mut best: Option<(f64, Vec<f64>)> = None;
+    let mut mask = active.to_vec();
+    // subsets of the active template columns (bit i ↔ on[i]); the full set failed already
+    for bits in 0..(1u32 << on.len().min(16)) - 1 {
+        for (i, &col) in on.iter().enumerate() {
+            mask[col] = bits & (1 << i) != 0;
+        }
+        let c = solve_normal(a, b, &mask);
+        if c[..k].iter().any(|v| *v < 0.0) {
+            continue;
+        }
+        let fit: f64 = c.iter().zip(b).map(|(x, y)| x * y).sum();
+        if best.as_ref().is_none_or(|(f, _)| fit > *f) {
+            best = Some((fit, c));
+        }
+    }
+    best.map_or_else(|| vec![0.0; b.len()], |(_, c)| c)
 }
 
 /// Solve the symmetric normal equations `a c = b` (row-major `dim × dim`).

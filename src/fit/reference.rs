@@ -8,7 +8,7 @@ coverage, the same column-activity rule and the same solver); at fractional
 shifts it is the cost function of the refinement, with the templates
 interpolated in log λ.
 */
-use super::prep::{solve_normal, Prepared};
+use super::prep::{solve_constrained, Prepared};
 use super::units::Unit;
 
 /// A template column whose Σ w T² is below this fraction of
@@ -76,7 +76,7 @@ pub fn direct_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64]) -> Dire
     let active: Vec<bool> = (0..dim)
         .map(|r| if r < k { a[r * dim + r] > thr[r] } else { true })
         .collect();
-    let coeffs = solve_normal(&a, &b, &active);
+    let coeffs = solve_constrained(&a, &b, &active, k, prep.nonneg);
     let mut chi2 = 0.0;
     for (gi, &i) in prep.good.iter().enumerate() {
         let mut model = 0.0;

@@ -309,7 +309,7 @@ pub fn fit(e: &Engine, s: &Spectrum) -> Result<FitResult, FitError> {
         .find(|c| c.class != best.class || velocity_sep_kms(c.z, best.z) >= e.config().min_separation_kms);
     let delta_chi2 = runner.map_or(f64::MAX, |c| c.chi2 - best.chi2);
     let n_good = prep.n_good();
-    let chi2_reduced = best.chi2 / n_good.saturating_sub(k_best + prep.j()).max(1) as f64;
+    let chi2_reduced = best.chi2 / prep.dof(k_best + prep.j());
     let mut warnings = Warnings::default();
     if peaks.first().is_none_or(|p| p.r < R_AMBIGUOUS) {
         warnings.set(Warnings::AMBIGUOUS);

@@ -12,22 +12,22 @@ use std::path::PathBuf;
 /// A place inside a file: HDU (index and name), table row, column.
 #[derive(Debug, Clone, Default, PartialEq, Eq)]
 pub struct Loc {
-    /// HDU index, 0 = primary.
-    pub hdu: Option<usize>,
-    /// EXTNAME of that HDU, if any.
-    pub hdu_name: Option<String>,
+    /// HDU index, 0 = primary (u32 keeps errors small).
+    pub hdu: Option<u32>,
+    /// EXTNAME of that HDU, if any (boxed to keep errors small).
+    pub hdu_name: Option<Box<str>>,
     /// Row of a table (0-based).
-    pub row: Option<usize>,
+    pub row: Option<u64>,
     /// Line of a text file (1-based).
-    pub line: Option<usize>,
+    pub line: Option<u32>,
 }
 
 impl Loc {
     /// A location in HDU `hdu`.
     pub fn hdu(hdu: usize, name: Option<String>) -> Loc {
         Loc {
-            hdu: Some(hdu),
-            hdu_name: name,
+            hdu: Some(small(hdu)),
+            hdu_name: name.map(String::into_boxed_str),
             ..Default::default()
         }
     }
@@ -35,7 +35,7 @@ impl Loc {
     /// The same location, in table row `row`.
     pub fn with_row(&self, row: usize) -> Loc {
         Loc {
-            row: Some(row),
+            row: Some(row as u64),
             ..self.clone()
         }
     }
@@ -43,7 +43,7 @@ impl Loc {
     /// A location in a text file.
     pub fn line(line: usize) -> Loc {
         Loc {
-            line: Some(line),
+            line: Some(small(line)),
             ..Default::default()
         }
     }
@@ -70,6 +70,11 @@ impl fmt::Display for Loc {
         }
         f.write_str(&parts.join(", "))
     }
+}
+
+/// An index that fits a u32 (saturating; no FITS file has 4 billion HDUs or text lines of interest).
+fn small(x: usize) -> u32 {
+    u32::try_from(x).unwrap_or(u32::MAX)
 }
 
 /// Prefix "`loc`: " when the location is known.

@@ -334,7 +334,7 @@ fn plan(fits: &OpenFits, opts: &ReadOptions) -> Result<Vec<Source>, LoadError> {
             })
             .collect();
         return Err(LoadError::NoSpectrum(format!(
-            "no 1-D image with a spectral WCS and no table with wavelength and flux columns ({})",
+            "no 1-D image with a spectral WCS (CTYPE1 a wavelength axis, CRVAL1, a pixel step) and no table with wavelength and flux columns ({})",
             list.join("; ")
         )));
     }
@@ -431,6 +431,28 @@ impl Iterator for FitsStream {
                 }
                 Source::VectorTable(p) => self.current = Some((p, 0)),
             }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_panic_in_the_library_becomes_an_error() {
+        let r: Result<(), LoadError> = guard(|| panic!("Unhandled image bitpix type: 7"));
+        match r {
+            Err(LoadError::Malformed(m)) => assert!(m.contains("bitpix")),
+            other => panic!("expected Malformed, got {other:?}"),
+        }
+    }
+
+    #[test]
+    fn names_the_library_would_misread_are_refused() {
+        for name in ["spec[1].fits", "-x.fits", "!x.fits"] {
+            let e = open(Path::new(name)).err().expect("refused");
+            assert!(matches!(e, LoadError::BadFileName(_)), "{name}: {e}");
         }
     }
 }

@@ -1,6 +1,6 @@
 /*!
-FITS 1-D images with a spectral WCS (FITS WCS Paper III, Greisen et al.
-2006, A&A 446, 747).
+FITS 1-D images with a spectral WCS (the FITS WCS standard, Paper III on
+spectral coordinates: A&A 446, 747, 2006).
 
 Pixel p (1-based) has wavelength
 - linear (`CTYPE1` = `WAVE`, `AWAV`, `LINEAR` or absent):
@@ -13,6 +13,11 @@ with the step s = `CD1_1`, else `CDELT1`·`PC1_1` (PC1_1 default 1), `CRPIX1`
 default 1, and the unit from `CUNIT1` (Å, nm, µm, m; absent = Å, common
 practice). `CTYPE1` starting `AWAV` (or `AIRORVAC = 'air'`) means air.
 
+A small stack of bands (NAXIS2…, at most 8 rows) whose rows are named by
+`BANDIDn` keywords is one spectrum: the first band not named like an
+uncertainty or sky is the flux, a band named `sigma`/`error` (or `variance`,
+`ivar`) its uncertainty.
+
 Companion HDUs are recognised by EXTNAME (the same synonym lists as table
 columns: IVAR…, ERROR/SIGMA…, VAR…, MASK/QUALITY…, WAVE… for an explicit
 wavelength array); each flux image takes the nearest companion of each kind
@@ -22,6 +27,18 @@ use super::fits_common::{header_facts, key_f64, key_i64, key_string, HduKind, Hd
 use super::{synonyms, unit_to_angstrom, ErrKind, LoadError, Loc, RawSpectrum, ReadOptions, WaveScale};
 use crate::spectrum::{Spectrum, SpectrumMeta};
 use fitsio::FitsFile;
+
+/// CTYPE1 values of a wavelength axis (empty = not given, taken as linear λ).
+const SPECTRAL_CTYPES: &[&str] = &[
+    "",
+    "WAVE",
+    "AWAV",
+    "LINEAR",
+    "WAVELENGTH",
+    "LAMBDA",
+    "WAVE-LOG",
+    "AWAV-LOG",
+];
 
 /// What a companion image holds.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -68,6 +85,8 @@ pub(crate) struct ImagePlan {
     pub hdu: usize,
     pub n: usize,
     pub id: String,
+    /// Several bands (rows) of one spectrum in this image.
+    pub bands: Option<Bands>,
     pub err: Option<(usize, ErrKind)>,
     pub mask: Option<usize>,
     pub wave: Option<(usize, WaveScale)>,
@@ -87,14 +106,20 @@ pub(crate) fn plan(
         return Ok(None);
     };
     let loc = h.loc();
-    let Some(n) = pixels(shape) else {
-        if forced {
-            return Err(LoadError::BadHdu {
-                at: loc,
-                reason: format!("image of shape {shape:?} is not one-dimensional"),
-            });
-        }
-        return Ok(None);
+    let (n, bands) = match pixels(shape) {
+        Some(n) => (n, None),
+        None => match band_layout(f, fits, h, shape)? {
+            Some((n, b)) => (n, Some(b)),
+            None if forced => {
+                return Err(LoadError::BadHdu {
+                    at: loc,
+                    reason: format!(
+                        "image of shape {shape:?} is neither one-dimensional nor a stack of bands named by BANDIDn"
+                    ),
+                })
+            }
+            None => return Ok(None),
+        },
     };
     if !forced && role_of(h.name.as_deref()).is_some() {
         return Ok(None);
@@ -136,6 +161,16 @@ pub(crate) fn plan(
         _ => None,
     });
     let hdu = f.hdu(h.index).map_err(|e| fits.err(e, loc.clone()))?;
+    // Without a wavelength HDU, an image needs a spectral axis to be a
+    // spectrum; other 1-D images (unless chosen with --hdu) are skipped.
+    if !forced && wave.is_none() {
+        let ctype = key_string(f, &hdu, "CTYPE1")
+            .unwrap_or_default()
+            .to_ascii_uppercase();
+        if key_f64(f, &hdu, "CRVAL1").is_none() || !SPECTRAL_CTYPES.contains(&ctype.as_str()) {
+            return Ok(None);
+        }
+    }
     let facts = header_facts(f, &hdu);
     let id = facts
         .id
@@ -146,11 +181,69 @@ pub(crate) fn plan(
         hdu: h.index,
         n,
         id,
+        bands,
         err,
         mask,
         wave,
         warnings: Vec::new(),
     }))))
+}
+
+/// Rows of an image that hold one spectrum's bands (flux, σ, …), named by
+/// `BANDIDn` keywords (n = 1-based band; a convention of long-slit reduction
+/// packages).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub(crate) struct Bands {
+    pub count: usize,
+    pub flux: usize,
+    pub err: Option<(usize, ErrKind)>,
+}
+
+/// Most bands a stack may have to be read as one spectrum.
+const MAX_BANDS: usize = 8;
+
+/// `(pixels, bands)` when the image is a small stack of bands with BANDIDn keywords.
+fn band_layout(
+    f: &mut FitsFile,
+    fits: &OpenFits,
+    h: &HduSummary,
+    shape: &[usize],
+) -> Result<Option<(usize, Bands)>, LoadError> {
+    let (Some(&n), true) = (shape.last(), shape.len() >= 2) else {
+        return Ok(None);
+    };
+    let count: usize = shape[..shape.len() - 1].iter().product();
+    if !(2..=MAX_BANDS).contains(&count) || n <= count {
+        return Ok(None);
+    }
+    let hdu = f.hdu(h.index).map_err(|e| fits.err(e, h.loc()))?;
+    let ids: Vec<String> = (1..=count)
+        .map(|k| {
+            key_string(f, &hdu, &format!("BANDID{k}"))
+                .unwrap_or_default()
+                .to_ascii_lowercase()
+        })
+        .collect();
+    if ids.iter().all(|s| s.is_empty()) {
+        return Ok(None);
+    }
+    let kind = |s: &str| {
+        if s.contains("ivar") || s.contains("inverse variance") {
+            Some(ErrKind::Ivar)
+        } else if s.contains("sigma") || s.contains("error") || s.contains("uncert") {
+            Some(ErrKind::Sigma)
+        } else if s.contains("variance") {
+            Some(ErrKind::Variance)
+        } else {
+            None
+        }
+    };
+    let err = ids.iter().enumerate().find_map(|(i, s)| kind(s).map(|k| (i, k)));
+    let flux = ids
+        .iter()
+        .position(|s| kind(s).is_none() && !s.contains("sky") && !s.contains("background"))
+        .unwrap_or(0);
+    Ok(Some((n, Bands { count, flux, err })))
 }
 
 fn o_is_1d(o: &HduSummary) -> bool {
@@ -249,9 +342,22 @@ pub(crate) fn read(
 ) -> Result<Spectrum, LoadError> {
     let hdu = f.hdu(p.hdu).map_err(|e| fits.err(e, p.loc.clone()))?;
     let facts = header_facts(f, &hdu);
-    let flux = hdu
+    let mut flux = hdu
         .read_image::<Vec<f64>>(f)
         .map_err(|e| fits.err(e, p.loc.clone()))?;
+    let mut band_ivar = None;
+    if let Some(b) = &p.bands {
+        if flux.len() != b.count * p.n {
+            return Err(LoadError::LengthMismatch {
+                at: p.loc.clone(),
+                detail: format!("{} values for {} bands of {} pixels", flux.len(), b.count, p.n),
+            });
+        }
+        if let Some((row, kind)) = b.err {
+            band_ivar = Some(kind.to_ivar(&flux[row * p.n..(row + 1) * p.n]));
+        }
+        flux = flux[b.flux * p.n..(b.flux + 1) * p.n].to_vec();
+    }
     let (wave, mut air) = match p.wave {
         Some((i, scale)) => {
             let w = read_pixels(f, fits, i, "wavelength")?;
@@ -283,6 +389,7 @@ pub(crate) fn read(
     };
     check("wavelength", wave.len())?;
     let ivar = match p.err {
+        _ if band_ivar.is_some() => band_ivar,
         Some((i, kind)) => {
             let v = read_pixels(f, fits, i, "uncertainty")?;
             check("uncertainty HDU", v.len())?;

@@ -21,6 +21,7 @@ use super::{
     WaveScale,
 };
 use crate::spectrum::{Spectrum, SpectrumMeta};
+use fitsio::hdu::FitsHdu;
 use fitsio::tables::{ColumnDataType, ConcreteColumnDescription};
 use fitsio::FitsFile;
 
@@ -328,12 +329,11 @@ pub(crate) fn explain_miss(h: &HduSummary, opts: &ReadOptions) -> Option<LoadErr
 fn col_f64(
     f: &mut FitsFile,
     fits: &OpenFits,
-    p: &TablePlan,
+    hdu: &FitsHdu,
     c: &Col,
     range: std::ops::Range<usize>,
     at: &Loc,
 ) -> Result<Vec<f64>, LoadError> {
-    let hdu = f.hdu(p.hdu).map_err(|e| fits.err(e, at.clone()))?;
     hdu.read_col_range::<f64>(f, &c.name, &range)
         .map_err(|e| fits.err(e, at.clone()))
 }
@@ -346,18 +346,19 @@ fn assemble(
     range: std::ops::Range<usize>,
     at: &Loc,
 ) -> Result<RawSpectrum, LoadError> {
-    let wave: Vec<f64> = col_f64(f, fits, p, &p.wave, range.clone(), at)?
+    let hdu = &f.hdu(p.hdu).map_err(|e| fits.err(e, at.clone()))?;
+    let wave: Vec<f64> = col_f64(f, fits, hdu, &p.wave, range.clone(), at)?
         .into_iter()
         .map(|v| p.scale.apply(v) * p.to_aa)
         .collect();
-    let flux = col_f64(f, fits, p, &p.flux, range.clone(), at)?;
+    let flux = col_f64(f, fits, hdu, &p.flux, range.clone(), at)?;
     let ivar = match &p.err {
-        Some((c, kind)) => Some(kind.to_ivar(&col_f64(f, fits, p, c, range.clone(), at)?)),
+        Some((c, kind)) => Some(kind.to_ivar(&col_f64(f, fits, hdu, c, range.clone(), at)?)),
         None => None,
     };
     let bad = match &p.mask {
         Some(c) => Some(
-            col_f64(f, fits, p, c, range, at)?
+            col_f64(f, fits, hdu, c, range, at)?
                 .iter()
                 .map(|m| *m != 0.0)
                 .collect(),
@@ -427,13 +428,13 @@ pub(crate) fn read_row(
         None => format!("{}#{row}", p.base.id),
     };
     if let Some(c) = &p.ra_col {
-        raw.meta.ra = col_f64(f, fits, p, c, row..row + 1, &at)?
+        raw.meta.ra = col_f64(f, fits, &hdu, c, row..row + 1, &at)?
             .first()
             .copied()
             .filter(|v| v.is_finite());
     }
     if let Some(c) = &p.dec_col {
-        raw.meta.dec = col_f64(f, fits, p, c, row..row + 1, &at)?
+        raw.meta.dec = col_f64(f, fits, &hdu, c, row..row + 1, &at)?
             .first()
             .copied()
             .filter(|v| v.is_finite());

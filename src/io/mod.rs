@@ -203,17 +203,16 @@ impl WaveScale {
 /// WCS standard's default for WAVE is m).
 pub(crate) fn unit_to_angstrom(unit: &str) -> Option<f64> {
     let u = unit.trim();
-    let l = u.to_ascii_lowercase();
+    let l = u.to_lowercase();
     let l = l.trim_start_matches("log(").trim_end_matches(')');
     match l {
-        "" | "a" | "aa" | "å" | "angstrom" | "angstroms" | "angstroem" | "ang" | "0.1nm" | "0.1 nm"
-        | "1e-10 m" | "10**-10 m" | "1e-10m" => Some(1.0),
+        "" | "a" | "aa" | "å" | "ångström" | "angstrom" | "angstroms" | "angstroem" | "ang" | "0.1nm"
+        | "0.1 nm" | "1e-10 m" | "10**-10 m" | "1e-10m" => Some(1.0),
         "nm" | "nanometer" | "nanometers" | "nanometre" | "nanometres" => Some(10.0),
         "um" | "µm" | "μm" | "micron" | "microns" | "micrometer" | "micrometers" | "micrometre" => {
             Some(1.0e4)
         }
         "m" | "meter" | "meters" | "metre" | "metres" => Some(1.0e10),
-        _ if u == "Å" => Some(1.0),
         _ => None,
     }
 }
@@ -450,6 +449,8 @@ mod tests {
     fn units_and_scales() {
         assert_eq!(unit_to_angstrom("Angstrom"), Some(1.0));
         assert_eq!(unit_to_angstrom("ANGSTROMS"), Some(1.0));
+        assert_eq!(unit_to_angstrom("Å"), Some(1.0));
+        assert_eq!(unit_to_angstrom("µm"), Some(1.0e4));
         assert_eq!(unit_to_angstrom("nm"), Some(10.0));
         assert_eq!(unit_to_angstrom("um"), Some(1.0e4));
         assert_eq!(unit_to_angstrom("m"), Some(1.0e10));

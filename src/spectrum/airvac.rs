@@ -27,7 +27,7 @@ fn refractive_index(lam_vac: f64) -> f64 {
 
 /// Vacuum wavelength (Å) → wavelength in standard air (Å).
 pub fn vacuum_to_air(lam_vac: f64) -> f64 {
-    if !(lam_vac >= AIR_VACUUM_LIMIT) {
+    if lam_vac.is_nan() || lam_vac < AIR_VACUUM_LIMIT {
         return lam_vac;
     }
     lam_vac / refractive_index(lam_vac)
@@ -36,7 +36,7 @@ pub fn vacuum_to_air(lam_vac: f64) -> f64 {
 /// Wavelength in standard air (Å) → vacuum wavelength (Å), the exact inverse
 /// of [`vacuum_to_air`].
 pub fn air_to_vacuum(lam_air: f64) -> f64 {
-    if !(lam_air >= AIR_VACUUM_LIMIT) || !lam_air.is_finite() {
+    if !lam_air.is_finite() || lam_air < AIR_VACUUM_LIMIT {
         return lam_air;
     }
     // Newton on f(v) = v / n(v) − λ_air; n varies slowly, so start from

@@ -249,7 +249,7 @@ fn check_set(set: &TemplateSet) -> Result<(), TemplateError> {
                     t.name, c.class, t.class
                 )));
             }
-            if t.flux.len() < 2 || !(t.dloglam > 0.0) || !t.loglam0.is_finite() {
+            if t.flux.len() < 2 || !t.dloglam.is_finite() || t.dloglam <= 0.0 || !t.loglam0.is_finite() {
                 return Err(bad(format!("template '{}' has no usable grid", t.name)));
             }
         }
@@ -567,7 +567,7 @@ fn wcs_log_grid(f: &mut FitsFile, hdu: &fitsio::hdu::FitsHdu) -> Result<(f64, f6
         "m" => 1e10,
         other => return Err(format!("CUNIT1 '{other}' is not a wavelength unit we know")),
     };
-    if !(crval > 0.0) {
+    if !crval.is_finite() || crval <= 0.0 {
         return Err("CRVAL1 must be positive".into());
     }
     let dloglam = cdelt / (crval * std::f64::consts::LN_10);

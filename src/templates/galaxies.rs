@@ -15,8 +15,8 @@ The four bases span the range a linear fit needs:
 - `galaxy-emission`: emission lines only, with high-ionisation ratios, so the
   fit can vary the line-to-continuum and [O III]/Hβ ratios.
 */
-use super::profiles::{add_gaussian, apply_tau, median_in, Absorber, Grid};
-use super::stars::{star, StarType, SEQUENCE};
+use super::profiles::{add_gaussian, apply_tau, convolve_velocity, median_in, Absorber, Grid};
+use super::stars::{star, StarType, SEQUENCE, STAR_SIGMA_KMS};
 use crate::lines::wave_of;
 use serde::Serialize;
 
@@ -78,7 +78,6 @@ pub fn star_forming_lines() -> Vec<(&'static str, f64)> {
         ("[Ar III] 7138", 0.08),
         ("[S III] 9533", 0.62),
         ("[S III] 9071", 0.62 / 2.5),
-        ("He I 10833", 0.25),
     ];
     v.extend_from_slice(CASE_B);
     v
@@ -129,7 +128,9 @@ pub fn emission(grid: &Grid, lines: &[(&str, f64)], hbeta: f64, sigma_kms: f64) 
     f
 }
 
-/// A stellar population: light-weighted (at 5500 Å) sum of our stellar templates.
+/// A stellar population: light-weighted (at 5500 Å) sum of our stellar
+/// templates, convolved with a Gaussian velocity distribution of dispersion
+/// `sigma_kms` (on top of the stars' own line widths).
 pub fn population(grid: &Grid, mix: &[(&str, f64)], sigma_kms: f64) -> Vec<f64> {
     let mut f = vec![0.0; grid.n];
     for &(name, weight) in mix {
@@ -137,11 +138,11 @@ pub fn population(grid: &Grid, mix: &[(&str, f64)], sigma_kms: f64) -> Vec<f64> 
             Some(s) => s,
             None => panic!("unknown star type {name} in a galaxy mix"),
         };
-        for (a, b) in f.iter_mut().zip(star(st, grid, sigma_kms)) {
+        for (a, b) in f.iter_mut().zip(star(st, grid, STAR_SIGMA_KMS)) {
             *a += weight * b;
         }
     }
-    f
+    convolve_velocity(&f, grid, sigma_kms)
 }
 
 /// Light fractions at 5500 Å of the three populations (from memory, typical).
@@ -172,7 +173,7 @@ pub const YOUNG_MIX: &[(&str, f64)] = &[
 
 /// Dust optical depth in V of the young population and the power-law slope of
 /// the attenuation curve, τ(λ) = τ_V (λ/5500 Å)^−0.7 (Charlot & Fall 2000; from memory).
-pub const DUST_TAU_V: f64 = 0.5;
+pub const DUST_TAU_V: f64 = 0.3;
 
 /// Interstellar absorption lines of star-forming galaxies (name, central τ).
 const ISM: &[(&str, f64)] = &[

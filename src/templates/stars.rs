@@ -102,8 +102,8 @@ const METALS: &[(&str, f64, f64, i32)] = &[
     ("Mg II 2796", 6.0, 3.0, 1),
     ("Mg II 2804", 5.0, 3.0, 1),
     ("Mg I 2853", 2.5, 1.0, 1),
-    ("Ca II K", 8.0, 5.0, 1),
-    ("Ca II H", 6.0, 4.0, 1),
+    ("Ca II K", 3.5, 6.0, 1),
+    ("Ca II H", 3.0, 5.0, 1),
     ("Ca I 4228", 1.8, 1.0, 2),
     ("Fe I 4385", 0.7, 0.0, 1),
     ("Mg b 5169", 1.0, 0.8, 1),
@@ -138,7 +138,12 @@ const TIO: &[(f64, f64, f64)] = &[
     (8861.4, 0.4, 150.0),
 ];
 
-/// Hydrogen lines: lower level 2 (Balmer, n ≤ 30), 3 (Paschen, n ≤ 30).
+/// Highest upper level drawn as a separate line; above it the lines of a
+/// dwarf's atmosphere merge into a pseudo-continuum (Inglis–Teller limit,
+/// n ≈ 15–20 for main-sequence gravities; from memory).
+pub const N_MERGE: u32 = 18;
+
+/// Hydrogen lines: lower level 2 (Balmer) and 3 (Paschen), upper level ≤ [`N_MERGE`].
 fn hydrogen_lines() -> Vec<(u32, u32, f64)> {
     let named = [
         (2, 3, "Hα"),
@@ -155,7 +160,7 @@ fn hydrogen_lines() -> Vec<(u32, u32, f64)> {
     ];
     let mut out = Vec::new();
     for lower in [2u32, 3] {
-        for upper in lower + 1..=30 {
+        for upper in lower + 1..=N_MERGE {
             let w = named
                 .iter()
                 .find(|(a, b, _)| *a == lower && *b == upper)
@@ -180,32 +185,36 @@ pub fn star(st: &StarType, grid: &Grid, sigma_kms: f64) -> Vec<f64> {
     let tio = if st.white_dwarf { 0.0 } else { tio_strength(t) };
 
     // Bound-free continua: Balmer jump (3646 Å) and Paschen jump (8206 Å);
-    // hydrogenic cross-section ∝ λ³ below the edge.
+    // hydrogenic cross-section ∝ λ³ below the edge. The jumps fade away from
+    // A0 faster than the lines do (common practice), hence h². The merged
+    // upper series members move the apparent jump redward, to the
+    // wavelength of the last separate line.
     let balmer_edge = hydrogen_wave(2, 10_000);
     let paschen_edge = hydrogen_wave(3, 10_000);
+    let balmer_merge = hydrogen_wave(2, N_MERGE + 1);
+    let paschen_merge = hydrogen_wave(3, N_MERGE + 1);
     for (i, &l) in waves.iter().enumerate() {
-        if l < balmer_edge {
-            tau[i] += (0.1 + 1.0 * h) * (l / balmer_edge).powi(3);
-        }
-        if l < paschen_edge {
-            tau[i] += 0.3 * h * (l / paschen_edge).powi(3);
-        }
+        tau[i] +=
+            (0.1 + 1.0 * h * h) * (l / balmer_edge).powi(3).min(1.0) * sigmoid((balmer_merge - l) / 6.0);
+        tau[i] += 0.3 * h * h * (l / paschen_edge).powi(3).min(1.0) * sigmoid((paschen_merge - l) / 12.0);
         // Line blanketing by the many metal lines of cool stars: a step at
         // ~4000 Å that deepens towards the ultraviolet.
         let blue = sigmoid((4_000.0 - l) / 30.0);
-        tau[i] += m * (0.55 * blue * (1.0 + (4_000.0 - l).max(0.0) / 700.0) + 0.08 * (4_500.0 / l).powi(4));
+        tau[i] += m * (0.45 * blue * (1.0 + (4_000.0 - l).max(0.0) / 700.0) + 0.08 * (4_500.0 / l).powi(4));
         // Lyman continuum of hot stars.
         if l < 912.0 {
             tau[i] += 3.0;
         }
     }
 
-    // Hydrogen lines: Stark wings in dwarfs, very wide in white dwarfs;
-    // upper members weaker (oscillator strengths fall roughly as n⁻³).
+    // Hydrogen lines: Stark wings in dwarfs, very wide in white dwarfs.
+    // Upper members have smaller oscillator strengths but wider Stark
+    // profiles, so their equivalent widths fall only slowly and they merge
+    // towards the series limit (the Inglis–Teller effect).
     let (gamma0, tau_h) = if st.white_dwarf {
-        (14.0, 4.0)
+        (18.0, 2.5)
     } else {
-        (3.0 * h, 3.5 * h)
+        (10.0 * h, 1.6 * h)
     };
     for (lower, upper, w) in hydrogen_lines() {
         let first = lower + 1;
@@ -213,10 +222,15 @@ pub fn star(st: &StarType, grid: &Grid, sigma_kms: f64) -> Vec<f64> {
         let series = if lower == 2 { 1.0 } else { 0.45 };
         Absorber {
             center: w,
-            tau0: tau_h * series * (1.0 + k).powf(-0.7),
+            tau0: tau_h * series * (1.0 + k).powf(-0.5),
             sigma_kms: sigma_kms.max(20.0),
-            gamma: gamma0 * (w / 4_861.0),
-            eta: 0.6,
+            // Stark widths grow with n, but the far wings of the upper members
+            // vanish under their neighbours: shrink them beyond Hδ.
+            gamma: gamma0
+                * (w / 4_861.0)
+                * (1.0 + k.min(3.0)).powf(0.2)
+                * (1.0 + (k - 3.0).max(0.0)).powf(-0.5),
+            eta: 0.7,
         }
         .add_to(&mut tau, grid);
     }

@@ -148,6 +148,37 @@ def main():
     hdr = fits.getheader(os.path.join(OUT, "img_ivar_ext.fits"))
     record("img_ivar_ext.fits", [obj("ext-1", wcs_wave(hdr, n), flux, ivar, mask != 0, hdu=0)])
 
+    # 6b. one spectrum as a stack of bands named by BANDIDn (flux, sky, sigma),
+    #     log-linear axis by DC-FLAG, step in CD1_1
+    n = 40
+    flux = flux_for(n, line_at=18)
+    sky = np.full(n, 3.0, dtype=np.float32)
+    sig = np.full(n, 0.35, dtype=np.float32)
+    sig[5] = 0.0
+    p = fits.PrimaryHDU(np.array([flux, sky, sig]))
+    p.header.update({"CTYPE1": "LINEAR", "CRVAL1": 3.7, "CD1_1": 2e-4, "CRPIX1": 1.0, "DC-FLAG": 1,
+                     "BANDID1": "spectrum - background fit", "BANDID2": "background fit",
+                     "BANDID3": "sigma - error estimate", "OBJECT": "bands-1"})
+    p.writeto(os.path.join(OUT, "img_bands.fits"), overwrite=True)
+    hdr = fits.getheader(os.path.join(OUT, "img_bands.fits"))
+    h1 = fits.Header({k: hdr[k] for k in ("CRVAL1", "CD1_1", "CRPIX1")})
+    h1["CTYPE1"] = "LINEAR"
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        w = WCS(h1)
+    wave = 10 ** w.all_pix2world(np.arange(n, dtype=float), 0)[0]
+    with np.errstate(divide="ignore"):
+        iv = 1.0 / sig.astype(float) ** 2
+    record("img_bands.fits", [obj("bands-1", wave, flux, iv, hdu=0)])
+
+    # 6c. a gzip-compressed copy of the linear image (read directly by the FITS library)
+    import gzip
+    import shutil
+    with open(os.path.join(OUT, "img_linear.fits"), "rb") as src, \
+            gzip.GzipFile(os.path.join(OUT, "img_linear_gz.fits.gz"), "wb", mtime=0) as dst:
+        shutil.copyfileobj(src, dst)
+    record("img_linear_gz.fits.gz", expected["files"]["img_linear.fits"])
+
     # 7. one pixel per row, sigma column, wavelength in Angstrom (double)
     n = 50
     wave = np.linspace(3800.0, 4290.0, n)
@@ -284,7 +315,10 @@ def main():
         fits.Column(name="WAVE", format="D", array=np.zeros(0)),
         fits.Column(name="FLUX", format="E", array=np.zeros(0, dtype=np.float32))])
     fits.HDUList([fits.PrimaryHDU(), t]).writeto(os.path.join(BAD, "empty_table.fits"), overwrite=True)
+    # a 1-D image without any spectral WCS
+    fits.PrimaryHDU(np.ones(16, dtype=np.float32)).writeto(os.path.join(BAD, "no_wcs.fits"), overwrite=True)
     expected["bad"] = {
+        "no_wcs.fits": "NoSpectrum",
         "truncated.fits": "Truncated",
         "wrong_column_type.fits": "ColumnType",
         "mismatched_lengths.fits": "LengthMismatch",
