@@ -72,6 +72,8 @@ pub struct EngineSettings {
     pub mask_sky: bool,
     /// `chi2` or `xcorr`.
     pub method: String,
+    /// Template amplitudes constrained to be ≥ 0.
+    pub nonnegative: bool,
 }
 
 impl Default for EngineSettings {
@@ -95,6 +97,7 @@ impl EngineSettings {
             min_separation_kms: self.min_separation_kms,
             mask_sky: self.mask_sky,
             method: self.method.parse()?,
+            nonnegative: self.nonnegative,
         })
     }
 
@@ -114,6 +117,7 @@ impl EngineSettings {
                 crate::fit::Method::Chi2 => "chi2".into(),
                 crate::fit::Method::XCorr => "xcorr".into(),
             },
+            nonnegative: c.nonnegative,
         }
     }
 
@@ -122,7 +126,7 @@ impl EngineSettings {
         let classes: Vec<&str> = self.classes.iter().map(|c| c.as_str()).collect();
         format!(
             "method={} dloglam={} classes={} z_galaxy={}..{} z_quasar={}..{} z_star={}..{} \
-             poly_terms={} n_candidates={} min_separation_kms={} mask_sky={}",
+             poly_terms={} n_candidates={} min_separation_kms={} mask_sky={} nonnegative={}",
             self.method,
             self.dloglam,
             classes.join(","),
@@ -135,7 +139,8 @@ impl EngineSettings {
             self.poly_terms,
             self.n_candidates,
             self.min_separation_kms,
-            self.mask_sky
+            self.mask_sky,
+            self.nonnegative
         )
     }
 }

@@ -195,7 +195,7 @@ impl FitSeen {
     /// fit has none or its numbers are not finite, which the log cannot hold).
     pub fn of(fit: &crate::fit::FitResult) -> Option<FitSeen> {
         let b = fit.best()?;
-        (b.z.is_finite() && b.chi2.is_finite()).then(|| FitSeen {
+        (b.z.is_finite() && b.chi2.is_finite()).then_some(FitSeen {
             class: b.class,
             z: b.z,
             chi2: b.chi2,

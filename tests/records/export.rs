@@ -214,6 +214,7 @@ fn export_matches_astropy_view() {
     assert_relative_eq!(h["ZTOL"].as_f64().unwrap(), p.tolerance);
     assert_relative_eq!(h["DLOGLAM"].as_f64().unwrap(), p.engine.dloglam);
     assert_eq!(h["NPOLY"].as_u64().unwrap() as usize, p.engine.poly_terms);
+    assert_eq!(h["NONNEG"].as_i64().unwrap(), i64::from(p.engine.nonnegative));
     // The CSV reads in astropy's generic CSV reader, '#' lines as comments,
     // UTF-8 notes with quotes and newlines intact.
     let csv = &rec["csv"];
