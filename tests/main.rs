@@ -2,11 +2,11 @@
 mod support;
 
 mod fit;
-mod io;
-mod records;
-mod review;
-mod lines;
-mod smoke;
-mod templates;
 #[cfg(feature = "gui")]
 mod gui;
+mod io;
+mod lines;
+mod records;
+mod review;
+mod smoke;
+mod templates;

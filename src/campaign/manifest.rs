@@ -126,7 +126,7 @@ impl EngineSettings {
         let classes: Vec<&str> = self.classes.iter().map(|c| c.as_str()).collect();
         format!(
             "method={} dloglam={} classes={} z_galaxy={}..{} z_quasar={}..{} z_star={}..{} \
-             poly_terms={} n_candidates={} min_separation_kms={} mask_sky={}",
+             poly_terms={} n_candidates={} min_separation_kms={} mask_sky={} nonnegative={}",
             self.method,
             self.dloglam,
             classes.join(","),
@@ -139,7 +139,8 @@ impl EngineSettings {
             self.poly_terms,
             self.n_candidates,
             self.min_separation_kms,
-            self.mask_sky
+            self.mask_sky,
+            self.nonnegative
         )
     }
 }

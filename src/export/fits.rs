@@ -286,6 +286,7 @@ pub fn read_fits(path: &Path) -> Result<(Vec<ExportRow>, Provenance), ExportErro
         n_candidates: i(&mut f, "NCAND")?.max(0) as usize,
         min_separation_kms: x(&mut f, "MINSEPKM")?,
         mask_sky: i(&mut f, "MASKSKY")? != 0,
+        nonnegative: i(&mut f, "NONNEG")? != 0,
         method: s(&mut f, "ZMETHOD")?,
         nonnegative: i(&mut f, "NONNEG")? != 0,
     };

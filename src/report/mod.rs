@@ -1,7 +1,7 @@
 /*!
 The summary report of a campaign: the numbers ([`ReportNumbers`], also saved
 as `report.json`), SVG plots ([`plots`]) and one self-contained `report.html`
-with the plots inlined ([`html`]).
+with the plots inlined (`html.rs`).
 
 What is counted (also in the README):
 - confusion matrices over galaxy/quasar/star/unclear with the *vetted* class

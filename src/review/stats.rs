@@ -8,7 +8,7 @@ marginal frequencies. It is undefined (`None`) when p_e = 1, i.e. both raters
 used one and the same label throughout.
 
 The proportion of specific agreement for a category c over a (square)
-confusion matrix M is 2·M[c][c] / (row_c + col_c): of all the times either
+confusion matrix M is 2·M(c,c) / (row_c + col_c): of all the times either
 rater used c, the fraction on which the other rater agreed.
 */
 

@@ -177,9 +177,11 @@ impl ZvetApp {
                         (Some(o), Some(l)) => l.history(o.id()),
                         _ => &[],
                     };
-                    let undo = self.state.current().zip(log).map(|(o, l)| {
-                        (l.can_undo(o.id()), l.can_redo(o.id()))
-                    });
+                    let undo = self
+                        .state
+                        .current()
+                        .zip(log)
+                        .map(|(o, l)| (l.can_undo(o.id()), l.can_redo(o.id())));
                     panels::verdict::ui(
                         ui,
                         &mut self.state,

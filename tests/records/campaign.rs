@@ -326,3 +326,85 @@ fn campaign_over_spectrum_files_loads_and_fits() {
     let mut objects = objects;
     assert_eq!(c.fit_objects(&mut objects, false).unwrap().0, 0);
 }
+
+/// The report on (the first objects of) the demo survey, written to files,
+/// made a campaign, fitted and reviewed: every file is written and its
+/// numbers match the log and the survey's truth.
+#[test]
+fn report_on_the_demo_survey() {
+    use zvet::review::{Change, ZSource};
+    // Few objects and a coarser grid keep the engine's share of the suite small.
+    let n_obj = 6;
+    let survey = zvet::demo::generate_n(zvet::demo::DEFAULT_SEED, n_obj);
+    let dir = support::scratch("demo_report");
+    let w = zvet::demo::write_survey(&survey, &dir.join("files")).unwrap();
+    let mut c = Campaign::init(
+        &dir.join("campaign"),
+        &InitOptions {
+            spectra: vec![w.spectra.clone()],
+            catalog: Some(w.catalog.clone()),
+            engine: zvet::campaign::EngineSettings {
+                dloglam: 2e-4,
+                ..Default::default()
+            },
+            ..InitOptions::default()
+        },
+    )
+    .unwrap();
+    let (mut objects, problems) = c.load_objects().unwrap();
+    assert!(problems.is_empty(), "{problems:?}");
+    assert_eq!(objects.len(), n_obj);
+    let (fitted, failed) = c.fit_objects(&mut objects, false).unwrap();
+    assert_eq!(fitted + failed.len(), n_obj);
+    // The inspector vets every object with the generator's truth.
+    let truth: BTreeMap<&str, &zvet::demo::DemoTruth> =
+        survey.truth.iter().map(|t| (t.id.as_str(), t)).collect();
+    {
+        let (mut log, _) = c.open_review_log("ana").unwrap();
+        for o in &objects {
+            let t = truth[o.id()];
+            let class = t.class.map_or(VerdictClass::Unclear, VerdictClass::from);
+            let z = t.class.map(|_| t.z);
+            let change = Change::Verdict {
+                class,
+                z,
+                z_err: None,
+                source: ZSource::Typed,
+                confidence: Confidence::Solid,
+            };
+            let seen = o.fit.as_ref().and_then(zvet::review::FitSeen::of);
+            log.record(o.id(), seen, change).unwrap();
+        }
+    }
+    let input = zvet::report::input_from_campaign(&c).unwrap();
+    let n = zvet::report::numbers(&input);
+    let out = c.exports_dir().join("report");
+    zvet::report::write_report(&out, &n).unwrap();
+    for f in zvet::report::REPORT_FILES {
+        assert!(out.join(f).exists(), "{f}");
+    }
+    // Photometric classes: right exactly where the generator says so.
+    let classed: Vec<_> = survey.truth.iter().filter(|t| t.class.is_some()).collect();
+    let diag: usize = (0..3).map(|i| n.photometric.matrix[i][i]).sum();
+    assert_eq!(n.photometric.n, n_obj);
+    assert_eq!(diag, classed.iter().filter(|t| !t.phot_wrong).count());
+    // Redshifts: one pair per classed object with a fit; catastrophic ones
+    // counted directly from the fits and the truth.
+    let fits: BTreeMap<&str, f64> = objects
+        .iter()
+        .filter_map(|o| Some((o.id(), o.fit.as_ref()?.best()?.z)))
+        .collect();
+    let pairs: Vec<(f64, f64)> = classed
+        .iter()
+        .filter_map(|t| Some((*fits.get(t.id.as_str())?, t.z)))
+        .collect();
+    assert!(pairs.len() >= 3, "{pairs:?}");
+    assert_eq!(n.z_pairs.len(), pairs.len());
+    let bad = pairs
+        .iter()
+        .filter(|(a, z)| (a - z).abs() / (1.0 + z) > 0.01)
+        .count();
+    assert_eq!(n.z_catastrophic, bad);
+    assert_eq!(n.inspectors[0].reviewed, n_obj);
+    assert_eq!(n.consensus["single"], n_obj);
+}

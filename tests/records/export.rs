@@ -150,6 +150,36 @@ fn export_fixture_for_astropy() {
 }
 
 #[test]
+fn export_of_no_rows_reads_back_empty() {
+    let dir = support::scratch("export_empty");
+    for name in ["empty.csv", "empty.fits"] {
+        let p = dir.join(name);
+        export::write(&p, &[], &sample_provenance()).unwrap();
+        let (rows, prov) = export::read(&p).unwrap();
+        assert!(rows.is_empty(), "{name}");
+        assert_eq!(prov, sample_provenance(), "{name}");
+    }
+}
+
+#[test]
+fn reading_a_foreign_or_damaged_export_is_an_error() {
+    let dir = support::scratch("export_bad");
+    let p = dir.join("other.csv");
+    std::fs::write(&p, "a,b\n1,2\n").unwrap();
+    assert!(export::read(&p).is_err());
+    let good = dir.join("good.csv");
+    export::write(&good, &sample_rows(), &sample_provenance()).unwrap();
+    let text = std::fs::read_to_string(&good)
+        .unwrap()
+        .replace(",galaxy,", ",galaxxy,");
+    std::fs::write(&p, text).unwrap();
+    let err = export::read(&p).unwrap_err().to_string();
+    assert!(err.contains("line 12") && err.contains("galaxxy"), "{err}");
+    std::fs::write(dir.join("bad.fits"), b"SIMPLE  = T").unwrap();
+    assert!(export::read(&dir.join("bad.fits")).is_err());
+}
+
+#[test]
 fn export_rejects_unknown_extension() {
     let err = export::write(Path::new("x.txt"), &[], &sample_provenance()).unwrap_err();
     assert!(err.to_string().contains(".csv or .fits"));
@@ -214,6 +244,7 @@ fn export_matches_astropy_view() {
     assert_relative_eq!(h["ZTOL"].as_f64().unwrap(), p.tolerance);
     assert_relative_eq!(h["DLOGLAM"].as_f64().unwrap(), p.engine.dloglam);
     assert_eq!(h["NPOLY"].as_u64().unwrap() as usize, p.engine.poly_terms);
+    assert_eq!(h["NONNEG"].as_i64().unwrap(), i64::from(p.engine.nonnegative));
     // The CSV reads in astropy's generic CSV reader, '#' lines as comments,
     // UTF-8 notes with quotes and newlines intact.
     let csv = &rec["csv"];

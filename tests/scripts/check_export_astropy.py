@@ -69,7 +69,7 @@ def main():
         keys = {k: h[k] for k in ["CREATOR", "ZVETVER", "DATE", "CAMPAIGN", "TEMPLSET",
                                   "ZMETHOD", "ZCLASSES", "MINCONF", "EXCLFLAG", "DLOGLAM",
                                   "ZGALMIN", "ZGALMAX", "ZQSOMIN", "ZQSOMAX", "ZSTARMIN",
-                                  "ZSTARMAX", "ZTOL", "MINSEPKM", "NPOLY", "NCAND", "MASKSKY"]}
+                                  "ZSTARMAX", "ZTOL", "MINSEPKM", "NPOLY", "NCAND", "MASKSKY", "NONNEG"]}
         tforms = {h[f"TTYPE{i}"]: h[f"TFORM{i}"] for i in range(1, h["TFIELDS"] + 1)}
         # Raises on any violation of the FITS standard that astropy checks.
         hdul.verify("exception")

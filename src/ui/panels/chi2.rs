@@ -117,7 +117,11 @@ fn candidates(ui: &mut egui::Ui, state: &AppState, fit: &FitResult, out: &mut Ve
                         c.template
                     ))
                     .color(super::object_colour(c.class));
-                    let text = if shown_rank == Some(k) { text.strong() } else { text };
+                    let text = if shown_rank == Some(k) {
+                        text.strong()
+                    } else {
+                        text
+                    };
                     ui.label(text);
                     if ui.small_button(format!("show #{}", k + 1)).clicked() {
                         out.push(Action::Preview(k));

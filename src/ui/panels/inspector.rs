@@ -16,7 +16,9 @@ pub fn ui(ctx: &egui::Context, state: &mut AppState, out: &mut Vec<Action>) {
         ui.heading("Who is reviewing?");
         ui.label("Your name goes with every verdict you record, and is remembered.");
         let l = ui.label("inspector name");
-        let r = ui.add(TextEdit::singleline(text).hint_text("e.g. your initials")).labelled_by(l.id);
+        let r = ui
+            .add(TextEdit::singleline(text).hint_text("e.g. your initials"))
+            .labelled_by(l.id);
         r.request_focus();
         let entered = ui.input(|i| i.key_pressed(Key::Enter));
         if (ui.button("start reviewing").clicked() || entered) && !text.trim().is_empty() {

@@ -45,7 +45,11 @@ pub fn ui(
     };
     let rest = state.view.rest_frame;
     let plot_move = state.plot_move.take();
-    let x_label = if rest { "rest-frame λ (Å)" } else { "observed λ (Å)" };
+    let x_label = if rest {
+        "rest-frame λ (Å)"
+    } else {
+        "observed λ (Å)"
+    };
     let (y0, y1) = p.y_range;
     let plot = Plot::new(("zvet-spectrum", state.selection_serial, rest))
         .height(height)
@@ -99,10 +103,7 @@ pub fn ui(
                 );
             }
         }
-        pui.add(
-            FilledArea::new("1σ", &p.x, &p.lo, &p.hi)
-                .fill_color(super::FLUX.gamma_multiply(0.22)),
-        );
+        pui.add(FilledArea::new("1σ", &p.x, &p.lo, &p.hi).fill_color(super::FLUX.gamma_multiply(0.22)));
         let pts: Vec<[f64; 2]> = p.x.iter().zip(&p.flux).map(|(x, y)| [*x, *y]).collect();
         pui.line(Line::new("flux", pts).color(super::FLUX).width(1.0));
         if !p.model.is_empty() {
@@ -115,7 +116,12 @@ pub fn ui(
                 LineKind::Emission => ("emission lines", super::EMISSION, LineStyle::Solid),
                 _ => ("absorption lines", super::ABSORPTION, LineStyle::dashed_dense()),
             };
-            pui.vline(VLine::new(name, m.x).color(colour.gamma_multiply(0.8)).width(1.0).style(style));
+            pui.vline(
+                VLine::new(name, m.x)
+                    .color(colour.gamma_multiply(0.8))
+                    .width(1.0)
+                    .style(style),
+            );
             if m.strength >= LABEL_STRENGTH {
                 // Stagger labels on three heights so neighbours do not overlap.
                 let y = top - (labelled % 3) as f64 * 0.06 * (y1 - y0);

@@ -65,7 +65,11 @@ pub fn ui(
                 out.push(Action::AcceptShown);
             }
         }
-        None if state.fit_errors.get(state.selected.unwrap_or(0)).is_some_and(|e| e.is_some()) => {
+        None if state
+            .fit_errors
+            .get(state.selected.unwrap_or(0))
+            .is_some_and(|e| e.is_some()) =>
+        {
             ui.colored_label(ui.visuals().error_fg_color, "the automatic fit failed");
         }
         None => {
