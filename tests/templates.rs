@@ -383,7 +383,7 @@ fn spectral_sequence_behaves_as_in_the_textbooks() {
 #[test]
 fn stellar_continua_follow_planck() {
     // Far from strong features the continuum ratio between 5600 Å and
-    // 10400 Å equals the Planck ratio at the type's temperature (Planck's law,
+    // 10400 Å equals the Planck ratio at the type's colour temperature (Planck's law,
     // CODATA constants); line blanketing changes it by a few per cent at most.
     let set = templates::builtin();
     for st in templates::stars::SEQUENCE
