@@ -147,6 +147,43 @@ const METALS: &[(&str, f64, f64, i32)] = &[
     ("Mg I 8809", 0.4, 0.0, 1),
 ];
 
+/// Further strong metal lines of F–K stars (the deepest solar Fraunhofer
+/// lines besides those in the line list): name, vacuum Å, central τ at full
+/// strength. Laboratory air wavelengths from memory (NIST), converted once to
+/// vacuum with the standard dispersion formula.
+const MORE_METALS: &[(&str, f64, f64)] = &[
+    ("Mn I 4032", 4031.90, 0.6),
+    ("Fe I 4047", 4046.95, 0.7),
+    ("Fe I 4065", 4064.74, 0.6),
+    ("Fe I 4073", 4072.89, 0.6),
+    ("Sr II 4079", 4078.86, 0.5),
+    ("Sr II 4217", 4216.71, 0.4),
+    ("Fe I 4262", 4261.67, 0.4),
+    ("Fe I 4327", 4326.98, 0.6),
+    ("Fe I 4406", 4405.99, 0.6),
+    ("Fe I 4416", 4416.36, 0.5),
+    ("Ca I 4456", 4456.03, 0.4),
+    ("Ba II 4555", 4555.31, 0.4),
+    ("Fe I 4959", 4958.98, 0.4),
+    ("Cr I 5207", 5207.49, 0.5),
+    ("Fe I 5229", 5228.65, 0.4),
+    ("Fe I 5373", 5372.98, 0.4),
+    ("Fe I 5399", 5398.63, 0.4),
+    ("Fe I 5407", 5407.27, 0.4),
+    ("Fe I 5431", 5431.21, 0.4),
+    ("Fe I 5448", 5448.43, 0.5),
+    ("Ca I 6104", 6104.41, 0.3),
+    ("Ca I 6124", 6123.91, 0.4),
+    ("Ca I 6164", 6163.88, 0.4),
+    ("Fe I 6254", 6254.29, 0.3),
+    ("Ca I 6441", 6440.86, 0.3),
+    ("Fe I 6497", 6496.77, 0.3),
+    ("Ba II 6499", 6498.70, 0.3),
+    ("Al I 3945", 3945.13, 0.4),
+    ("Al I 3963", 3962.64, 0.4),
+    ("Fe I 8691", 8691.02, 0.3),
+];
+
 /// TiO band heads (vacuum Å, air values from memory converted), central τ at
 /// full strength, e-folding length (Å).
 const TIO: &[(f64, f64, f64)] = &[
@@ -314,6 +351,17 @@ pub fn star_intrinsic(st: &StarType, grid: &Grid, sigma_kms: f64) -> Vec<f64> {
             sigma_kms,
             gamma: gamma * s,
             eta: if gamma > 0.0 { 0.3 } else { 0.0 },
+            wing: 1.0,
+        }
+        .add_to(&mut tau, grid);
+    }
+    for &(_, center, t0) in MORE_METALS {
+        Absorber {
+            center,
+            tau0: t0 * m,
+            sigma_kms,
+            gamma: 0.0,
+            eta: 0.0,
             wing: 1.0,
         }
         .add_to(&mut tau, grid);
