@@ -145,7 +145,7 @@ impl Absorber {
             let g = (-0.5 * (x / sigma).powi(2)).exp();
             let l = if self.eta > 0.0 && self.gamma > 0.0 {
                 let u = 1.0 + (x / self.gamma).powi(2);
-                if self.wing == 1.0 {
+                if (self.wing - 1.0).abs() < 1e-12 {
                     1.0 / u
                 } else {
                     u.powf(-self.wing)
