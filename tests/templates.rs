@@ -161,7 +161,24 @@ fn bad_files_give_clear_errors() {
         let expect = if class.is_none() { "TPLCLASS" } else { "non-finite" };
         assert!(e.contains(expect) && e.contains("'t1'"), "{e}");
     }
-    // A folder with two sets is ambiguous.
+    // Two templates of one class on different log-λ steps.
+    let path = dir.join("steps.fits");
+    let mut f = fitsio::FitsFile::create(&path).open().unwrap();
+    for (name, step) in [("a", 1e-4f64), ("b", 2e-4)] {
+        let desc = fitsio::images::ImageDescription {
+            data_type: fitsio::images::ImageType::Float,
+            dimensions: &[3],
+        };
+        let hdu = f.create_image(name.to_string(), &desc).unwrap();
+        hdu.write_image(&mut f, &[1.0f32, 2.0, 3.0]).unwrap();
+        hdu.write_key(&mut f, "TPLCLASS", "quasar").unwrap();
+        hdu.write_key(&mut f, "LOGLAM0", 3.0f64).unwrap();
+        hdu.write_key(&mut f, "DLOGLAM", step).unwrap();
+    }
+    drop(f);
+    let e = templates::read_set(&path).unwrap_err().to_string();
+    assert!(e.contains("step") && e.contains("'b'"), "{e}");
+    // A folder with several sets is ambiguous.
     assert!(templates::read_set(&dir).is_err());
     // A descriptor of another format.
     let json = dir.join("other.json");
@@ -383,7 +400,7 @@ fn spectral_sequence_behaves_as_in_the_textbooks() {
 #[test]
 fn stellar_continua_follow_planck() {
     // Far from strong features the continuum ratio between 5600 Å and
-    // 10400 Å equals the Planck ratio at the type's temperature (Planck's law,
+    // 10400 Å equals the Planck ratio at the type's colour temperature (Planck's law,
     // CODATA constants); line blanketing changes it by a few per cent at most.
     let set = templates::builtin();
     for st in templates::stars::SEQUENCE
@@ -425,4 +442,33 @@ fn cli_builds_and_lists_sets() {
         .unwrap();
     assert!(!bad.status.success());
     assert!(String::from_utf8_lossy(&bad.stderr).contains("nope.fits"));
+}
+
+#[test]
+fn user_set_with_only_a_standard_wcs_is_read() {
+    // FITS WCS Paper III, WAVE-LOG: λ(p) = CRVAL1 · exp(CDELT1 (p − CRPIX1) / CRVAL1).
+    let dir = support::scratch("templates-wcs-only");
+    let path = dir.join("mine.fits");
+    let mut f = fitsio::FitsFile::create(&path).open().unwrap();
+    let desc = fitsio::images::ImageDescription {
+        data_type: fitsio::images::ImageType::Float,
+        dimensions: &[100],
+    };
+    let hdu = f.create_image("my-galaxy".to_string(), &desc).unwrap();
+    hdu.write_image(&mut f, &[1.0f32; 100]).unwrap();
+    hdu.write_key(&mut f, "TPLCLASS", "galaxy").unwrap();
+    hdu.write_key(&mut f, "TPLKIND", "emission").unwrap();
+    hdu.write_key(&mut f, "CTYPE1", "WAVE-LOG").unwrap();
+    hdu.write_key(&mut f, "CUNIT1", "nm").unwrap();
+    hdu.write_key(&mut f, "CRPIX1", 11.0f64).unwrap();
+    hdu.write_key(&mut f, "CRVAL1", 500.0f64).unwrap(); // nm at pixel 11
+    hdu.write_key(&mut f, "CDELT1", 500.0 * 2e-4f64).unwrap(); // Δ ln λ = 2e-4 per pixel
+    drop(f);
+    let set = templates::read_set(&path).expect("read");
+    let g = set.class(ObjectClass::Galaxy).expect("galaxy group");
+    assert_eq!(g.mode, FitMode::Basis); // default for galaxies
+    let t = &g.templates[0];
+    assert_eq!(t.kind, TemplateKind::Emission);
+    approx::assert_relative_eq!(t.wave(10), 5000.0, max_relative = 1e-12);
+    approx::assert_relative_eq!(t.wave(60), 5000.0 * (50.0f64 * 2e-4).exp(), max_relative = 1e-12);
 }

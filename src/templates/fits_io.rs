@@ -423,6 +423,11 @@ fn read_fits(path: &Path) -> Result<TemplateSet, TemplateError> {
                         "TPLMODE differs from earlier templates of its class",
                     ));
                 }
+                let step = c.templates[0].dloglam;
+                if ((t.dloglam - step) / step).abs() > 1e-9 {
+                    let msg = format!("log10 λ step {} differs from {step} of its class", t.dloglam);
+                    return Err(invalid(path, i, &t.name, &msg));
+                }
                 c.templates.push(t);
             }
             None => classes.push(ClassTemplates {

@@ -110,6 +110,9 @@ pub fn add_gaussian(flux_density: &mut [f64], grid: &Grid, center: f64, sigma_km
 /// velocity dispersion `sigma_kms` (pixel width added in quadrature so narrow
 /// lines are not lost between pixel centres) plus Lorentzian (damping/Stark)
 /// wings of half width `gamma` Å carrying fraction `eta` of the central depth.
+/// The wing shape is (1 + (x/γ)²)^−p: p = 1 is a Lorentzian (radiation and
+/// collisional damping), p = 1.25 falls off as x^−5/2 like the quasi-static
+/// (Holtsmark) Stark wings of hydrogen lines (from memory).
 #[derive(Debug, Clone, Copy)]
 pub struct Absorber {
     /// Line centre (Å).
@@ -120,8 +123,10 @@ pub struct Absorber {
     pub sigma_kms: f64,
     /// Lorentzian half width at half maximum (Å).
     pub gamma: f64,
-    /// Weight of the Lorentzian part (0–1).
+    /// Weight of the wing part (0–1).
     pub eta: f64,
+    /// Exponent p of the wing profile (1 = Lorentzian).
+    pub wing: f64,
 }
 
 impl Absorber {
@@ -139,7 +144,12 @@ impl Absorber {
             let x = grid.wave(i as f64) - self.center;
             let g = (-0.5 * (x / sigma).powi(2)).exp();
             let l = if self.eta > 0.0 && self.gamma > 0.0 {
-                1.0 / (1.0 + (x / self.gamma).powi(2))
+                let u = 1.0 + (x / self.gamma).powi(2);
+                if (self.wing - 1.0).abs() < 1e-12 {
+                    1.0 / u
+                } else {
+                    u.powf(-self.wing)
+                }
             } else {
                 0.0
             };
@@ -265,6 +275,7 @@ mod tests {
             sigma_kms: 30.0,
             gamma: 0.0,
             eta: 0.0,
+            wing: 1.0,
         }
         .add_to(&mut tau, &g);
         let mut f = vec![1.0; g.n];
