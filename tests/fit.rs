@@ -6,7 +6,7 @@ use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, Normal};
 use rayon::prelude::*;
-use zvet::fit::{Engine, FitConfig};
+use zvet::fit::{CorrPlan, Engine, FitConfig};
 use zvet::spectrum::SpectrumMeta;
 use zvet::templates::{ClassTemplates, FitMode, Template, TemplateKind, TemplateSet};
 use zvet::{ObjectClass, Spectrum};
@@ -218,16 +218,18 @@ fn fast_path_equals_oracle_on_random_spectra_masks_and_templates() {
         let ivar: Vec<f64> = (0..n).map(|_| rng.random_range(0.1..10.0)).collect();
         let good: Vec<bool> = (0..n).map(|_| rng.random_bool(0.85)).collect();
         let s = Spectrum::new(wave, flux, Some(ivar), Some(good), SpectrumMeta::default()).unwrap();
-        let fast = engine.chi2_curves_fast(&s).unwrap();
         let oracle = engine.chi2_curves_oracle(&s).unwrap();
-        assert_eq!(fast.len(), oracle.len());
-        for (f, o) in fast.iter().zip(&oracle) {
-            assert_eq!(f.len(), o.len());
-            for (i, (a, b)) in f.iter().zip(o).enumerate() {
-                assert!(
-                    ((a - b) / b.abs().max(1e-300)).abs() < 1e-6,
-                    "trial {trial} shift #{i}: fast {a} oracle {b}"
-                );
+        for plan in [CorrPlan::Fft, CorrPlan::Direct, CorrPlan::Auto] {
+            let fast = engine.chi2_curves_with(&s, plan).unwrap();
+            assert_eq!(fast.len(), oracle.len());
+            for (f, o) in fast.iter().zip(&oracle) {
+                assert_eq!(f.len(), o.len());
+                for (i, (a, b)) in f.iter().zip(o).enumerate() {
+                    assert!(
+                        ((a - b) / b.abs().max(1e-300)).abs() < 1e-6,
+                        "trial {trial} {plan:?} shift #{i}: fast {a} oracle {b}"
+                    );
+                }
             }
         }
     }

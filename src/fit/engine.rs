@@ -11,9 +11,9 @@ and can be compared directly (where a template does not reach, only the
 polynomial is left to fit and χ² grows).
 */
 use super::config::{FitConfig, FitError, Method};
-use super::fast::{self, DataCache, FftCache};
+use super::fast::{self, CorrPlan, DataCache, FftCache};
 use super::prep::{legendre, Prepared};
-use super::reference::thresholds;
+use super::reference::{direct_fit, thresholds};
 use super::refine::refine;
 use super::result::{Candidate, Chi2Curve, FitResult, Warnings};
 use super::units::{build_units, Unit};
@@ -242,8 +242,13 @@ impl Engine {
     }
 
     /// χ² curves of every unit of the configured classes by the fast path
-    /// (whole shifts `lo..=hi` per class); for tests and benches.
+    /// (whole shifts over each class's range); for tests and benches.
     pub fn chi2_curves_fast(&self, s: &Spectrum) -> Result<Vec<Vec<f64>>, FitError> {
+        self.chi2_curves_with(s, CorrPlan::Auto)
+    }
+
+    /// As [`Engine::chi2_curves_fast`] with the way the sums are computed forced.
+    pub fn chi2_curves_with(&self, s: &Spectrum, plan: CorrPlan) -> Result<Vec<Vec<f64>>, FitError> {
         let prep = self.prepare(s)?;
         let mut data = DataCache::default();
         Ok(self
@@ -252,7 +257,7 @@ impl Engine {
             .enumerate()
             .map(|(ui, u)| {
                 let (lo, hi) = shift_range(self.config.z_range(u.class), self.config.dloglam);
-                fast::chi2_curve(&self.cache, &mut data, &prep, ui, u, lo, hi)
+                fast::chi2_curve(&self.cache, &mut data, &prep, ui, u, lo, hi, plan)
             })
             .collect())
     }
@@ -279,7 +284,7 @@ impl Engine {
         for &(class, (lo, hi)) in ranges {
             let mut minima = Vec::new();
             for (ui, u) in self.units.iter().enumerate().filter(|(_, u)| u.class == class) {
-                let chi2 = fast::chi2_curve(&self.cache, &mut data, &prep, ui, u, lo, hi);
+                let chi2 = fast::chi2_curve(&self.cache, &mut data, &prep, ui, u, lo, hi, CorrPlan::Auto);
                 minima.extend(local_minima(&chi2).into_iter().map(|i| Minimum {
                     unit: ui,
                     shift: lo + i as i64,
@@ -288,18 +293,18 @@ impl Engine {
                 }));
                 curves_by_unit[ui] = Some(chi2);
             }
-            minima.sort_by(|a, b| a.chi2.total_cmp(&b.chi2));
             let min_sep = self.min_sep_pixels();
-            let mut kept: Vec<Minimum> = Vec::new();
-            for m in minima {
-                if kept.len() >= self.config.n_candidates {
-                    break;
-                }
-                if kept.iter().all(|k| (k.shift - m.shift).abs() as f64 >= min_sep) {
-                    kept.push(m);
+            let n_cand = self.config.n_candidates;
+            let mut kept = separated(minima, min_sep, 3 * n_cand);
+            if prep.nonneg {
+                // the curves are unconstrained; rank the deepest minima again
+                // with non-negative template amplitudes
+                for m in kept.iter_mut() {
+                    let u = &self.units[m.unit];
+                    m.chi2 = direct_fit(&prep, u, m.shift as f64, &thresholds(&prep, u), true).chi2;
                 }
             }
-            minima_by_class.push((class, kept));
+            minima_by_class.push((class, separated(kept, min_sep, n_cand)));
         }
         // refine
         let mut cands: Vec<(Candidate, Minimum, f64)> = Vec::new();
@@ -438,6 +443,22 @@ fn reach(units: &[Unit], config: &FitConfig) -> (f64, f64) {
 /// |Δv| between two redshifts in km/s (relativistic-free, c·|Δln(1+z)|).
 pub fn velocity_sep_kms(z1: f64, z2: f64) -> f64 {
     C_KMS * ((1.0 + z1) / (1.0 + z2)).ln().abs()
+}
+
+/// The lowest minima, at most `n`, each at least `min_sep` pixels from
+/// every lower one.
+fn separated(mut minima: Vec<Minimum>, min_sep: f64, n: usize) -> Vec<Minimum> {
+    minima.sort_by(|a, b| a.chi2.total_cmp(&b.chi2));
+    let mut kept: Vec<Minimum> = Vec::new();
+    for m in minima {
+        if kept.len() >= n {
+            break;
+        }
+        if kept.iter().all(|k| (k.shift - m.shift).abs() as f64 >= min_sep) {
+            kept.push(m);
+        }
+    }
+    kept
 }
 
 /// Indices of local minima (plateaus give their first point; ends count).

@@ -18,7 +18,7 @@ without wrap-around for every overlapping lag −n < c < m. Template
 transforms are cached per (unit, L) in the engine; two real correlations
 share one complex inverse FFT (real and imaginary part).
 */
-use super::prep::{solve_constrained, Prepared};
+use super::prep::{solve_normal, Prepared};
 use super::reference::thresholds;
 use super::units::Unit;
 use rustfft::num_complex::Complex;
@@ -159,6 +159,22 @@ impl DataCache {
     }
 }
 
+/// How the template sums are computed.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum CorrPlan {
+    /// Pick by cost: FFTs for long shift ranges, direct sums for short ones.
+    Auto,
+    /// Always FFT cross-correlations.
+    Fft,
+    /// Direct sums at each needed lag.
+    Direct,
+}
+
+/// Number of correlations of a unit with `k` templates and `j` polynomials.
+fn n_corr(k: usize, j: usize) -> usize {
+    k * (k + 1) / 2 + k * j + k
+}
+
 /// χ² of `unit` at every shift `s_lo..=s_hi` by the fast path.
 /// `key` identifies the unit in the cache.
 #[allow(clippy::too_many_arguments)]
@@ -170,12 +186,47 @@ pub fn chi2_curve(
     unit: &Unit,
     s_lo: i64,
     s_hi: i64,
+    plan: CorrPlan,
 ) -> Vec<f64> {
     let n = prep.grid.n;
     let m = unit.m();
-    let k = unit.k();
-    let j = prep.j();
+    let (k, j) = (unit.k(), prep.j());
+    let ns = (s_hi - s_lo + 1).max(0) as usize;
     let len = nice_len(n + m - 1);
+    let use_fft = match plan {
+        CorrPlan::Fft => true,
+        CorrPlan::Direct => false,
+        CorrPlan::Auto => {
+            // direct: ns · n_good multiply-adds per correlation; FFT: about
+            // 5 L log2 L per pair of correlations (one complex inverse FFT)
+            let direct = (ns * prep.n_good()) as f64 * n_corr(k, j) as f64;
+            let fft = 2.5 * len as f64 * (len as f64).log2() * n_corr(k, j) as f64;
+            direct > fft
+        }
+    };
+    let out = if use_fft {
+        sums_fft(cache, data, prep, key, unit, s_lo, ns, len)
+    } else {
+        sums_direct(prep, unit, s_lo, ns)
+    };
+    solve_shifts(prep, unit, &out, ns)
+}
+
+/// The template sums at each shift by FFT: `out[si * ncorr + ci]`.
+#[allow(clippy::too_many_arguments)]
+fn sums_fft(
+    cache: &FftCache,
+    data: &mut DataCache,
+    prep: &Prepared,
+    key: usize,
+    unit: &Unit,
+    s_lo: i64,
+    ns: usize,
+    len: usize,
+) -> Vec<f64> {
+    let n = prep.grid.n;
+    let m = unit.m();
+    let (k, j) = (unit.k(), prep.j());
     let ut = cache.unit_transforms(key, unit, len);
     let dt = data.get(cache, prep, len);
     // the list of correlations: (data spectrum, template spectrum)
@@ -192,8 +243,6 @@ pub fn chi2_curve(
         pairs.push((&dt.wf, &ut.t[a]));
     }
     let ncorr = pairs.len();
-    let ns = (s_hi - s_lo + 1).max(0) as usize;
-    // out[si * ncorr + ci] = correlation ci at shift s_lo + si
     let mut out = vec![0.0; ns * ncorr];
     let inv = cache.plan(len, false);
     let scale = 1.0 / len as f64;
@@ -224,6 +273,54 @@ pub fn chi2_curve(
             }
         }
     }
+    out
+}
+
+/// The template sums at each shift by direct loops over the good pixels.
+fn sums_direct(prep: &Prepared, unit: &Unit, s_lo: i64, ns: usize) -> Vec<f64> {
+    let m = unit.m() as i64;
+    let (k, j) = (unit.k(), prep.j());
+    let ncorr = n_corr(k, j);
+    let mut out = vec![0.0; ns * ncorr];
+    let mut tv = vec![0.0; k];
+    for si in 0..ns {
+        let c = prep.g0 - unit.t0 - (s_lo + si as i64);
+        let row = &mut out[si * ncorr..(si + 1) * ncorr];
+        for &i in &prep.good {
+            let r = i as i64 + c;
+            if r < 0 || r >= m {
+                continue;
+            }
+            for (a, t) in tv.iter_mut().enumerate() {
+                *t = unit.t[a][r as usize];
+            }
+            let (w, f) = (prep.w[i], prep.flux[i]);
+            let mut ci = 0;
+            for a in 0..k {
+                for b in a..k {
+                    row[ci] += w * tv[a] * tv[b];
+                    ci += 1;
+                }
+            }
+            for &t in &tv {
+                for q in 0..j {
+                    row[ci] += w * t * prep.p[q][i];
+                    ci += 1;
+                }
+            }
+            for &t in &tv {
+                row[ci] += w * t * f;
+                ci += 1;
+            }
+        }
+    }
+    out
+}
+
+/// Assemble and solve the normal equations at each shift from the sums.
+fn solve_shifts(prep: &Prepared, unit: &Unit, out: &[f64], ns: usize) -> Vec<f64> {
+    let (k, j) = (unit.k(), prep.j());
+    let ncorr = n_corr(k, j);
     let thr = thresholds(prep, unit);
     let dim = k + j;
     let mut a = vec![0.0; dim * dim];
@@ -260,7 +357,7 @@ pub fn chi2_curve(
         for p in 0..k {
             active[p] = a[p * dim + p] > thr[p];
         }
-        let c = solve_constrained(&a, &b, &active, k, prep.nonneg);
+        let c = solve_normal(&a, &b, &active);
         let fit: f64 = c.iter().zip(&b).map(|(c, b)| c * b).sum();
         chi2.push(prep.fww - fit);
     }

@@ -13,13 +13,12 @@ from the covariance of the linear solve, the rest-frame equivalent width =
 flux / (continuum at the centre · (1+z)) (positive for emission).
 */
 use super::engine::{Engine, C_KMS};
-use super::prep::Prepared;
+use super::prep::{solve_normal, Prepared};
 use super::result::{Candidate, LineMeasurement};
 use crate::spectrum::Spectrum;
 use crate::ObjectClass;
 use argmin::core::{CostFunction, Error, Executor};
 use argmin::solver::neldermead::NelderMead;
-use nalgebra::{DMatrix, DVector};
 
 /// Fewest good pixels in a line window.
 const MIN_WINDOW_PIXELS: usize = 8;
@@ -47,38 +46,41 @@ struct Window {
 
 struct LinearFit {
     chi2: f64,
-    coef: DVector<f64>,
-    cov: Option<DMatrix<f64>>,
+    coef: Vec<f64>,
+    /// Variance of the line's own amplitude (coefficient 2).
+    amp_var: f64,
 }
 
 impl Window {
     /// Linear part at offset v (km/s) and width σ (km/s).
     fn solve(&self, v: f64, sig: f64) -> Option<LinearFit> {
         let k = 2 + self.centres.len();
-        let mut ata = DMatrix::<f64>::zeros(k, k);
-        let mut atb = DVector::<f64>::zeros(k);
+        let mut ata = vec![0.0; k * k];
+        let mut atb = vec![0.0; k];
         let mut row = vec![0.0; k];
         for i in 0..self.lam.len() {
             self.design(i, v, sig, &mut row);
             for a in 0..k {
-                atb[a] += self.w[i] * row[a] * self.f[i];
+                let wa = self.w[i] * row[a];
+                atb[a] += wa * self.f[i];
                 for b in 0..k {
-                    ata[(a, b)] += self.w[i] * row[a] * row[b];
+                    ata[a * k + b] += wa * row[b];
                 }
             }
         }
-        let cov = ata.clone().try_inverse();
-        let coef = match ata.clone().cholesky() {
-            Some(ch) => ch.solve(&atb),
-            None => ata.svd(true, true).solve(&atb, 1e-12).ok()?,
-        };
+        let all = vec![true; k];
+        let coef = solve_normal(&ata, &atb, &all);
+        // (AᵀWA)⁻¹ column of the amplitude: the covariance of the linear fit
+        let mut e = vec![0.0; k];
+        e[2] = 1.0;
+        let amp_var = solve_normal(&ata, &e, &all)[2];
         let mut chi2 = 0.0;
         for i in 0..self.lam.len() {
             self.design(i, v, sig, &mut row);
-            let m: f64 = row.iter().zip(coef.iter()).map(|(a, b)| a * b).sum();
+            let m: f64 = row.iter().zip(&coef).map(|(a, b)| a * b).sum();
             chi2 += self.w[i] * (self.f[i] - m).powi(2);
         }
-        Some(LinearFit { chi2, coef, cov })
+        chi2.is_finite().then_some(LinearFit { chi2, coef, amp_var })
     }
 
     fn design(&self, i: usize, v: f64, sig: f64, row: &mut [f64]) {
@@ -173,12 +175,11 @@ pub fn measure_list(s: &Spectrum, z: f64, class: ObjectClass, list: &[(&str, f64
         let sig_l = mu * sig / C_KMS;
         let norm = (2.0 * std::f64::consts::PI).sqrt() * sig_l;
         let amp = fit.coef[2];
-        let amp_err = fit
-            .cov
-            .as_ref()
-            .map(|c| c[(2, 2)])
-            .filter(|v| *v > 0.0 && v.is_finite())
-            .map_or(f64::MAX, f64::sqrt);
+        let amp_err = if fit.amp_var > 0.0 && fit.amp_var.is_finite() {
+            fit.amp_var.sqrt()
+        } else {
+            continue;
+        };
         let flux = amp * norm;
         let flux_err = amp_err * norm;
         let cont = fit.coef[0] + fit.coef[1] * (mu - obs) / obs;

@@ -27,6 +27,7 @@ pub use config::{FitConfig, FitError, Method};
 pub use engine::{
     velocity_sep_kms, Engine, AMBIGUOUS_DCHI2, C_KMS, FEW_PIXELS, POOR_FIT_CHI2R, STAR_VMAX_KMS,
 };
+pub use fast::CorrPlan;
 pub use prep::Prepared;
 pub use result::{Candidate, Chi2Curve, FitResult, LineMeasurement, Warnings};
 pub use units::Unit;

@@ -41,7 +41,8 @@ pub fn offset(prep: &Prepared, unit: &Unit, shift: f64) -> f64 {
 }
 
 /// Fit `unit` at `shift` pixels by direct sums; χ² from explicit residuals.
-pub fn direct_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64]) -> DirectFit {
+/// With `nonneg` the template amplitudes are constrained to be ≥ 0.
+pub fn direct_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg: bool) -> DirectFit {
     let k = unit.k();
     let j = prep.j();
     let dim = k + j;
@@ -76,7 +77,7 @@ pub fn direct_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64]) -> Dire
     let active: Vec<bool> = (0..dim)
         .map(|r| if r < k { a[r * dim + r] > thr[r] } else { true })
         .collect();
-    let coeffs = solve_constrained(&a, &b, &active, k, prep.nonneg);
+    let coeffs = solve_constrained(&a, &b, &active, k, nonneg);
     let mut chi2 = 0.0;
     for (gi, &i) in prep.good.iter().enumerate() {
         let mut model = 0.0;
@@ -92,10 +93,11 @@ pub fn direct_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64]) -> Dire
     DirectFit { chi2, coeffs }
 }
 
-/// The oracle: χ² at every whole shift in `s_lo..=s_hi`, one direct fit each.
+/// The oracle: χ² at every whole shift in `s_lo..=s_hi`, one direct fit each
+/// (unconstrained, like the fast path's curves).
 pub fn chi2_curve(prep: &Prepared, unit: &Unit, s_lo: i64, s_hi: i64) -> Vec<f64> {
     let thr = thresholds(prep, unit);
     (s_lo..=s_hi)
-        .map(|s| direct_fit(prep, unit, s as f64, &thr).chi2)
+        .map(|s| direct_fit(prep, unit, s as f64, &thr, false).chi2)
         .collect()
 }

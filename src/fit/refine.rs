@@ -24,7 +24,7 @@ impl CostFunction for Cost<'_> {
     type Param = f64;
     type Output = f64;
     fn cost(&self, shift: &f64) -> Result<f64, Error> {
-        Ok(direct_fit(self.prep, self.unit, *shift, self.thr).chi2)
+        Ok(direct_fit(self.prep, self.unit, *shift, self.thr, self.prep.nonneg).chi2)
     }
 }
 
@@ -42,7 +42,7 @@ pub struct Refined {
 /// Refine the grid minimum at whole shift `s0` within ±1 pixel.
 pub fn refine(prep: &Prepared, unit: &Unit, thr: &[f64], s0: i64) -> Refined {
     let cost = Cost { prep, unit, thr };
-    let grid = direct_fit(prep, unit, s0 as f64, thr);
+    let grid = direct_fit(prep, unit, s0 as f64, thr, prep.nonneg);
     let lo = s0 as f64 - 1.0;
     let hi = s0 as f64 + 1.0;
     let solver = BrentOpt::new(lo, hi).set_tolerance(1e-10, SHIFT_TOL);
@@ -53,7 +53,7 @@ pub fn refine(prep: &Prepared, unit: &Unit, thr: &[f64], s0: i64) -> Refined {
         .and_then(|r| r.state.best_param);
     let (shift, fit) = match best {
         Some(x) if x.is_finite() => {
-            let f = direct_fit(prep, unit, x, thr);
+            let f = direct_fit(prep, unit, x, thr, prep.nonneg);
             if f.chi2 < grid.chi2 {
                 (x, f)
             } else {
@@ -62,8 +62,8 @@ pub fn refine(prep: &Prepared, unit: &Unit, thr: &[f64], s0: i64) -> Refined {
         }
         _ => (s0 as f64, grid),
     };
-    let fp = direct_fit(prep, unit, shift + CURV_STEP, thr).chi2;
-    let fm = direct_fit(prep, unit, shift - CURV_STEP, thr).chi2;
+    let fp = direct_fit(prep, unit, shift + CURV_STEP, thr, prep.nonneg).chi2;
+    let fm = direct_fit(prep, unit, shift - CURV_STEP, thr, prep.nonneg).chi2;
     let d2 = (fp + fm - 2.0 * fit.chi2) / (CURV_STEP * CURV_STEP);
     // χ² ≈ χ²_min + ½ d2 (x − x0)²; Δχ² = 1 at |x − x0| = sqrt(2 / d2)
     let sigma_shift = if d2 > 0.0 && d2.is_finite() {

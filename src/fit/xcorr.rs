@@ -287,7 +287,7 @@ pub fn fit(e: &Engine, s: &Spectrum) -> Result<FitResult, FitError> {
             continue;
         };
         let thr = thresholds(&prep, u);
-        let f = direct_fit(&prep, u, (1.0 + p.z).log10() / dll, &thr);
+        let f = direct_fit(&prep, u, (1.0 + p.z).log10() / dll, &thr, prep.nonneg);
         if cands.is_empty() {
             k_best = u.k();
         }
