@@ -244,9 +244,7 @@ impl Filter {
 
 /// Indices of the items that pass `filter`, sorted by `key` (stable).
 pub fn arrange(items: &[QueueItem], filter: &Filter, key: SortKey) -> Vec<usize> {
-    let mut idx: Vec<usize> = (0..items.len())
-        .filter(|&i| filter.accepts(&items[i]))
-        .collect();
+    let mut idx: Vec<usize> = (0..items.len()).filter(|&i| filter.accepts(&items[i])).collect();
     let nan_last = |v: Option<f64>| v.filter(|x| x.is_finite()).unwrap_or(f64::INFINITY);
     match key {
         SortKey::Attention => idx.sort_by(|&a, &b| {
@@ -259,9 +257,9 @@ pub fn arrange(items: &[QueueItem], filter: &Filter, key: SortKey) -> Vec<usize>
         SortKey::Redshift => {
             idx.sort_by(|&a, &b| nan_last(items[a].fit_z).total_cmp(&nan_last(items[b].fit_z)))
         }
-        SortKey::DeltaChi2 => idx.sort_by(|&a, &b| {
-            nan_last(items[a].delta_chi2).total_cmp(&nan_last(items[b].delta_chi2))
-        }),
+        SortKey::DeltaChi2 => {
+            idx.sort_by(|&a, &b| nan_last(items[a].delta_chi2).total_cmp(&nan_last(items[b].delta_chi2)))
+        }
         SortKey::Snr => idx.sort_by(|&a, &b| items[a].snr.total_cmp(&items[b].snr)),
     }
     idx
@@ -312,22 +310,22 @@ mod tests {
         let mut unfitted = item("unfitted");
         unfitted.fit_class = None;
         unfitted.fit_z = None;
-        let items = vec![
-            clean,
-            reviewed_bad,
-            faint,
-            warned,
-            close,
-            disagree,
-            unfitted,
-        ];
+        let items = vec![clean, reviewed_bad, faint, warned, close, disagree, unfitted];
         let ids: Vec<&str> = arrange(&items, &Filter::default(), SortKey::Attention)
             .into_iter()
             .map(|i| items[i].id.as_str())
             .collect();
         assert_eq!(
             ids,
-            ["disagree", "close", "warned", "faint", "clean", "unfitted", "reviewed_bad"]
+            [
+                "disagree",
+                "close",
+                "warned",
+                "faint",
+                "clean",
+                "unfitted",
+                "reviewed_bad"
+            ]
         );
     }
 

@@ -47,15 +47,26 @@ fn synthetic_set() -> TemplateSet {
     let young = template("galaxy-young", ObjectClass::Galaxy, 1000.0, 11000.0, move |l| {
         (l / 5000.0).powf(-1.0) + g_em.iter().map(|&c| 3.0 * gauss(l, c, 80.0)).sum::<f64>()
     });
-    let q_em = [(1215.67, 8.0), (1549.0, 3.0), (1908.7, 1.5), (2799.0, 2.0), (4862.7, 1.0), (6564.6, 3.0)];
+    let q_em = [
+        (1215.67, 8.0),
+        (1549.0, 3.0),
+        (1908.7, 1.5),
+        (2799.0, 2.0),
+        (4862.7, 1.0),
+        (6564.6, 3.0),
+    ];
     let qso = template("quasar-mean", ObjectClass::Quasar, 700.0, 9500.0, move |l| {
         let forest = if l < 1216.0 { 0.5 } else { 1.0 };
         forest * (l / 3000.0).powf(-0.5) + q_em.iter().map(|&(c, a)| a * gauss(l, c, 2500.0)).sum::<f64>()
     });
-    let qso_red = template("quasar-slope", ObjectClass::Quasar, 700.0, 9500.0, |l| (l / 3000.0).powf(0.5));
-    let bb = |t: f64| move |l: f64| {
-        let x = 1.4388e8 / (l * t);
-        1.0 / (l.powi(5) * (x.exp() - 1.0))
+    let qso_red = template("quasar-slope", ObjectClass::Quasar, 700.0, 9500.0, |l| {
+        (l / 3000.0).powf(0.5)
+    });
+    let bb = |t: f64| {
+        move |l: f64| {
+            let x = 1.4388e8 / (l * t);
+            1.0 / (l.powi(5) * (x.exp() - 1.0))
+        }
     };
     let star = |name: &str, t: f64, lines: Vec<(f64, f64)>| {
         let b = bb(t);
@@ -64,16 +75,46 @@ fn synthetic_set() -> TemplateSet {
             b(l) / norm * (1.0 - lines.iter().map(|&(c, d)| d * gauss(l, c, 60.0)).sum::<f64>())
         })
     };
-    let hot = star("star-A", 9500.0, vec![(4102.9, 0.6), (4341.7, 0.6), (4862.7, 0.6), (6564.6, 0.6)]);
-    let sun = star("star-G", 5800.0, vec![(3934.78, 0.7), (3969.59, 0.7), (5176.7, 0.3), (5895.6, 0.3), (6564.6, 0.3)]);
-    let cool = star("star-M", 3500.0, vec![(5895.6, 0.5), (7100.0, 0.4), (7700.0, 0.4), (8544.4, 0.3)]);
+    let hot = star(
+        "star-A",
+        9500.0,
+        vec![(4102.9, 0.6), (4341.7, 0.6), (4862.7, 0.6), (6564.6, 0.6)],
+    );
+    let sun = star(
+        "star-G",
+        5800.0,
+        vec![
+            (3934.78, 0.7),
+            (3969.59, 0.7),
+            (5176.7, 0.3),
+            (5895.6, 0.3),
+            (6564.6, 0.3),
+        ],
+    );
+    let cool = star(
+        "star-M",
+        3500.0,
+        vec![(5895.6, 0.5), (7100.0, 0.4), (7700.0, 0.4), (8544.4, 0.3)],
+    );
     TemplateSet {
         name: "synthetic-test".into(),
         provenance: "tests/fit.rs".into(),
         classes: vec![
-            ClassTemplates { class: ObjectClass::Galaxy, mode: FitMode::Basis, templates: vec![old, young] },
-            ClassTemplates { class: ObjectClass::Quasar, mode: FitMode::Basis, templates: vec![qso, qso_red] },
-            ClassTemplates { class: ObjectClass::Star, mode: FitMode::EachAlone, templates: vec![hot, sun, cool] },
+            ClassTemplates {
+                class: ObjectClass::Galaxy,
+                mode: FitMode::Basis,
+                templates: vec![old, young],
+            },
+            ClassTemplates {
+                class: ObjectClass::Quasar,
+                mode: FitMode::Basis,
+                templates: vec![qso, qso_red],
+            },
+            ClassTemplates {
+                class: ObjectClass::Star,
+                mode: FitMode::EachAlone,
+                templates: vec![hot, sun, cool],
+            },
         ],
     }
 }
@@ -88,12 +129,18 @@ fn mock(set: &TemplateSet, class: ObjectClass, z: f64, snr: f64, n: usize, rng: 
     };
     let coefs: Vec<f64> = templates.iter().map(|_| rng.random_range(0.3..1.0)).collect();
     let tilt = rng.random_range(-0.4..0.4);
-    let wave: Vec<f64> = (0..n).map(|i| 3600.0 + 6200.0 * i as f64 / (n - 1) as f64).collect();
+    let wave: Vec<f64> = (0..n)
+        .map(|i| 3600.0 + 6200.0 * i as f64 / (n - 1) as f64)
+        .collect();
     let clean: Vec<f64> = wave
         .iter()
         .map(|&l| {
             let rest = l / (1.0 + z);
-            let v: f64 = templates.iter().zip(&coefs).map(|(t, c)| c * t.at(rest).unwrap_or(0.0)).sum();
+            let v: f64 = templates
+                .iter()
+                .zip(&coefs)
+                .map(|(t, c)| c * t.at(rest).unwrap_or(0.0))
+                .sum();
             v * (1.0 + tilt * (l - 6700.0) / 3100.0)
         })
         .collect();
@@ -112,7 +159,10 @@ fn mock(set: &TemplateSet, class: ObjectClass, z: f64, snr: f64, n: usize, rng: 
         flux,
         Some(vec![1.0 / (sigma * sigma); n]),
         Some(good),
-        SpectrumMeta { id: format!("mock-{class}-{z:.4}"), ..Default::default() },
+        SpectrumMeta {
+            id: format!("mock-{class}-{z:.4}"),
+            ..Default::default()
+        },
     )
     .unwrap()
 }
@@ -128,7 +178,10 @@ fn fast_path_equals_oracle_on_random_spectra_masks_and_templates() {
             let vals: Vec<f64> = (0..20).map(|_| rng.random_range(-1.0..2.0)).collect();
             template(name, class, lo, hi, move |l| {
                 let x = (l.ln() * 7.0).sin();
-                vals.iter().enumerate().map(|(k, v)| v * (x * (k as f64 + 1.0) + k as f64).cos()).sum()
+                vals.iter()
+                    .enumerate()
+                    .map(|(k, v)| v * (x * (k as f64 + 1.0) + k as f64).cos())
+                    .sum()
             })
         };
         let set = TemplateSet {
@@ -138,12 +191,16 @@ fn fast_path_equals_oracle_on_random_spectra_masks_and_templates() {
                 ClassTemplates {
                     class: ObjectClass::Galaxy,
                     mode: FitMode::Basis,
-                    templates: (0..1 + trial % 3).map(|i| rnd_t(&format!("g{i}"), ObjectClass::Galaxy)).collect(),
+                    templates: (0..1 + trial % 3)
+                        .map(|i| rnd_t(&format!("g{i}"), ObjectClass::Galaxy))
+                        .collect(),
                 },
                 ClassTemplates {
                     class: ObjectClass::Star,
                     mode: FitMode::EachAlone,
-                    templates: (0..2).map(|i| rnd_t(&format!("s{i}"), ObjectClass::Star)).collect(),
+                    templates: (0..2)
+                        .map(|i| rnd_t(&format!("s{i}"), ObjectClass::Star))
+                        .collect(),
                 },
             ],
         };
@@ -182,7 +239,11 @@ fn synthetic_recovery_with_test_templates() {
     let engine = Engine::new(&set, FitConfig::default()).unwrap();
     let cases: Vec<(ObjectClass, f64, f64, u64)> = ObjectClass::ALL
         .iter()
-        .flat_map(|&c| [5.0, 10.0].into_iter().flat_map(move |snr| (0..4).map(move |k| (c, snr, k))))
+        .flat_map(|&c| {
+            [5.0, 10.0]
+                .into_iter()
+                .flat_map(move |snr| (0..4).map(move |k| (c, snr, k)))
+        })
         .enumerate()
         .map(|(i, (c, snr, _))| (c, snr, 0.0, i as u64))
         .collect();
@@ -217,7 +278,11 @@ fn cross_correlation_finds_the_redshift_of_test_galaxies() {
     let set = synthetic_set();
     let engine = Engine::new(
         &set,
-        FitConfig { method: Method::XCorr, classes: vec![ObjectClass::Galaxy], ..FitConfig::default() },
+        FitConfig {
+            method: Method::XCorr,
+            classes: vec![ObjectClass::Galaxy],
+            ..FitConfig::default()
+        },
     )
     .unwrap();
     let mut rng = ChaCha8Rng::seed_from_u64(5);

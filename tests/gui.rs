@@ -130,25 +130,47 @@ fn class_confidence_flag_and_note_by_keyboard() {
     let mut h = harness(&log);
     let id = selected_id(&h);
     press(&mut h, Key::Q);
-    assert_eq!(last_change(&log), Change::Class { class: VerdictClass::Quasar });
+    assert_eq!(
+        last_change(&log),
+        Change::Class {
+            class: VerdictClass::Quasar
+        }
+    );
     press(&mut h, Key::Num4);
     assert_eq!(
         last_change(&log),
-        Change::Confidence { confidence: Confidence::Certain }
+        Change::Confidence {
+            confidence: Confidence::Certain
+        }
     );
     press(&mut h, Key::F);
     press(&mut h, Key::Num3);
-    assert_eq!(last_change(&log), Change::Flag { flag: Flag::Blend, on: true });
+    assert_eq!(
+        last_change(&log),
+        Change::Flag {
+            flag: Flag::Blend,
+            on: true
+        }
+    );
     press(&mut h, Key::F);
     press(&mut h, Key::Num3);
-    assert_eq!(last_change(&log), Change::Flag { flag: Flag::Blend, on: false });
+    assert_eq!(
+        last_change(&log),
+        Change::Flag {
+            flag: Flag::Blend,
+            on: false
+        }
+    );
     press(&mut h, Key::E);
-    h.get_by_label("note (E; Enter records)").type_text("two lines, one blue");
+    h.get_by_label("note (E; Enter records)")
+        .type_text("two lines, one blue");
     h.run_steps(2);
     press(&mut h, Key::Enter);
     assert_eq!(
         last_change(&log),
-        Change::Note { text: "two lines, one blue".into() }
+        Change::Note {
+            text: "two lines, one blue".into()
+        }
     );
     assert!(events(&log).iter().all(|e| e.object_id == id));
     // While the note field had the keyboard, letters did not act as keys.
@@ -161,18 +183,28 @@ fn class_confidence_flag_and_note_by_mouse() {
     let mut h = harness(&log);
     h.get_by_label("star").click();
     h.run_steps(2);
-    assert_eq!(last_change(&log), Change::Class { class: VerdictClass::Star });
+    assert_eq!(
+        last_change(&log),
+        Change::Class {
+            class: VerdictClass::Star
+        }
+    );
     h.get_by_label("tentative").click();
     h.run_steps(2);
     assert_eq!(
         last_change(&log),
-        Change::Confidence { confidence: Confidence::Tentative }
+        Change::Confidence {
+            confidence: Confidence::Tentative
+        }
     );
     h.get_by_label("sky residual").click();
     h.run_steps(2);
     assert_eq!(
         last_change(&log),
-        Change::Flag { flag: Flag::SkyResidual, on: true }
+        Change::Flag {
+            flag: Flag::SkyResidual,
+            on: true
+        }
     );
     h.get_by_label("note (E; Enter records)").click();
     h.run_steps(1);
@@ -180,7 +212,12 @@ fn class_confidence_flag_and_note_by_mouse() {
     h.run_steps(2);
     h.get_by_label("save note").click();
     h.run_steps(2);
-    assert_eq!(last_change(&log), Change::Note { text: "sky at 5579".into() });
+    assert_eq!(
+        last_change(&log),
+        Change::Note {
+            text: "sky at 5579".into()
+        }
+    );
     let v = h.state().current_verdict().unwrap().clone();
     assert_eq!(v.class, Some(VerdictClass::Star));
     assert!(v.flags.contains(&Flag::SkyResidual));
@@ -252,11 +289,16 @@ fn typing_a_redshift() {
     h.run_steps(2);
     assert_eq!(
         last_change(&log),
-        Change::Redshift { z: 0.51234, z_err: None, source: ZSource::Typed }
+        Change::Redshift {
+            z: 0.51234,
+            z_err: None,
+            source: ZSource::Typed
+        }
     );
     // Nonsense is refused with a message, nothing recorded.
     let n = events(&log).len();
-    h.state_mut().apply(zvet::ui::action::Action::TypeZ("banana".into()));
+    h.state_mut()
+        .apply(zvet::ui::action::Action::TypeZ("banana".into()));
     h.run_steps(2);
     assert_eq!(events(&log).len(), n);
     h.get_by_label_contains("'banana' is not a number");
@@ -268,15 +310,24 @@ fn undo_and_redo() {
     let mut h = harness(&log);
     press(&mut h, Key::G);
     press(&mut h, Key::S);
-    assert_eq!(h.state().current_verdict().unwrap().class, Some(VerdictClass::Star));
+    assert_eq!(
+        h.state().current_verdict().unwrap().class,
+        Some(VerdictClass::Star)
+    );
     h.key_press_modifiers(egui::Modifiers::COMMAND, Key::Z);
     h.run_steps(2);
     assert_eq!(last_change(&log), Change::Undo);
-    assert_eq!(h.state().current_verdict().unwrap().class, Some(VerdictClass::Galaxy));
+    assert_eq!(
+        h.state().current_verdict().unwrap().class,
+        Some(VerdictClass::Galaxy)
+    );
     h.get_by_label("redo").click();
     h.run_steps(2);
     assert_eq!(last_change(&log), Change::Redo);
-    assert_eq!(h.state().current_verdict().unwrap().class, Some(VerdictClass::Star));
+    assert_eq!(
+        h.state().current_verdict().unwrap().class,
+        Some(VerdictClass::Star)
+    );
 }
 
 #[test]
@@ -353,4 +404,19 @@ fn errors_show_in_the_window_and_nothing_crashes() {
     assert!(m.is_error, "{m:?}");
     assert_eq!(h.state().state.objects.len(), N, "the open survey is kept");
     h.get_by_label(&m.text);
+}
+
+#[test]
+fn letters_typed_right_after_e_go_into_the_note() {
+    let (_d, log) = log_path("race");
+    let mut h = harness(&log);
+    h.key_press(Key::E);
+    h.step();
+    // The very next frame carries a letter that is also a class key.
+    h.key_press(Key::S);
+    h.event(egui::Event::Text("s".into()));
+    h.step();
+    h.run_steps(1);
+    assert!(events(&log).is_empty(), "no class was set: {:?}", events(&log));
+    assert_eq!(h.state().state.note_text, "s");
 }

@@ -2,9 +2,9 @@
 mod support;
 
 mod fit;
+#[cfg(feature = "gui")]
+mod gui;
 mod io;
 mod records;
 mod review;
 mod smoke;
-#[cfg(feature = "gui")]
-mod gui;

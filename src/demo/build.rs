@@ -48,7 +48,14 @@ fn galaxy(z: f64, young: f64, old: f64, rng: &mut impl Rng) -> Model {
     let tilt = Normal::new(0.0, 0.12).map(|d| d.sample(rng)).unwrap_or(0.0);
     let mut components = vec![
         part(Galaxy, "galaxy-old", Absorption, old, z, tilt),
-        part(Galaxy, "galaxy-intermediate", Absorption, rng.random_range(0.0..0.3), z, tilt),
+        part(
+            Galaxy,
+            "galaxy-intermediate",
+            Absorption,
+            rng.random_range(0.0..0.3),
+            z,
+            tilt,
+        ),
     ];
     if young > 0.0 {
         components.push(part(Galaxy, "galaxy-young", Emission, young, z, tilt));
@@ -70,8 +77,22 @@ fn quasar(z: f64, rng: &mut impl Rng) -> Model {
     Model {
         components: vec![
             part(Quasar, "qso-continuum", Emission, 1.0, z, tilt),
-            part(Quasar, "qso-uv-lines", Emission, rng.random_range(0.6..1.4), z, tilt),
-            part(Quasar, "qso-balmer", Emission, rng.random_range(0.6..1.4), z, tilt),
+            part(
+                Quasar,
+                "qso-uv-lines",
+                Emission,
+                rng.random_range(0.6..1.4),
+                z,
+                tilt,
+            ),
+            part(
+                Quasar,
+                "qso-balmer",
+                Emission,
+                rng.random_range(0.6..1.4),
+                z,
+                tilt,
+            ),
             part(Quasar, "qso-red", Emission, rng.random_range(0.0..0.3), z, tilt),
         ],
         trough_z: Some(z),
@@ -107,7 +128,13 @@ fn normal(kind: DemoKind, ordinal: usize, rng: &mut impl Rng) -> (Model, ObjectC
         DemoKind::StarForming => {
             let z = rng.random_range(0.02..0.9);
             let m = galaxy(z, rng.random_range(0.6..1.4), rng.random_range(0.1..0.6), rng);
-            (m, ObjectClass::Galaxy, z, "star-forming galaxy".into(), rng.random_range(18.0..21.8))
+            (
+                m,
+                ObjectClass::Galaxy,
+                z,
+                "star-forming galaxy".into(),
+                rng.random_range(18.0..21.8),
+            )
         }
         DemoKind::HighZGalaxy => {
             let z = rng.random_range(1.0..1.6);
@@ -140,13 +167,25 @@ fn normal(kind: DemoKind, ordinal: usize, rng: &mut impl Rng) -> (Model, ObjectC
             let k = ordinal % n;
             let z = rng.random_range(-250.0..250.0) / C_KMS;
             let note = format!("star ({})", star_template_name(k));
-            (star(k, z), ObjectClass::Star, z, note, rng.random_range(15.5..21.0))
+            (
+                star(k, z),
+                ObjectClass::Star,
+                z,
+                note,
+                rng.random_range(15.5..21.0),
+            )
         }
         // Passive, and the base of anything else.
         _ => {
             let z = rng.random_range(0.05..0.75);
             let m = galaxy(z, 0.0, 1.0, rng);
-            (m, ObjectClass::Galaxy, z, "passive galaxy".into(), rng.random_range(17.5..21.5))
+            (
+                m,
+                ObjectClass::Galaxy,
+                z,
+                "passive galaxy".into(),
+                rng.random_range(17.5..21.5),
+            )
         }
     }
 }
@@ -175,7 +214,13 @@ pub fn object(
             let base = any_base(rng);
             let (m, c, z, n, r) = normal(base, ordinal, rng);
             if kind == DemoKind::LowSignal {
-                (m, Some(c), z, format!("{n}, very faint"), rng.random_range(22.8..23.6))
+                (
+                    m,
+                    Some(c),
+                    z,
+                    format!("{n}, very faint"),
+                    rng.random_range(22.8..23.6),
+                )
             } else {
                 (m, Some(c), z, format!("{n}, with sky residuals"), r)
             }
@@ -184,13 +229,25 @@ pub fn object(
         DemoKind::Blend => blend(rng),
         DemoKind::DeadFibre => {
             let (m, _, _, _, r) = normal(DemoKind::Passive, ordinal, rng);
-            (m, None, 0.0, "dead fibre: no light reached the spectrograph".into(), r)
+            (
+                m,
+                None,
+                0.0,
+                "dead fibre: no light reached the spectrograph".into(),
+                r,
+            )
         }
         DemoKind::Catastrophic => {
             let z = rng.random_range(0.4..0.8);
             let m = galaxy(z, 0.0, 1.0, rng);
             let note = "faint passive galaxy; two unmasked cosmic rays and an arm step mislead the fit";
-            (m, Some(ObjectClass::Galaxy), z, note.into(), rng.random_range(22.0..22.5))
+            (
+                m,
+                Some(ObjectClass::Galaxy),
+                z,
+                note.into(),
+                rng.random_range(22.0..22.5),
+            )
         }
         _ => {
             let (m, c, z, n, r) = normal(kind, ordinal, rng);
@@ -300,7 +357,10 @@ fn blend(rng: &mut impl Rng) -> (Model, Option<ObjectClass>, f64, String, f64) {
         scale: 1.0,
         ..Default::default()
     };
-    let note = format!("galaxy at z {z:.3} blended with a foreground {}", star_template_name(k));
+    let note = format!(
+        "galaxy at z {z:.3} blended with a foreground {}",
+        star_template_name(k)
+    );
     (m, Some(ObjectClass::Galaxy), z, note, 0.0)
 }
 

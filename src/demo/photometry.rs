@@ -106,9 +106,8 @@ pub fn classify(truth: Option<ObjectClass>, z: f64, rng: &mut impl Rng) -> (Obje
     } else {
         rng.random_range(0.60..0.995)
     };
-    let gauss = |s: f64, rng: &mut dyn rand::RngCore| {
-        Normal::new(0.0, s).map(|d| d.sample(rng)).unwrap_or(0.0)
-    };
+    let gauss =
+        |s: f64, rng: &mut dyn rand::RngCore| Normal::new(0.0, s).map(|d| d.sample(rng)).unwrap_or(0.0);
     let phot_z = match (class, class == truth) {
         (Star, _) => 0.0,
         (Galaxy, true) if rng.random::<f64>() < 0.05 => rng.random_range(0.0..1.5),

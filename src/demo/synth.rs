@@ -72,7 +72,9 @@ impl Model {
         let mut f = self.constant;
         for c in &self.components {
             let Some(group) = set.class(c.class) else { continue };
-            let Some(t) = group.templates.get(c.template) else { continue };
+            let Some(t) = group.templates.get(c.template) else {
+                continue;
+            };
             let rest = lam / (1.0 + c.z);
             if let Some(v) = t.at(rest) {
                 f += c.weight * v * (rest / 5000.0).powf(c.tilt);
@@ -128,9 +130,7 @@ pub fn template_of(class: ObjectClass, name: &str, kind: TemplateKind) -> usize 
 
 /// Number of templates of `class`.
 pub fn template_count(class: ObjectClass) -> usize {
-    templates::builtin()
-        .class(class)
-        .map_or(0, |g| g.templates.len())
+    templates::builtin().class(class).map_or(0, |g| g.templates.len())
 }
 
 /// Relative sky brightness at each pixel (sum of Gaussian sky lines, σ 2 Å).

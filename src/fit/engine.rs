@@ -241,11 +241,7 @@ impl Engine {
             .collect())
     }
 
-    fn fit_ranges(
-        &self,
-        s: &Spectrum,
-        ranges: &[(ObjectClass, (i64, i64))],
-    ) -> Result<FitResult, FitError> {
+    fn fit_ranges(&self, s: &Spectrum, ranges: &[(ObjectClass, (i64, i64))]) -> Result<FitResult, FitError> {
         let dll = self.config.dloglam;
         let prep = self.prepare(s)?;
         let mut data = DataCache::default();
@@ -306,9 +302,10 @@ impl Engine {
         cands.sort_by(|a, b| a.0.chi2.total_cmp(&b.0.chi2));
         let (best, best_min, best_tmean) = cands[0].clone();
         let min_sep_v = self.config.min_separation_kms;
-        let runner = cands.iter().skip(1).find(|(c, _, _)| {
-            c.class != best.class || velocity_sep_kms(c.z, best.z) >= min_sep_v
-        });
+        let runner = cands
+            .iter()
+            .skip(1)
+            .find(|(c, _, _)| c.class != best.class || velocity_sep_kms(c.z, best.z) >= min_sep_v);
         let delta_chi2 = runner.map_or(f64::MAX, |(c, _, _)| c.chi2 - best.chi2);
         let n_good = prep.n_good();
         let n_par = self.units[best_min.unit].k() + prep.j();

@@ -152,7 +152,11 @@ pub fn measure_list(s: &Spectrum, z: f64, class: ObjectClass, list: &[(&str, f64
             sig_lim: (smin, smax),
             vmax: 0.5 * half_kms,
         };
-        let simplex = vec![vec![0.0, s0.ln()], vec![0.3 * s0, s0.ln()], vec![0.0, (1.8 * s0).ln()]];
+        let simplex = vec![
+            vec![0.0, s0.ln()],
+            vec![0.3 * s0, s0.ln()],
+            vec![0.0, (1.8 * s0).ln()],
+        ];
         let Ok(nm) = NelderMead::new(simplex).with_sd_tolerance(1e-6) else {
             continue;
         };
@@ -178,7 +182,11 @@ pub fn measure_list(s: &Spectrum, z: f64, class: ObjectClass, list: &[(&str, f64
         let flux = amp * norm;
         let flux_err = amp_err * norm;
         let cont = fit.coef[0] + fit.coef[1] * (mu - obs) / obs;
-        let ew_rest = if cont > 0.0 { flux / (cont * (1.0 + z)) } else { 0.0 };
+        let ew_rest = if cont > 0.0 {
+            flux / (cont * (1.0 + z))
+        } else {
+            0.0
+        };
         if !(flux.is_finite() && flux_err.is_finite()) {
             continue;
         }

@@ -65,7 +65,9 @@ pub fn simulate(set: &TemplateSet, spec: &SimSpec, rng: &mut impl Rng) -> Option
     let tilt = rng.random_range(-spec.max_tilt..=spec.max_tilt);
     let n = spec.n.max(2);
     let (l0, l1) = spec.lam;
-    let wave: Vec<f64> = (0..n).map(|i| l0 + (l1 - l0) * i as f64 / (n - 1) as f64).collect();
+    let wave: Vec<f64> = (0..n)
+        .map(|i| l0 + (l1 - l0) * i as f64 / (n - 1) as f64)
+        .collect();
     let mid = 0.5 * (l0 + l1);
     let half = 0.5 * (l1 - l0);
     let mut clean = Vec::with_capacity(n);

@@ -93,9 +93,8 @@ fn sample(t: &Template, lo: i64, hi: i64, dll: f64) -> Vec<f64> {
 fn class_units(ct: &ClassTemplates, dll: f64) -> Result<Vec<Unit>, FitError> {
     let mut spans = Vec::new();
     for t in &ct.templates {
-        let s = span(t, dll).ok_or_else(|| {
-            FitError::BadTemplates(format!("template '{}' has no usable pixels", t.name))
-        })?;
+        let s = span(t, dll)
+            .ok_or_else(|| FitError::BadTemplates(format!("template '{}' has no usable pixels", t.name)))?;
         spans.push(s);
     }
     match ct.mode {
@@ -136,11 +135,7 @@ fn class_units(ct: &ClassTemplates, dll: f64) -> Result<Vec<Unit>, FitError> {
 }
 
 /// All units for the configured classes (classes missing from the set are skipped).
-pub fn build_units(
-    set: &TemplateSet,
-    classes: &[ObjectClass],
-    dll: f64,
-) -> Result<Vec<Unit>, FitError> {
+pub fn build_units(set: &TemplateSet, classes: &[ObjectClass], dll: f64) -> Result<Vec<Unit>, FitError> {
     let mut out = Vec::new();
     for &c in classes {
         if let Some(ct) = set.class(c) {

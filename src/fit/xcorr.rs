@@ -92,7 +92,11 @@ fn running_median(x: &[f64], use_px: &[bool], window: usize) -> Vec<f64> {
             k += 1;
         }
         // linear between nodes, extrapolated from the last pair at the ends
-        let j = if k + 1 < nodes.len() { k } else { k.saturating_sub(1) };
+        let j = if k + 1 < nodes.len() {
+            k
+        } else {
+            k.saturating_sub(1)
+        };
         let (a, va) = nodes[j];
         *o = match nodes.get(j + 1) {
             Some(&(b, vb)) => va + (vb - va) * (p as f64 - a as f64) / (b as f64 - a as f64),
@@ -161,7 +165,12 @@ fn xcorr_prepared(e: &Engine, prep: &Prepared, kind: Option<TemplateKind>) -> Ve
         for u in e.units().iter().filter(|u| u.class == class) {
             let m = u.m();
             let len = super::fast::nice_len(n + m - 1);
-            let gh: Vec<Complex<f64>> = e.cache().forward_real(&g, len).into_iter().map(|c| c.conj()).collect();
+            let gh: Vec<Complex<f64>> = e
+                .cache()
+                .forward_real(&g, len)
+                .into_iter()
+                .map(|c| c.conj())
+                .collect();
             for a in 0..u.k() {
                 if kind.is_some_and(|k| k != u.kinds[a]) {
                     continue;
@@ -221,7 +230,11 @@ fn xcorr_prepared(e: &Engine, prep: &Prepared, kind: Option<TemplateKind>) -> Ve
                         sa += a1 * a1;
                     }
                     let sigma_a = (sa / (2.0 * kmax as f64)).sqrt();
-                    let r = if sigma_a > 0.0 { h / (std::f64::consts::SQRT_2 * sigma_a) } else { 0.0 };
+                    let r = if sigma_a > 0.0 {
+                        h / (std::f64::consts::SQRT_2 * sigma_a)
+                    } else {
+                        0.0
+                    };
                     let shift = s0 as f64 + d;
                     let z = 10f64.powf(shift * dll) - 1.0;
                     let err_px = 3.0 * w / (8.0 * (1.0 + r));
@@ -290,9 +303,10 @@ pub fn fit(e: &Engine, s: &Spectrum) -> Result<FitResult, FitError> {
     let Some(best) = cands.first().cloned() else {
         return Err(FitError::NoCoverage);
     };
-    let runner = cands.iter().skip(1).find(|c| {
-        c.class != best.class || velocity_sep_kms(c.z, best.z) >= e.config().min_separation_kms
-    });
+    let runner = cands
+        .iter()
+        .skip(1)
+        .find(|c| c.class != best.class || velocity_sep_kms(c.z, best.z) >= e.config().min_separation_kms);
     let delta_chi2 = runner.map_or(f64::MAX, |c| c.chi2 - best.chi2);
     let n_good = prep.n_good();
     let chi2_reduced = best.chi2 / n_good.saturating_sub(k_best + prep.j()).max(1) as f64;
@@ -341,6 +355,10 @@ mod tests {
     fn flatten_removes_a_smooth_continuum() {
         let x: Vec<f64> = (0..2000).map(|i| 5.0 + 0.001 * i as f64).collect();
         let f = flatten(&x, &vec![true; 2000]);
-        assert!(f.iter().all(|v| v.abs() < 1e-6), "max {}", f.iter().fold(0.0f64, |a, b| a.max(b.abs())));
+        assert!(
+            f.iter().all(|v| v.abs() < 1e-6),
+            "max {}",
+            f.iter().fold(0.0f64, |a, b| a.max(b.abs()))
+        );
     }
 }

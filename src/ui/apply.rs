@@ -116,13 +116,14 @@ impl ZvetApp {
             Action::Escape => {
                 self.state.help_open = false;
                 self.state.flag_chord = false;
+                if self.log.is_some() {
+                    self.state.name_prompt = None;
+                }
             }
             Action::Focus(f) => self.state.focus = Some(f),
             Action::FlagChord => self.state.flag_chord = true,
             Action::SetInspector(name) => self.set_inspector(&name),
-            Action::AskInspector => {
-                self.state.name_prompt = Some(self.inspector.clone().unwrap_or_default())
-            }
+            Action::AskInspector => self.state.name_prompt = Some(self.inspector.clone().unwrap_or_default()),
             Action::Open(kind, paths) => self.loads.open(kind, paths),
             Action::Browse(kind) => self.loads.browse(kind),
         }
@@ -137,7 +138,8 @@ impl ZvetApp {
         let seen = self.fit_seen();
         let id = self.state.objects[index].id().to_string();
         let Some(log) = self.log.as_mut() else {
-            self.state.say("enter your name first (the review log is per inspector)", true);
+            self.state
+                .say("enter your name first (the review log is per inspector)", true);
             self.state.name_prompt.get_or_insert_with(String::new);
             return;
         };
@@ -188,12 +190,7 @@ impl ZvetApp {
     /// Show candidate `k` of the listed fit.
     fn preview(&mut self, k: usize) {
         let from_refit = self.state.refit.is_some();
-        let Some(c) = self
-            .state
-            .listed_fit()
-            .and_then(|f| f.candidates.get(k))
-            .cloned()
-        else {
+        let Some(c) = self.state.listed_fit().and_then(|f| f.candidates.get(k)).cloned() else {
             return;
         };
         let source = match (from_refit, k) {
@@ -268,8 +265,14 @@ impl ZvetApp {
                         true,
                     );
                 }
-                self.state
-                    .say(format!("review log: {} ({} reviewed)", path.display(), log.reviewed_count()), false);
+                self.state.say(
+                    format!(
+                        "review log: {} ({} reviewed)",
+                        path.display(),
+                        log.reviewed_count()
+                    ),
+                    false,
+                );
                 self.log = Some(log);
                 self.inspector = Some(name.to_string());
                 self.state.name_prompt = None;
@@ -283,8 +286,10 @@ impl ZvetApp {
                 self.state.sync_texts(v.as_ref());
             }
             Err(e) => {
-                self.state
-                    .say(format!("could not open the review log {}: {e}", path.display()), true);
+                self.state.say(
+                    format!("could not open the review log {}: {e}", path.display()),
+                    true,
+                );
                 self.state.name_prompt = Some(name.to_string());
             }
         }

@@ -12,12 +12,18 @@ use crate::review::{Confidence, Flag, VerdictClass};
 
 /// (keys, what they do) for the help overlay, in reading order.
 pub const KEYS: &[(&str, &str)] = &[
-    ("Space", "accept the shown class and z (confidence: as set, else solid)"),
+    (
+        "Space",
+        "accept the shown class and z (confidence: as set, else solid)",
+    ),
     ("N  or  ↓", "next object in the list"),
     ("B  or  ↑", "previous object in the list"),
     ("G  Q  S  U", "class: galaxy, quasar, star, unclear"),
     ("1  2  3  4", "confidence: doubtful, tentative, solid, certain"),
-    ("F then 1–6", "flag: low signal, sky residual, blend, artefact, broad absorption, wrong target"),
+    (
+        "F then 1–6",
+        "flag: low signal, sky residual, blend, artefact, broad absorption, wrong target",
+    ),
     ("C  /  Shift+C", "show the next / previous candidate"),
     (",  /  .", "nudge the shown z down / up by 0.001·(1+z)"),
     ("R", "refit near the shown z (or click in the χ²(z) plot)"),
@@ -35,7 +41,8 @@ pub const KEYS: &[(&str, &str)] = &[
 
 /// Read this frame's key presses into `out`.
 pub fn read(ctx: &egui::Context, state: &AppState, out: &mut Vec<Action>) {
-    if ctx.egui_wants_keyboard_input() || state.name_prompt.is_some() {
+    // A text field has (or is about to get) the keyboard: keys are text.
+    if ctx.egui_wants_keyboard_input() || state.name_prompt.is_some() || state.focus.is_some() {
         return;
     }
     ctx.input_mut(|i| {

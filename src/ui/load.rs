@@ -133,9 +133,7 @@ impl Loads {
                     .pick_file()
                     .into_iter()
                     .collect(),
-                OpenKind::Templates | OpenKind::Campaign => {
-                    dialog.pick_folder().into_iter().collect()
-                }
+                OpenKind::Templates | OpenKind::Campaign => dialog.pick_folder().into_iter().collect(),
             };
             if picked.is_empty() {
                 Loaded::Failed(

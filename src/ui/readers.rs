@@ -115,11 +115,7 @@ pub fn read_campaign(path: &Path) -> Loaded {
     }
     if let (Some(cat), Some(settings)) = (campaign.catalog_path(), m.catalog.as_ref()) {
         let mut map = crate::catalog::ColumnMap::default();
-        let overrides: Vec<String> = settings
-            .columns
-            .iter()
-            .map(|(k, v)| format!("{k}={v}"))
-            .collect();
+        let overrides: Vec<String> = settings.columns.iter().map(|(k, v)| format!("{k}={v}")).collect();
         let rows = map
             .apply_overrides(&overrides)
             .map_err(|e| e.to_string())
@@ -209,7 +205,8 @@ impl ZvetApp {
                 self.state.refit = None;
                 self.restart_fits();
                 self.rebuild_queue();
-                self.state.say(format!("template set '{name}': refitting every object"), false);
+                self.state
+                    .say(format!("template set '{name}': refitting every object"), false);
             }
         }
     }
@@ -240,6 +237,9 @@ impl ZvetApp {
         self.rebuild_queue();
         if let Some(&first) = self.state.order.first() {
             self.select(first);
+        }
+        for a in std::mem::take(&mut self.after_load) {
+            self.apply(a);
         }
     }
 }

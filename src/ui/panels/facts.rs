@@ -59,7 +59,9 @@ pub fn ui(ui: &mut egui::Ui, state: &AppState) {
                 }
             });
             let class = row.phot_class.map_or("—".to_string(), |c| {
-                let prob = row.phot_class_prob.map_or(String::new(), |p| format!(" (p = {p:.2})"));
+                let prob = row
+                    .phot_class_prob
+                    .map_or(String::new(), |p| format!(" (p = {p:.2})"));
                 format!("{c}{prob}")
             });
             let colour = row
