@@ -405,3 +405,61 @@ fn errors_show_in_the_window_and_nothing_crashes() {
     assert_eq!(h.state().state.objects.len(), N, "the open survey is kept");
     h.get_by_label(&m.text);
 }
+
+#[test]
+fn letters_typed_right_after_e_go_into_the_note() {
+    let (_d, log) = log_path("race");
+    let mut h = harness(&log);
+    h.key_press(Key::E);
+    h.step();
+    // The very next frame carries a letter that is also a class key.
+    h.key_press(Key::S);
+    h.event(egui::Event::Text("s".into()));
+    h.step();
+    h.run_steps(1);
+    assert!(events(&log).is_empty(), "no class was set: {:?}", events(&log));
+    assert_eq!(h.state().state.note_text, "s");
+}
+
+#[test]
+fn opening_a_campaign_folder_reads_spectra_catalogue_and_uses_its_logs() {
+    let (dir, log) = log_path("campaign");
+    let data = dir.path().join("data");
+    let w = demo::write_survey(&demo::generate_n(5, 4), &data).unwrap();
+    let camp = dir.path().join("camp");
+    zvet::campaign::Campaign::init(
+        &camp,
+        &zvet::campaign::InitOptions {
+            name: Some("tidal flats".into()),
+            spectra: vec![w.spectra.clone()],
+            catalog: Some(w.catalog.clone()),
+            ..Default::default()
+        },
+    )
+    .unwrap();
+    let mut h = harness(&log);
+    h.state_mut().apply(zvet::ui::action::Action::Open(
+        zvet::ui::action::OpenKind::Campaign,
+        vec![camp.clone()],
+    ));
+    for _ in 0..400 {
+        h.run_steps(1);
+        if h.state().state.title == "tidal flats" {
+            break;
+        }
+        std::thread::sleep(std::time::Duration::from_millis(20));
+    }
+    let s = &h.state().state;
+    assert_eq!(s.title, "tidal flats");
+    assert_eq!(s.objects.len(), 4);
+    assert!(s.objects.iter().all(|o| o.catalog.is_some()), "catalogue joined");
+    press(&mut h, Key::U);
+    let camp_log = camp.join("reviews").join("tester.jsonl");
+    assert_eq!(
+        last_change(&camp_log),
+        Change::Class {
+            class: VerdictClass::Unclear
+        }
+    );
+    assert!(events(&log).is_empty(), "the demo's log was left alone");
+}

@@ -209,7 +209,7 @@ pub fn object(
     rng: &mut impl Rng,
 ) -> (SurveyObject, DemoTruth) {
     let id = format!("TERN-{:04}", index + 1);
-    let (mut model, class, z, mut note, r) = match kind {
+    let (mut model, class, z, note, r) = match kind {
         DemoKind::LowSignal | DemoKind::SkyResidual => {
             let base = any_base(rng);
             let (m, c, z, n, r) = normal(base, ordinal, rng);
@@ -268,9 +268,6 @@ pub fn object(
     }
     let (mut flux, mut ivar, mut good) = synth::observe(&model, wave, sky, NOISE_FLOOR, rng);
     defects(kind, wave, &mut flux, &mut ivar, &mut good, rng);
-    if kind == DemoKind::Catastrophic {
-        note.push_str(" (truth kept in the demo truth table)");
-    }
     let (ra, dec) = position(rng);
     let observed = photometry::observe(true_mag, rng);
     let (pc, prob, pz, wrong) = photometry::classify(class, z, rng);

@@ -90,8 +90,7 @@ pub fn kinds(seed: u64) -> Vec<DemoKind> {
     v.shuffle(&mut rng);
     // The hard cases go near the front, so a short demo (tests) still has them
     // and a person meets them early: swap each first occurrence into the first 40.
-    let mut slot = 1;
-    for k in [
+    for (slot, k) in [
         DemoKind::SingleLine,
         DemoKind::Blend,
         DemoKind::DeadFibre,
@@ -99,13 +98,16 @@ pub fn kinds(seed: u64) -> Vec<DemoKind> {
         DemoKind::BroadAbsorptionQuasar,
         DemoKind::SkyResidual,
         DemoKind::LowSignal,
-    ] {
+    ]
+    .into_iter()
+    .enumerate()
+    {
+        let slot = (slot + 1) * 5;
         if let Some(p) = v.iter().position(|x| *x == k) {
-            if p > slot * 5 {
-                v.swap(p, slot * 5);
+            if p > slot {
+                v.swap(p, slot);
             }
         }
-        slot += 1;
     }
     v
 }

@@ -72,6 +72,9 @@ pub struct ZvetApp {
     pub(crate) loads: Loads,
     pub(crate) inspector: Option<String>,
     pub(crate) name_file: Option<PathBuf>,
+    /// Actions to apply once the next spectra or campaign load is in
+    /// (e.g. a catalogue given on the command line with the spectra).
+    pub(crate) after_load: Vec<super::action::Action>,
     prepared: Option<(PrepKey, Prepared)>,
 }
 
@@ -99,6 +102,7 @@ impl ZvetApp {
             loads: Loads::new(),
             inspector: None,
             name_file,
+            after_load: Vec::new(),
             prepared: None,
         };
         app.restart_fits();
@@ -111,6 +115,11 @@ impl ZvetApp {
             app.select(first);
         }
         app
+    }
+
+    /// Apply `action` after the next spectra or campaign load has arrived.
+    pub fn after_load(&mut self, action: super::action::Action) {
+        self.after_load.push(action);
     }
 
     /// The open review log, once the inspector is known.
@@ -196,12 +205,13 @@ impl ZvetApp {
             });
         egui::CentralPanel::default().show(ui, |ui| {
             let h = ui.available_height();
-            panels::spectrum::ui(ui, &mut self.state, prepared, h * 0.5, &mut actions);
-            panels::closeups::ui(ui, &self.state, prepared, h * 0.2);
-            panels::chi2::ui(ui, &self.state, verdict, &mut actions);
+            panels::spectrum::ui(ui, &mut self.state, prepared, h * 0.44, &mut actions);
+            panels::closeups::ui(ui, &self.state, prepared, h * 0.17);
+            panels::chi2::ui(ui, &self.state, h * 0.2, &mut actions);
         });
         panels::help::ui(&ctx, &mut self.state);
-        panels::inspector::ui(&ctx, &mut self.state, &mut actions);
+        let has_log = self.log.is_some();
+        panels::inspector::ui(&ctx, &mut self.state, has_log, &mut actions);
         for a in actions {
             self.apply(a);
         }

@@ -116,6 +116,9 @@ impl ZvetApp {
             Action::Escape => {
                 self.state.help_open = false;
                 self.state.flag_chord = false;
+                if self.log.is_some() {
+                    self.state.name_prompt = None;
+                }
             }
             Action::Focus(f) => self.state.focus = Some(f),
             Action::FlagChord => self.state.flag_chord = true,

@@ -229,3 +229,110 @@ fn worker(
         }
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::fit::{Candidate, FitResult, Warnings};
+    use std::time::{Duration, Instant};
+
+    /// A stand-in engine: the "fit" puts z = the spectrum's first flux value.
+    struct Echo;
+
+    fn result(s: &Spectrum, z: f64) -> FitResult {
+        FitResult {
+            object_id: s.meta.id.clone(),
+            candidates: vec![Candidate {
+                class: ObjectClass::Galaxy,
+                template: "echo".into(),
+                z,
+                z_err: 0.0,
+                chi2: 1.0,
+                coeffs: vec![],
+            }],
+            delta_chi2: 1.0,
+            chi2_reduced: 1.0,
+            n_good: s.n_good(),
+            snr_median: 1.0,
+            warnings: Warnings::default(),
+            curves: vec![],
+            lines: vec![],
+        }
+    }
+
+    impl Fitter for Echo {
+        fn fit(&self, s: &Spectrum) -> Result<FitResult, String> {
+            if s.flux()[0] < 0.0 {
+                panic!("a bad spectrum");
+            }
+            Ok(result(s, s.flux()[0]))
+        }
+        fn refit_near(
+            &self,
+            s: &Spectrum,
+            z: f64,
+            _class: Option<ObjectClass>,
+            _hw: f64,
+        ) -> Result<FitResult, String> {
+            Ok(result(s, z))
+        }
+        fn model(&self, s: &Spectrum, _c: &Candidate) -> Vec<f64> {
+            vec![0.0; s.len()]
+        }
+    }
+
+    fn objects(values: &[f64]) -> Arc<Vec<SurveyObject>> {
+        Arc::new(
+            values
+                .iter()
+                .enumerate()
+                .map(|(i, &v)| SurveyObject {
+                    spectrum: Spectrum::new(
+                        vec![1.0, 2.0],
+                        vec![v, v],
+                        None,
+                        None,
+                        crate::spectrum::SpectrumMeta {
+                            id: format!("o{i}"),
+                            ..Default::default()
+                        },
+                    )
+                    .unwrap(),
+                    catalog: None,
+                    fit: None,
+                })
+                .collect(),
+        )
+    }
+
+    fn collect(jobs: &Jobs, want: usize) -> Vec<JobDone> {
+        let start = Instant::now();
+        let mut out = Vec::new();
+        while out.len() < want && start.elapsed() < Duration::from_secs(30) {
+            out.extend(jobs.poll());
+            std::thread::sleep(Duration::from_millis(5));
+        }
+        out
+    }
+
+    #[test]
+    fn every_object_is_fitted_and_a_panic_becomes_an_error() {
+        let jobs = Jobs::start(Arc::new(Echo), objects(&[0.1, -1.0, 0.3]), vec![0, 1, 2]);
+        let mut done = collect(&jobs, 3);
+        done.sort_by_key(|d| d.index);
+        assert_eq!(done.len(), 3);
+        assert!((done[0].result.as_ref().unwrap().candidates[0].z - 0.1).abs() < 1e-12);
+        assert!(done[1].result.is_err());
+        assert_eq!(jobs.progress(), (3, 3));
+        assert!(!jobs.busy());
+    }
+
+    #[test]
+    fn refits_come_back_with_their_window_centre() {
+        let jobs = Jobs::start(Arc::new(Echo), objects(&[0.1]), vec![]);
+        jobs.refit(0, 1.25, None);
+        let done = collect(&jobs, 1);
+        assert!(matches!(done[0].kind, JobKind::RefitNear { .. }));
+        assert!((done[0].result.as_ref().unwrap().candidates[0].z - 1.25).abs() < 1e-12);
+    }
+}

@@ -41,7 +41,8 @@ pub const KEYS: &[(&str, &str)] = &[
 
 /// Read this frame's key presses into `out`.
 pub fn read(ctx: &egui::Context, state: &AppState, out: &mut Vec<Action>) {
-    if ctx.egui_wants_keyboard_input() || state.name_prompt.is_some() {
+    // A text field has (or is about to get) the keyboard: keys are text.
+    if ctx.egui_wants_keyboard_input() || state.name_prompt.is_some() || state.focus.is_some() {
         return;
     }
     ctx.input_mut(|i| {

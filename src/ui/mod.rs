@@ -98,7 +98,12 @@ pub fn run(opts: LaunchOptions) -> anyhow::Result<ExitCode> {
                 app.apply(action::Action::Open(action::OpenKind::Spectra, opts.spectra));
             }
             if let Some(cat) = opts.catalog {
-                app.apply(action::Action::Open(action::OpenKind::Catalog, vec![cat]));
+                let open = action::Action::Open(action::OpenKind::Catalog, vec![cat]);
+                if wants_files {
+                    app.after_load(open);
+                } else {
+                    app.apply(open);
+                }
             }
             Ok(Box::new(app))
         }),

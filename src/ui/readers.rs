@@ -132,6 +132,16 @@ pub fn read_campaign(path: &Path) -> Loaded {
             Err(e) => problems.push(format!("{}: {e}", cat.display())),
         }
     }
+    // Cached automatic fits are used as they are; the rest are fitted in the background.
+    match campaign.load_fits() {
+        Ok((fits, fit_problems)) => {
+            problems.extend(fit_problems);
+            for o in &mut objects {
+                o.fit = fits.get(o.id()).cloned();
+            }
+        }
+        Err(e) => problems.push(e.to_string()),
+    }
     let log = campaign.review_log_path("x");
     let log_folder = log
         .parent()
@@ -237,6 +247,9 @@ impl ZvetApp {
         self.rebuild_queue();
         if let Some(&first) = self.state.order.first() {
             self.select(first);
+        }
+        for a in std::mem::take(&mut self.after_load) {
+            self.apply(a);
         }
     }
 }

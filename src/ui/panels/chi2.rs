@@ -1,23 +1,23 @@
 /*!
 χ²(z) for each class (one small plot per class, Δχ² to the best solution over
 all classes) with the candidates marked, and the candidate list. Clicking a
-plot asks for a refit near the clicked z; a candidate's "show" button previews
-it (model, markers and close-ups move), "accept" records it.
+candidate's marker (or its "show" button) previews it — model, markers and
+close-ups move; clicking elsewhere in a plot asks for a refit near that z;
+"accept" records a candidate.
 */
 use egui::RichText;
 use egui_plot::{Line, MarkerShape, Plot, Points};
 
 use crate::fit::FitResult;
-use crate::review::Verdict;
 use crate::ui::action::Action;
 use crate::ui::state::AppState;
 use crate::ObjectClass;
 
-/// Draw the χ²(z) plots and the candidate list.
-pub fn ui(ui: &mut egui::Ui, state: &AppState, _verdict: Option<&Verdict>, out: &mut Vec<Action>) {
+/// Draw the χ²(z) plots (`height` points tall) and, below, the candidate list.
+pub fn ui(ui: &mut egui::Ui, state: &AppState, height: f32, out: &mut Vec<Action>) {
     ui.horizontal(|ui| {
         ui.label(RichText::new("χ²(z)").strong());
-        ui.weak("click a plot to refit near that z");
+        ui.weak("click a marker to preview it, elsewhere to refit near that z");
         if state.refit.is_some() {
             ui.colored_label(super::WARN, "showing a refit");
         }
@@ -31,8 +31,7 @@ pub fn ui(ui: &mut egui::Ui, state: &AppState, _verdict: Option<&Verdict>, out: 
         .into_iter()
         .filter(|c| fit.curves.iter().any(|k| k.class == *c))
         .collect();
-    let list_h = 22.0 * (fit.candidates.len().min(6) as f32 + 1.0);
-    let h = (ui.available_height() - list_h - 10.0).max(80.0);
+    let h = height.max(80.0);
     let n = classes.len().max(1) as f32;
     let w = (ui.available_width() - ui.spacing().item_spacing.x * (n - 1.0)) / n;
     ui.horizontal(|ui| {
@@ -88,14 +87,27 @@ fn class_plot(
             if let Some(s) = state.shown.as_ref().filter(|s| s.class() == class) {
                 pui.vline(egui_plot::VLine::new("shown", s.z()).color(super::MODEL));
             }
-            pui.pointer_coordinate()
+            (pui.pointer_coordinate(), pui.plot_bounds().width())
         });
     if resp.response.clicked() {
-        if let Some(p) = resp.inner {
-            out.push(Action::RefitNear {
-                z: p.x,
-                class: Some(class),
-            });
+        if let (Some(p), width) = resp.inner {
+            // A click on (or next to) a candidate's marker previews it;
+            // anywhere else asks for a refit near the clicked z.
+            let near = fit
+                .candidates
+                .iter()
+                .enumerate()
+                .filter(|(_, c)| c.class == class)
+                .map(|(k, c)| (k, (c.z - p.x).abs()))
+                .filter(|(_, d)| *d <= 0.015 * width)
+                .min_by(|a, b| a.1.total_cmp(&b.1));
+            match near {
+                Some((k, _)) => out.push(Action::Preview(k)),
+                None => out.push(Action::RefitNear {
+                    z: p.x,
+                    class: Some(class),
+                }),
+            }
         }
     }
 }

@@ -26,7 +26,7 @@ pub fn ui(ctx: &egui::Context, state: &mut AppState) {
                 }
             });
             ui.add_space(4.0);
-            ui.weak("Mouse: drag to pan, scroll to zoom, double-click to reset; click the χ²(z) plot to refit near that z. Drop files or folders on the window to open them.");
+            ui.weak("Mouse: drag to pan, scroll to zoom, double-click to reset; click a candidate marker in the χ²(z) plots to preview it, elsewhere to refit near that z. Drop files or folders on the window to open them.");
         });
     if !open {
         state.help_open = false;

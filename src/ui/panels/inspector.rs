@@ -8,7 +8,8 @@ use crate::ui::action::Action;
 use crate::ui::state::AppState;
 
 /// Draw the dialog when it is open.
-pub fn ui(ctx: &egui::Context, state: &mut AppState, out: &mut Vec<Action>) {
+/// `has_log`: an inspector is already set, so the dialog may be cancelled.
+pub fn ui(ctx: &egui::Context, state: &mut AppState, has_log: bool, out: &mut Vec<Action>) {
     let Some(text) = state.name_prompt.as_mut() else {
         return;
     };
@@ -21,8 +22,13 @@ pub fn ui(ctx: &egui::Context, state: &mut AppState, out: &mut Vec<Action>) {
             .labelled_by(l.id);
         r.request_focus();
         let entered = ui.input(|i| i.key_pressed(Key::Enter));
-        if (ui.button("start reviewing").clicked() || entered) && !text.trim().is_empty() {
-            out.push(Action::SetInspector(text.trim().to_string()));
-        }
+        ui.horizontal(|ui| {
+            if (ui.button("start reviewing").clicked() || entered) && !text.trim().is_empty() {
+                out.push(Action::SetInspector(text.trim().to_string()));
+            }
+            if has_log && ui.button("cancel").clicked() {
+                out.push(Action::Escape);
+            }
+        });
     });
 }

@@ -5,15 +5,22 @@ markers labelled at the shown z, sky lines dotted; observed or rest-frame axis;
 mouse zoom/pan from the plot, key zoom/pan from [`PlotMove`].
 */
 use egui::{Align2, RichText};
-use egui_plot::{FilledArea, Legend, Line, LineStyle, Plot, PlotPoint, Span, Text, VLine};
+use egui_plot::{
+    FilledArea, Legend, Line, LineStyle, MarkerShape, Plot, PlotPoint, Points, Span, Text, VLine,
+};
 
 use crate::lines::LineKind;
 use crate::ui::action::Action;
 use crate::ui::state::{AppState, PlotMove};
 use crate::ui::view::Prepared;
 
+/// Lines weaker than this get no marker at all.
+const MARK_STRENGTH: f64 = 0.3;
 /// Lines weaker than this get a marker but no label (keeps labels readable).
-const LABEL_STRENGTH: f64 = 0.45;
+const LABEL_STRENGTH: f64 = 0.5;
+/// A label closer than this fraction of λ to the previous one is dropped
+/// (doublet members and their centroid would print on top of each other).
+const LABEL_GAP: f64 = 0.006;
 
 /// Draw the spectrum panel, `height` points tall.
 pub fn ui(
@@ -93,15 +100,23 @@ pub fn ui(
                     .border_width(0.0),
             );
         }
-        if state.view.show_sky {
+        if state.view.show_sky && !p.sky.is_empty() {
+            // Sky lines: a faint dotted line and a tick along the bottom.
             for &x in &p.sky {
                 pui.vline(
                     VLine::new("sky lines", x)
-                        .color(super::SKY)
+                        .color(super::SKY.gamma_multiply(0.6))
                         .width(1.0)
-                        .style(LineStyle::dotted_dense()),
+                        .style(LineStyle::dotted_loose()),
                 );
             }
+            let ticks: Vec<[f64; 2]> = p.sky.iter().map(|&x| [x, y0 + 0.03 * (y1 - y0)]).collect();
+            pui.points(
+                Points::new("sky lines", ticks)
+                    .shape(MarkerShape::Up)
+                    .radius(4.0)
+                    .color(super::SKY),
+            );
         }
         pui.add(FilledArea::new("1σ", &p.x, &p.lo, &p.hi).fill_color(super::FLUX.gamma_multiply(0.22)));
         let pts: Vec<[f64; 2]> = p.x.iter().zip(&p.flux).map(|(x, y)| [*x, *y]).collect();
@@ -111,18 +126,20 @@ pub fn ui(
         }
         let top = y1 - 0.02 * (y1 - y0);
         let mut labelled = 0usize;
-        for m in &p.lines {
+        let mut last_label = f64::NEG_INFINITY;
+        for m in p.lines.iter().filter(|m| m.strength >= MARK_STRENGTH) {
             let (name, colour, style) = match m.kind {
                 LineKind::Emission => ("emission lines", super::EMISSION, LineStyle::Solid),
                 _ => ("absorption lines", super::ABSORPTION, LineStyle::dashed_dense()),
             };
             pui.vline(
                 VLine::new(name, m.x)
-                    .color(colour.gamma_multiply(0.8))
+                    .color(colour.gamma_multiply(0.55))
                     .width(1.0)
                     .style(style),
             );
-            if m.strength >= LABEL_STRENGTH {
+            if m.strength >= LABEL_STRENGTH && (m.x - last_label) > LABEL_GAP * m.x {
+                last_label = m.x;
                 // Stagger labels on three heights so neighbours do not overlap.
                 let y = top - (labelled % 3) as f64 * 0.06 * (y1 - y0);
                 labelled += 1;

@@ -94,13 +94,20 @@ pub fn ui(
 
     ui.horizontal(|ui| {
         let l = ui.label("redshift");
-        let r = ui
-            .add(TextEdit::singleline(&mut state.z_text).desired_width(90.0))
-            .labelled_by(l.id);
+        let z_id = egui::Id::unique("zvet-z-field");
+        // Focus before the field is drawn, so keys typed in this very frame
+        // already go into it.
         if state.focus == Some(FocusRequest::Redshift) {
-            r.request_focus();
+            ui.memory_mut(|m| m.request_focus(z_id));
             state.focus = None;
         }
+        let r = ui
+            .add(
+                TextEdit::singleline(&mut state.z_text)
+                    .id(z_id)
+                    .desired_width(90.0),
+            )
+            .labelled_by(l.id);
         let entered = r.lost_focus() && ui.input(|i| i.key_pressed(Key::Enter));
         if ui.button("set z").clicked() || entered {
             out.push(Action::TypeZ(state.z_text.clone()));
@@ -158,17 +165,19 @@ pub fn ui(
     });
 
     let l = ui.label("note (E; Enter records)");
+    let note_id = egui::Id::unique("zvet-note-field");
+    if state.focus == Some(FocusRequest::Note) {
+        ui.memory_mut(|m| m.request_focus(note_id));
+        state.focus = None;
+    }
     let r = ui
         .add(
             TextEdit::singleline(&mut state.note_text)
+                .id(note_id)
                 .hint_text("what you saw")
                 .desired_width(f32::INFINITY),
         )
         .labelled_by(l.id);
-    if state.focus == Some(FocusRequest::Note) {
-        r.request_focus();
-        state.focus = None;
-    }
     let entered = r.lost_focus() && ui.input(|i| i.key_pressed(Key::Enter));
     let stored = verdict.map_or("", |v| v.note.as_str());
     ui.horizontal(|ui| {
