@@ -288,7 +288,6 @@ pub fn read_fits(path: &Path) -> Result<(Vec<ExportRow>, Provenance), ExportErro
         mask_sky: i(&mut f, "MASKSKY")? != 0,
         nonnegative: i(&mut f, "NONNEG")? != 0,
         method: s(&mut f, "ZMETHOD")?,
-        nonnegative: i(&mut f, "NONNEG")? != 0,
     };
     let minconf = s(&mut f, "MINCONF")?;
     let min_confidence = match minconf.as_str() {
