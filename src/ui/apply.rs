@@ -154,11 +154,7 @@ impl ZvetApp {
 
     /// What the engine showed: the automatic best solution.
     fn fit_seen(&self) -> Option<FitSeen> {
-        self.state.current_fit().and_then(|f| f.best()).map(|c| FitSeen {
-            class: c.class,
-            z: c.z,
-            chi2: c.chi2,
-        })
+        self.state.current_fit().and_then(FitSeen::of)
     }
 
     /// Accept the shown class and z with the verdict's confidence (or the default).
