@@ -406,19 +406,44 @@ fn errors_show_in_the_window_and_nothing_crashes() {
     h.get_by_label(&m.text);
 }
 
+/// Key press and its character in one frame, as a real keyboard delivers
+/// them (kittest's `key_press` spreads events over frames).
+fn key_and_text(key: Key, text: &str) -> [egui::Event; 3] {
+    let k = |pressed| egui::Event::Key {
+        key,
+        pressed,
+        modifiers: egui::Modifiers::NONE,
+        repeat: false,
+        physical_key: None,
+    };
+    [k(true), egui::Event::Text(text.into()), k(false)]
+}
+
 #[test]
 fn letters_typed_right_after_e_go_into_the_note() {
     let (_d, log) = log_path("race");
     let mut h = harness(&log);
-    h.key_press(Key::E);
+    h.input_mut().events.extend(key_and_text(Key::E, "e"));
     h.step();
     // The very next frame carries a letter that is also a class key.
-    h.key_press(Key::S);
-    h.event(egui::Event::Text("s".into()));
+    h.input_mut().events.extend(key_and_text(Key::S, "s"));
     h.step();
     h.run_steps(1);
     assert!(events(&log).is_empty(), "no class was set: {:?}", events(&log));
     assert_eq!(h.state().state.note_text, "s");
+}
+
+#[test]
+fn letters_typed_in_the_same_frame_as_e_go_into_the_note() {
+    let (_d, log) = log_path("race_same_frame");
+    let mut h = harness(&log);
+    for (key, text) in [(Key::E, "e"), (Key::S, "s"), (Key::Q, "q")] {
+        h.input_mut().events.extend(key_and_text(key, text));
+    }
+    h.step();
+    h.run_steps(2);
+    assert!(events(&log).is_empty(), "no class was set: {:?}", events(&log));
+    assert_eq!(h.state().state.note_text, "sq");
 }
 
 #[test]

@@ -39,11 +39,56 @@ pub const KEYS: &[(&str, &str)] = &[
     ("Esc", "close help, leave a text field"),
 ];
 
+/// The id of the text field a focus request names (shared with the verdict panel).
+pub fn field_id(f: FocusRequest) -> egui::Id {
+    match f {
+        FocusRequest::Redshift => egui::Id::unique("zvet-z-field"),
+        FocusRequest::Note => egui::Id::unique("zvet-note-field"),
+    }
+}
+
+/// If `key` was pressed, give its text field the keyboard now — so letters
+/// typed in the same frame already go into the field — and drop the key's own
+/// character. True when it happened.
+fn focus_on(ctx: &egui::Context, key: Key, letter: &str, field: FocusRequest) -> bool {
+    let hit = ctx.input_mut(|i| {
+        if !i.consume_key(Modifiers::NONE, key) {
+            return false;
+        }
+        if let Some(p) = i
+            .events
+            .iter()
+            .position(|e| matches!(e, egui::Event::Text(t) if t.eq_ignore_ascii_case(letter)))
+        {
+            i.events.remove(p);
+        }
+        true
+    });
+    if hit {
+        ctx.memory_mut(|m| m.request_focus(field_id(field)));
+    }
+    hit
+}
+
 /// Read this frame's key presses into `out`.
 pub fn read(ctx: &egui::Context, state: &AppState, out: &mut Vec<Action>) {
     // A text field has (or is about to get) the keyboard: keys are text.
     if ctx.egui_wants_keyboard_input() || state.name_prompt.is_some() || state.focus.is_some() {
         return;
+    }
+    // Fields first: everything typed after `E` or `Z` in this frame is text.
+    for (key, letter, field) in [
+        (Key::E, "e", FocusRequest::Note),
+        (Key::Z, "z", FocusRequest::Redshift),
+    ] {
+        // Ctrl+Z is undo, not the redshift field.
+        if key == Key::Z && ctx.input(|i| i.modifiers.command) {
+            continue;
+        }
+        if focus_on(ctx, key, letter, field) {
+            out.push(Action::Focus(field));
+            return;
+        }
     }
     ctx.input_mut(|i| {
         let mut take = |m: Modifiers, k: Key| i.consume_key(m, k);
@@ -108,12 +153,6 @@ pub fn read(ctx: &egui::Context, state: &AppState, out: &mut Vec<Action>) {
         }
         if take(none, Key::R) {
             out.push(Action::RefitShown);
-        }
-        if take(none, Key::Z) {
-            out.push(Action::Focus(FocusRequest::Redshift));
-        }
-        if take(none, Key::E) {
-            out.push(Action::Focus(FocusRequest::Note));
         }
         if take(none, Key::O) {
             out.push(Action::ToggleRestFrame);

@@ -94,7 +94,7 @@ pub fn ui(
 
     ui.horizontal(|ui| {
         let l = ui.label("redshift");
-        let z_id = egui::Id::unique("zvet-z-field");
+        let z_id = crate::ui::keys::field_id(FocusRequest::Redshift);
         // Focus before the field is drawn, so keys typed in this very frame
         // already go into it.
         if state.focus == Some(FocusRequest::Redshift) {
@@ -165,7 +165,7 @@ pub fn ui(
     });
 
     let l = ui.label("note (E; Enter records)");
-    let note_id = egui::Id::unique("zvet-note-field");
+    let note_id = crate::ui::keys::field_id(FocusRequest::Note);
     if state.focus == Some(FocusRequest::Note) {
         ui.memory_mut(|m| m.request_focus(note_id));
         state.focus = None;
