@@ -488,3 +488,31 @@ fn opening_a_campaign_folder_reads_spectra_catalogue_and_uses_its_logs() {
     );
     assert!(events(&log).is_empty(), "the demo's log was left alone");
 }
+
+#[test]
+fn typing_a_redshift_from_the_keyboard_replaces_the_old_one() {
+    let (_d, log) = log_path("typed_keys");
+    let mut h = harness(&log);
+    assert!(!h.state().state.z_text.is_empty(), "the field shows the fit's z");
+    h.input_mut().events.extend(key_and_text(Key::Z, "z"));
+    h.step();
+    h.input_mut().events.push(egui::Event::Text("1.234".into()));
+    h.step();
+    h.input_mut().events.push(egui::Event::Key {
+        key: Key::Enter,
+        pressed: true,
+        modifiers: egui::Modifiers::NONE,
+        repeat: false,
+        physical_key: None,
+    });
+    h.step();
+    h.run_steps(2);
+    assert_eq!(
+        last_change(&log),
+        Change::Redshift {
+            z: 1.234,
+            z_err: None,
+            source: ZSource::Typed
+        }
+    );
+}

@@ -50,7 +50,8 @@ pub fn field_id(f: FocusRequest) -> egui::Id {
 /// If `key` was pressed, give its text field the keyboard now — so letters
 /// typed in the same frame already go into the field — and drop the key's own
 /// character. True when it happened.
-fn focus_on(ctx: &egui::Context, key: Key, letter: &str, field: FocusRequest) -> bool {
+/// `current`: the field's text now (the redshift field's is selected).
+fn focus_on(ctx: &egui::Context, key: Key, letter: &str, field: FocusRequest, current: &str) -> bool {
     let hit = ctx.input_mut(|i| {
         if !i.consume_key(Modifiers::NONE, key) {
             return false;
@@ -65,7 +66,15 @@ fn focus_on(ctx: &egui::Context, key: Key, letter: &str, field: FocusRequest) ->
         true
     });
     if hit {
-        ctx.memory_mut(|m| m.request_focus(field_id(field)));
+        let id = field_id(field);
+        ctx.memory_mut(|m| m.request_focus(id));
+        if field == FocusRequest::Redshift {
+            // Select the old z so that typing replaces it.
+            let mut te = egui::text_edit::TextEditState::load(ctx, id).unwrap_or_default();
+            te.cursor
+                .set_char_range(Some(egui::text::CCursorRange::select_all_str(current)));
+            te.store(ctx, id);
+        }
     }
     hit
 }
@@ -85,7 +94,7 @@ pub fn read(ctx: &egui::Context, state: &AppState, out: &mut Vec<Action>) {
         if key == Key::Z && ctx.input(|i| i.modifiers.command) {
             continue;
         }
-        if focus_on(ctx, key, letter, field) {
+        if focus_on(ctx, key, letter, field, &state.z_text) {
             out.push(Action::Focus(field));
             return;
         }
