@@ -261,14 +261,8 @@ impl ZvetApp {
                         true,
                     );
                 }
-                self.state.say(
-                    format!(
-                        "review log: {} ({} reviewed)",
-                        path.display(),
-                        log.reviewed_count()
-                    ),
-                    false,
-                );
+                self.state
+                    .say(format!("{name} reviews into {}", path.display()), false);
                 self.log = Some(log);
                 self.inspector = Some(name.to_string());
                 self.state.name_prompt = None;
