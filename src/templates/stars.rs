@@ -1,6 +1,9 @@
 /*!
 Stellar templates: a spectral sequence from hot to cool stars plus a hydrogen
-white dwarf, built from a Planck continuum and optical-depth profiles.
+white dwarf. The continuum is that of a Milne–Eddington atmosphere (the Planck
+function at the depth where each wavelength's optical depth is 2/3, see
+[`continuum`]) with hydrogen bound-free and grey opacities; lines and bands are
+optical-depth profiles on top.
 
 Every ingredient follows the textbook behaviour of the sequence (from memory,
 common practice in spectral classification):
