@@ -56,6 +56,11 @@ pub const SEQUENCE: &[StarType] = &[
         white_dwarf: false,
     },
     StarType {
+        name: "star-A2",
+        teff: 9_000.0,
+        white_dwarf: false,
+    },
+    StarType {
         name: "star-A5",
         teff: 8_200.0,
         white_dwarf: false,
