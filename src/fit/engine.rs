@@ -10,6 +10,8 @@ that χ² at every trial z and for every class is summed over the same pixels
 and can be compared directly (where a template does not reach, only the
 polynomial is left to fit and χ² grows).
 */
+// Index loops here mirror the sums of the normal equations term by term.
+#![allow(clippy::needless_range_loop)]
 use super::config::{FitConfig, FitError, Method};
 use super::fast::{self, CorrPlan, DataCache, FftCache};
 use super::prep::{legendre, Prepared};
@@ -100,7 +102,7 @@ impl Engine {
             )));
         }
         let reach = reach(&units, &config);
-        if !(reach.1 > reach.0) {
+        if reach.1.is_nan() || reach.0.is_nan() || reach.1 <= reach.0 {
             return Err(FitError::BadTemplates(
                 "the classes' templates share no observed wavelength range".into(),
             ));
@@ -195,7 +197,7 @@ impl Engine {
         };
         let k = unit.k();
         let j = self.config.poly_terms;
-        if c.coeffs.len() != k + j || !(c.z > -1.0) {
+        if c.coeffs.len() != k + j || c.z.is_nan() || c.z <= -1.0 {
             return nanv;
         }
         let w = s.wave();

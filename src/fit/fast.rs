@@ -18,6 +18,8 @@ without wrap-around for every overlapping lag −n < c < m. Template
 transforms are cached per (unit, L) in the engine; two real correlations
 share one complex inverse FFT (real and imaginary part).
 */
+// Index loops here mirror the sums of the normal equations term by term.
+#![allow(clippy::needless_range_loop)]
 use super::prep::{solve_normal, Prepared};
 use super::reference::thresholds;
 use super::units::Unit;
@@ -49,6 +51,9 @@ pub fn nice_len(min: usize) -> usize {
     best
 }
 
+/// FFT plans by (length, forward).
+type PlanMap = HashMap<(usize, bool), Arc<dyn Fft<f64>>>;
+
 /// Transforms of one unit's templates and their pairwise products at one L.
 struct UnitTransforms {
     t: Vec<Vec<C>>,
@@ -58,7 +63,7 @@ struct UnitTransforms {
 /// FFT plans and cached template transforms (shared by all threads).
 #[derive(Default)]
 pub struct FftCache {
-    plans: Mutex<HashMap<(usize, bool), Arc<dyn Fft<f64>>>>,
+    plans: Mutex<PlanMap>,
     planner: Mutex<Option<FftPlanner<f64>>>,
     units: RwLock<HashMap<(usize, usize), Arc<UnitTransforms>>>,
 }

@@ -12,6 +12,8 @@ Nelder–Mead on that profiled χ². Flux = amplitude · √(2π) σ_λ, its err
 from the covariance of the linear solve, the rest-frame equivalent width =
 flux / (continuum at the centre · (1+z)) (positive for emission).
 */
+// Index loops here mirror the sums of the normal equations term by term.
+#![allow(clippy::needless_range_loop)]
 use super::engine::{Engine, C_KMS};
 use super::prep::{solve_normal, Prepared};
 use super::result::{Candidate, LineMeasurement};

@@ -3,6 +3,8 @@ A spectrum made ready for the engine: resampled onto the log10 λ grid, noise
 scaled for correlated pixels, and the Legendre polynomials of the continuum
 evaluated with their redshift-independent normal-equation sums.
 */
+// Index loops here mirror the sums of the normal equations term by term.
+#![allow(clippy::needless_range_loop)]
 use super::config::FitError;
 use crate::spectrum::{LogGrid, Spectrum};
 use nalgebra::{DMatrix, DVector};
@@ -65,7 +67,7 @@ impl Prepared {
         let w = s.wave();
         let lo = w[0].max(lam.0);
         let hi = w[w.len() - 1].min(lam.1);
-        if !(hi > lo) {
+        if hi.is_nan() || lo.is_nan() || hi <= lo {
             return Err(FitError::NoCoverage);
         }
         let grid = crate::spectrum::LogGrid::covering(lo, hi, dll);

@@ -8,6 +8,8 @@ coverage, the same column-activity rule and the same solver); at fractional
 shifts it is the cost function of the refinement, with the templates
 interpolated in log λ.
 */
+// Index loops here mirror the sums of the normal equations term by term.
+#![allow(clippy::needless_range_loop)]
 use super::prep::{solve_constrained, Prepared};
 use super::units::Unit;
 

@@ -4,6 +4,8 @@ on χ² with the templates interpolated in log λ (cubic convolution;
 [`super::reference::sums_fit`], the same χ² as the direct path), and σ_z from
 the curvature of χ² at the minimum (Δχ² = 1).
 */
+// Index loops here mirror the sums of the normal equations term by term.
+#![allow(clippy::needless_range_loop)]
 use super::prep::Prepared;
 use super::reference::{sums_fit as direct_fit, DirectFit};
 use super::units::Unit;

@@ -15,6 +15,8 @@ with h the peak height. The shift error is 3w / (8(1 + r)) pixels (the form
 given by Tonry & Davis and used by later cross-correlation codes; from
 memory), converted to redshift with dz = ln 10 · Δ · (1+z).
 */
+// Index loops here mirror the sums of the normal equations term by term.
+#![allow(clippy::needless_range_loop)]
 use super::config::FitError;
 use super::engine::{shift_range, velocity_sep_kms, Engine};
 use super::prep::Prepared;
