@@ -2,7 +2,11 @@
 mod support;
 
 mod fit;
+#[cfg(feature = "gui")]
+mod gui;
 mod io;
+mod lines;
 mod records;
 mod review;
 mod smoke;
+mod templates;

@@ -1,20 +1,25 @@
-//! Records: agreement statistics against scikit-learn, campaign folders,
-//! merge, export round trips (CSV, FITS, astropy-recorded values) and the report.
-use approx::assert_relative_eq;
+//! Records: agreement statistics against scikit-learn ([`agreement`]), the
+//! training-catalogue export ([`export`]), campaign folders with merge,
+//! report and command line ([`campaign`], built on [`scenario`]).
 use serde_json::Value;
 use std::path::Path;
-use zvet::review::merge::CLASSES;
-use zvet::review::stats::{cohen_kappa, confusion_matrix};
 use zvet::review::VerdictClass;
 
-fn data(name: &str) -> Value {
+mod agreement;
+mod campaign;
+mod export;
+mod scenario;
+
+/// A recorded reference file of tests/data/records/.
+pub fn data(name: &str) -> Value {
     let p = Path::new(env!("CARGO_MANIFEST_DIR"))
         .join("tests/data/records")
         .join(name);
     serde_json::from_str(&std::fs::read_to_string(&p).unwrap()).unwrap()
 }
 
-fn strings(v: &Value) -> Vec<String> {
+/// A JSON array of strings.
+pub fn strings(v: &Value) -> Vec<String> {
     v.as_array()
         .unwrap()
         .iter()
@@ -22,260 +27,7 @@ fn strings(v: &Value) -> Vec<String> {
         .collect()
 }
 
-fn class(s: &str) -> VerdictClass {
+/// A class from its lower-case name.
+pub fn class(s: &str) -> VerdictClass {
     serde_json::from_value(Value::String(s.into())).unwrap()
-}
-
-/// κ against scikit-learn's `cohen_kappa_score` on fixed label lists recorded
-/// by tests/scripts/sklearn_reference.py (scikit-learn 1.9.1).
-#[test]
-fn kappa_matches_scikit_learn() {
-    let r = data("sklearn_reference.json");
-    let cases = r["kappa"].as_array().unwrap();
-    assert!(cases.len() >= 5);
-    for c in cases {
-        let (a, b) = (strings(&c["a"]), strings(&c["b"]));
-        let want = c["kappa"].as_f64().unwrap();
-        let got = cohen_kappa(&a, &b).unwrap();
-        assert_relative_eq!(got, want, epsilon = 1e-12);
-    }
-}
-
-/// Confusion matrices against scikit-learn's `confusion_matrix` (rows truth,
-/// columns prediction, labels galaxy/quasar/star/unclear), recorded by
-/// tests/scripts/sklearn_reference.py.
-#[test]
-fn confusion_matrix_matches_scikit_learn() {
-    let r = data("sklearn_reference.json");
-    for c in r["confusion"].as_array().unwrap() {
-        let truth: Vec<VerdictClass> = strings(&c["truth"]).iter().map(|s| class(s)).collect();
-        let pred: Vec<VerdictClass> = strings(&c["pred"]).iter().map(|s| class(s)).collect();
-        let labels: Vec<VerdictClass> = strings(&c["labels"]).iter().map(|s| class(s)).collect();
-        assert_eq!(labels, CLASSES.to_vec());
-        let want: Vec<Vec<usize>> = serde_json::from_value(c["matrix"].clone()).unwrap();
-        assert_eq!(confusion_matrix(&truth, &pred, &labels), want);
-    }
-}
-
-// ------------------------------------------------------------------ export
-
-use crate::support;
-use chrono::TimeZone;
-use std::collections::BTreeSet;
-use zvet::campaign::EngineSettings;
-use zvet::export::{self, ExportRow, Provenance, COLUMNS};
-use zvet::review::merge::ConsensusState;
-use zvet::review::{Confidence, Flag, ZSource};
-use zvet::ObjectClass;
-
-/// Fixed rows with the awkward cases: missing values, non-ASCII text,
-/// separators and quotes in notes, a newline, every consensus state.
-pub fn sample_rows() -> Vec<ExportRow> {
-    let base = ExportRow {
-        id: "obj-0001".into(),
-        ra: Some(150.123456789012),
-        dec: Some(-2.5),
-        mag: [Some(21.03), Some(20.11), Some(19.72), Some(19.5), Some(19.41)],
-        mag_err: [Some(0.08), Some(0.02), Some(0.015), Some(0.02), Some(0.05)],
-        phot_class: Some(ObjectClass::Galaxy),
-        phot_class_prob: Some(0.93),
-        phot_z: Some(0.31),
-        auto_class: Some(ObjectClass::Galaxy),
-        auto_z: Some(0.3123456789),
-        auto_z_err: Some(1.2e-4),
-        auto_delta_chi2: Some(812.5),
-        auto_warnings: String::new(),
-        vetted_class: zvet::review::VerdictClass::Galaxy,
-        vetted_z: Some(0.3123456789),
-        vetted_z_err: Some(1.2e-4),
-        z_source: Some(ZSource::Automatic),
-        confidence: Some(Confidence::Certain),
-        flags: BTreeSet::new(),
-        note: String::new(),
-        inspectors: vec!["ana".into()],
-        consensus: ConsensusState::Single,
-    };
-    let mut r2 = base.clone();
-    r2.id = "obj-0002".into();
-    r2.mag = [None, Some(22.4), Some(21.9), Some(21.0), None];
-    r2.mag_err = [None, Some(0.1), Some(0.08), Some(0.05), None];
-    r2.phot_class = Some(ObjectClass::Star);
-    r2.auto_class = Some(ObjectClass::Quasar);
-    r2.auto_z = Some(2.2);
-    r2.auto_delta_chi2 = None;
-    r2.auto_warnings = "ambiguous|at_grid_edge".into();
-    r2.vetted_class = zvet::review::VerdictClass::Quasar;
-    r2.vetted_z = Some(2.2051);
-    r2.z_source = Some(ZSource::Typed);
-    r2.confidence = Some(Confidence::Solid);
-    r2.flags = [Flag::BroadAbsorption, Flag::SkyResidual].into_iter().collect();
-    r2.note = "C IV, C III] and Mg II; Lyα forest, \"BAL\"\nsecond line, λ 1549 Å".into();
-    r2.inspectors = vec!["ana".into(), "ben".into()];
-    r2.consensus = ConsensusState::Agreed;
-    let mut r3 = base.clone();
-    r3.id = "obj-0003".into();
-    r3.ra = None;
-    r3.dec = None;
-    r3.mag = [None; 5];
-    r3.mag_err = [None; 5];
-    r3.phot_class = None;
-    r3.phot_class_prob = None;
-    r3.phot_z = None;
-    r3.auto_class = None;
-    r3.auto_z = None;
-    r3.auto_z_err = None;
-    r3.auto_delta_chi2 = None;
-    r3.vetted_class = zvet::review::VerdictClass::Unclear;
-    r3.vetted_z = None;
-    r3.vetted_z_err = None;
-    r3.z_source = None;
-    r3.confidence = None;
-    r3.flags = [Flag::LowSignal].into_iter().collect();
-    r3.note = "back\\slash, comma".into();
-    r3.inspectors = vec!["ana".into(), "ben".into(), "judge".into()];
-    r3.consensus = ConsensusState::Adjudicated;
-    let mut r4 = base;
-    r4.id = "obj-0004".into();
-    r4.vetted_class = zvet::review::VerdictClass::Star;
-    r4.vetted_z = Some(-0.000123);
-    r4.z_source = Some(ZSource::Refit);
-    r4.confidence = Some(Confidence::Doubtful);
-    vec![r4.clone(), r2, r3, {
-        r4.id = "obj-0000".into();
-        r4
-    }]
-}
-
-pub fn sample_provenance() -> Provenance {
-    Provenance {
-        zvet_version: "0.1.0".into(),
-        campaign: "test campaign".into(),
-        template_set: "builtin".into(),
-        engine: EngineSettings::default(),
-        date: chrono::Utc.with_ymd_and_hms(2026, 12, 2, 0, 30, 0).unwrap(),
-        tolerance: 0.0015,
-        min_confidence: Some(Confidence::Doubtful),
-        exclude_flags: vec![Flag::WrongTarget, Flag::Artefact],
-    }
-}
-
-#[test]
-fn export_csv_round_trip() {
-    let dir = support::scratch("export_csv");
-    let p = dir.join("cat.csv");
-    let rows = sample_rows();
-    export::write(&p, &rows, &sample_provenance()).unwrap();
-    let (back, prov) = export::read(&p).unwrap();
-    assert_eq!(back, rows);
-    assert_eq!(prov, sample_provenance());
-    let text = std::fs::read_to_string(&p).unwrap();
-    assert!(text.starts_with("# format: zvet training catalogue\n"));
-    assert!(text.contains("# template_set: builtin\n"));
-    // The colour columns are the magnitude differences.
-    let mut rd = csv::ReaderBuilder::new()
-        .comment(Some(b'#'))
-        .from_reader(text.as_bytes());
-    let hdr = rd.headers().unwrap().clone();
-    let col = |n: &str| hdr.iter().position(|h| h == n).unwrap();
-    let first = rd.records().next().unwrap().unwrap();
-    let ug: f64 = first[col("u_g")].parse().unwrap();
-    assert_relative_eq!(ug, 21.03 - 20.11, epsilon = 1e-12);
-}
-
-#[test]
-fn export_fits_round_trip() {
-    let dir = support::scratch("export_fits");
-    let p = dir.join("cat.fits");
-    let rows = sample_rows();
-    export::write(&p, &rows, &sample_provenance()).unwrap();
-    let (back, prov) = export::read(&p).unwrap();
-    assert_eq!(back, rows);
-    assert_eq!(prov, sample_provenance());
-    // Rewriting replaces the file (atomic rename; fitsio alone would refuse).
-    export::write(&p, &rows[..1], &sample_provenance()).unwrap();
-    assert_eq!(export::read(&p).unwrap().0.len(), 1);
-    assert_eq!(std::fs::read_dir(&dir).unwrap().count(), 1);
-}
-
-/// Writes the sample catalogue where tests/scripts/check_export_astropy.py
-/// reads it (`target/test-scratch/astropy_export/`). Run it before the script.
-#[test]
-fn export_fixture_for_astropy() {
-    let dir = support::scratch("astropy_export");
-    export::write(&dir.join("sample.fits"), &sample_rows(), &sample_provenance()).unwrap();
-    export::write(&dir.join("sample.csv"), &sample_rows(), &sample_provenance()).unwrap();
-}
-
-#[test]
-fn export_rejects_unknown_extension() {
-    let err = export::write(Path::new("x.txt"), &[], &sample_provenance()).unwrap_err();
-    assert!(err.to_string().contains(".csv or .fits"));
-    assert_eq!(COLUMNS.len(), 36);
-}
-
-/// What astropy 8.0.2 read from our FITS and CSV export of [`sample_rows`]
-/// (recorded by tests/scripts/check_export_astropy.py into
-/// tests/data/records/astropy_export.json) equals what the current writer puts
-/// in: column names and order, types (float64 'D', int16 'I', ASCII 'A'),
-/// units, masking of missing values, values, provenance keywords.
-#[test]
-fn export_matches_astropy_view() {
-    use zvet::export::{Cell, Kind};
-    let rec = data("astropy_export.json");
-    let rows = sample_rows();
-    assert_eq!(rec["n_rows"].as_u64().unwrap() as usize, rows.len());
-    let cols = rec["columns"].as_array().unwrap();
-    assert_eq!(cols.len(), COLUMNS.len());
-    for (j, (spec, c)) in COLUMNS.iter().zip(cols).enumerate() {
-        assert_eq!(c["name"], spec.name);
-        let (kind, size) = (c["kind"].as_str().unwrap(), c["itemsize"].as_u64().unwrap());
-        match spec.kind {
-            Kind::F64 => assert_eq!((kind, size), ("f", 8), "{}", spec.name),
-            Kind::I16 => assert_eq!((kind, size), ("i", 2), "{}", spec.name),
-            Kind::Str => assert!(kind == "S" || kind == "U", "{}", spec.name),
-        }
-        assert_eq!(c["unit"].as_str(), spec.unit, "{}", spec.name);
-        let masked = c["masked"].as_array().unwrap();
-        let values = c["values"].as_array().unwrap();
-        for (i, row) in rows.iter().enumerate() {
-            let cell = &row.cells()[j];
-            match cell {
-                Cell::F64(x) => {
-                    assert_eq!(masked[i].as_bool().unwrap(), x.is_none(), "{} row {i}", spec.name);
-                    if let Some(x) = x {
-                        assert_relative_eq!(values[i].as_f64().unwrap(), *x, epsilon = 0.0);
-                    }
-                }
-                Cell::I16(x) => {
-                    assert_eq!(masked[i].as_bool().unwrap(), x.is_none(), "{} row {i}", spec.name);
-                    assert_eq!(values[i].as_i64().unwrap(), x.map_or(0, i64::from));
-                }
-                Cell::Str(s) => {
-                    assert_eq!(
-                        values[i].as_str().unwrap(),
-                        zvet::export::to_ascii(s),
-                        "{} row {i}",
-                        spec.name
-                    );
-                }
-            }
-        }
-    }
-    let h = &rec["header"];
-    let p = sample_provenance();
-    assert_eq!(h["ZVETVER"], p.zvet_version.as_str());
-    assert_eq!(h["TEMPLSET"], p.template_set.as_str());
-    assert_eq!(h["DATE"], "2026-12-02T00:30:00");
-    assert_eq!(h["MINCONF"], "doubtful");
-    assert_eq!(h["EXCLFLAG"], "wrong_target,artefact");
-    assert_relative_eq!(h["ZTOL"].as_f64().unwrap(), p.tolerance);
-    assert_relative_eq!(h["DLOGLAM"].as_f64().unwrap(), p.engine.dloglam);
-    assert_eq!(h["NPOLY"].as_u64().unwrap() as usize, p.engine.poly_terms);
-    // The CSV reads in astropy's generic CSV reader, '#' lines as comments,
-    // UTF-8 notes with quotes and newlines intact.
-    let csv = &rec["csv"];
-    let names: Vec<String> = strings(&csv["colnames"]);
-    assert_eq!(names, COLUMNS.iter().map(|c| c.name).collect::<Vec<_>>());
-    assert_eq!(csv["note"][1].as_str().unwrap(), rows[1].note);
-    assert_relative_eq!(csv["vetted_z"][1].as_f64().unwrap(), rows[1].vetted_z.unwrap());
 }

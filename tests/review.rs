@@ -262,9 +262,13 @@ fn crash_child() {
 
 /// SIGKILL a writing child at random moments; after each kill every sequence
 /// number the child reported saved is in the log, at most one more (the event
-/// being written) is there, every event's content is intact, and the log
-/// opens (lock released). `ZVET_CRASH_KILLS` sets the number of kills
-/// (default 200; e.g. 5000 for the long run).
+/// being written) is there, every event's content is intact, a write torn by
+/// the kill is at most the last line (and stays an isolated bad line after the
+/// next append), and the log opens (lock released).
+///
+/// `ZVET_CRASH_KILLS` sets the number of kills (default 200). The long run:
+/// `ZVET_CRASH_KILLS=3000 cargo test --no-default-features --test integration
+/// review::crash_test_sigkill -- --nocapture` (a few minutes).
 #[test]
 fn crash_test_sigkill() {
     let kills: usize = std::env::var("ZVET_CRASH_KILLS")
@@ -287,6 +291,7 @@ fn crash_test_sigkill() {
     let mut unreported_on_disk = 0usize;
     let mut before_ready = 0usize;
     let mut prev_max = 0u64;
+    let mut torn_lines = std::collections::BTreeSet::new();
     for round in 0..kills {
         let mut child = Command::new(&exe)
             .args(["--exact", "review::crash_child", "--ignored", "--nocapture"])
@@ -300,7 +305,7 @@ fn crash_test_sigkill() {
         // open/replay); the rest a random 0–12 ms into the writing loop (an
         // fsync takes about 2–3 ms here, so that is a few events).
         let mut saw_ready = false;
-        if rand() % 8 == 0 {
+        if round > 0 && rand() % 8 == 0 {
             std::thread::sleep(Duration::from_micros(rand() % 3000));
         } else {
             for l in lines.by_ref() {
@@ -308,6 +313,11 @@ fn crash_test_sigkill() {
                     saw_ready = true;
                     break;
                 }
+            }
+            if round == 0 {
+                // Another process holds the log: refused, naming the holder.
+                let err = ReviewLog::open(&path, "crash").unwrap_err().to_string();
+                assert!(err.contains(&format!("process {}", child.id())), "{err}");
             }
             std::thread::sleep(Duration::from_micros(rand() % 12_000));
         }
@@ -327,7 +337,34 @@ fn crash_test_sigkill() {
         reported_total += reported.len();
 
         let (events, problems) = read_log(&path).unwrap();
-        assert!(problems.is_empty(), "round {round}: {problems:?}");
+        // The only bad lines allowed: writes torn by earlier kills (now
+        // isolated lines in the middle) and at most one torn last line now.
+        // SIGKILL can cut a write() short at a page boundary (the kernel
+        // checks for fatal signals between pages), so this does happen.
+        let mut old_torn = problems.iter().filter(|p| torn_lines.contains(&p.line));
+        assert!(
+            old_torn.all(|p| p.message.contains("not a valid event")),
+            "round {round}: {problems:?}"
+        );
+        let new: Vec<_> = problems
+            .iter()
+            .filter(|p| !torn_lines.contains(&p.line))
+            .collect();
+        assert!(new.len() <= 1, "round {round}: {problems:?}");
+        if let Some(p) = new.first() {
+            assert!(p.message.contains("incomplete last line"), "round {round}: {p:?}");
+            let text = std::fs::read(&path).unwrap();
+            let tail = text.split(|&b| b == b'\n').next_back().unwrap();
+            // The torn bytes are the start of the next event, never reported.
+            let want = format!(
+                "{{\"v\":1,\"seq\":{}",
+                prev_max.max(reported.last().copied().unwrap_or(0)) + 1
+            );
+            let n = tail.len().min(want.len());
+            assert_eq!(&tail[..n], &want.as_bytes()[..n], "round {round}");
+            torn_lines.insert(p.line);
+        }
+        assert_eq!(problems.len(), torn_lines.len(), "round {round}: {problems:?}");
         let seqs: Vec<u64> = events.iter().map(|e| e.seq).collect();
         assert!(
             seqs.windows(2).all(|w| w[1] == w[0] + 1),
@@ -365,12 +402,14 @@ fn crash_test_sigkill() {
     eprintln!(
         "crash test: {kills} kills in {secs:.1} s ({:.0} kills/s), {reported_total} events \
          reported saved, {unreported_on_disk} kills left the in-flight event on disk, \
-         {before_ready} kills before the child was ready",
-        kills as f64 / secs
+         {before_ready} kills before the child was ready, {} writes torn by the kill",
+        kills as f64 / secs,
+        torn_lines.len()
     );
     // The test exercised what it claims: children wrote and were killed both
     // between events and in the middle of `record` (event on disk, not yet
     // reported).
-    assert!(reported_total >= kills / 2, "the child hardly wrote anything");
-    assert!(unreported_on_disk >= kills / 4, "few kills landed inside record");
+    // (Loose bounds: on a loaded machine the child is slower.)
+    assert!(reported_total >= kills / 10, "the child hardly wrote anything");
+    assert!(unreported_on_disk >= kills / 10, "few kills landed inside record");
 }

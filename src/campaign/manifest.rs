@@ -72,33 +72,61 @@ pub struct EngineSettings {
     pub mask_sky: bool,
     /// `chi2` or `xcorr`.
     pub method: String,
+    /// Template amplitudes constrained to be ≥ 0.
+    pub nonnegative: bool,
 }
 
 impl Default for EngineSettings {
-    /// The engine's documented defaults.
+    /// The engine's defaults.
     fn default() -> Self {
-        EngineSettings {
-            dloglam: 1e-4,
-            classes: ObjectClass::ALL.to_vec(),
-            z_galaxy: (-0.005, 1.7),
-            z_quasar: (0.05, 7.0),
-            z_star: (-0.005, 0.005),
-            poly_terms: 3,
-            n_candidates: 3,
-            min_separation_kms: 1000.0,
-            mask_sky: false,
-            method: "chi2".into(),
-        }
+        EngineSettings::from_config(&crate::fit::FitConfig::default())
     }
 }
 
 impl EngineSettings {
+    /// The engine configuration these settings describe.
+    pub fn to_config(&self) -> Result<crate::fit::FitConfig, String> {
+        Ok(crate::fit::FitConfig {
+            dloglam: self.dloglam,
+            classes: self.classes.clone(),
+            z_galaxy: self.z_galaxy,
+            z_quasar: self.z_quasar,
+            z_star: self.z_star,
+            poly_terms: self.poly_terms,
+            n_candidates: self.n_candidates,
+            min_separation_kms: self.min_separation_kms,
+            mask_sky: self.mask_sky,
+            method: self.method.parse()?,
+            nonnegative: self.nonnegative,
+        })
+    }
+
+    /// Settings describing an engine configuration.
+    pub fn from_config(c: &crate::fit::FitConfig) -> EngineSettings {
+        EngineSettings {
+            dloglam: c.dloglam,
+            classes: c.classes.clone(),
+            z_galaxy: c.z_galaxy,
+            z_quasar: c.z_quasar,
+            z_star: c.z_star,
+            poly_terms: c.poly_terms,
+            n_candidates: c.n_candidates,
+            min_separation_kms: c.min_separation_kms,
+            mask_sky: c.mask_sky,
+            method: match c.method {
+                crate::fit::Method::Chi2 => "chi2".into(),
+                crate::fit::Method::XCorr => "xcorr".into(),
+            },
+            nonnegative: c.nonnegative,
+        }
+    }
+
     /// One line for provenance headers.
     pub fn summary(&self) -> String {
         let classes: Vec<&str> = self.classes.iter().map(|c| c.as_str()).collect();
         format!(
             "method={} dloglam={} classes={} z_galaxy={}..{} z_quasar={}..{} z_star={}..{} \
-             poly_terms={} n_candidates={} min_separation_kms={} mask_sky={}",
+             poly_terms={} n_candidates={} min_separation_kms={} mask_sky={} nonnegative={}",
             self.method,
             self.dloglam,
             classes.join(","),
@@ -111,7 +139,8 @@ impl EngineSettings {
             self.poly_terms,
             self.n_candidates,
             self.min_separation_kms,
-            self.mask_sky
+            self.mask_sky,
+            self.nonnegative
         )
     }
 }

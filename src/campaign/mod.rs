@@ -13,6 +13,7 @@ Every file but the review logs is rewritten only through [`atomic_write`].
 mod atomic;
 pub mod fitcache;
 pub mod manifest;
+mod objects;
 
 pub use atomic::{atomic_create, atomic_write};
 pub use manifest::{CatalogSettings, EngineSettings, Manifest, ReadSettings, MANIFEST_FORMAT};
@@ -84,9 +85,27 @@ pub enum CampaignError {
     /// A review log failed.
     #[error(transparent)]
     Review(#[from] ReviewError),
+    /// Reading spectra failed (boxed: the reader's error is large).
+    #[error(transparent)]
+    Load(Box<crate::io::LoadError>),
+    /// Reading the catalogue failed.
+    #[error(transparent)]
+    Catalog(#[from] crate::catalog::CatalogError),
+    /// The template set could not be read.
+    #[error(transparent)]
+    Templates(#[from] crate::templates::TemplateError),
+    /// The engine could not be set up.
+    #[error("redshift engine: {0}")]
+    Fit(#[from] crate::fit::FitError),
     /// Something else, explained.
     #[error("{0}")]
     Other(String),
+}
+
+impl From<crate::io::LoadError> for CampaignError {
+    fn from(e: crate::io::LoadError) -> Self {
+        CampaignError::Load(Box::new(e))
+    }
 }
 
 fn io_err(path: &Path) -> impl FnOnce(std::io::Error) -> CampaignError + '_ {

@@ -1,13 +1,62 @@
 /*!
-`zvet export` (under construction).
+`zvet export CAMPAIGN --out FILE.{csv,fits}`: merge the logs and write the
+training catalogue, optionally only objects at or above a confidence level
+and without given flags.
 */
+use crate::campaign::Campaign;
+use crate::export::{export_campaign, ExportOptions};
+use crate::review::{Confidence, Flag};
+use std::path::PathBuf;
 use std::process::ExitCode;
 
 /// Arguments of `zvet export`.
 #[derive(Debug, clap::Args)]
-pub struct Args {}
+pub struct Args {
+    /// The campaign folder.
+    pub campaign: PathBuf,
+    /// Output file; `.csv` or `.fits` chooses the format.
+    #[arg(long, value_name = "FILE")]
+    pub out: PathBuf,
+    /// Keep only objects at or above this confidence (doubtful, tentative, solid, certain).
+    #[arg(long, value_name = "LEVEL", value_parser = parse_confidence)]
+    pub min_confidence: Option<Confidence>,
+    /// Leave out objects with any of these flags (comma-separated).
+    #[arg(long, value_name = "FLAGS", value_delimiter = ',', value_parser = parse_flag)]
+    pub exclude_flags: Vec<Flag>,
+}
+
+fn parse_word<T: serde::de::DeserializeOwned>(s: &str, all: &[&str]) -> Result<T, String> {
+    serde_json::from_str(&format!("\"{}\"", s.trim().to_ascii_lowercase()))
+        .map_err(|_| format!("unknown value '{s}' (expected one of: {})", all.join(", ")))
+}
+
+fn parse_confidence(s: &str) -> Result<Confidence, String> {
+    let all: Vec<&str> = Confidence::ALL.iter().map(|c| c.as_str()).collect();
+    parse_word(s, &all)
+}
+
+fn parse_flag(s: &str) -> Result<Flag, String> {
+    let all: Vec<&str> = Flag::ALL.iter().map(|f| f.as_str()).collect();
+    parse_word(s, &all)
+}
 
 /// Run `zvet export`.
-pub fn run(_args: Args) -> anyhow::Result<ExitCode> {
-    anyhow::bail!("`zvet export` is not built yet")
+pub fn run(args: Args) -> anyhow::Result<ExitCode> {
+    let c = Campaign::open(&args.campaign)?;
+    let opts = ExportOptions {
+        min_confidence: args.min_confidence,
+        exclude_flags: args.exclude_flags,
+    };
+    let s = export_campaign(&c, &args.out, &opts)?;
+    for p in &s.problems {
+        eprintln!("zvet: warning: {p}");
+    }
+    println!(
+        "{} objects written to {} ({} left out by the filters, {} conflicts awaiting adjudication)",
+        s.rows,
+        args.out.display(),
+        s.filtered,
+        s.conflicts
+    );
+    Ok(ExitCode::SUCCESS)
 }

@@ -1,13 +1,40 @@
 /*!
-`zvet report` (under construction).
+`zvet report CAMPAIGN --out DIR`: write the summary report (report.html with
+the plots inlined, the plots as SVG files, the numbers as report.json).
 */
+use crate::campaign::Campaign;
+use crate::report::{input_from_campaign, numbers, write_report};
+use std::path::PathBuf;
 use std::process::ExitCode;
 
 /// Arguments of `zvet report`.
 #[derive(Debug, clap::Args)]
-pub struct Args {}
+pub struct Args {
+    /// The campaign folder.
+    pub campaign: PathBuf,
+    /// Output folder (default: the campaign's exports/report).
+    #[arg(long, value_name = "DIR")]
+    pub out: Option<PathBuf>,
+}
 
 /// Run `zvet report`.
-pub fn run(_args: Args) -> anyhow::Result<ExitCode> {
-    anyhow::bail!("`zvet report` is not built yet")
+pub fn run(args: Args) -> anyhow::Result<ExitCode> {
+    let c = Campaign::open(&args.campaign)?;
+    let input = input_from_campaign(&c)?;
+    for p in &input.problems {
+        eprintln!("zvet: warning: {p}");
+    }
+    let n = numbers(&input);
+    let out = args.out.unwrap_or_else(|| c.exports_dir().join("report"));
+    let files = write_report(&out, &n)?;
+    println!(
+        "report written to {} ({} files): {} reviewed, {} conflicts, catastrophic redshift rate {}",
+        out.join("report.html").display(),
+        files.len(),
+        n.n_reviewed,
+        n.conflicts.len(),
+        n.z_catastrophic_rate
+            .map_or("–".into(), |r| format!("{:.1} %", 100.0 * r))
+    );
+    Ok(ExitCode::SUCCESS)
 }

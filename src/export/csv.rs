@@ -124,7 +124,7 @@ pub fn read_csv(path: &Path) -> Result<(Vec<ExportRow>, Provenance), ExportError
         exclude_flags,
     };
 
-    let mut rd = ::csv::Reader::from_reader(text[body_start..].as_bytes());
+    let mut rd = ::csv::Reader::from_reader(&text.as_bytes()[body_start..]);
     let names: Vec<String> = rd
         .headers()
         .map_err(|e| bad(n_header + 1, e.to_string()))?

@@ -198,6 +198,12 @@ pub fn write_fits(path: &Path, rows: &[ExportRow], prov: &Provenance) -> Result<
             (i64::from(e.mask_sky), "sky lines masked (1/0)"),
         )
         .map_err(&fe)?;
+        hdu.write_key(
+            &mut f,
+            "NONNEG",
+            (i64::from(e.nonnegative), "template amplitudes >= 0 (1/0)"),
+        )
+        .map_err(&fe)?;
         Ok(())
     });
     written.map_err(|e| match e {
@@ -280,6 +286,7 @@ pub fn read_fits(path: &Path) -> Result<(Vec<ExportRow>, Provenance), ExportErro
         n_candidates: i(&mut f, "NCAND")?.max(0) as usize,
         min_separation_kms: x(&mut f, "MINSEPKM")?,
         mask_sky: i(&mut f, "MASKSKY")? != 0,
+        nonnegative: i(&mut f, "NONNEG")? != 0,
         method: s(&mut f, "ZMETHOD")?,
     };
     let minconf = s(&mut f, "MINCONF")?;

@@ -245,3 +245,41 @@ pub fn read(path: &Path) -> Result<(Vec<ExportRow>, Provenance), ExportError> {
         Format::Fits => read_fits(path),
     }
 }
+
+/// What [`export_campaign`] did.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ExportSummary {
+    /// Rows written.
+    pub rows: usize,
+    /// Objects with a consensus verdict dropped by the filters.
+    pub filtered: usize,
+    /// Conflicts left out (no consensus yet).
+    pub conflicts: usize,
+    /// Problems met while reading logs, fits and catalogue.
+    pub problems: Vec<String>,
+}
+
+/// Merge the campaign's logs and write the training catalogue to `out`
+/// (format from the extension).
+pub fn export_campaign(
+    campaign: &Campaign,
+    out: &Path,
+    opts: &ExportOptions,
+) -> Result<ExportSummary, ExportError> {
+    Format::of(out)?;
+    let (merged, mut problems) = campaign.merge(None)?;
+    let (fits, p) = campaign.load_fits()?;
+    problems.extend(p);
+    let (catalog, p) = campaign.load_catalog()?;
+    problems.extend(p);
+    let rows = build_rows(&merged, &catalog, &fits, opts);
+    let conflicts = merged.conflicts().count();
+    let with_verdict = merged.objects.len() - conflicts;
+    write(out, &rows, &Provenance::for_campaign(campaign, &merged, opts))?;
+    Ok(ExportSummary {
+        rows: rows.len(),
+        filtered: with_verdict - rows.len(),
+        conflicts,
+        problems,
+    })
+}

@@ -108,7 +108,6 @@ pub(super) static ALL: &[Line] = &[
     l("[S III] 9533", 9533.21, E, 0.4, SRC_NIST),
     l("Paε", 9548.59, E, 0.2, SRC_NIST),
     l("Paδ", 10052.13, E, 0.2, SRC_NIST),
-    l("He I 10833", 10833.27, E, 0.3, SRC_NIST),
     l("Paγ", 10941.09, E, 0.3, SRC_NIST),
     l("Paβ", 12821.59, E, 0.4, SRC_NIST),
 ];

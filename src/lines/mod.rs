@@ -146,7 +146,7 @@ mod tests {
         // 1/λ = R_H (1/4 − 1/n²) with R_H = R∞/(1 + mₑ/mₚ) = 109677.58 cm⁻¹
         // (CODATA R∞ = 109737.31568 cm⁻¹, mₚ/mₑ = 1836.15267); fine structure
         // moves the NIST centroids by < 0.1 Å.
-        let r_h = 109_737.315_68 / (1.0 + 1.0 / 1836.152_673);
+        let r_h = 109_737.315_68 / (1.0 + 1.0 / 1_836.152_673);
         for (name, n) in [("Hα", 3.0), ("Hβ", 4.0), ("Hγ", 5.0), ("Hδ", 6.0)] {
             let lam = 1e8 / (r_h * (0.25 - 1.0 / (n * n)));
             approx::assert_abs_diff_eq!(wave_of(name), lam, epsilon = 0.12);

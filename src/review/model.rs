@@ -190,6 +190,19 @@ pub struct FitSeen {
     pub chi2: f64,
 }
 
+impl FitSeen {
+    /// What an inspector sees of a fit: its best candidate (`None` when the
+    /// fit has none or its numbers are not finite, which the log cannot hold).
+    pub fn of(fit: &crate::fit::FitResult) -> Option<FitSeen> {
+        let b = fit.best()?;
+        (b.z.is_finite() && b.chi2.is_finite()).then_some(FitSeen {
+            class: b.class,
+            z: b.z,
+            chi2: b.chi2,
+        })
+    }
+}
+
 /// One action of an inspector on one object.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(tag = "action", rename_all = "snake_case")]

@@ -168,7 +168,7 @@ pub fn replay(events: &[Event]) -> BTreeMap<String, Verdict> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::review::model::{Confidence, Flag, VerdictClass, ZSource};
+    use crate::review::model::{Confidence, FitSeen, Flag, VerdictClass, ZSource};
     use approx::assert_relative_eq;
 
     fn ev(seq: u64, who: &str, id: &str, change: Change) -> Event {
@@ -295,6 +295,36 @@ mod tests {
         r.apply(&ev(5, "a", "o", Change::Redo));
         assert_eq!(r.objects["o"].verdict.class, Some(VerdictClass::Star));
         assert_eq!(r.objects["o"].events.len(), 5);
+    }
+
+    #[test]
+    fn fit_seen_takes_the_best_finite_candidate() {
+        use crate::fit::{Candidate, FitResult};
+        let mut f = FitResult {
+            object_id: "o".into(),
+            candidates: vec![],
+            delta_chi2: f64::INFINITY,
+            chi2_reduced: 1.0,
+            n_good: 10,
+            snr_median: 1.0,
+            warnings: Default::default(),
+            curves: vec![],
+            lines: vec![],
+        };
+        assert_eq!(FitSeen::of(&f), None);
+        f.candidates.push(Candidate {
+            class: crate::ObjectClass::Quasar,
+            template: "q".into(),
+            z: 2.5,
+            z_err: 1e-3,
+            chi2: 900.0,
+            coeffs: vec![],
+        });
+        let seen = FitSeen::of(&f).unwrap();
+        assert_eq!(seen.class, crate::ObjectClass::Quasar);
+        assert_relative_eq!(seen.z, 2.5);
+        f.candidates[0].chi2 = f64::NAN;
+        assert_eq!(FitSeen::of(&f), None);
     }
 
     #[test]

@@ -8,7 +8,7 @@ marginal frequencies. It is undefined (`None`) when p_e = 1, i.e. both raters
 used one and the same label throughout.
 
 The proportion of specific agreement for a category c over a (square)
-confusion matrix M is 2·M[c][c] / (row_c + col_c): of all the times either
+confusion matrix M is 2·M(c,c) / (row_c + col_c): of all the times either
 rater used c, the fraction on which the other rater agreed.
 */
 
@@ -117,7 +117,7 @@ mod tests {
         // p_e = 0.5, κ = 0.4; and its pair of tables with equal p_o = 0.6:
         // [[45, 15], [25, 15]] → κ = 0.1304 and [[25, 35], [5, 35]] → κ = 0.2593.
         // The arithmetic is checked by hand in the comments above; the same
-        // tables are also run through scikit-learn in tests/records.rs.
+        // tables are also run through scikit-learn in tests/records/agreement.rs.
         let (a, b) = expand([[20, 5], [10, 15]]);
         assert_relative_eq!(cohen_kappa(&a, &b).unwrap(), 0.4, epsilon = 1e-12);
         let (a, b) = expand([[45, 15], [25, 15]]);

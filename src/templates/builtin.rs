@@ -114,7 +114,7 @@ pub fn generate() -> TemplateSet {
                     Star,
                     Absorption,
                     &sg,
-                    stars::star(st, &sg, stars::STAR_SIGMA_KMS),
+                    stars::star(st, &sg, stars::INSTRUMENT_SIGMA_KMS),
                 )
             })
             .collect(),
@@ -148,6 +148,7 @@ pub struct Parameters {
     quasar_loglam: (f64, f64),
     star_loglam: (f64, f64),
     star_sigma_kms: f64,
+    instrument_sigma_kms: f64,
     stars: &'static [stars::StarType],
     galaxies: galaxies::Parameters,
     quasars: quasars::Parameters,
@@ -161,6 +162,7 @@ pub fn parameters() -> Parameters {
         quasar_loglam: QUASAR_GRID,
         star_loglam: STAR_GRID,
         star_sigma_kms: stars::STAR_SIGMA_KMS,
+        instrument_sigma_kms: stars::INSTRUMENT_SIGMA_KMS,
         stars: stars::SEQUENCE,
         galaxies: galaxies::parameters(),
         quasars: quasars::parameters(),

@@ -249,7 +249,7 @@ fn check_set(set: &TemplateSet) -> Result<(), TemplateError> {
                     t.name, c.class, t.class
                 )));
             }
-            if t.flux.len() < 2 || !(t.dloglam > 0.0) || !t.loglam0.is_finite() {
+            if t.flux.len() < 2 || !t.dloglam.is_finite() || t.dloglam <= 0.0 || !t.loglam0.is_finite() {
                 return Err(bad(format!("template '{}' has no usable grid", t.name)));
             }
         }
@@ -423,6 +423,11 @@ fn read_fits(path: &Path) -> Result<TemplateSet, TemplateError> {
                         "TPLMODE differs from earlier templates of its class",
                     ));
                 }
+                let step = c.templates[0].dloglam;
+                if ((t.dloglam - step) / step).abs() > 1e-9 {
+                    let msg = format!("log10 λ step {} differs from {step} of its class", t.dloglam);
+                    return Err(invalid(path, i, &t.name, &msg));
+                }
                 c.templates.push(t);
             }
             None => classes.push(ClassTemplates {
@@ -567,7 +572,7 @@ fn wcs_log_grid(f: &mut FitsFile, hdu: &fitsio::hdu::FitsHdu) -> Result<(f64, f6
         "m" => 1e10,
         other => return Err(format!("CUNIT1 '{other}' is not a wavelength unit we know")),
     };
-    if !(crval > 0.0) {
+    if !crval.is_finite() || crval <= 0.0 {
         return Err("CRVAL1 must be positive".into());
     }
     let dloglam = cdelt / (crval * std::f64::consts::LN_10);

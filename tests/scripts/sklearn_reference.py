@@ -7,7 +7,7 @@ what scikit-learn computes on them:
     four-category, including the 2x2 worked-example tables),
   - confusion_matrix(truth, pred, labels=[...]) for vetted-vs-photometric
     class lists.
-The Rust tests (tests/records.rs) read this file and compare; they never call
+The Rust tests (tests/records/agreement.rs, tests/records/campaign.rs) read this file and compare; they never call
 Python. Re-run after changing the cases:  python3 tests/scripts/sklearn_reference.py
 """
 import json

@@ -1,0 +1,333 @@
+/*!
+The app shell: owns the [`AppState`] and the runtime handles (review log,
+engine, background fits and loads), lays the panels out, and applies the
+frame's actions once every panel is drawn. `eframe::App::ui` only delegates to
+[`ZvetApp::show`], which tests drive headless through egui_kittest.
+*/
+use crate::campaign::SurveyObject;
+use crate::review::{Event, ReviewLog, Verdict};
+use std::path::PathBuf;
+use std::sync::Arc;
+
+use super::jobs::{Fitter, JobKind, Jobs};
+use super::load::Loads;
+use super::panels;
+use super::state::{AppState, Shown};
+use super::view::{self, Prepared};
+use super::{keys, settings};
+
+/// Where the review log of an inspector lives.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum LogPlace {
+    /// Exactly this file, whoever the inspector is (tests).
+    File(PathBuf),
+    /// `<folder>/<inspector>.jsonl` (demo, campaign, loose files).
+    Folder(PathBuf),
+}
+
+impl LogPlace {
+    /// The log file for `inspector`.
+    pub fn path_for(&self, inspector: &str) -> PathBuf {
+        match self {
+            LogPlace::File(p) => p.clone(),
+            LogPlace::Folder(d) => d.join(format!("{}.jsonl", settings::file_safe(inspector))),
+        }
+    }
+}
+
+/// What the window opens on.
+pub struct Session {
+    /// Name of what is open.
+    pub title: String,
+    /// The objects (fits may already be attached).
+    pub objects: Vec<SurveyObject>,
+    /// The engine.
+    pub fitter: Arc<dyn Fitter>,
+    /// Where the review logs go.
+    pub log_place: LogPlace,
+    /// Inspector name, if known (else the window asks).
+    pub inspector: Option<String>,
+    /// File where the inspector name is remembered (None: not remembered).
+    pub name_file: Option<PathBuf>,
+}
+
+/// The key under which the prepared plot data is cached.
+#[derive(Debug, Clone, PartialEq)]
+struct PrepKey {
+    selected: Option<usize>,
+    serial: u64,
+    shown: Option<Shown>,
+    view: super::state::ViewSettings,
+    fitted: bool,
+}
+
+/// The review window.
+pub struct ZvetApp {
+    /// Everything that is not a runtime handle.
+    pub state: AppState,
+    pub(crate) log: Option<ReviewLog>,
+    pub(crate) log_place: LogPlace,
+    pub(crate) fitter: Arc<dyn Fitter>,
+    pub(crate) jobs: Jobs,
+    pub(crate) loads: Loads,
+    pub(crate) inspector: Option<String>,
+    pub(crate) name_file: Option<PathBuf>,
+    /// Actions to apply once the next spectra or campaign load is in
+    /// (e.g. a catalogue given on the command line with the spectra).
+    pub(crate) after_load: Vec<super::action::Action>,
+    prepared: Option<(PrepKey, Prepared)>,
+}
+
+impl ZvetApp {
+    /// Open the window's state on `session`; fits of objects without one start
+    /// in the background, the first object of the queue is selected.
+    pub fn new(session: Session) -> ZvetApp {
+        let Session {
+            title,
+            objects,
+            fitter,
+            log_place,
+            inspector,
+            name_file,
+        } = session;
+        let objects = Arc::new(objects);
+        let state = AppState::new(title, objects.clone());
+        let jobs = Jobs::start(fitter.clone(), objects, Vec::new());
+        let mut app = ZvetApp {
+            state,
+            log: None,
+            log_place,
+            fitter,
+            jobs,
+            loads: Loads::new(),
+            inspector: None,
+            name_file,
+            after_load: Vec::new(),
+            prepared: None,
+        };
+        app.restart_fits();
+        match inspector {
+            Some(name) => app.set_inspector(&name),
+            None => app.state.name_prompt = Some(String::new()),
+        }
+        app.rebuild_queue();
+        if let Some(&first) = app.state.order.first() {
+            app.select(first);
+        }
+        app
+    }
+
+    /// Apply `action` after the next spectra or campaign load has arrived.
+    pub fn after_load(&mut self, action: super::action::Action) {
+        self.after_load.push(action);
+    }
+
+    /// The open review log, once the inspector is known.
+    pub fn log(&self) -> Option<&ReviewLog> {
+        self.log.as_ref()
+    }
+
+    /// The current verdict on object `index`.
+    pub fn verdict_of(&self, index: usize) -> Option<&Verdict> {
+        let id = self.state.objects.get(index)?.id();
+        self.log.as_ref()?.verdict(id)
+    }
+
+    /// The verdict on the selected object.
+    pub fn current_verdict(&self) -> Option<&Verdict> {
+        self.verdict_of(self.state.selected?)
+    }
+
+    /// The selected object's review history.
+    pub fn current_history(&self) -> &[Event] {
+        match (self.state.current(), self.log.as_ref()) {
+            (Some(o), Some(log)) => log.history(o.id()),
+            _ => &[],
+        }
+    }
+
+    /// (automatic fits done, asked for) of the background jobs.
+    pub fn fit_progress(&self) -> (usize, usize) {
+        self.jobs.progress()
+    }
+
+    /// Draw one frame and apply what the inspector asked for.
+    pub fn show(&mut self, ui: &mut egui::Ui) {
+        let ctx = ui.ctx().clone();
+        self.jobs.set_repaint(&ctx);
+        self.loads.set_repaint(&ctx);
+        self.take_results();
+        let mut actions = Vec::new();
+        keys::read(&ctx, &self.state, &mut actions);
+        super::load::dropped_files(&ctx, &mut actions);
+        self.ensure_prepared();
+        let prepared = self.prepared.as_ref().map(|(_, p)| p);
+        let log = self.log.as_ref();
+        let verdict = self
+            .state
+            .current()
+            .and_then(|o| log.and_then(|l| l.verdict(o.id())));
+        let reviewed = log.map(|l| l.reviewed_count()).unwrap_or(0);
+        let top = panels::topbar::TopInfo {
+            reviewed,
+            fits: self.jobs.progress(),
+            loading: self.loads.busy(),
+            inspector: self.inspector.as_deref(),
+        };
+        panels::topbar::ui(ui, &mut self.state, &top, &mut actions);
+        panels::messages::ui(ui, &self.state);
+        panels::queue::ui(ui, &self.state, &mut actions);
+        egui::Panel::right("zvet-right")
+            .resizable(true)
+            .default_size(330.0)
+            .show(ui, |ui| {
+                egui::ScrollArea::vertical().show(ui, |ui| {
+                    let history = match (self.state.current(), log) {
+                        (Some(o), Some(l)) => l.history(o.id()),
+                        _ => &[],
+                    };
+                    let undo = self
+                        .state
+                        .current()
+                        .zip(log)
+                        .map(|(o, l)| (l.can_undo(o.id()), l.can_redo(o.id())));
+                    panels::verdict::ui(
+                        ui,
+                        &mut self.state,
+                        verdict,
+                        history,
+                        undo.unwrap_or((false, false)),
+                        &mut actions,
+                    );
+                    ui.separator();
+                    panels::facts::ui(ui, &self.state);
+                });
+            });
+        egui::CentralPanel::default().show(ui, |ui| {
+            let h = ui.available_height();
+            panels::spectrum::ui(ui, &mut self.state, prepared, h * 0.44, &mut actions);
+            panels::closeups::ui(ui, &self.state, prepared, h * 0.17);
+            panels::chi2::ui(ui, &self.state, h * 0.2, &mut actions);
+        });
+        panels::help::ui(&ctx, &mut self.state);
+        let has_log = self.log.is_some();
+        panels::inspector::ui(&ctx, &mut self.state, has_log, &mut actions);
+        for a in actions {
+            self.apply(a);
+        }
+    }
+
+    /// Collect finished fits and loads.
+    fn take_results(&mut self) {
+        let mut any_fit = false;
+        for done in self.jobs.poll() {
+            let i = done.index;
+            match (done.kind, done.result) {
+                (JobKind::Fit, Ok(fit)) => {
+                    if let Some(slot) = self.state.fits.get_mut(i) {
+                        *slot = Some(fit);
+                        any_fit = true;
+                    }
+                    let v = self.verdict_of(i).cloned();
+                    self.state.refresh_item(i, v.as_ref());
+                    if self.state.selected == Some(i) && self.state.shown.is_none() {
+                        self.state.shown = self.state.current_fit().and_then(Shown::automatic);
+                        let v = self.current_verdict().cloned();
+                        self.state.sync_texts(v.as_ref());
+                    }
+                }
+                (JobKind::Fit, Err(e)) => {
+                    if let Some(slot) = self.state.fit_errors.get_mut(i) {
+                        *slot = Some(e);
+                    }
+                }
+                (JobKind::RefitNear { .. }, result) => {
+                    if self.state.selected != Some(i) {
+                        continue;
+                    }
+                    self.state.refit_running = false;
+                    match result {
+                        Ok(fit) => {
+                            self.state.shown = fit.best().map(|c| Shown {
+                                candidate: c.clone(),
+                                rank: Some(0),
+                                source: crate::review::ZSource::Refit,
+                            });
+                            self.state.refit = Some(fit);
+                        }
+                        Err(e) => self.state.say(format!("refit failed: {e}"), true),
+                    }
+                }
+            }
+        }
+        // The list is re-sorted once every automatic fit is in, not while the
+        // inspector works through it (rows would jump).
+        if any_fit && !self.jobs.busy() {
+            self.rebuild_queue();
+        }
+        for loaded in self.loads.poll() {
+            self.apply_loaded(loaded);
+        }
+    }
+
+    /// Restart the background fits for every object that has none.
+    pub(crate) fn restart_fits(&mut self) {
+        let todo: Vec<usize> = (0..self.state.objects.len())
+            .filter(|&i| self.state.fits[i].is_none())
+            .collect();
+        self.jobs = Jobs::start(self.fitter.clone(), self.state.objects.clone(), todo);
+    }
+
+    /// Re-filter and re-sort the list from the log's verdicts.
+    pub(crate) fn rebuild_queue(&mut self) {
+        let log = self.log.as_ref();
+        self.state
+            .rebuild_queue(|id| log.and_then(|l| l.verdict(id)).cloned());
+    }
+
+    /// Select object `index`, asking for its fit first if it is not done.
+    pub(crate) fn select(&mut self, index: usize) {
+        let v = self.verdict_of(index).cloned();
+        self.state.select(index, v.as_ref());
+        if self.state.fits.get(index).is_some_and(|f| f.is_none()) {
+            self.jobs.prioritize(index);
+        }
+    }
+
+    /// Compute the plot data if the object, solution or view changed.
+    pub fn ensure_prepared(&mut self) {
+        let key = PrepKey {
+            selected: self.state.selected,
+            serial: self.state.selection_serial,
+            shown: self.state.shown.clone(),
+            view: self.state.view.clone(),
+            fitted: self.state.current_fit().is_some(),
+        };
+        if self.prepared.as_ref().is_some_and(|(k, _)| *k == key) {
+            return;
+        }
+        self.prepared = self.prepare_current().map(|p| (key, p));
+    }
+
+    /// The plot data of the selected object (the benchmark's unit of work).
+    pub fn prepare_current(&self) -> Option<Prepared> {
+        let obj = self.state.current()?;
+        let shown = self.state.shown.as_ref();
+        let model = match shown {
+            Some(s) if self.state.view.show_model => self.fitter.model(&obj.spectrum, &s.candidate),
+            _ => Vec::new(),
+        };
+        Some(view::prepare(
+            &obj.spectrum,
+            shown.map(|s| s.z()),
+            &model,
+            &self.state.view,
+        ))
+    }
+}
+
+impl eframe::App for ZvetApp {
+    fn ui(&mut self, ui: &mut egui::Ui, _frame: &mut eframe::Frame) {
+        self.show(ui);
+    }
+}

@@ -1,0 +1,338 @@
+/*!
+Fits in the background. A few worker threads take jobs from a shared queue
+(the selected object jumps to the front), run the engine, and send results
+back over a channel; each result asks the window to repaint, so the window
+never waits on a fit. Dropping [`Jobs`] stops the workers after their current job.
+*/
+use crate::campaign::SurveyObject;
+use crate::fit::{Candidate, Engine, FitResult};
+use crate::{ObjectClass, Spectrum};
+use std::collections::VecDeque;
+use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
+use std::sync::mpsc::{channel, Receiver, Sender};
+use std::sync::{Arc, Condvar, Mutex, OnceLock};
+
+/// The engine as the window uses it (a trait so tests may pass a stand-in).
+pub trait Fitter: Send + Sync {
+    /// Full automatic fit.
+    fn fit(&self, s: &Spectrum) -> Result<FitResult, String>;
+    /// Fit restricted to |Δv| ≤ `half_width_kms` around `z`.
+    fn refit_near(
+        &self,
+        s: &Spectrum,
+        z: f64,
+        class: Option<ObjectClass>,
+        half_width_kms: f64,
+    ) -> Result<FitResult, String>;
+    /// Model flux at the spectrum's wavelengths (NaN where not covered).
+    fn model(&self, s: &Spectrum, c: &Candidate) -> Vec<f64>;
+}
+
+impl Fitter for Engine {
+    fn fit(&self, s: &Spectrum) -> Result<FitResult, String> {
+        Engine::fit(self, s).map_err(|e| e.to_string())
+    }
+    fn refit_near(
+        &self,
+        s: &Spectrum,
+        z: f64,
+        class: Option<ObjectClass>,
+        half_width_kms: f64,
+    ) -> Result<FitResult, String> {
+        Engine::refit_near(self, s, z, class, half_width_kms).map_err(|e| e.to_string())
+    }
+    fn model(&self, s: &Spectrum, c: &Candidate) -> Vec<f64> {
+        Engine::model(self, s, c)
+    }
+}
+
+/// What a job does.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum JobKind {
+    /// The automatic fit.
+    Fit,
+    /// A refit near `z`.
+    RefitNear {
+        /// Centre.
+        z: f64,
+        /// Class, or all.
+        class: Option<ObjectClass>,
+    },
+}
+
+/// A finished job.
+#[derive(Debug)]
+pub struct JobDone {
+    /// Object index.
+    pub index: usize,
+    /// What was done.
+    pub kind: JobKind,
+    /// The fit, or why it failed.
+    pub result: Result<FitResult, String>,
+}
+
+/// Half-width of the "refit near here" window (km/s). About ±0.007 in z at
+/// z = 0: wide enough for a hand-placed z, narrow enough to stay on one feature.
+pub const REFIT_HALF_WIDTH_KMS: f64 = 2000.0;
+
+struct Shared {
+    queue: Mutex<VecDeque<(usize, JobKind)>>,
+    wake: Condvar,
+    stop: AtomicBool,
+    done: AtomicUsize,
+}
+
+/// The worker pool and its result channel.
+pub struct Jobs {
+    shared: Arc<Shared>,
+    rx: Receiver<JobDone>,
+    total: usize,
+    repaint: Arc<OnceLock<egui::Context>>,
+}
+
+impl Jobs {
+    /// Start workers fitting `todo` (object indices) in that order.
+    pub fn start(fitter: Arc<dyn Fitter>, objects: Arc<Vec<SurveyObject>>, todo: Vec<usize>) -> Jobs {
+        let shared = Arc::new(Shared {
+            queue: Mutex::new(todo.iter().map(|&i| (i, JobKind::Fit)).collect()),
+            wake: Condvar::new(),
+            stop: AtomicBool::new(false),
+            done: AtomicUsize::new(0),
+        });
+        let (tx, rx) = channel();
+        let repaint: Arc<OnceLock<egui::Context>> = Arc::new(OnceLock::new());
+        // Leave one core to the window itself.
+        let n = std::thread::available_parallelism()
+            .map(|n| n.get())
+            .unwrap_or(2)
+            .saturating_sub(1)
+            .max(1);
+        for k in 0..n {
+            let (shared, tx, fitter, objects, repaint) = (
+                shared.clone(),
+                tx.clone(),
+                fitter.clone(),
+                objects.clone(),
+                repaint.clone(),
+            );
+            let spawned = std::thread::Builder::new()
+                .name(format!("zvet-fit-{k}"))
+                .spawn(move || worker(&shared, &tx, &*fitter, &objects, &repaint));
+            if spawned.is_err() && k == 0 {
+                // No thread at all: results will never come; the window says so
+                // through `progress` staying at zero rather than crashing.
+                break;
+            }
+        }
+        Jobs {
+            shared,
+            rx,
+            total: todo.len(),
+            repaint,
+        }
+    }
+
+    /// Let workers wake the window when a result is ready.
+    pub fn set_repaint(&self, ctx: &egui::Context) {
+        let _ = self.repaint.set(ctx.clone());
+    }
+
+    /// Move the automatic fit of `index` to the front, if it is still waiting.
+    pub fn prioritize(&self, index: usize) {
+        let mut q = lock(&self.shared.queue);
+        if let Some(p) = q
+            .iter()
+            .position(|(i, k)| *i == index && matches!(k, JobKind::Fit))
+        {
+            if let Some(job) = q.remove(p) {
+                q.push_front(job);
+            }
+        }
+    }
+
+    /// Ask for a refit of `index` near `z` (first in line).
+    pub fn refit(&self, index: usize, z: f64, class: Option<ObjectClass>) {
+        lock(&self.shared.queue).push_front((index, JobKind::RefitNear { z, class }));
+        self.shared.wake.notify_one();
+    }
+
+    /// Results that arrived since the last call.
+    pub fn poll(&self) -> Vec<JobDone> {
+        self.rx.try_iter().collect()
+    }
+
+    /// (automatic fits done, automatic fits asked for).
+    pub fn progress(&self) -> (usize, usize) {
+        (self.shared.done.load(Ordering::Relaxed), self.total)
+    }
+
+    /// True while automatic fits are outstanding.
+    pub fn busy(&self) -> bool {
+        let (d, t) = self.progress();
+        d < t
+    }
+}
+
+impl Drop for Jobs {
+    fn drop(&mut self) {
+        self.shared.stop.store(true, Ordering::Relaxed);
+        lock(&self.shared.queue).clear();
+        self.shared.wake.notify_all();
+    }
+}
+
+fn lock<T>(m: &Mutex<T>) -> std::sync::MutexGuard<'_, T> {
+    // A worker that panicked mid-fit leaves the queue itself consistent.
+    m.lock().unwrap_or_else(|e| e.into_inner())
+}
+
+fn worker(
+    shared: &Shared,
+    tx: &Sender<JobDone>,
+    fitter: &dyn Fitter,
+    objects: &[SurveyObject],
+    repaint: &OnceLock<egui::Context>,
+) {
+    loop {
+        let job = {
+            let mut q = lock(&shared.queue);
+            loop {
+                if shared.stop.load(Ordering::Relaxed) {
+                    return;
+                }
+                if let Some(j) = q.pop_front() {
+                    break j;
+                }
+                q = shared.wake.wait(q).unwrap_or_else(|e| e.into_inner());
+            }
+        };
+        let (index, kind) = job;
+        let Some(obj) = objects.get(index) else {
+            continue;
+        };
+        // A panic inside the engine must not take the window down: report it.
+        let result = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| match kind {
+            JobKind::Fit => fitter.fit(&obj.spectrum),
+            JobKind::RefitNear { z, class } => {
+                fitter.refit_near(&obj.spectrum, z, class, REFIT_HALF_WIDTH_KMS)
+            }
+        }))
+        .unwrap_or_else(|_| Err("the fit stopped with an internal error".to_string()));
+        if matches!(kind, JobKind::Fit) {
+            shared.done.fetch_add(1, Ordering::Relaxed);
+        }
+        if tx.send(JobDone { index, kind, result }).is_err() {
+            return;
+        }
+        if let Some(ctx) = repaint.get() {
+            ctx.request_repaint();
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::fit::{Candidate, FitResult, Warnings};
+    use std::time::{Duration, Instant};
+
+    /// A stand-in engine: the "fit" puts z = the spectrum's first flux value.
+    struct Echo;
+
+    fn result(s: &Spectrum, z: f64) -> FitResult {
+        FitResult {
+            object_id: s.meta.id.clone(),
+            candidates: vec![Candidate {
+                class: ObjectClass::Galaxy,
+                template: "echo".into(),
+                z,
+                z_err: 0.0,
+                chi2: 1.0,
+                coeffs: vec![],
+            }],
+            delta_chi2: 1.0,
+            chi2_reduced: 1.0,
+            n_good: s.n_good(),
+            snr_median: 1.0,
+            warnings: Warnings::default(),
+            curves: vec![],
+            lines: vec![],
+        }
+    }
+
+    impl Fitter for Echo {
+        fn fit(&self, s: &Spectrum) -> Result<FitResult, String> {
+            if s.flux()[0] < 0.0 {
+                panic!("a bad spectrum");
+            }
+            Ok(result(s, s.flux()[0]))
+        }
+        fn refit_near(
+            &self,
+            s: &Spectrum,
+            z: f64,
+            _class: Option<ObjectClass>,
+            _hw: f64,
+        ) -> Result<FitResult, String> {
+            Ok(result(s, z))
+        }
+        fn model(&self, s: &Spectrum, _c: &Candidate) -> Vec<f64> {
+            vec![0.0; s.len()]
+        }
+    }
+
+    fn objects(values: &[f64]) -> Arc<Vec<SurveyObject>> {
+        Arc::new(
+            values
+                .iter()
+                .enumerate()
+                .map(|(i, &v)| SurveyObject {
+                    spectrum: Spectrum::new(
+                        vec![1.0, 2.0],
+                        vec![v, v],
+                        None,
+                        None,
+                        crate::spectrum::SpectrumMeta {
+                            id: format!("o{i}"),
+                            ..Default::default()
+                        },
+                    )
+                    .unwrap(),
+                    catalog: None,
+                    fit: None,
+                })
+                .collect(),
+        )
+    }
+
+    fn collect(jobs: &Jobs, want: usize) -> Vec<JobDone> {
+        let start = Instant::now();
+        let mut out = Vec::new();
+        while out.len() < want && start.elapsed() < Duration::from_secs(30) {
+            out.extend(jobs.poll());
+            std::thread::sleep(Duration::from_millis(5));
+        }
+        out
+    }
+
+    #[test]
+    fn every_object_is_fitted_and_a_panic_becomes_an_error() {
+        let jobs = Jobs::start(Arc::new(Echo), objects(&[0.1, -1.0, 0.3]), vec![0, 1, 2]);
+        let mut done = collect(&jobs, 3);
+        done.sort_by_key(|d| d.index);
+        assert_eq!(done.len(), 3);
+        assert!((done[0].result.as_ref().unwrap().candidates[0].z - 0.1).abs() < 1e-12);
+        assert!(done[1].result.is_err());
+        assert_eq!(jobs.progress(), (3, 3));
+        assert!(!jobs.busy());
+    }
+
+    #[test]
+    fn refits_come_back_with_their_window_centre() {
+        let jobs = Jobs::start(Arc::new(Echo), objects(&[0.1]), vec![]);
+        jobs.refit(0, 1.25, None);
+        let done = collect(&jobs, 1);
+        assert!(matches!(done[0].kind, JobKind::RefitNear { .. }));
+        assert!((done[0].result.as_ref().unwrap().candidates[0].z - 1.25).abs() < 1e-12);
+    }
+}

@@ -1,0 +1,255 @@
+/*!
+Reading what the inspector opens (on a load thread) and putting it into the
+window (on the UI thread): spectra files, a catalogue joined by id, a template
+set that replaces the engine, a campaign folder with its review logs.
+*/
+use crate::campaign::SurveyObject;
+use crate::fit::{Engine, FitConfig};
+use crate::io::{self, ReadOptions};
+use std::path::{Path, PathBuf};
+use std::sync::Arc;
+
+use super::app::{LogPlace, ZvetApp};
+use super::load::Loaded;
+use super::settings;
+use super::state::AppState;
+
+/// Read spectrum files and folders.
+pub fn read_spectra(paths: &[PathBuf]) -> Loaded {
+    let files = io::expand_inputs(paths);
+    if files.is_empty() {
+        return Loaded::Failed(format!(
+            "no readable spectrum file in {}",
+            paths
+                .iter()
+                .map(|p| p.display().to_string())
+                .collect::<Vec<_>>()
+                .join(", ")
+        ));
+    }
+    let mut objects = Vec::new();
+    let mut problems = Vec::new();
+    for f in &files {
+        match io::read_file(f, &ReadOptions::default()) {
+            Ok(spectra) => objects.extend(spectra.into_iter().map(|spectrum| SurveyObject {
+                spectrum,
+                catalog: None,
+                fit: None,
+            })),
+            Err(e) => problems.push(e.to_string()),
+        }
+    }
+    if objects.is_empty() {
+        return Loaded::Failed(format!(
+            "no spectrum could be read: {}",
+            problems.first().cloned().unwrap_or_default()
+        ));
+    }
+    let title = match paths {
+        [one] => one.display().to_string(),
+        _ => format!("{} files", files.len()),
+    };
+    Loaded::Spectra {
+        title,
+        objects,
+        problems,
+    }
+}
+
+/// Read a photometric catalogue.
+pub fn read_catalog(path: &Path) -> Loaded {
+    match crate::catalog::read_csv(path, &crate::catalog::ColumnMap::default()) {
+        Ok(rows) => Loaded::Catalog {
+            path: path.to_path_buf(),
+            rows,
+        },
+        Err(e) => Loaded::Failed(format!("{}: {e}", path.display())),
+    }
+}
+
+/// Read a template set and build an engine on it.
+pub fn read_templates(path: &Path) -> Loaded {
+    let set = match crate::templates::read_set(path) {
+        Ok(s) => s,
+        Err(e) => return Loaded::Failed(format!("{}: {e}", path.display())),
+    };
+    match Engine::new(&set, FitConfig::default()) {
+        Ok(engine) => Loaded::Templates {
+            name: set.name.clone(),
+            fitter: Arc::new(engine),
+        },
+        Err(e) => Loaded::Failed(format!("template set {}: {e}", path.display())),
+    }
+}
+
+/// Read a campaign folder: its spectra (with the manifest's reader options),
+/// its catalogue joined by id, and the folder of its review logs.
+pub fn read_campaign(path: &Path) -> Loaded {
+    let campaign = match crate::campaign::Campaign::open(path) {
+        Ok(c) => c,
+        Err(e) => return Loaded::Failed(format!("{}: {e}", path.display())),
+    };
+    let m = campaign.manifest();
+    let r = &m.read;
+    let opts = ReadOptions {
+        air: r.air,
+        wave_col: r.wave_col.clone(),
+        flux_col: r.flux_col.clone(),
+        ivar_col: r.ivar_col.clone(),
+        err_col: r.err_col.clone(),
+        mask_col: r.mask_col.clone(),
+        id_col: r.id_col.clone(),
+        hdu: r.hdu,
+    };
+    let mut problems = Vec::new();
+    let mut objects = Vec::new();
+    for f in io::expand_inputs(&campaign.spectra_paths()) {
+        match io::read_file(&f, &opts) {
+            Ok(v) => objects.extend(v.into_iter().map(|spectrum| SurveyObject {
+                spectrum,
+                catalog: None,
+                fit: None,
+            })),
+            Err(e) => problems.push(e.to_string()),
+        }
+    }
+    if let (Some(cat), Some(settings)) = (campaign.catalog_path(), m.catalog.as_ref()) {
+        let mut map = crate::catalog::ColumnMap::default();
+        let overrides: Vec<String> = settings.columns.iter().map(|(k, v)| format!("{k}={v}")).collect();
+        let rows = map
+            .apply_overrides(&overrides)
+            .map_err(|e| e.to_string())
+            .and_then(|_| crate::catalog::read_csv(&cat, &map).map_err(|e| e.to_string()));
+        match rows {
+            Ok(rows) => {
+                let ids: Vec<String> = objects.iter().map(|o| o.id().to_string()).collect();
+                for (si, ri) in crate::catalog::join(&ids, &rows).matched {
+                    if let (Some(o), Some(row)) = (objects.get_mut(si), rows.get(ri)) {
+                        o.catalog = Some(row.clone());
+                    }
+                }
+            }
+            Err(e) => problems.push(format!("{}: {e}", cat.display())),
+        }
+    }
+    // Cached automatic fits are used as they are; the rest are fitted in the background.
+    match campaign.load_fits() {
+        Ok((fits, fit_problems)) => {
+            problems.extend(fit_problems);
+            for o in &mut objects {
+                o.fit = fits.get(o.id()).cloned();
+            }
+        }
+        Err(e) => problems.push(e.to_string()),
+    }
+    let log = campaign.review_log_path("x");
+    let log_folder = log
+        .parent()
+        .map(Path::to_path_buf)
+        .unwrap_or_else(|| path.join("reviews"));
+    Loaded::Campaign {
+        title: m.name.clone(),
+        objects,
+        log_folder,
+        problems,
+    }
+}
+
+impl ZvetApp {
+    /// Put a finished load into the window.
+    pub(crate) fn apply_loaded(&mut self, loaded: Loaded) {
+        match loaded {
+            Loaded::Picked(kind, paths) => self.loads.open(kind, paths),
+            Loaded::Failed(e) => self.state.say(e, true),
+            Loaded::Spectra {
+                title,
+                objects,
+                problems,
+            } => {
+                self.report(&problems);
+                let place = settings::loose_log_folder()
+                    .map(LogPlace::Folder)
+                    .unwrap_or_else(|| LogPlace::Folder(std::env::temp_dir().join("zvet-reviews")));
+                self.replace_objects(title, objects, place);
+            }
+            Loaded::Campaign {
+                title,
+                objects,
+                log_folder,
+                problems,
+            } => {
+                self.report(&problems);
+                self.replace_objects(title, objects, LogPlace::Folder(log_folder));
+            }
+            Loaded::Catalog { path, rows } => {
+                let ids: Vec<String> = self.state.objects.iter().map(|o| o.id().to_string()).collect();
+                let join = crate::catalog::join(&ids, &rows);
+                let mut objects: Vec<SurveyObject> = self.state.objects.as_ref().clone();
+                for &(si, ri) in &join.matched {
+                    if let (Some(o), Some(r)) = (objects.get_mut(si), rows.get(ri)) {
+                        o.catalog = Some(r.clone());
+                    }
+                }
+                self.state.say(
+                    format!(
+                        "{}: {} matched, {} spectra without a row, {} rows without a spectrum",
+                        path.display(),
+                        join.matched.len(),
+                        join.spectra_only.len(),
+                        join.catalog_only.len()
+                    ),
+                    false,
+                );
+                self.state.objects = Arc::new(objects);
+                self.rebuild_queue();
+            }
+            Loaded::Templates { name, fitter } => {
+                self.fitter = fitter;
+                for f in &mut self.state.fits {
+                    *f = None;
+                }
+                for e in &mut self.state.fit_errors {
+                    *e = None;
+                }
+                self.state.shown = None;
+                self.state.refit = None;
+                self.restart_fits();
+                self.rebuild_queue();
+                self.state
+                    .say(format!("template set '{name}': refitting every object"), false);
+            }
+        }
+    }
+
+    fn report(&mut self, problems: &[String]) {
+        for p in problems.iter().take(20) {
+            self.state.say(p.clone(), true);
+        }
+        if problems.len() > 20 {
+            self.state
+                .say(format!("… and {} more problems", problems.len() - 20), true);
+        }
+    }
+
+    /// Replace everything on screen by `objects`; the same inspector goes on
+    /// in the log at `place`.
+    pub(crate) fn replace_objects(&mut self, title: String, objects: Vec<SurveyObject>, place: LogPlace) {
+        let view = self.state.view.clone();
+        let messages = std::mem::take(&mut self.state.messages);
+        self.state = AppState::new(title, Arc::new(objects));
+        self.state.view = view;
+        self.state.messages = messages;
+        self.log_place = place;
+        self.restart_fits();
+        if let Some(name) = self.inspector.clone() {
+            self.set_inspector(&name);
+        }
+        self.rebuild_queue();
+        if let Some(&first) = self.state.order.first() {
+            self.select(first);
+        }
+        for a in std::mem::take(&mut self.after_load) {
+            self.apply(a);
+        }
+    }
+}

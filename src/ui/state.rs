@@ -1,0 +1,283 @@
+/*!
+What the review window knows, apart from how it is drawn: the objects and
+their fits, the queue as displayed, the selection, the solution being shown
+(automatic, a previewed candidate, a refit, a nudged z), the view settings and
+the text being typed. No egui types live here, so the state can be built and
+checked in tests without a window.
+*/
+use crate::campaign::SurveyObject;
+use crate::fit::{Candidate, FitResult};
+use crate::queue::{self, Filter, QueueItem, SortKey};
+use crate::review::{Verdict, ZSource};
+use crate::ObjectClass;
+use std::sync::Arc;
+
+/// The solution currently drawn over the spectrum (before or after it is accepted).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Shown {
+    /// The candidate whose class, template and coefficients are drawn
+    /// (its `z` is the shown redshift).
+    pub candidate: Candidate,
+    /// Index into the fit's candidates, when it is one of them.
+    pub rank: Option<usize>,
+    /// Where the shown z comes from, should it be accepted.
+    pub source: ZSource,
+}
+
+impl Shown {
+    /// The automatic answer of `fit` (its best candidate).
+    pub fn automatic(fit: &FitResult) -> Option<Shown> {
+        fit.best().map(|c| Shown {
+            candidate: c.clone(),
+            rank: Some(0),
+            source: ZSource::Automatic,
+        })
+    }
+
+    /// The shown redshift.
+    pub fn z(&self) -> f64 {
+        self.candidate.z
+    }
+
+    /// The shown class.
+    pub fn class(&self) -> ObjectClass {
+        self.candidate.class
+    }
+}
+
+/// How the spectrum is drawn.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ViewSettings {
+    /// Boxcar smoothing width in pixels (1 = none).
+    pub smoothing: usize,
+    /// Rest-frame wavelength axis (λ / (1+z)) instead of observed.
+    pub rest_frame: bool,
+    /// Draw the model of the shown solution.
+    pub show_model: bool,
+    /// Draw the strong night-sky lines.
+    pub show_sky: bool,
+}
+
+impl Default for ViewSettings {
+    fn default() -> Self {
+        ViewSettings {
+            smoothing: 3,
+            rest_frame: false,
+            show_model: true,
+            show_sky: true,
+        }
+    }
+}
+
+/// A keyboard request to move the spectrum view, applied inside the plot.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum PlotMove {
+    /// Zoom in (factor > 1) or out around the centre.
+    Zoom(f32),
+    /// Pan by this fraction of the visible width (negative = left).
+    Pan(f32),
+    /// Back to the whole spectrum.
+    Reset,
+}
+
+/// A line in the message strip.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Message {
+    /// The text.
+    pub text: String,
+    /// Shown as an error.
+    pub is_error: bool,
+}
+
+/// Which text field the keyboard asked to focus next frame.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum FocusRequest {
+    /// The typed-redshift field.
+    Redshift,
+    /// The note field.
+    Note,
+}
+
+/// The window's state.
+#[derive(Debug, Clone)]
+pub struct AppState {
+    /// Name of what is open (survey, campaign or folder).
+    pub title: String,
+    /// The objects (spectrum, catalogue row, fit loaded with them).
+    pub objects: Arc<Vec<SurveyObject>>,
+    /// Automatic fits, by object index (filled by the background jobs).
+    pub fits: Vec<Option<FitResult>>,
+    /// Fit failures, by object index.
+    pub fit_errors: Vec<Option<String>>,
+    /// Queue summaries, by object index.
+    pub items: Vec<QueueItem>,
+    /// The list as displayed: object indices, filtered and sorted.
+    pub order: Vec<usize>,
+    /// Filter of the list.
+    pub filter: Filter,
+    /// Sort key of the list.
+    pub sort: SortKey,
+    /// Selected object index.
+    pub selected: Option<usize>,
+    /// Bumped when the selection changes (plots reset their bounds).
+    pub selection_serial: u64,
+    /// The solution drawn over the spectrum.
+    pub shown: Option<Shown>,
+    /// A refit result for the selected object, when asked for.
+    pub refit: Option<FitResult>,
+    /// View settings.
+    pub view: ViewSettings,
+    /// Pending keyboard move of the spectrum view.
+    pub plot_move: Option<PlotMove>,
+    /// Text of the typed-redshift field.
+    pub z_text: String,
+    /// Text of the note field.
+    pub note_text: String,
+    /// A text field to focus on the next frame.
+    pub focus: Option<FocusRequest>,
+    /// `F` was pressed: the next digit toggles a flag.
+    pub flag_chord: bool,
+    /// Messages, newest last.
+    pub messages: Vec<Message>,
+    /// The help overlay is open.
+    pub help_open: bool,
+    /// The inspector-name dialog is open, with its text.
+    pub name_prompt: Option<String>,
+    /// Text of the "open a path" field.
+    pub path_text: String,
+    /// A refit is running for the selected object.
+    pub refit_running: bool,
+}
+
+impl AppState {
+    /// A state for `objects`, nothing selected yet.
+    pub fn new(title: String, objects: Arc<Vec<SurveyObject>>) -> Self {
+        let fits: Vec<Option<FitResult>> = objects.iter().map(|o| o.fit.clone()).collect();
+        let n = objects.len();
+        AppState {
+            title,
+            objects,
+            fits,
+            fit_errors: vec![None; n],
+            items: Vec::new(),
+            order: Vec::new(),
+            filter: Filter::default(),
+            sort: SortKey::default(),
+            selected: None,
+            selection_serial: 0,
+            shown: None,
+            refit: None,
+            view: ViewSettings::default(),
+            plot_move: None,
+            z_text: String::new(),
+            note_text: String::new(),
+            focus: None,
+            flag_chord: false,
+            messages: Vec::new(),
+            help_open: false,
+            name_prompt: None,
+            path_text: String::new(),
+            refit_running: false,
+        }
+    }
+
+    /// Rebuild the queue summaries from the fits and `verdict` lookups, then
+    /// re-filter and re-sort the displayed list.
+    pub fn rebuild_queue(&mut self, verdict: impl Fn(&str) -> Option<Verdict>) {
+        self.items = self
+            .objects
+            .iter()
+            .zip(&self.fits)
+            .map(|(o, f)| QueueItem::new(o, f.as_ref(), verdict(o.id()).as_ref()))
+            .collect();
+        self.order = queue::arrange(&self.items, &self.filter, self.sort);
+    }
+
+    /// Refresh one object's summary (after a verdict or a fit) without
+    /// re-sorting, so the list does not jump under the inspector's eyes.
+    pub fn refresh_item(&mut self, index: usize, verdict: Option<&Verdict>) {
+        if let Some(o) = self.objects.get(index) {
+            let fit = self.fits.get(index).and_then(|f| f.as_ref());
+            self.items[index] = QueueItem::new(o, fit, verdict);
+        }
+    }
+
+    /// The selected object.
+    pub fn current(&self) -> Option<&SurveyObject> {
+        self.selected.and_then(|i| self.objects.get(i))
+    }
+
+    /// The selected object's automatic fit.
+    pub fn current_fit(&self) -> Option<&FitResult> {
+        self.selected
+            .and_then(|i| self.fits.get(i))
+            .and_then(|f| f.as_ref())
+    }
+
+    /// The fit whose candidates are listed: the refit if there is one, else the automatic fit.
+    pub fn listed_fit(&self) -> Option<&FitResult> {
+        self.refit.as_ref().or(self.current_fit())
+    }
+
+    /// Position of the selection in the displayed list.
+    pub fn position(&self) -> Option<usize> {
+        let sel = self.selected?;
+        self.order.iter().position(|&i| i == sel)
+    }
+
+    /// Select object `index` (shown solution back to the automatic answer).
+    pub fn select(&mut self, index: usize, verdict: Option<&Verdict>) {
+        if index >= self.objects.len() {
+            return;
+        }
+        self.selected = Some(index);
+        self.selection_serial += 1;
+        self.refit = None;
+        self.refit_running = false;
+        self.flag_chord = false;
+        self.shown = self.current_fit().and_then(Shown::automatic);
+        self.sync_texts(verdict);
+        self.plot_move = Some(PlotMove::Reset);
+    }
+
+    /// Put the verdict's z and note into the text fields.
+    pub fn sync_texts(&mut self, verdict: Option<&Verdict>) {
+        self.note_text = verdict.map(|v| v.note.clone()).unwrap_or_default();
+        self.z_text = match (verdict.and_then(|v| v.z), &self.shown) {
+            (Some(z), _) => format!("{z:.5}"),
+            (None, Some(s)) => format!("{:.5}", s.z()),
+            _ => String::new(),
+        };
+    }
+
+    /// Move the selection `step` places along the displayed list (clamped).
+    pub fn step_target(&self, step: isize) -> Option<usize> {
+        if self.order.is_empty() {
+            return None;
+        }
+        let pos = match self.position() {
+            Some(p) => p as isize + step,
+            None => 0,
+        };
+        let pos = pos.clamp(0, self.order.len() as isize - 1) as usize;
+        Some(self.order[pos])
+    }
+
+    /// Add a message (errors in red in the strip); keeps the last 50.
+    pub fn say(&mut self, text: impl Into<String>, is_error: bool) {
+        self.messages.push(Message {
+            text: text.into(),
+            is_error,
+        });
+        let n = self.messages.len();
+        if n > 50 {
+            self.messages.drain(0..n - 50);
+        }
+    }
+
+    /// Number of fitted objects.
+    pub fn fitted_count(&self) -> usize {
+        self.fits.iter().filter(|f| f.is_some()).count()
+            + self.fit_errors.iter().filter(|e| e.is_some()).count()
+    }
+}

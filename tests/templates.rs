@@ -1,0 +1,474 @@
+//! The built-in templates: committed files, FITS layout, and physics checks
+//! against published or textbook values (each check names its source).
+use crate::support;
+use zvet::lines;
+use zvet::templates::{
+    self, galaxies, profiles::Grid, quasars, FitMode, Template, TemplateKind, TemplateSet,
+};
+use zvet::ObjectClass;
+
+fn committed_dir() -> std::path::PathBuf {
+    std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("templates-spectra")
+}
+
+fn get<'a>(set: &'a TemplateSet, name: &str) -> &'a Template {
+    set.classes
+        .iter()
+        .flat_map(|c| &c.templates)
+        .find(|t| t.name == name)
+        .unwrap_or_else(|| panic!("template {name} missing"))
+}
+
+fn grid_of(t: &Template) -> Grid {
+    Grid {
+        loglam0: t.loglam0,
+        dloglam: t.dloglam,
+        n: t.flux.len(),
+    }
+}
+
+/// ∫ f dλ over the pixels whose centres lie in [lo, hi] Å.
+fn integral(f: &[f64], g: &Grid, lo: f64, hi: f64) -> f64 {
+    (0..g.n)
+        .filter(|&i| (lo..=hi).contains(&g.wave(i as f64)))
+        .map(|i| f[i] * (g.wave(i as f64 + 0.5) - g.wave(i as f64 - 0.5)))
+        .sum()
+}
+
+/// Mean f_ν (∝ f_λ λ²) over [lo, hi] Å, weighted by pixel width.
+fn mean_fnu(t: &Template, lo: f64, hi: f64) -> f64 {
+    let g = grid_of(t);
+    let fnu: Vec<f64> = (0..g.n).map(|i| t.flux[i] * g.wave(i as f64).powi(2)).collect();
+    let ones = vec![1.0; g.n];
+    integral(&fnu, &g, lo, hi) / integral(&ones, &g, lo, hi)
+}
+
+/// The 4000 Å break, narrow definition of Balogh et al. (1999): ratio of the
+/// mean f_ν in 4000–4100 Å to that in 3850–3950 Å (the original, wider
+/// definition of Bruzual 1983 uses 4050–4250 / 3750–3950 Å).
+fn d4000_narrow(t: &Template) -> f64 {
+    mean_fnu(t, 4000.0, 4100.0) / mean_fnu(t, 3850.0, 3950.0)
+}
+
+fn same_bits(a: &[f64], b: &[f64]) -> bool {
+    a.len() == b.len() && a.iter().zip(b).all(|(x, y)| x.to_bits() == y.to_bits())
+}
+
+fn assert_same_data(a: &TemplateSet, b: &TemplateSet) {
+    assert_eq!(a.name, b.name);
+    assert_eq!(a.classes.len(), b.classes.len());
+    for (ca, cb) in a.classes.iter().zip(&b.classes) {
+        assert_eq!(ca.class, cb.class);
+        assert_eq!(ca.mode, cb.mode);
+        assert_eq!(ca.templates.len(), cb.templates.len());
+        for (ta, tb) in ca.templates.iter().zip(&cb.templates) {
+            assert_eq!(ta.name, tb.name);
+            assert_eq!(ta.class, tb.class);
+            assert_eq!(ta.kind, tb.kind);
+            assert_eq!(ta.loglam0.to_bits(), tb.loglam0.to_bits(), "{}", ta.name);
+            assert_eq!(ta.dloglam.to_bits(), tb.dloglam.to_bits(), "{}", ta.name);
+            assert!(same_bits(&ta.flux, &tb.flux), "{}: flux differs", ta.name);
+        }
+    }
+}
+
+#[test]
+fn committed_files_are_reproduced_exactly() {
+    let committed = templates::read_set(&committed_dir().join("builtin.fits")).expect("read committed set");
+    assert_same_data(&committed, &templates::generate_builtin());
+    assert_same_data(&committed, templates::builtin());
+}
+
+#[test]
+fn write_read_round_trip_and_entry_points() {
+    let dir = support::scratch("templates-round-trip");
+    templates::write_builtin(&dir).expect("write");
+    let set = templates::builtin();
+    for path in [dir.join("builtin.fits"), dir.join("builtin.json"), dir.clone()] {
+        let back = templates::read_set(&path).expect("read back");
+        assert_same_data(&back, set);
+        assert_eq!(back.provenance, set.provenance);
+    }
+    // Writing again replaces the files without leaving temporaries behind.
+    templates::write_set(set, &dir).expect("rewrite");
+    let names: Vec<String> = std::fs::read_dir(&dir)
+        .unwrap()
+        .map(|e| e.unwrap().file_name().to_string_lossy().into_owned())
+        .collect();
+    assert_eq!(names.len(), 2, "{names:?}");
+}
+
+#[test]
+fn wcs_agrees_with_astropy() {
+    // Wavelengths astropy.wcs (FITS WCS Paper III, WAVE-LOG) assigns to pixels
+    // of the committed file, recorded by tests/scripts/record_template_wcs.py.
+    let text = std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/tests/data/templates/astropy_wcs.json"
+    ))
+    .expect("recorded astropy values");
+    let v: serde_json::Value = serde_json::from_str(&text).unwrap();
+    let set = templates::builtin();
+    let mut checked = 0;
+    for (name, rec) in v["templates"].as_object().unwrap() {
+        let t = set
+            .classes
+            .iter()
+            .flat_map(|c| &c.templates)
+            .find(|t| t.name.eq_ignore_ascii_case(name))
+            .unwrap_or_else(|| panic!("{name} not in the built-in set"));
+        let pix = rec["pixels"].as_array().unwrap();
+        let wav = rec["wave_angstrom"].as_array().unwrap();
+        for (p, w) in pix.iter().zip(wav) {
+            let (p, w) = (p.as_u64().unwrap() as usize, w.as_f64().unwrap());
+            approx::assert_relative_eq!(t.wave(p), w, max_relative = 1e-10);
+            checked += 1;
+        }
+    }
+    assert!(checked >= 50);
+}
+
+#[test]
+fn bad_files_give_clear_errors() {
+    let dir = support::scratch("templates-bad");
+    // Not FITS at all.
+    let junk = dir.join("junk.fits");
+    std::fs::write(&junk, b"this is not a FITS file").unwrap();
+    let e = templates::read_set(&junk).unwrap_err().to_string();
+    assert!(e.contains("junk.fits"), "{e}");
+    // Missing file.
+    assert!(templates::read_set(&dir.join("absent.fits")).is_err());
+    // An extension without TPLCLASS, and one with a NaN.
+    for (file, class, value) in [
+        ("noclass.fits", None, 1.0f32),
+        ("nan.fits", Some("galaxy"), f32::NAN),
+    ] {
+        let path = dir.join(file);
+        let mut f = fitsio::FitsFile::create(&path).open().unwrap();
+        let desc = fitsio::images::ImageDescription {
+            data_type: fitsio::images::ImageType::Float,
+            dimensions: &[4],
+        };
+        let hdu = f.create_image("t1".to_string(), &desc).unwrap();
+        hdu.write_image(&mut f, &[1.0f32, value, 1.0, 1.0]).unwrap();
+        hdu.write_key(&mut f, "LOGLAM0", 3.5f64).unwrap();
+        hdu.write_key(&mut f, "DLOGLAM", 1e-4f64).unwrap();
+        if let Some(c) = class {
+            hdu.write_key(&mut f, "TPLCLASS", c).unwrap();
+        }
+        drop(f);
+        let e = templates::read_set(&path).unwrap_err().to_string();
+        let expect = if class.is_none() { "TPLCLASS" } else { "non-finite" };
+        assert!(e.contains(expect) && e.contains("'t1'"), "{e}");
+    }
+    // Two templates of one class on different log-λ steps.
+    let path = dir.join("steps.fits");
+    let mut f = fitsio::FitsFile::create(&path).open().unwrap();
+    for (name, step) in [("a", 1e-4f64), ("b", 2e-4)] {
+        let desc = fitsio::images::ImageDescription {
+            data_type: fitsio::images::ImageType::Float,
+            dimensions: &[3],
+        };
+        let hdu = f.create_image(name.to_string(), &desc).unwrap();
+        hdu.write_image(&mut f, &[1.0f32, 2.0, 3.0]).unwrap();
+        hdu.write_key(&mut f, "TPLCLASS", "quasar").unwrap();
+        hdu.write_key(&mut f, "LOGLAM0", 3.0f64).unwrap();
+        hdu.write_key(&mut f, "DLOGLAM", step).unwrap();
+    }
+    drop(f);
+    let e = templates::read_set(&path).unwrap_err().to_string();
+    assert!(e.contains("step") && e.contains("'b'"), "{e}");
+    // A folder with several sets is ambiguous.
+    assert!(templates::read_set(&dir).is_err());
+    // A descriptor of another format.
+    let json = dir.join("other.json");
+    std::fs::write(
+        &json,
+        r#"{"format":"x","format_version":1,"name":"a","provenance":"","fits":"a.fits","templates":[]}"#,
+    )
+    .unwrap();
+    assert!(templates::read_set(&json)
+        .unwrap_err()
+        .to_string()
+        .contains("format"));
+}
+
+#[test]
+fn coverage_modes_and_kinds() {
+    let set = templates::builtin();
+    // Contract: galaxies ≥ 1000–11000 Å, quasars ≤ 900–≥ 9000 Å, stars ≥ 3000–11000 Å rest.
+    for (class, mode, lo, hi) in [
+        (ObjectClass::Galaxy, FitMode::Basis, 1000.0, 11000.0),
+        (ObjectClass::Quasar, FitMode::Basis, 900.0, 9000.0),
+        (ObjectClass::Star, FitMode::EachAlone, 3000.0, 11000.0),
+    ] {
+        let c = set.class(class).expect("class present");
+        assert_eq!(c.mode, mode);
+        for t in &c.templates {
+            assert!(t.wave(0) <= lo && t.wave(t.flux.len() - 1) >= hi, "{}", t.name);
+            approx::assert_relative_eq!(t.dloglam, 1e-4);
+            assert!(t.flux.iter().all(|x| x.is_finite() && *x >= 0.0), "{}", t.name);
+        }
+    }
+    let stars = &set.class(ObjectClass::Star).unwrap().templates;
+    assert!(stars.len() >= 7 && stars.iter().all(|t| t.kind == TemplateKind::Absorption));
+    assert_eq!(get(set, "galaxy-emission").kind, TemplateKind::Emission);
+    assert_eq!(get(set, "galaxy-old").kind, TemplateKind::Absorption);
+}
+
+#[test]
+fn balmer_decrement_is_case_b() {
+    // Case B, T = 10⁴ K: Hα/Hβ = 2.86 (Osterbrock & Ferland 2006, from memory;
+    // 2.863 in the published galaxy_recomb.ascii of linetools 0.3.2).
+    let lw = lines::wave_of;
+    let g = Grid::new(2.95, 4.08, 1e-4);
+    let young: Vec<f64> = galaxies::young(&g)
+        .iter()
+        .zip(galaxies::young_continuum(&g))
+        .map(|(a, b)| a - b)
+        .collect();
+    let em = galaxies::emission_only(&g);
+    for f in [&young, &em] {
+        let ha = integral(f, &g, lw("Hα") - 8.0, lw("Hα") + 8.0);
+        let hb = integral(f, &g, lw("Hβ") - 8.0, lw("Hβ") + 8.0);
+        let hg = integral(f, &g, lw("Hγ") - 8.0, lw("Hγ") + 8.0);
+        approx::assert_relative_eq!(ha / hb, 2.863, max_relative = 0.005);
+        approx::assert_relative_eq!(hg / hb, 0.468, max_relative = 0.005);
+    }
+}
+
+#[test]
+fn forbidden_doublet_ratios() {
+    // [O III] 5008/4960 = 2.98 and [N II] 6585/6550 ≈ 3 from the ratio of
+    // their transition probabilities (from memory).
+    let lw = lines::wave_of;
+    let g = Grid::new(2.95, 4.08, 1e-4);
+    let f = galaxies::emission_only(&g);
+    let flux = |n: &str| integral(&f, &g, lw(n) - 6.0, lw(n) + 6.0);
+    approx::assert_relative_eq!(
+        flux("[O III] 5008") / flux("[O III] 4960"),
+        2.98,
+        max_relative = 0.01
+    );
+    // The [N II] lines sit 14.7 Å and 20.7 Å from Hα: narrower windows.
+    let flux4 = |n: &str| integral(&f, &g, lw(n) - 4.0, lw(n) + 4.0);
+    approx::assert_relative_eq!(
+        flux4("[N II] 6585") / flux4("[N II] 6550"),
+        3.0,
+        max_relative = 0.01
+    );
+}
+
+#[test]
+fn old_galaxy_has_a_strong_4000_break() {
+    // Balogh et al. (1999): passive galaxies have D4000(narrow) ≈ 1.6–2.2,
+    // star-forming ones ≈ 1.0–1.3 (from memory).
+    let set = templates::builtin();
+    let old = d4000_narrow(get(set, "galaxy-old"));
+    let young = d4000_narrow(get(set, "galaxy-young"));
+    assert!((1.6..=2.2).contains(&old), "old D4000n = {old}");
+    assert!((0.8..=1.3).contains(&young), "young D4000n = {young}");
+    assert!(old > young + 0.5);
+}
+
+#[test]
+fn emission_lines_peak_at_their_listed_wavelengths() {
+    let set = templates::builtin();
+    let gas_fwhm = galaxies::GAS_SIGMA_KMS * 2.3548;
+    let mut checked = 0;
+    for (tname, comps) in [
+        (
+            "galaxy-emission",
+            galaxies::high_ionisation_lines()
+                .iter()
+                .map(|l| (l.0, gas_fwhm))
+                .collect::<Vec<_>>(),
+        ),
+        (
+            "qso-balmer",
+            quasars::BALMER_LINES
+                .iter()
+                .map(|c| (c.line, c.fwhm_kms))
+                .collect(),
+        ),
+        // Blueward of ~1300 Å the forest eats the blue wings: peaks shift there.
+        (
+            "qso-uv-lines",
+            quasars::UV_LINES
+                .iter()
+                .filter(|c| lines::wave_of(c.line) > 1300.0)
+                .map(|c| (c.line, c.fwhm_kms))
+                .collect(),
+        ),
+    ] {
+        let t = get(set, tname);
+        let g = grid_of(t);
+        for &(n, fwhm) in &comps {
+            let w = lines::wave_of(n);
+            // Only unblended lines: no other line within 8 Å or within this
+            // line's FWHM, and not on the wing of a broader line (within
+            // three of its FWHM).
+            let crowded = comps.iter().any(|&(m, f2)| {
+                let o = lines::wave_of(m);
+                let d = (o - w).abs();
+                let c = 299_792.458;
+                d > 1e-9 && (d < 8.0 || d < w * fwhm / c || (f2 > fwhm && d < 3.0 * o * f2 / c))
+            });
+            if crowded {
+                continue;
+            }
+            let half = (w * fwhm / 299_792.458).max(4.0);
+            let r = g.range(w - half, w + half);
+            let imax = r.max_by(|&a, &b| t.flux[a].total_cmp(&t.flux[b])).unwrap();
+            let dpix = g.pixel(w) - imax as f64;
+            assert!(dpix.abs() <= 0.5, "{tname}: {n} peaks {dpix:.2} pixels from {w}");
+            checked += 1;
+        }
+    }
+    assert!(checked >= 20, "{checked}");
+}
+
+#[test]
+fn lyman_alpha_forest_suppresses_the_blue_side() {
+    // Mean transmitted flux of the Lyα forest at z ≈ 2.5 is F ≈ 0.75–0.85
+    // (published measurements of the mean flux decrement; from memory).
+    let t = templates::builtin();
+    let c = get(t, "qso-continuum");
+    let red = get(t, "qso-red");
+    let at = |t: &Template, l: f64| t.at(l).unwrap();
+    // The red basis is a pure power law times the transmission: compare with
+    // the power law extrapolated from 1300–1450 Å.
+    let slope = (at(red, 1450.0) / at(red, 1300.0)).ln() / (1450f64 / 1300.0).ln();
+    let pl = |l: f64| at(red, 1300.0) * (l / 1300.0).powf(slope);
+    let trans_1180 = at(red, 1180.0) / pl(1180.0);
+    assert!((0.7..=0.88).contains(&trans_1180), "transmission {trans_1180}");
+    // Lyman-limit absorption below 912 Å makes it darker still.
+    assert!(at(c, 880.0) / at(c, 1180.0) < 0.5);
+}
+
+#[test]
+fn spectral_sequence_behaves_as_in_the_textbooks() {
+    // Classification criteria (common practice): hydrogen lines peak at A0,
+    // Ca II K grows towards cool types, TiO bands appear in M stars.
+    let set = templates::builtin();
+    let seq = [
+        "star-O", "star-B", "star-A", "star-F", "star-G", "star-K", "star-M0", "star-M4",
+    ];
+    let ew = |t: &Template, center: f64, half: f64, cont: (f64, f64)| {
+        let g = grid_of(t);
+        let c = 0.5 * (t.at(cont.0).unwrap() + t.at(cont.1).unwrap());
+        let deficit: Vec<f64> = t.flux.iter().map(|f| 1.0 - f / c).collect();
+        integral(&deficit, &g, center - half, center + half)
+    };
+    let hdelta: Vec<f64> = seq
+        .iter()
+        .map(|n| ew(get(set, n), 4102.9, 40.0, (4045.0, 4160.0)))
+        .collect();
+    let best = hdelta
+        .iter()
+        .enumerate()
+        .max_by(|a, b| a.1.total_cmp(b.1))
+        .unwrap()
+        .0;
+    assert_eq!(seq[best], "star-A", "Hδ EWs {hdelta:?}");
+    // An A0 dwarf has W(Hδ) ≈ 15–20 Å (from memory).
+    assert!((10.0..=25.0).contains(&hdelta[2]), "A-star Hδ EW {}", hdelta[2]);
+    let cak: Vec<f64> = seq[2..6]
+        .iter()
+        .map(|n| ew(get(set, n), 3934.8, 12.0, (3910.0, 3955.0)))
+        .collect();
+    assert!(cak.windows(2).all(|w| w[1] > w[0]), "Ca K EWs {cak:?}");
+    // TiO 7056 Å band: flux just redward of the head well below just blueward.
+    let tio = |n: &str| {
+        let t = get(set, n);
+        t.at(7070.0).unwrap() / t.at(7040.0).unwrap()
+    };
+    assert!(
+        tio("star-M4") < 0.5 && tio("star-K") > 0.9,
+        "{} {}",
+        tio("star-M4"),
+        tio("star-K")
+    );
+    // The white dwarf's Balmer lines are far broader than the A star's.
+    let wd = ew(get(set, "star-WD-DA"), 4102.9, 60.0, (4010.0, 4200.0));
+    assert!(
+        wd > 1.5 * ew(get(set, "star-A"), 4102.9, 60.0, (4010.0, 4200.0)),
+        "WD Hδ EW {wd}"
+    );
+}
+
+#[test]
+fn stellar_continua_follow_planck() {
+    // Far from strong features the continuum ratio between 5600 Å and
+    // 10400 Å equals the Planck ratio at the type's colour temperature (Planck's law,
+    // CODATA constants); line blanketing changes it by a few per cent at most.
+    let set = templates::builtin();
+    for st in templates::stars::SEQUENCE
+        .iter()
+        .filter(|s| (4_000.0..7_500.0).contains(&s.teff))
+    {
+        let t = get(set, st.name);
+        let got = t.at(5600.0).unwrap() / t.at(10400.0).unwrap();
+        let want =
+            templates::profiles::planck(5600.0, st.teff) / templates::profiles::planck(10400.0, st.teff);
+        approx::assert_relative_eq!(got, want, max_relative = 0.04);
+    }
+}
+
+#[test]
+fn cli_builds_and_lists_sets() {
+    let dir = support::scratch("templates-cli");
+    let exe = env!("CARGO_BIN_EXE_zvet");
+    let out = std::process::Command::new(exe)
+        .args(["templates", "build", "--out"])
+        .arg(&dir)
+        .output()
+        .unwrap();
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let out = std::process::Command::new(exe)
+        .args(["templates", "list"])
+        .arg(&dir)
+        .output()
+        .unwrap();
+    assert!(out.status.success());
+    let text = String::from_utf8_lossy(&out.stdout);
+    for name in ["galaxy-old", "qso-continuum", "star-M4", "each alone"] {
+        assert!(text.contains(name), "{text}");
+    }
+    let bad = std::process::Command::new(exe)
+        .args(["templates", "list"])
+        .arg(dir.join("nope.fits"))
+        .output()
+        .unwrap();
+    assert!(!bad.status.success());
+    assert!(String::from_utf8_lossy(&bad.stderr).contains("nope.fits"));
+}
+
+#[test]
+fn user_set_with_only_a_standard_wcs_is_read() {
+    // FITS WCS Paper III, WAVE-LOG: λ(p) = CRVAL1 · exp(CDELT1 (p − CRPIX1) / CRVAL1).
+    let dir = support::scratch("templates-wcs-only");
+    let path = dir.join("mine.fits");
+    let mut f = fitsio::FitsFile::create(&path).open().unwrap();
+    let desc = fitsio::images::ImageDescription {
+        data_type: fitsio::images::ImageType::Float,
+        dimensions: &[100],
+    };
+    let hdu = f.create_image("my-galaxy".to_string(), &desc).unwrap();
+    hdu.write_image(&mut f, &[1.0f32; 100]).unwrap();
+    hdu.write_key(&mut f, "TPLCLASS", "galaxy").unwrap();
+    hdu.write_key(&mut f, "TPLKIND", "emission").unwrap();
+    hdu.write_key(&mut f, "CTYPE1", "WAVE-LOG").unwrap();
+    hdu.write_key(&mut f, "CUNIT1", "nm").unwrap();
+    hdu.write_key(&mut f, "CRPIX1", 11.0f64).unwrap();
+    hdu.write_key(&mut f, "CRVAL1", 500.0f64).unwrap(); // nm at pixel 11
+    hdu.write_key(&mut f, "CDELT1", 500.0 * 2e-4f64).unwrap(); // Δ ln λ = 2e-4 per pixel
+    drop(f);
+    let set = templates::read_set(&path).expect("read");
+    let g = set.class(ObjectClass::Galaxy).expect("galaxy group");
+    assert_eq!(g.mode, FitMode::Basis); // default for galaxies
+    let t = &g.templates[0];
+    assert_eq!(t.kind, TemplateKind::Emission);
+    approx::assert_relative_eq!(t.wave(10), 5000.0, max_relative = 1e-12);
+    approx::assert_relative_eq!(t.wave(60), 5000.0 * (50.0f64 * 2e-4).exp(), max_relative = 1e-12);
+}
