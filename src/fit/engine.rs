@@ -10,11 +10,13 @@ that χ² at every trial z and for every class is summed over the same pixels
 and can be compared directly (where a template does not reach, only the
 polynomial is left to fit and χ² grows).
 */
+// Index loops here mirror the sums of the normal equations term by term.
+#![allow(clippy::needless_range_loop)]
 use super::config::{FitConfig, FitError, Method};
 use super::fast::{self, CorrPlan, DataCache, FftCache};
 use super::prep::{legendre, Prepared};
-use super::reference::{direct_fit, thresholds};
-use super::refine::refine;
+use super::reference::{sums_fit, thresholds};
+use super::refine::{grid_parabola, refine};
 use super::result::{Candidate, Chi2Curve, FitResult, Warnings};
 use super::units::{build_units, Unit};
 use crate::spectrum::Spectrum;
@@ -32,6 +34,11 @@ pub const AMBIGUOUS_DCHI2: f64 = 9.0;
 /// beyond it stays among the candidates but ranks after every other class
 /// (a passive galaxy at cz ≈ 1200 km/s otherwise can look like a G star).
 pub const STAR_VMAX_KMS: f64 = 800.0;
+/// Minima whose grid χ² is more than this above the lowest are not refined
+/// by Brent's method (except each class's best); their sub-pixel z and σ_z
+/// come from a parabola through the grid χ² (saves time, changes nothing
+/// that could reorder the leading solutions).
+pub const REFINE_DCHI2: f64 = 50.0;
 /// Fewer good grid pixels than this set [`Warnings::FEW_PIXELS`].
 pub const FEW_PIXELS: usize = 100;
 /// Reduced χ² above this sets [`Warnings::POOR_FIT`].
@@ -95,7 +102,7 @@ impl Engine {
             )));
         }
         let reach = reach(&units, &config);
-        if !(reach.1 > reach.0) {
+        if reach.1.is_nan() || reach.0.is_nan() || reach.1 <= reach.0 {
             return Err(FitError::BadTemplates(
                 "the classes' templates share no observed wavelength range".into(),
             ));
@@ -190,7 +197,7 @@ impl Engine {
         };
         let k = unit.k();
         let j = self.config.poly_terms;
-        if c.coeffs.len() != k + j || !(c.z > -1.0) {
+        if c.coeffs.len() != k + j || c.z.is_nan() || c.z <= -1.0 {
             return nanv;
         }
         let w = s.wave();
@@ -301,21 +308,31 @@ impl Engine {
                 // with non-negative template amplitudes
                 for m in kept.iter_mut() {
                     let u = &self.units[m.unit];
-                    m.chi2 = direct_fit(&prep, u, m.shift as f64, &thresholds(&prep, u), true).chi2;
+                    m.chi2 = sums_fit(&prep, u, m.shift as f64, &thresholds(&prep, u), true).chi2;
                 }
             }
             minima_by_class.push((class, separated(kept, min_sep, n_cand)));
         }
-        // refine
+        // refine: Brent for each class's best minimum and for any minimum
+        // within REFINE_DCHI2 of the lowest; the others from the grid parabola
+        let lowest = minima_by_class
+            .iter()
+            .flat_map(|(_, k)| k.iter().map(|m| m.chi2))
+            .fold(f64::INFINITY, f64::min);
         let mut cands: Vec<(Candidate, Minimum, f64)> = Vec::new();
         for (_, kept) in &minima_by_class {
-            for m in kept {
+            for (rank, m) in kept.iter().enumerate() {
                 let u = &self.units[m.unit];
                 let thr = thresholds(&prep, u);
-                let r = refine(&prep, u, &thr, m.shift);
+                let r = if rank == 0 || m.chi2 - lowest < REFINE_DCHI2 {
+                    refine(&prep, u, &thr, m.shift)
+                } else {
+                    let curve = curves_by_unit[m.unit].as_deref().unwrap_or(&[]);
+                    let lo = ranges.iter().find(|r| r.0 == u.class).map_or(m.shift, |r| r.1 .0);
+                    grid_parabola(&prep, u, &thr, m.shift, curve, lo)
+                };
                 let z = 10f64.powf(r.shift * dll) - 1.0;
                 let dzdx = std::f64::consts::LN_10 * dll * (1.0 + z);
-                let tmpl_mean = template_part_mean(&prep, u, r.shift, &r.fit.coeffs);
                 cands.push((
                     Candidate {
                         class: u.class,
@@ -326,7 +343,7 @@ impl Engine {
                         coeffs: r.fit.coeffs,
                     },
                     *m,
-                    tmpl_mean,
+                    r.shift,
                 ));
             }
         }
@@ -343,7 +360,7 @@ impl Engine {
             let kb = any_other && implausible(&b.0);
             ka.cmp(&kb).then(a.0.chi2.total_cmp(&b.0.chi2))
         });
-        let (best, best_min, best_tmean) = cands[0].clone();
+        let (best, best_min, best_shift) = cands[0].clone();
         let min_sep_v = self.config.min_separation_kms;
         let runner = cands
             .iter()
@@ -361,7 +378,7 @@ impl Engine {
         if best_min.edge {
             warnings.set(Warnings::AT_GRID_EDGE);
         }
-        if best_tmean < 0.0 {
+        if template_part_mean(&prep, &self.units[best_min.unit], best_shift, &best.coeffs) < 0.0 {
             warnings.set(Warnings::NEGATIVE_TEMPLATE);
         }
         if n_good < FEW_PIXELS {

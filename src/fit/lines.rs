@@ -12,6 +12,8 @@ Nelder–Mead on that profiled χ². Flux = amplitude · √(2π) σ_λ, its err
 from the covariance of the linear solve, the rest-frame equivalent width =
 flux / (continuum at the centre · (1+z)) (positive for emission).
 */
+// Index loops here mirror the sums of the normal equations term by term.
+#![allow(clippy::needless_range_loop)]
 use super::engine::{Engine, C_KMS};
 use super::prep::{solve_normal, Prepared};
 use super::result::{Candidate, LineMeasurement};
@@ -20,6 +22,10 @@ use crate::ObjectClass;
 use argmin::core::{CostFunction, Error, Executor};
 use argmin::solver::neldermead::NelderMead;
 
+/// Iterations of the Nelder–Mead search for offset and width (it stops
+/// earlier once the simplex's χ² values agree to 0.01, far below a
+/// meaningful Δχ²).
+const MAX_ITERS: u64 = 60;
 /// Fewest good pixels in a line window.
 const MIN_WINDOW_PIXELS: usize = 8;
 
@@ -29,7 +35,7 @@ const MIN_WINDOW_PIXELS: usize = 8;
 fn limits(class: ObjectClass) -> (f64, f64, f64, f64) {
     // (σ_min, σ_max, σ_start, window half-width)
     match class {
-        ObjectClass::Quasar => (300.0, 8000.0, 2000.0, 20000.0),
+        ObjectClass::Quasar => (300.0, 8000.0, 2000.0, 12000.0),
         _ => (20.0, 800.0, 120.0, 2500.0),
     }
 }
@@ -39,6 +45,8 @@ struct Window {
     f: Vec<f64>,
     w: Vec<f64>,
     centres: Vec<f64>,
+    /// Σ w f² over the window.
+    fww: f64,
     lam_c: f64,
     sig_lim: (f64, f64),
     vmax: f64,
@@ -74,12 +82,8 @@ impl Window {
         let mut e = vec![0.0; k];
         e[2] = 1.0;
         let amp_var = solve_normal(&ata, &e, &all)[2];
-        let mut chi2 = 0.0;
-        for i in 0..self.lam.len() {
-            self.design(i, v, sig, &mut row);
-            let m: f64 = row.iter().zip(&coef).map(|(a, b)| a * b).sum();
-            chi2 += self.w[i] * (self.f[i] - m).powi(2);
-        }
+        // χ² = Σ w f² − c·b at the least-squares solution
+        let chi2 = self.fww - coef.iter().zip(&atb).map(|(c, b)| c * b).sum::<f64>();
         chi2.is_finite().then_some(LinearFit { chi2, coef, amp_var })
     }
 
@@ -145,7 +149,9 @@ pub fn measure_list(s: &Spectrum, z: f64, class: ObjectClass, list: &[(&str, f64
                 centres.push(o2);
             }
         }
+        let fww = idx.iter().map(|&i| s.ivar()[i] * s.flux()[i] * s.flux()[i]).sum();
         let win = Window {
+            fww,
             lam: idx.iter().map(|&i| wave[i]).collect(),
             f: idx.iter().map(|&i| s.flux()[i]).collect(),
             w: idx.iter().map(|&i| s.ivar()[i]).collect(),
@@ -159,11 +165,11 @@ pub fn measure_list(s: &Spectrum, z: f64, class: ObjectClass, list: &[(&str, f64
             vec![0.3 * s0, s0.ln()],
             vec![0.0, (1.8 * s0).ln()],
         ];
-        let Ok(nm) = NelderMead::new(simplex).with_sd_tolerance(1e-6) else {
+        let Ok(nm) = NelderMead::new(simplex).with_sd_tolerance(1e-2) else {
             continue;
         };
         let best = Executor::new(Profiled(&win), nm)
-            .configure(|st| st.max_iters(150))
+            .configure(|st| st.max_iters(MAX_ITERS))
             .run()
             .ok()
             .and_then(|r| r.state.best_param);
@@ -246,7 +252,8 @@ mod tests {
         assert_eq!(m.len(), 1);
         assert_relative_eq!(m[0].flux, 30.0, max_relative = 1e-3);
         assert_relative_eq!(m[0].sigma_kms, 150.0, max_relative = 1e-3);
-        assert_relative_eq!(m[0].obs_wave, centre, max_relative = 1e-6);
+        // the search stops once χ² agrees to 0.01: the centre to ≲ 1.5 km/s
+        assert_relative_eq!(m[0].obs_wave, centre, max_relative = 5e-6);
         // EW_rest = F / (C (1+z)) = 30 / (2 · 1.1)
         assert_relative_eq!(m[0].ew_rest, 30.0 / 2.2, max_relative = 1e-3);
     }

@@ -3,6 +3,8 @@ A spectrum made ready for the engine: resampled onto the log10 λ grid, noise
 scaled for correlated pixels, and the Legendre polynomials of the continuum
 evaluated with their redshift-independent normal-equation sums.
 */
+// Index loops here mirror the sums of the normal equations term by term.
+#![allow(clippy::needless_range_loop)]
 use super::config::FitError;
 use crate::spectrum::{LogGrid, Spectrum};
 use nalgebra::{DMatrix, DVector};
@@ -25,6 +27,10 @@ pub struct Prepared {
     pub good: Vec<usize>,
     /// Legendre polynomials P_j at each grid pixel.
     pub p: Vec<Vec<f64>>,
+    /// w·f at each grid pixel.
+    pub wf: Vec<f64>,
+    /// w·P_j at each grid pixel.
+    pub wp: Vec<Vec<f64>>,
     /// Σ w f².
     pub fww: f64,
     /// Σ w P_i P_j (row-major J×J).
@@ -61,7 +67,7 @@ impl Prepared {
         let w = s.wave();
         let lo = w[0].max(lam.0);
         let hi = w[w.len() - 1].min(lam.1);
-        if !(hi > lo) {
+        if hi.is_nan() || lo.is_nan() || hi <= lo {
             return Err(FitError::NoCoverage);
         }
         let grid = crate::spectrum::LogGrid::covering(lo, hi, dll);
@@ -110,7 +116,14 @@ impl Prepared {
                 }
             }
         }
+        let wf: Vec<f64> = w.iter().zip(&flux).map(|(w, f)| w * f).collect();
+        let wp: Vec<Vec<f64>> = p
+            .iter()
+            .map(|pj| w.iter().zip(pj).map(|(w, p)| w * p).collect())
+            .collect();
         Ok(Prepared {
+            wf,
+            wp,
             grid,
             g0: grid.index0(),
             flux,
@@ -201,19 +214,19 @@ pub fn solve_normal(a: &[f64], b: &[f64], active: &[bool]) -> Vec<f64> {
         d[r] = a[idx[r] * dim + idx[r]].sqrt();
     }
     // scaled matrix (lower triangle used) and right-hand side
-    let mut l = [0.0f64; 32 * 32];
+    let mut l = vec![0.0f64; k * k];
     let mut v = [0.0f64; 32];
     for r in 0..k {
         v[r] = b[idx[r]] / d[r];
         for s in 0..=r {
-            l[r * 32 + s] = a[idx[r] * dim + idx[s]] / (d[r] * d[s]);
+            l[r * k + s] = a[idx[r] * dim + idx[s]] / (d[r] * d[s]);
         }
     }
     let mut ok = true;
     'outer: for j in 0..k {
-        let mut sum = l[j * 32 + j];
+        let mut sum = l[j * k + j];
         for p in 0..j {
-            sum -= l[j * 32 + p] * l[j * 32 + p];
+            sum -= l[j * k + p] * l[j * k + p];
         }
         // relative pivot test on the unit-diagonal matrix
         if sum <= 1e-10 {
@@ -221,13 +234,13 @@ pub fn solve_normal(a: &[f64], b: &[f64], active: &[bool]) -> Vec<f64> {
             break 'outer;
         }
         let piv = sum.sqrt();
-        l[j * 32 + j] = piv;
+        l[j * k + j] = piv;
         for i in j + 1..k {
-            let mut s2 = l[i * 32 + j];
+            let mut s2 = l[i * k + j];
             for p in 0..j {
-                s2 -= l[i * 32 + p] * l[j * 32 + p];
+                s2 -= l[i * k + p] * l[j * k + p];
             }
-            l[i * 32 + j] = s2 / piv;
+            l[i * k + j] = s2 / piv;
         }
     }
     let x: Vec<f64> = if ok {
@@ -235,17 +248,17 @@ pub fn solve_normal(a: &[f64], b: &[f64], active: &[bool]) -> Vec<f64> {
         for i in 0..k {
             let mut s2 = v[i];
             for p in 0..i {
-                s2 -= l[i * 32 + p] * y[p];
+                s2 -= l[i * k + p] * y[p];
             }
-            y[i] = s2 / l[i * 32 + i];
+            y[i] = s2 / l[i * k + i];
         }
         let mut x = vec![0.0; k];
         for i in (0..k).rev() {
             let mut s2 = y[i];
             for p in i + 1..k {
-                s2 -= l[p * 32 + i] * x[p];
+                s2 -= l[p * k + i] * x[p];
             }
-            x[i] = s2 / l[i * 32 + i];
+            x[i] = s2 / l[i * k + i];
         }
         x
     } else {

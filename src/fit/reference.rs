@@ -8,6 +8,8 @@ coverage, the same column-activity rule and the same solver); at fractional
 shifts it is the cost function of the refinement, with the templates
 interpolated in log λ.
 */
+// Index loops here mirror the sums of the normal equations term by term.
+#![allow(clippy::needless_range_loop)]
 use super::prep::{solve_constrained, Prepared};
 use super::units::Unit;
 
@@ -91,6 +93,81 @@ pub fn direct_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg:
         chi2 += prep.w[i] * r * r;
     }
     DirectFit { chi2, coeffs }
+}
+
+/// The same fit as [`direct_fit`] computed for speed (the refinement's cost
+/// function): the shift's sub-pixel part gives one set of cubic weights for
+/// every pixel, so each shifted template is a 4-tap filter of its array; the
+/// template sums are plain dot products, the polynomial-only sums come from
+/// [`Prepared`], and χ² = Σ w f² − c·b.
+pub fn sums_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg: bool) -> DirectFit {
+    let (k, j, n) = (unit.k(), prep.j(), prep.grid.n);
+    let dim = k + j;
+    let x0 = offset(prep, unit, shift);
+    let fl = x0.floor();
+    let d = x0 - fl;
+    let i0 = fl as i64;
+    // Keys (1981) cubic-convolution weights for taps −1, 0, 1, 2 (as Unit::interp)
+    let wts = if d == 0.0 {
+        [0.0, 1.0, 0.0, 0.0]
+    } else {
+        [
+            ((-0.5 * d + 1.0) * d - 0.5) * d,
+            (1.5 * d - 2.5) * d * d + 1.0,
+            ((-1.5 * d + 2.0) * d + 0.5) * d,
+            (0.5 * d - 0.5) * d * d,
+        ]
+    };
+    let m = unit.m() as i64;
+    let shifted: Vec<Vec<f64>> = unit
+        .t
+        .iter()
+        .map(|t| {
+            (0..n as i64)
+                .map(|i| {
+                    let r = i + i0;
+                    let mut v = 0.0;
+                    for (q, wq) in wts.iter().enumerate() {
+                        let idx = r + q as i64 - 1;
+                        if idx >= 0 && idx < m {
+                            v += wq * t[idx as usize];
+                        }
+                    }
+                    v
+                })
+                .collect()
+        })
+        .collect();
+    let dot = |a: &[f64], b: &[f64]| -> f64 { a.iter().zip(b).map(|(x, y)| x * y).sum() };
+    let mut a = vec![0.0; dim * dim];
+    let mut b = vec![0.0; dim];
+    for p in 0..k {
+        let wt: Vec<f64> = prep.w.iter().zip(&shifted[p]).map(|(w, t)| w * t).collect();
+        for q in p..k {
+            let v = dot(&wt, &shifted[q]);
+            a[p * dim + q] = v;
+            a[q * dim + p] = v;
+        }
+        for q in 0..j {
+            let v = dot(&prep.wp[q], &shifted[p]);
+            a[p * dim + k + q] = v;
+            a[(k + q) * dim + p] = v;
+        }
+        b[p] = dot(&prep.wf, &shifted[p]);
+    }
+    for p in 0..j {
+        b[k + p] = prep.pf[p];
+        for q in 0..j {
+            a[(k + p) * dim + k + q] = prep.pp[p * j + q];
+        }
+    }
+    let active: Vec<bool> = (0..dim).map(|r| r >= k || a[r * dim + r] > thr[r]).collect();
+    let coeffs = solve_constrained(&a, &b, &active, k, nonneg);
+    let fit: f64 = coeffs.iter().zip(&b).map(|(c, b)| c * b).sum();
+    DirectFit {
+        chi2: prep.fww - fit,
+        coeffs,
+    }
 }
 
 /// The oracle: χ² at every whole shift in `s_lo..=s_hi`, one direct fit each

@@ -1,16 +1,19 @@
 /*!
 Refinement of a grid minimum on a continuous redshift: Brent's method (argmin)
-on the direct-path χ² with the templates interpolated in log λ, and σ_z from
+on χ² with the templates interpolated in log λ (cubic convolution;
+[`super::reference::sums_fit`], the same χ² as the direct path), and σ_z from
 the curvature of χ² at the minimum (Δχ² = 1).
 */
+// Index loops here mirror the sums of the normal equations term by term.
+#![allow(clippy::needless_range_loop)]
 use super::prep::Prepared;
-use super::reference::{direct_fit, DirectFit};
+use super::reference::{sums_fit as direct_fit, DirectFit};
 use super::units::Unit;
 use argmin::core::{CostFunction, Error, Executor};
 use argmin::solver::brent::BrentOpt;
 
-/// Tolerance of the refined shift, in pixels (0.01 px ≈ 0.7 km/s at the default step).
-const SHIFT_TOL: f64 = 0.01;
+/// Tolerance of the refined shift, in pixels (0.02 px ≈ 1.4 km/s at the default step).
+const SHIFT_TOL: f64 = 0.02;
 /// Step (pixels) of the finite-difference second derivative.
 const CURV_STEP: f64 = 0.25;
 
@@ -70,6 +73,27 @@ pub fn refine(prep: &Prepared, unit: &Unit, thr: &[f64], s0: i64) -> Refined {
         (2.0 / d2).sqrt()
     } else {
         1.0
+    };
+    Refined {
+        shift,
+        sigma_shift,
+        fit,
+    }
+}
+
+/// Sub-pixel minimum and σ from the parabola through the grid χ² at
+/// `s0 − 1, s0, s0 + 1` (`curve[i]` is χ² at shift `lo + i`); the fit itself
+/// (χ², coefficients) is the one at the whole shift `s0`.
+pub fn grid_parabola(prep: &Prepared, unit: &Unit, thr: &[f64], s0: i64, curve: &[f64], lo: i64) -> Refined {
+    let fit = direct_fit(prep, unit, s0 as f64, thr, prep.nonneg);
+    let at = |s: i64| usize::try_from(s - lo).ok().and_then(|i| curve.get(i).copied());
+    let (shift, sigma_shift) = match (at(s0 - 1), at(s0), at(s0 + 1)) {
+        (Some(a), Some(b), Some(c)) if a + c - 2.0 * b > 0.0 => {
+            let d2 = a + c - 2.0 * b;
+            let dx = (0.5 * (a - c) / d2).clamp(-0.5, 0.5);
+            (s0 as f64 + dx, (2.0 / d2).sqrt())
+        }
+        _ => (s0 as f64, 1.0),
     };
     Refined {
         shift,

@@ -82,7 +82,7 @@ pub fn simulate(set: &TemplateSet, spec: &SimSpec, rng: &mut impl Rng) -> Option
     let mut sorted: Vec<f64> = clean.iter().map(|v| v.abs()).collect();
     sorted.sort_by(f64::total_cmp);
     let level = sorted[n / 2];
-    if !(level > 0.0) {
+    if level.is_nan() || level <= 0.0 {
         return None;
     }
     let sigma = level / spec.snr;

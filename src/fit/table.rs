@@ -114,7 +114,8 @@ pub struct FitRow {
 }
 
 fn finite(v: f64) -> Option<f64> {
-    (v.is_finite() && v != f64::MAX).then_some(v)
+    // f64::MAX is the engine's "no runner-up" value
+    (v.is_finite() && v < f64::MAX).then_some(v)
 }
 
 impl FitRow {
@@ -219,7 +220,7 @@ pub struct RowWriter {
 }
 
 enum WriterKind {
-    Csv(csv::Writer<File>),
+    Csv(Box<csv::Writer<File>>),
     Jsonl(BufWriter<File>),
     Fits(Vec<FitRow>),
 }
@@ -238,7 +239,9 @@ impl RowWriter {
                     .open(path)
                     .map_err(io_err(path))?;
                 let has_rows = exists && f.metadata().map(|m| m.len() > 0).unwrap_or(false);
-                WriterKind::Csv(csv::WriterBuilder::new().has_headers(!has_rows).from_writer(f))
+                WriterKind::Csv(Box::new(
+                    csv::WriterBuilder::new().has_headers(!has_rows).from_writer(f),
+                ))
             }
             TableFormat::Jsonl => {
                 let f = std::fs::OpenOptions::new()

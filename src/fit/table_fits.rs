@@ -20,7 +20,10 @@ fn err(path: &Path, e: impl std::fmt::Display) -> TableError {
 
 type Getter<T> = fn(&FitRow) -> T;
 
-const TEXT: [(&str, fn(&FitRow) -> &str); 8] = [
+/// Reads one text column's value from a row.
+type TextGetter = fn(&FitRow) -> &str;
+
+const TEXT: [(&str, TextGetter); 8] = [
     ("object_id", |r| &r.object_id),
     ("source", |r| &r.source),
     ("class", |r| &r.class),

@@ -64,7 +64,7 @@ impl Unit {
 
 /// Global pixel range `[lo, hi]` (inclusive) of a template on step `dll`.
 fn span(t: &Template, dll: f64) -> Option<(i64, i64)> {
-    if t.flux.len() < 2 || !(t.dloglam > 0.0) || !t.loglam0.is_finite() {
+    if t.flux.len() < 2 || t.dloglam.is_nan() || t.dloglam <= 0.0 || !t.loglam0.is_finite() {
         return None;
     }
     let a = t.loglam0;

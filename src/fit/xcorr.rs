@@ -15,6 +15,8 @@ with h the peak height. The shift error is 3w / (8(1 + r)) pixels (the form
 given by Tonry & Davis and used by later cross-correlation codes; from
 memory), converted to redshift with dz = ln 10 · Δ · (1+z).
 */
+// Index loops here mirror the sums of the normal equations term by term.
+#![allow(clippy::needless_range_loop)]
 use super::config::FitError;
 use super::engine::{shift_range, velocity_sep_kms, Engine};
 use super::prep::Prepared;
@@ -264,12 +266,21 @@ fn xcorr_prepared(e: &Engine, prep: &Prepared, kind: Option<TemplateKind>) -> Ve
         }
         out.extend(kept);
     }
-    out.sort_by(|x, y| y.r.total_cmp(&x.r));
+    // best r first, except that a star faster than STAR_VMAX_KMS ranks after
+    // every other class (as in the χ² decision)
+    let too_fast =
+        |p: &XCorrPeak| p.class == ObjectClass::Star && velocity_sep_kms(p.z, 0.0) > super::STAR_VMAX_KMS;
+    let any_other = out.iter().any(|p| !too_fast(p));
+    out.sort_by(|x, y| {
+        (any_other && too_fast(x))
+            .cmp(&(any_other && too_fast(y)))
+            .then(y.r.total_cmp(&x.r))
+    });
     out
 }
 
 /// `Engine::fit` with `Method::XCorr`: candidates are the correlation peaks
-/// ordered by r (best first); each carries the χ² of its class's templates
+/// ordered by r (best first; too-fast stars last, see [`super::STAR_VMAX_KMS`]); each carries the χ² of its class's templates
 /// fitted at the peak redshift (same definition as the χ² method) so that
 /// reduced χ² and Δχ² mean the same thing for both methods.
 pub fn fit(e: &Engine, s: &Spectrum) -> Result<FitResult, FitError> {

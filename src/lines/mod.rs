@@ -12,7 +12,7 @@ laboratory wavelength; their conventional positions are marked "common
 practice". Air wavelengths (sky lines, bands) were converted to vacuum once with
 the standard dispersion formula of the IAU convention and stored as vacuum.
 
-The tables live in [`data`]; this file holds the types and the look-ups.
+The tables live in `data.rs`; this file holds the types and the look-ups.
 */
 mod data;
 

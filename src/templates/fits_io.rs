@@ -95,7 +95,7 @@ pub const DESCRIPTOR_FORMAT: &str = "zvet-template-set";
 /// The JSON descriptor written beside each set's FITS file.
 #[derive(Debug, Clone, Serialize, Deserialize)]
 pub struct Descriptor {
-    /// Always [`DESCRIPTOR_FORMAT`].
+    /// Always `zvet-template-set`.
     pub format: String,
     /// Version of this layout (1).
     pub format_version: u32,

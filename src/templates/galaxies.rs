@@ -209,8 +209,9 @@ fn normalise(f: &mut [f64], grid: &Grid) {
 /// The passive population, normalised at 5400–5600 Å.
 pub fn old(grid: &Grid) -> Vec<f64> {
     let mut f = population(grid, OLD_MIX, OLD_SIGMA_KMS);
-    // The ultraviolet upturn: a trace of hot stars (0.5 % of the light at 5500 Å).
-    let hot = population(grid, &[("star-B", 0.005)], OLD_SIGMA_KMS);
+    // The ultraviolet upturn: a trace of hot stars (0.1 % of the light at 5500 Å,
+    // giving f_λ(1500 Å) of a few per cent of f_λ(5500 Å); from memory).
+    let hot = population(grid, &[("star-B", 0.001)], OLD_SIGMA_KMS);
     for (a, b) in f.iter_mut().zip(hot) {
         *a += b;
     }

@@ -20,7 +20,7 @@ pub mod stars;
 pub use builtin::{builtin, generate as generate_builtin, write_builtin, DEFAULT_DIR};
 pub use fits_io::{
     read_descriptor, read_set, set_files, write_set, write_set_with, Descriptor, DescriptorEntry,
-    TemplateError,
+    TemplateError, DESCRIPTOR_FORMAT,
 };
 
 /// Whether a template is dominated by emission or absorption features

@@ -88,19 +88,37 @@ pub fn tau_eff(z: f64) -> f64 {
     0.0018 * (1.0 + z).powf(3.92)
 }
 
+/// Rest-frame length (Å) over which the mean Lyman-continuum optical depth
+/// grows by one below 912 Å: the mean free path of ionising photons at
+/// z ≈ 2.5–3 (~100 proper Mpc; from memory) seen from the quasar.
+pub const LYMAN_CONTINUUM_LENGTH: f64 = 60.0;
+
+/// Rest-frame width (Å) of the ramp over which the forest sets in below Lyα
+/// and Lyβ: near the quasar its radiation ionises the gas (the proximity
+/// effect, a few thousand km/s; from memory), so the mean absorption has no
+/// sharp edge at the line.
+pub const PROXIMITY_RAMP: f64 = 15.0;
+
 /// Mean transmission at rest wavelength `lam` of a quasar at [`FOREST_Z`]:
 /// the Lyα forest below Lyα, the Lyβ forest below Lyβ (τ scaled by
-/// f λ of Lyβ over Lyα ≈ 0.16), and Lyman-limit absorption below 912 Å.
+/// f λ of Lyβ over Lyα ≈ 0.16), and below 912 Å the Lyman continuum of the
+/// intervening absorbers, growing with distance from the quasar. Averaged over
+/// sight lines none of these has a sharp edge, so neither has the template
+/// (a sharp edge would also mimic the Balmer jump of A stars at high z).
 pub fn forest_transmission(lam: f64) -> f64 {
     let lya = wave_of("Lyα");
     let lyb = wave_of("Lyβ");
     let obs = lam * (1.0 + FOREST_Z);
-    let mut tau = 0.0;
-    // Smooth each onset over a few Å so the basis has no step finer than real
-    // absorbers near the quasar would make.
-    tau += tau_eff(obs / lya - 1.0) * sigmoid((lya - lam) / 2.0);
-    tau += 0.16 * tau_eff(obs / lyb - 1.0) * sigmoid((lyb - lam) / 2.0);
-    tau += 1.5 * sigmoid((911.75 - lam) / 3.0);
+    let ramp = |edge: f64| {
+        if lam >= edge {
+            0.0
+        } else {
+            1.0 - (-(edge - lam) / PROXIMITY_RAMP).exp()
+        }
+    };
+    let mut tau = tau_eff(obs / lya - 1.0) * ramp(lya);
+    tau += 0.16 * tau_eff(obs / lyb - 1.0) * ramp(lyb);
+    tau += (911.75 - lam).max(0.0) / LYMAN_CONTINUUM_LENGTH;
     (-tau).exp()
 }
 
