@@ -268,7 +268,13 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
         },
         args.out.display()
     );
-    Ok(ExitCode::SUCCESS)
+    // Like `zvet inspect`: the rows are all written, but a script must be able
+    // to tell that some objects failed.
+    Ok(if summary.failed > 0 {
+        ExitCode::from(1)
+    } else {
+        ExitCode::SUCCESS
+    })
 }
 
 /// The template set: a user folder or the built-in set.
