@@ -81,6 +81,12 @@ impl Engine {
         if config.classes.is_empty() {
             return Err(FitError::InvalidConfig("no class to fit".into()));
         }
+        if !(config.sys_floor >= 0.0 && config.sys_floor < 1.0) {
+            return Err(FitError::InvalidConfig(format!(
+                "systematic floor {} must be in [0, 1)",
+                config.sys_floor
+            )));
+        }
         if config.poly_terms > 10 {
             return Err(FitError::InvalidConfig("at most 10 polynomial terms".into()));
         }
@@ -232,9 +238,9 @@ impl Engine {
         let mut p = if self.config.mask_sky {
             let mut m = s.clone();
             super::sky::mask(&mut m);
-            Prepared::new(&m, dll, j, self.reach)?
+            Prepared::with_floor(&m, dll, j, self.reach, self.config.sys_floor)?
         } else {
-            Prepared::new(s, dll, j, self.reach)?
+            Prepared::with_floor(s, dll, j, self.reach, self.config.sys_floor)?
         };
         p.nonneg = self.config.nonnegative;
         Ok(p)
@@ -360,6 +366,21 @@ impl Engine {
             let kb = any_other && implausible(&b.0);
             ka.cmp(&kb).then(a.0.chi2.total_cmp(&b.0.chi2))
         });
+        // inside the star window a galaxy solution yields to a star solution
+        // (see FitConfig::star_window_prefers_stars); the inverted order leaves Δχ² < 0,
+        // so the answer is flagged ambiguous for the inspector
+        if self.config.star_window_prefers_stars
+            && cands[0].0.class == ObjectClass::Galaxy
+            && velocity_sep_kms(cands[0].0.z, 0.0) <= STAR_VMAX_KMS
+        {
+            if let Some(i) = cands
+                .iter()
+                .position(|(c, _, _)| c.class == ObjectClass::Star && !implausible(c))
+            {
+                let star = cands.remove(i);
+                cands.insert(0, star);
+            }
+        }
         let (best, best_min, best_shift) = cands[0].clone();
         let min_sep_v = self.config.min_separation_kms;
         let runner = cands

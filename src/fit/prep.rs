@@ -12,6 +12,12 @@ use nalgebra::{DMatrix, DVector};
 /// Fewest good grid pixels the engine accepts.
 pub const MIN_PIXELS: usize = 20;
 
+/// Width (grid pixels) of the running mean of the flux that scales the
+/// systematic floor ([`FitConfig::sys_floor`](super::FitConfig::sys_floor)):
+/// 51 pixels of 1e-4 in log10 λ ≈ 3500 km/s, wider than any line of a
+/// galaxy or star, so that the floor follows the continuum.
+pub const SYS_FLOOR_WINDOW: usize = 51;
+
 /// A spectrum on the engine grid.
 #[derive(Debug, Clone)]
 pub struct Prepared {
@@ -64,6 +70,19 @@ impl Prepared {
     /// Resample `s` onto its grid of step `dll`, cut to the observed range
     /// `lam` (Å), and prepare the sums.
     pub fn new(s: &Spectrum, dll: f64, poly_terms: usize, lam: (f64, f64)) -> Result<Prepared, FitError> {
+        Prepared::with_floor(s, dll, poly_terms, lam, 0.0)
+    }
+
+    /// As [`Prepared::new`] with a systematic error floor: each good pixel's
+    /// variance becomes σ² + (`sys_floor`·|F̄|)² with F̄ the running mean of
+    /// the good flux over [`SYS_FLOOR_WINDOW`] pixels.
+    pub fn with_floor(
+        s: &Spectrum,
+        dll: f64,
+        poly_terms: usize,
+        lam: (f64, f64),
+        sys_floor: f64,
+    ) -> Result<Prepared, FitError> {
         let w = s.wave();
         let lo = w[0].max(lam.0);
         let hi = w[w.len() - 1].min(lam.1);
@@ -86,6 +105,14 @@ impl Prepared {
                 w[i] = r.ivar[i] / os;
                 flux[i] = r.flux[i];
                 good.push(i);
+            }
+        }
+        if sys_floor > 0.0 && sys_floor.is_finite() {
+            let fbar = running_mean(&flux, &w, SYS_FLOOR_WINDOW);
+            for &i in &good {
+                // w = ivar/os; the floor is a variance per pixel like σ²
+                let var = 1.0 / r.ivar[i] + (sys_floor * fbar[i]).powi(2);
+                w[i] = 1.0 / var / os;
             }
         }
         let needed = MIN_PIXELS.max(poly_terms + 2);
@@ -153,6 +180,32 @@ impl Prepared {
     pub fn j(&self) -> usize {
         self.p.len()
     }
+}
+
+/// Mean of `f` over the pixels with `w > 0` in a window of `width` pixels
+/// centred on each pixel (0 where the window holds no good pixel).
+fn running_mean(f: &[f64], w: &[f64], width: usize) -> Vec<f64> {
+    let n = f.len();
+    let half = width / 2;
+    let mut cs = vec![0.0; n + 1];
+    let mut cn = vec![0.0; n + 1];
+    for i in 0..n {
+        let g = w[i] > 0.0;
+        cs[i + 1] = cs[i] + if g { f[i] } else { 0.0 };
+        cn[i + 1] = cn[i] + if g { 1.0 } else { 0.0 };
+    }
+    (0..n)
+        .map(|i| {
+            let a = i.saturating_sub(half);
+            let b = (i + half + 1).min(n);
+            let m = cn[b] - cn[a];
+            if m > 0.0 {
+                (cs[b] - cs[a]) / m
+            } else {
+                0.0
+            }
+        })
+        .collect()
 }
 
 /// Least squares with the first `k` (template) coefficients constrained to
@@ -298,6 +351,30 @@ mod tests {
         assert_relative_eq!(c[1], 0.0, epsilon = 1e-14);
         let c = solve_normal(&[4.0, 2.0, 2.0, 3.0], &[2.0, 1.0], &[true, false]);
         assert_relative_eq!(c[0], 0.5, epsilon = 1e-14);
+    }
+
+    #[test]
+    fn systematic_floor_adds_its_variance_to_every_pixel() {
+        // flat spectrum of flux 10 and σ = 1: the floor ε = 0.1 adds (0.1·10)² = 1
+        // to each pixel's variance (definition of FitConfig::sys_floor)
+        let wave: Vec<f64> = (0..400).map(|i| 5000.0 + 2.0 * i as f64).collect();
+        let s = Spectrum::new(
+            wave,
+            vec![10.0; 400],
+            Some(vec![1.0; 400]),
+            None,
+            crate::spectrum::SpectrumMeta::default(),
+        )
+        .unwrap();
+        let a = Prepared::new(&s, 1e-4, 2, (0.0, 1e9)).unwrap();
+        let b = Prepared::with_floor(&s, 1e-4, 2, (0.0, 1e9), 0.1).unwrap();
+        assert_eq!(a.good, b.good);
+        let os = a.oversampling;
+        for &i in &a.good {
+            let var = 1.0 / (a.w[i] * os) + 1.0;
+            assert_relative_eq!(b.w[i], 1.0 / var / os, max_relative = 1e-12);
+        }
+        assert!(b.fww < a.fww);
     }
 
     #[test]
