@@ -47,6 +47,10 @@ pub struct Prepared {
     pub oversampling: f64,
     /// Template amplitudes are constrained to be ≥ 0.
     pub nonneg: bool,
+    /// x ∈ [−1, 1] across the grid (the argument of the Legendre polynomials).
+    pub x: Vec<f64>,
+    /// Columns per template: 1 (T_k) or 2 (T_k and the throughput term T_k·x).
+    pub groups: usize,
 }
 
 /// Legendre polynomials P_0..P_{j-1} at x ∈ [−1, 1] (Bonnet's recursion).
@@ -124,8 +128,10 @@ impl Prepared {
         }
         let (l0, l1) = (grid.wave(0), grid.wave(n - 1));
         let mut p = vec![vec![0.0; n]; poly_terms];
+        let mut xs = vec![0.0; n];
         for i in 0..n {
             let x = 2.0 * (grid.wave(i) - l0) / (l1 - l0) - 1.0;
+            xs[i] = x;
             for (j, v) in legendre(poly_terms, x).into_iter().enumerate() {
                 p[j][i] = v;
             }
@@ -162,6 +168,8 @@ impl Prepared {
             pf,
             oversampling: os,
             nonneg: false,
+            x: xs,
+            groups: 1,
         })
     }
 
@@ -179,6 +187,11 @@ impl Prepared {
     /// Number of polynomial terms.
     pub fn j(&self) -> usize {
         self.p.len()
+    }
+
+    /// Number of template columns for a unit of `k` templates.
+    pub fn cols(&self, k: usize) -> usize {
+        k * self.groups
     }
 }
 
@@ -213,8 +226,17 @@ fn running_mean(f: &[f64], w: &[f64], width: usize) -> Vec<f64> {
 /// feasible, else the best feasible solution over the subsets of template
 /// columns (exact for these small systems: the constrained optimum is the
 /// unconstrained optimum on its own support). Returns the coefficients; the
-/// fitted part of χ² is c·b.
-pub fn solve_constrained(a: &[f64], b: &[f64], active: &[bool], k: usize, nonneg: bool) -> Vec<f64> {
+/// fitted part of χ² is c·b. Columns `k..k·groups` are the throughput terms
+/// of the templates (column `u·k + a` belongs to template `a`): they are
+/// unconstrained and leave the fit together with their template.
+pub fn solve_constrained(
+    a: &[f64],
+    b: &[f64],
+    active: &[bool],
+    k: usize,
+    groups: usize,
+    nonneg: bool,
+) -> Vec<f64> {
     let c = solve_normal(a, b, active);
     if !nonneg || c[..k].iter().all(|v| *v >= 0.0) {
         return c;
@@ -225,7 +247,9 @@ pub fn solve_constrained(a: &[f64], b: &[f64], active: &[bool], k: usize, nonneg
     // subsets of the active template columns (bit i ↔ on[i]); the full set failed already
     for bits in 0..(1u32 << on.len().min(16)) - 1 {
         for (i, &col) in on.iter().enumerate() {
-            mask[col] = bits & (1 << i) != 0;
+            for u in 0..groups.max(1) {
+                mask[u * k + col] = bits & (1 << i) != 0 && active[u * k + col];
+            }
         }
         let c = solve_normal(a, b, &mask);
         if c[..k].iter().any(|v| *v < 0.0) {
