@@ -170,7 +170,7 @@ fn mock(set: &TemplateSet, class: ObjectClass, z: f64, snr: f64, n: usize, rng: 
 #[test]
 fn fast_path_equals_oracle_on_random_spectra_masks_and_templates() {
     let mut rng = ChaCha8Rng::seed_from_u64(20261202);
-    for trial in 0..4 {
+    for trial in 0..6 {
         // random template set: random lengths, ranges and values
         let mut rnd_t = |name: &str, class| {
             let lo = rng.random_range(800.0..3000.0);
@@ -208,6 +208,8 @@ fn fast_path_equals_oracle_on_random_spectra_masks_and_templates() {
             z_galaxy: (-0.01, 0.6),
             classes: vec![ObjectClass::Galaxy, ObjectClass::Star],
             poly_terms: trial % 4,
+            // throughput terms (T_k·x columns) in half the trials
+            throughput_terms: trial % 2 == 1,
             ..FitConfig::default()
         };
         let engine = Engine::new(&set, cfg).unwrap();
@@ -240,9 +242,14 @@ fn fast_path_equals_oracle_on_random_spectra_masks_and_templates() {
 /// table and return the success fraction at S/N ≥ 5 per class. Success as issue #3
 /// defines it: class right and |Δz|/(1+z) < 5e-4.
 fn recovery_table(per_cell: usize, seed: u64) -> Vec<(ObjectClass, f64)> {
+    recovery_table_with(per_cell, seed, FitConfig::default())
+}
+
+/// [`recovery_table`] with the engine settings given.
+pub(crate) fn recovery_table_with(per_cell: usize, seed: u64, config: FitConfig) -> Vec<(ObjectClass, f64)> {
     use zvet::fit::synth::{simulate, SimSpec};
     let set = zvet::templates::builtin();
-    let engine = Engine::new(set, FitConfig::default()).unwrap();
+    let engine = Engine::new(set, config).unwrap();
     let snrs = [2.0, 5.0, 10.0, 20.0];
     let cases: Vec<(ObjectClass, f64, u64)> = ObjectClass::ALL
         .iter()
@@ -272,8 +279,8 @@ fn recovery_table(per_cell: usize, seed: u64) -> Vec<(ObjectClass, f64)> {
             let b = r.best().unwrap();
             let ok = b.class == class && ((b.z - z) / (1.0 + z)).abs() < 5e-4;
             let note = format!(
-                "{class} ({name}) z={z:.5} S/N={snr} → {} {} z={:.5}",
-                b.class, b.template, b.z
+                "{class} ({name}) z={z:.5} S/N={snr} → {} {} z={:.5} ± {:.5}",
+                b.class, b.template, b.z, b.z_err
             );
             (class, snr, ok, note)
         })
@@ -313,14 +320,15 @@ fn recovery_table(per_cell: usize, seed: u64) -> Vec<(ObjectClass, f64)> {
 
 #[test]
 fn synthetic_recovery_from_builtin_templates() {
-    // Sized for a debug build (< 60 s on 2 cores); the large run is below.
-    // Issue #3 asks ≥ 99 % at S/N ≥ 5 for every class. Galaxies meet it.
-    // Not met yet (large run, 50 per cell, seed 2): stars 146/150 (an A
-    // star with a tilted throughput is sometimes fitted better by the
-    // galaxy basis at z ≈ 0) and quasars 132/150 (broad-line redshifts
-    // scatter beyond 5e-4). Their rates are printed; the large run asserts.
+    // Sized for a debug build (≈ 90 s on 2 cores); the large run is below.
+    // Issue #3 asks ≥ 99 % at S/N ≥ 5 for every class. Galaxies and stars
+    // meet it (large run, 50 per cell, seed 2: 150/150 each). Not met yet:
+    // quasars 133/150 — at S/N 5–10 the quasar basis's own σ_z/(1+z) is
+    // 2e-4–2e-3, comparable to the 5e-4 criterion, so the misses are the
+    // statistical scatter of broad-line redshifts. Their rate is printed;
+    // the large run asserts.
     for (class, rate) in recovery_table(3, 1) {
-        if class == ObjectClass::Galaxy {
+        if class != ObjectClass::Quasar {
             assert!(
                 rate >= 0.99,
                 "{class}: success at S/N ≥ 5 is {:.1} %",
@@ -331,7 +339,7 @@ fn synthetic_recovery_from_builtin_templates() {
 }
 
 #[test]
-#[ignore = "large run (stars and quasars do not meet 99 % yet): cargo test --release --no-default-features --test integration recovery_large -- --ignored --nocapture"]
+#[ignore = "large run (quasars do not meet 99 % yet): cargo test --release --no-default-features --test integration recovery_large -- --ignored --nocapture"]
 fn recovery_large() {
     for (class, rate) in recovery_table(50, 2) {
         assert!(
@@ -535,7 +543,7 @@ fn the_a0v_star_is_at_rest_by_cross_correlation() {
 }
 
 #[test]
-#[ignore = "not met yet: at S/N ≈ 4400 every built-in template is far from the A0V star (χ²_r ~ 1e5–1e6); the χ² method's best is not a star at rest"]
+#[ignore = "not met yet: the χ² method calls it a star (star window) but at z ≈ −0.00033 (star-A), 0.00026 from the header's −21 km/s: every built-in A-star template puts the Balmer lines ≈ 80 km/s off this spectrum"]
 fn the_a0v_star_is_a_star_at_rest_by_chi2() {
     let (chi2, _) = both_methods(&crate::support::a0v_star());
     let b = chi2.best().unwrap();
@@ -599,15 +607,27 @@ fn refinement_sums_equal_the_direct_fit_at_fractional_shifts() {
     let mut rng = ChaCha8Rng::seed_from_u64(77);
     let s = mock(&set, ObjectClass::Galaxy, 0.2, 8.0, 1200, &mut rng);
     let (lo, hi) = engine.fit_range();
-    let prep = Prepared::new(&s, 1e-4, 3, (lo, hi)).unwrap();
-    for u in engine.units() {
-        let thr = thresholds(&prep, u);
-        for _ in 0..5 {
-            let shift = rng.random_range(-20.0..800.0);
-            for nonneg in [false, true] {
-                let a = direct_fit(&prep, u, shift, &thr, nonneg).chi2;
-                let b = sums_fit(&prep, u, shift, &thr, nonneg).chi2;
-                assert!(((a - b) / a).abs() < 1e-9, "{} shift {shift}: {a} vs {b}", u.name);
+    let mut prep = Prepared::new(&s, 1e-4, 3, (lo, hi)).unwrap();
+    for groups in [1, 2] {
+        prep.groups = groups;
+        for u in engine.units() {
+            let thr = thresholds(&prep, u);
+            for _ in 0..5 {
+                let shift = rng.random_range(-20.0..800.0);
+                for nonneg in [false, true] {
+                    let a = direct_fit(&prep, u, shift, &thr, nonneg).chi2;
+                    let b = sums_fit(&prep, u, shift, &thr, nonneg).chi2;
+                    // With throughput columns T_a and T_a·x are nearly collinear where a
+                    // template covers only part of the range, so the normal equations lose
+                    // digits and χ² = Σwf² − c·b carries more rounding (up to 2e-6 relative
+                    // measured); 1e-5 is still far below Δχ² = 1 at these χ² values.
+                    let tol = if groups == 1 { 1e-9 } else { 1e-5 };
+                    assert!(
+                        ((a - b) / a).abs() < tol,
+                        "{} groups {groups} nonneg {nonneg} shift {shift}: {a} vs {b}",
+                        u.name
+                    );
+                }
             }
         }
     }

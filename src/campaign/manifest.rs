@@ -98,6 +98,7 @@ impl EngineSettings {
             mask_sky: self.mask_sky,
             method: self.method.parse()?,
             nonnegative: self.nonnegative,
+            ..crate::fit::FitConfig::default()
         })
     }
 

@@ -52,6 +52,43 @@ pub struct FitConfig {
     /// Constrain template amplitudes to be ≥ 0 (physical templates; turn off
     /// for signed bases such as principal components).
     pub nonnegative: bool,
+    /// Systematic error floor ε as a fraction of the (smoothed) flux: each
+    /// pixel's variance becomes σ² + (ε·|F̄|)², F̄ the flux averaged over
+    /// [`SYS_FLOOR_WINDOW`](super::prep::SYS_FLOOR_WINDOW) grid pixels. At
+    /// very high S/N the templates' own mismatch (a few per cent of the
+    /// continuum) then no longer outweighs every real feature; a fractional
+    /// floor of a few per cent for template mismatch is common practice in
+    /// spectral fitting. 0 turns it off.
+    #[serde(default = "default_sys_floor")]
+    pub sys_floor: f64,
+    /// Inside the star window (|cz| ≤
+    /// [`STAR_VMAX_KMS`](super::engine::STAR_VMAX_KMS)) a star solution
+    /// ranks before a galaxy solution of lower χ², and the result is flagged
+    /// ambiguous. The galaxy basis holds the light of A stars and can mimic
+    /// almost any single star at rest with its extra freedom, while galaxies
+    /// slower than the Galaxy's own stars are rare among survey targets.
+    #[serde(default = "yes")]
+    pub star_window_prefers_stars: bool,
+    /// Add one throughput term per template: the column T_k·x with x the
+    /// first Legendre polynomial across the fitted range, so that a linear
+    /// tilt of the instrument's throughput multiplies the templates (the
+    /// additive polynomials alone cannot scale a line's strength with λ).
+    /// On by default: it removes the quasar misses at S/N 20 in the
+    /// synthetic recovery run (tilted throughput), at about twice the cost
+    /// of the χ² curves.
+    #[serde(default = "yes")]
+    pub throughput_terms: bool,
+}
+
+fn yes() -> bool {
+    true
+}
+
+/// Default of [`FitConfig::sys_floor`].
+pub const DEFAULT_SYS_FLOOR: f64 = 0.03;
+
+fn default_sys_floor() -> f64 {
+    DEFAULT_SYS_FLOOR
 }
 
 impl Default for FitConfig {
@@ -68,6 +105,9 @@ impl Default for FitConfig {
             mask_sky: false,
             method: Method::Chi2,
             nonnegative: true,
+            sys_floor: DEFAULT_SYS_FLOOR,
+            star_window_prefers_stars: true,
+            throughput_terms: true,
         }
     }
 }

@@ -81,6 +81,12 @@ impl Engine {
         if config.classes.is_empty() {
             return Err(FitError::InvalidConfig("no class to fit".into()));
         }
+        if !(config.sys_floor >= 0.0 && config.sys_floor < 1.0) {
+            return Err(FitError::InvalidConfig(format!(
+                "systematic floor {} must be in [0, 1)",
+                config.sys_floor
+            )));
+        }
         if config.poly_terms > 10 {
             return Err(FitError::InvalidConfig("at most 10 polynomial terms".into()));
         }
@@ -93,9 +99,10 @@ impl Engine {
             }
         }
         let units = build_units(templates, &config.classes, config.dloglam)?;
-        if let Some(u) = units.iter().find(|u| u.k() + config.poly_terms > 32) {
+        let groups = if config.throughput_terms { 2 } else { 1 };
+        if let Some(u) = units.iter().find(|u| groups * u.k() + config.poly_terms > 32) {
             return Err(FitError::InvalidConfig(format!(
-                "{} has {} templates; with {} polynomial terms that exceeds 32 columns",
+                "{} has {} templates; with {} polynomial terms (and throughput terms if set) that exceeds 32 columns",
                 u.name,
                 u.k(),
                 config.poly_terms
@@ -197,7 +204,9 @@ impl Engine {
         };
         let k = unit.k();
         let j = self.config.poly_terms;
-        if c.coeffs.len() != k + j || c.z.is_nan() || c.z <= -1.0 {
+        let g = if self.config.throughput_terms { 2 } else { 1 };
+        let kc = k * g;
+        if c.coeffs.len() != kc + j || c.z.is_nan() || c.z <= -1.0 {
             return nanv;
         }
         let w = s.wave();
@@ -214,12 +223,19 @@ impl Engine {
                     return f64::NAN;
                 }
                 let mut v = 0.0;
+                let xl = 2.0 * (lam - l0) / (l1 - l0) - 1.0;
                 for a in 0..k {
-                    v += c.coeffs[a] * unit.interp(a, x);
+                    // template amplitude, times (1 + tilt·x) with throughput terms
+                    let amp = if g == 2 {
+                        c.coeffs[a] + c.coeffs[k + a] * xl
+                    } else {
+                        c.coeffs[a]
+                    };
+                    v += amp * unit.interp(a, x);
                 }
-                let p = legendre(j, 2.0 * (lam - l0) / (l1 - l0) - 1.0);
+                let p = legendre(j, xl);
                 for q in 0..j {
-                    v += c.coeffs[k + q] * p[q];
+                    v += c.coeffs[kc + q] * p[q];
                 }
                 v
             })
@@ -232,11 +248,12 @@ impl Engine {
         let mut p = if self.config.mask_sky {
             let mut m = s.clone();
             super::sky::mask(&mut m);
-            Prepared::new(&m, dll, j, self.reach)?
+            Prepared::with_floor(&m, dll, j, self.reach, self.config.sys_floor)?
         } else {
-            Prepared::new(s, dll, j, self.reach)?
+            Prepared::with_floor(s, dll, j, self.reach, self.config.sys_floor)?
         };
         p.nonneg = self.config.nonnegative;
+        p.groups = if self.config.throughput_terms { 2 } else { 1 };
         Ok(p)
     }
 
@@ -360,6 +377,21 @@ impl Engine {
             let kb = any_other && implausible(&b.0);
             ka.cmp(&kb).then(a.0.chi2.total_cmp(&b.0.chi2))
         });
+        // inside the star window a galaxy solution yields to a star solution
+        // (see FitConfig::star_window_prefers_stars); the inverted order leaves Δχ² < 0,
+        // so the answer is flagged ambiguous for the inspector
+        if self.config.star_window_prefers_stars
+            && cands[0].0.class == ObjectClass::Galaxy
+            && velocity_sep_kms(cands[0].0.z, 0.0) <= STAR_VMAX_KMS
+        {
+            if let Some(i) = cands
+                .iter()
+                .position(|(c, _, _)| c.class == ObjectClass::Star && !implausible(c))
+            {
+                let star = cands.remove(i);
+                cands.insert(0, star);
+            }
+        }
         let (best, best_min, best_shift) = cands[0].clone();
         let min_sep_v = self.config.min_separation_kms;
         let runner = cands
@@ -369,7 +401,7 @@ impl Engine {
         // negative when a lower-χ² star was set aside as too fast (then also ambiguous)
         let delta_chi2 = runner.map_or(f64::MAX, |(c, _, _)| c.chi2 - best.chi2);
         let n_good = prep.n_good();
-        let n_par = self.units[best_min.unit].k() + prep.j();
+        let n_par = prep.cols(self.units[best_min.unit].k()) + prep.j();
         let chi2_reduced = best.chi2 / prep.dof(n_par);
         let mut warnings = Warnings::default();
         if delta_chi2 < AMBIGUOUS_DCHI2 {
@@ -494,9 +526,15 @@ fn local_minima(v: &[f64]) -> Vec<usize> {
 fn template_part_mean(prep: &Prepared, u: &Unit, shift: f64, coeffs: &[f64]) -> f64 {
     let x0 = super::reference::offset(prep, u, shift);
     let mut sum = 0.0;
+    let k = u.k();
     for &i in &prep.good {
-        for a in 0..u.k() {
-            sum += coeffs[a] * u.interp(a, i as f64 + x0);
+        for a in 0..k {
+            let amp = if prep.groups == 2 {
+                coeffs[a] + coeffs[k + a] * prep.x[i]
+            } else {
+                coeffs[a]
+            };
+            sum += amp * u.interp(a, i as f64 + x0);
         }
     }
     sum / prep.good.len().max(1) as f64

@@ -11,6 +11,11 @@ array T (T_a or the product T_a·T_b):
 - Σ w T_a P_j  = corr(w·P_j,  T_a)
 - Σ w T_a f    = corr(w·f,    T_a)
 
+With throughput terms (columns T_a·x, x ∈ [−1, 1] across the grid, i.e.
+the template times the first Legendre polynomial) the data arrays also come
+multiplied by x and x²: Σ w (T_a x)(T_b x^v) = corr(w·x^(1+v), T_a·T_b),
+Σ w (T_a x) P_j = corr(w·x·P_j, T_a), Σ w (T_a x) f = corr(w·x·f, T_a).
+
 The polynomial-only sums do not depend on z (templates are zero outside
 their coverage and χ² always runs over every good pixel), so they come from
 [`Prepared`]. With L ≥ n + m − 1, X(c) = IFFT(conj(D̂)·T̂)[c mod L] / L
@@ -21,7 +26,7 @@ share one complex inverse FFT (real and imaginary part).
 // Index loops here mirror the sums of the normal equations term by term.
 #![allow(clippy::needless_range_loop)]
 use super::prep::{solve_normal, Prepared};
-use super::reference::thresholds;
+use super::reference::{active_columns, thresholds};
 use super::units::Unit;
 use rustfft::num_complex::Complex;
 use rustfft::{Fft, FftPlanner};
@@ -130,11 +135,12 @@ impl FftCache {
     }
 }
 
-/// Conjugated transforms of the data arrays w, w·f, w·P_j at one L.
+/// Conjugated transforms of the data arrays at one L: w·x^e (e < 2g − 1),
+/// w·x^u·P_j and w·f·x^u (u < g), g = columns per template.
 pub struct DataTransforms {
-    w: Vec<C>,
-    wf: Vec<C>,
-    wp: Vec<Vec<C>>,
+    w: Vec<Vec<C>>,
+    wf: Vec<Vec<C>>,
+    wp: Vec<Vec<Vec<C>>>,
 }
 
 /// Data transforms per FFT length, made lazily for one spectrum.
@@ -147,16 +153,27 @@ impl DataCache {
     fn get(&mut self, cache: &FftCache, prep: &Prepared, len: usize) -> &DataTransforms {
         self.by_len.entry(len).or_insert_with(|| {
             let conj = |v: Vec<C>| v.into_iter().map(|c| c.conj()).collect::<Vec<_>>();
-            let wf: Vec<f64> = prep.w.iter().zip(&prep.flux).map(|(w, f)| w * f).collect();
+            let g = prep.groups.max(1);
+            // w·x^e for e = 0 .. 2g − 2
+            let mut wx: Vec<Vec<f64>> = vec![prep.w.clone()];
+            for _ in 1..2 * g - 1 {
+                let next: Vec<f64> = wx[wx.len() - 1].iter().zip(&prep.x).map(|(a, x)| a * x).collect();
+                wx.push(next);
+            }
+            let tr = |v: &[f64]| conj(cache.forward_real(v, len));
             DataTransforms {
-                w: conj(cache.forward_real(&prep.w, len)),
-                wf: conj(cache.forward_real(&wf, len)),
-                wp: prep
-                    .p
+                w: wx.iter().map(|v| tr(v)).collect(),
+                wf: wx[..g]
                     .iter()
-                    .map(|p| {
-                        let x: Vec<f64> = prep.w.iter().zip(p).map(|(w, p)| w * p).collect();
-                        conj(cache.forward_real(&x, len))
+                    .map(|v| tr(&v.iter().zip(&prep.flux).map(|(a, f)| a * f).collect::<Vec<_>>()))
+                    .collect(),
+                wp: wx[..g]
+                    .iter()
+                    .map(|v| {
+                        prep.p
+                            .iter()
+                            .map(|p| tr(&v.iter().zip(p).map(|(a, p)| a * p).collect::<Vec<_>>()))
+                            .collect()
                     })
                     .collect(),
             }
@@ -175,9 +192,10 @@ pub enum CorrPlan {
     Direct,
 }
 
-/// Number of correlations of a unit with `k` templates and `j` polynomials.
-fn n_corr(k: usize, j: usize) -> usize {
-    k * (k + 1) / 2 + k * j + k
+/// Number of correlations of a unit with `k` templates, `j` polynomials and
+/// `g` columns per template.
+fn n_corr(k: usize, j: usize, g: usize) -> usize {
+    k * (k + 1) / 2 * (2 * g - 1) + k * g * j + k * g
 }
 
 /// χ² of `unit` at every shift `s_lo..=s_hi` by the fast path.
@@ -205,8 +223,9 @@ pub fn chi2_curve(
             // measured costs (release build): a direct multiply-add at a lag
             // ≈ 1.3 ns; a complex FFT ≈ 0.75 ns · L log2 L, one per pair of
             // correlations (five more for the data, shared by all units)
-            let direct = 1.3 * (ns * prep.n_good()) as f64 * n_corr(k, j) as f64;
-            let fft = 0.75 * len as f64 * (len as f64).log2() * n_corr(k, j).div_ceil(2) as f64;
+            let direct = 1.3 * (ns * prep.n_good()) as f64 * n_corr(k, j, prep.groups.max(1)) as f64;
+            let fft =
+                0.75 * len as f64 * (len as f64).log2() * n_corr(k, j, prep.groups.max(1)).div_ceil(2) as f64;
             fft < direct
         }
     };
@@ -236,17 +255,24 @@ fn sums_fft(
     let ut = cache.unit_transforms(key, unit, len);
     let dt = data.get(cache, prep, len);
     // the list of correlations: (data spectrum, template spectrum)
+    let g = prep.groups.max(1);
     let mut pairs: Vec<(&[C], &[C])> = Vec::new();
     for tt in &ut.tt {
-        pairs.push((&dt.w, tt));
-    }
-    for a in 0..k {
-        for q in 0..j {
-            pairs.push((&dt.wp[q], &ut.t[a]));
+        for e in 0..2 * g - 1 {
+            pairs.push((&dt.w[e], tt));
         }
     }
     for a in 0..k {
-        pairs.push((&dt.wf, &ut.t[a]));
+        for u in 0..g {
+            for q in 0..j {
+                pairs.push((&dt.wp[u][q], &ut.t[a]));
+            }
+        }
+    }
+    for a in 0..k {
+        for u in 0..g {
+            pairs.push((&dt.wf[u], &ut.t[a]));
+        }
     }
     let ncorr = pairs.len();
     let mut out = vec![0.0; ns * ncorr];
@@ -286,9 +312,11 @@ fn sums_fft(
 fn sums_direct(prep: &Prepared, unit: &Unit, s_lo: i64, ns: usize) -> Vec<f64> {
     let m = unit.m() as i64;
     let (k, j) = (unit.k(), prep.j());
-    let ncorr = n_corr(k, j);
+    let g = prep.groups.max(1);
+    let ncorr = n_corr(k, j, g);
     let mut out = vec![0.0; ns * ncorr];
     let mut tv = vec![0.0; k];
+    let mut xp = vec![1.0; 2 * g - 1];
     for si in 0..ns {
         let c = prep.g0 - unit.t0 - (s_lo + si as i64);
         let row = &mut out[si * ncorr..(si + 1) * ncorr];
@@ -300,23 +328,32 @@ fn sums_direct(prep: &Prepared, unit: &Unit, s_lo: i64, ns: usize) -> Vec<f64> {
             for (a, t) in tv.iter_mut().enumerate() {
                 *t = unit.t[a][r as usize];
             }
+            for e in 1..xp.len() {
+                xp[e] = xp[e - 1] * prep.x[i];
+            }
             let (w, f) = (prep.w[i], prep.flux[i]);
             let mut ci = 0;
             for a in 0..k {
                 for b in a..k {
-                    row[ci] += w * tv[a] * tv[b];
-                    ci += 1;
+                    for x in &xp {
+                        row[ci] += w * x * tv[a] * tv[b];
+                        ci += 1;
+                    }
                 }
             }
             for &t in &tv {
-                for q in 0..j {
-                    row[ci] += w * t * prep.p[q][i];
-                    ci += 1;
+                for x in &xp[..g] {
+                    for q in 0..j {
+                        row[ci] += w * x * t * prep.p[q][i];
+                        ci += 1;
+                    }
                 }
             }
             for &t in &tv {
-                row[ci] += w * t * f;
-                ci += 1;
+                for x in &xp[..g] {
+                    row[ci] += w * x * t * f;
+                    ci += 1;
+                }
             }
         }
     }
@@ -324,45 +361,60 @@ fn sums_direct(prep: &Prepared, unit: &Unit, s_lo: i64, ns: usize) -> Vec<f64> {
 }
 
 /// Assemble and solve the normal equations at each shift from the sums.
+/// Column u·k + a is T_a·x^u; then the polynomials.
 fn solve_shifts(prep: &Prepared, unit: &Unit, out: &[f64], ns: usize) -> Vec<f64> {
     let (k, j) = (unit.k(), prep.j());
-    let ncorr = n_corr(k, j);
+    let g = prep.groups.max(1);
+    let ncorr = n_corr(k, j, g);
     let thr = thresholds(prep, unit);
-    let dim = k + j;
+    let kc = k * g;
+    let dim = kc + j;
     let mut a = vec![0.0; dim * dim];
     let mut b = vec![0.0; dim];
-    let mut active = vec![true; dim];
     let mut chi2 = Vec::with_capacity(ns);
     for si in 0..ns {
         let row = &out[si * ncorr..(si + 1) * ncorr];
         let mut ci = 0;
         for p in 0..k {
             for q in p..k {
-                a[p * dim + q] = row[ci];
-                a[q * dim + p] = row[ci];
-                ci += 1;
+                // Σ w x^e T_p T_q fills every (u, v) with u + v = e
+                for e in 0..2 * g - 1 {
+                    for u in 0..g {
+                        if e < u || e - u >= g {
+                            continue;
+                        }
+                        let v = e - u;
+                        let (r, c) = (u * k + p, v * k + q);
+                        a[r * dim + c] = row[ci];
+                        a[c * dim + r] = row[ci];
+                    }
+                    ci += 1;
+                }
             }
         }
         for p in 0..k {
-            for q in 0..j {
-                a[p * dim + k + q] = row[ci];
-                a[(k + q) * dim + p] = row[ci];
-                ci += 1;
+            for u in 0..g {
+                for q in 0..j {
+                    let r = u * k + p;
+                    a[r * dim + kc + q] = row[ci];
+                    a[(kc + q) * dim + r] = row[ci];
+                    ci += 1;
+                }
             }
         }
         for p in 0..k {
-            b[p] = row[ci];
-            ci += 1;
+            for u in 0..g {
+                b[u * k + p] = row[ci];
+                ci += 1;
+            }
         }
         for p in 0..j {
-            b[k + p] = prep.pf[p];
+            b[kc + p] = prep.pf[p];
             for q in 0..j {
-                a[(k + p) * dim + k + q] = prep.pp[p * j + q];
+                a[(kc + p) * dim + kc + q] = prep.pp[p * j + q];
             }
         }
-        for p in 0..k {
-            active[p] = a[p * dim + p] > thr[p];
-        }
+        let active = active_columns(&a, dim, k, kc, &thr);
         let c = solve_normal(&a, &b, &active);
         let fit: f64 = c.iter().zip(&b).map(|(c, b)| c * b).sum();
         chi2.push(prep.fww - fit);

@@ -12,6 +12,12 @@ use nalgebra::{DMatrix, DVector};
 /// Fewest good grid pixels the engine accepts.
 pub const MIN_PIXELS: usize = 20;
 
+/// Width (grid pixels) of the running mean of the flux that scales the
+/// systematic floor ([`FitConfig::sys_floor`](super::FitConfig::sys_floor)):
+/// 51 pixels of 1e-4 in log10 λ ≈ 3500 km/s, wider than any line of a
+/// galaxy or star, so that the floor follows the continuum.
+pub const SYS_FLOOR_WINDOW: usize = 51;
+
 /// A spectrum on the engine grid.
 #[derive(Debug, Clone)]
 pub struct Prepared {
@@ -41,6 +47,10 @@ pub struct Prepared {
     pub oversampling: f64,
     /// Template amplitudes are constrained to be ≥ 0.
     pub nonneg: bool,
+    /// x ∈ [−1, 1] across the grid (the argument of the Legendre polynomials).
+    pub x: Vec<f64>,
+    /// Columns per template: 1 (T_k) or 2 (T_k and the throughput term T_k·x).
+    pub groups: usize,
 }
 
 /// Legendre polynomials P_0..P_{j-1} at x ∈ [−1, 1] (Bonnet's recursion).
@@ -64,6 +74,19 @@ impl Prepared {
     /// Resample `s` onto its grid of step `dll`, cut to the observed range
     /// `lam` (Å), and prepare the sums.
     pub fn new(s: &Spectrum, dll: f64, poly_terms: usize, lam: (f64, f64)) -> Result<Prepared, FitError> {
+        Prepared::with_floor(s, dll, poly_terms, lam, 0.0)
+    }
+
+    /// As [`Prepared::new`] with a systematic error floor: each good pixel's
+    /// variance becomes σ² + (`sys_floor`·|F̄|)² with F̄ the running mean of
+    /// the good flux over [`SYS_FLOOR_WINDOW`] pixels.
+    pub fn with_floor(
+        s: &Spectrum,
+        dll: f64,
+        poly_terms: usize,
+        lam: (f64, f64),
+        sys_floor: f64,
+    ) -> Result<Prepared, FitError> {
         let w = s.wave();
         let lo = w[0].max(lam.0);
         let hi = w[w.len() - 1].min(lam.1);
@@ -88,6 +111,14 @@ impl Prepared {
                 good.push(i);
             }
         }
+        if sys_floor > 0.0 && sys_floor.is_finite() {
+            let fbar = running_mean(&flux, &w, SYS_FLOOR_WINDOW);
+            for &i in &good {
+                // w = ivar/os; the floor is a variance per pixel like σ²
+                let var = 1.0 / r.ivar[i] + (sys_floor * fbar[i]).powi(2);
+                w[i] = 1.0 / var / os;
+            }
+        }
         let needed = MIN_PIXELS.max(poly_terms + 2);
         if good.len() < needed {
             return Err(FitError::TooFewPixels {
@@ -97,8 +128,10 @@ impl Prepared {
         }
         let (l0, l1) = (grid.wave(0), grid.wave(n - 1));
         let mut p = vec![vec![0.0; n]; poly_terms];
+        let mut xs = vec![0.0; n];
         for i in 0..n {
             let x = 2.0 * (grid.wave(i) - l0) / (l1 - l0) - 1.0;
+            xs[i] = x;
             for (j, v) in legendre(poly_terms, x).into_iter().enumerate() {
                 p[j][i] = v;
             }
@@ -135,6 +168,8 @@ impl Prepared {
             pf,
             oversampling: os,
             nonneg: false,
+            x: xs,
+            groups: 1,
         })
     }
 
@@ -153,6 +188,37 @@ impl Prepared {
     pub fn j(&self) -> usize {
         self.p.len()
     }
+
+    /// Number of template columns for a unit of `k` templates.
+    pub fn cols(&self, k: usize) -> usize {
+        k * self.groups
+    }
+}
+
+/// Mean of `f` over the pixels with `w > 0` in a window of `width` pixels
+/// centred on each pixel (0 where the window holds no good pixel).
+fn running_mean(f: &[f64], w: &[f64], width: usize) -> Vec<f64> {
+    let n = f.len();
+    let half = width / 2;
+    let mut cs = vec![0.0; n + 1];
+    let mut cn = vec![0.0; n + 1];
+    for i in 0..n {
+        let g = w[i] > 0.0;
+        cs[i + 1] = cs[i] + if g { f[i] } else { 0.0 };
+        cn[i + 1] = cn[i] + if g { 1.0 } else { 0.0 };
+    }
+    (0..n)
+        .map(|i| {
+            let a = i.saturating_sub(half);
+            let b = (i + half + 1).min(n);
+            let m = cn[b] - cn[a];
+            if m > 0.0 {
+                (cs[b] - cs[a]) / m
+            } else {
+                0.0
+            }
+        })
+        .collect()
 }
 
 /// Least squares with the first `k` (template) coefficients constrained to
@@ -160,8 +226,17 @@ impl Prepared {
 /// feasible, else the best feasible solution over the subsets of template
 /// columns (exact for these small systems: the constrained optimum is the
 /// unconstrained optimum on its own support). Returns the coefficients; the
-/// fitted part of χ² is c·b.
-pub fn solve_constrained(a: &[f64], b: &[f64], active: &[bool], k: usize, nonneg: bool) -> Vec<f64> {
+/// fitted part of χ² is c·b. Columns `k..k·groups` are the throughput terms
+/// of the templates (column `u·k + a` belongs to template `a`): they are
+/// unconstrained and leave the fit together with their template.
+pub fn solve_constrained(
+    a: &[f64],
+    b: &[f64],
+    active: &[bool],
+    k: usize,
+    groups: usize,
+    nonneg: bool,
+) -> Vec<f64> {
     let c = solve_normal(a, b, active);
     if !nonneg || c[..k].iter().all(|v| *v >= 0.0) {
         return c;
@@ -172,7 +247,9 @@ pub fn solve_constrained(a: &[f64], b: &[f64], active: &[bool], k: usize, nonneg
     // subsets of the active template columns (bit i ↔ on[i]); the full set failed already
     for bits in 0..(1u32 << on.len().min(16)) - 1 {
         for (i, &col) in on.iter().enumerate() {
-            mask[col] = bits & (1 << i) != 0;
+            for u in 0..groups.max(1) {
+                mask[u * k + col] = bits & (1 << i) != 0 && active[u * k + col];
+            }
         }
         let c = solve_normal(a, b, &mask);
         if c[..k].iter().any(|v| *v < 0.0) {
@@ -298,6 +375,30 @@ mod tests {
         assert_relative_eq!(c[1], 0.0, epsilon = 1e-14);
         let c = solve_normal(&[4.0, 2.0, 2.0, 3.0], &[2.0, 1.0], &[true, false]);
         assert_relative_eq!(c[0], 0.5, epsilon = 1e-14);
+    }
+
+    #[test]
+    fn systematic_floor_adds_its_variance_to_every_pixel() {
+        // flat spectrum of flux 10 and σ = 1: the floor ε = 0.1 adds (0.1·10)² = 1
+        // to each pixel's variance (definition of FitConfig::sys_floor)
+        let wave: Vec<f64> = (0..400).map(|i| 5000.0 + 2.0 * i as f64).collect();
+        let s = Spectrum::new(
+            wave,
+            vec![10.0; 400],
+            Some(vec![1.0; 400]),
+            None,
+            crate::spectrum::SpectrumMeta::default(),
+        )
+        .unwrap();
+        let a = Prepared::new(&s, 1e-4, 2, (0.0, 1e9)).unwrap();
+        let b = Prepared::with_floor(&s, 1e-4, 2, (0.0, 1e9), 0.1).unwrap();
+        assert_eq!(a.good, b.good);
+        let os = a.oversampling;
+        for &i in &a.good {
+            let var = 1.0 / (a.w[i] * os) + 1.0;
+            assert_relative_eq!(b.w[i], 1.0 / var / os, max_relative = 1e-12);
+        }
+        assert!(b.fww < a.fww);
     }
 
     #[test]

@@ -23,7 +23,8 @@ pub const ACTIVE_FRACTION: f64 = 1e-9;
 pub struct DirectFit {
     /// χ² over all good grid pixels.
     pub chi2: f64,
-    /// Template coefficients followed by polynomial coefficients.
+    /// Template coefficients, then (with throughput terms) the coefficients
+    /// of T_k·x, then the polynomial coefficients.
     pub coeffs: Vec<f64>,
 }
 
@@ -46,22 +47,28 @@ pub fn offset(prep: &Prepared, unit: &Unit, shift: f64) -> f64 {
 /// With `nonneg` the template amplitudes are constrained to be ≥ 0.
 pub fn direct_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg: bool) -> DirectFit {
     let k = unit.k();
+    let kc = prep.cols(k);
     let j = prep.j();
-    let dim = k + j;
+    let dim = kc + j;
     let x0 = offset(prep, unit, shift);
     let mut a = vec![0.0; dim * dim];
     let mut b = vec![0.0; dim];
     let mut row = vec![0.0; dim];
-    let mut tvals = vec![0.0; k * prep.good.len()];
+    let mut rows = vec![0.0; dim * prep.good.len()];
     for (gi, &i) in prep.good.iter().enumerate() {
         for t in 0..k {
             let v = unit.interp(t, i as f64 + x0);
-            tvals[gi * k + t] = v;
-            row[t] = v;
+            // column u·k + t is T_t·x^u (u = 1: the throughput term)
+            let mut m = v;
+            for u in 0..prep.groups {
+                row[u * k + t] = m;
+                m *= prep.x[i];
+            }
         }
         for q in 0..j {
-            row[k + q] = prep.p[q][i];
+            row[kc + q] = prep.p[q][i];
         }
+        rows[gi * dim..(gi + 1) * dim].copy_from_slice(&row);
         let (w, f) = (prep.w[i], prep.flux[i]);
         for r in 0..dim {
             let wr = w * row[r];
@@ -76,23 +83,27 @@ pub fn direct_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg:
             a[r * dim + s] = a[s * dim + r];
         }
     }
-    let active: Vec<bool> = (0..dim)
-        .map(|r| if r < k { a[r * dim + r] > thr[r] } else { true })
-        .collect();
-    let coeffs = solve_constrained(&a, &b, &active, k, nonneg);
+    let active = active_columns(&a, dim, k, kc, thr);
+    let coeffs = solve_constrained(&a, &b, &active, k, prep.groups, nonneg);
     let mut chi2 = 0.0;
     for (gi, &i) in prep.good.iter().enumerate() {
-        let mut model = 0.0;
-        for t in 0..k {
-            model += coeffs[t] * tvals[gi * k + t];
-        }
-        for q in 0..j {
-            model += coeffs[k + q] * prep.p[q][i];
-        }
+        let model: f64 = coeffs
+            .iter()
+            .zip(&rows[gi * dim..(gi + 1) * dim])
+            .map(|(c, v)| c * v)
+            .sum();
         let r = prep.flux[i] - model;
         chi2 += prep.w[i] * r * r;
     }
     DirectFit { chi2, coeffs }
+}
+
+/// Which columns take part: a template (and its throughput term) when its
+/// Σ w T² exceeds the threshold; polynomials always.
+pub(crate) fn active_columns(a: &[f64], dim: usize, k: usize, kc: usize, thr: &[f64]) -> Vec<bool> {
+    (0..dim)
+        .map(|r| r >= kc || a[(r % k) * dim + r % k] > thr[r % k])
+        .collect()
 }
 
 /// The same fit as [`direct_fit`] computed for speed (the refinement's cost
@@ -102,7 +113,6 @@ pub fn direct_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg:
 /// [`Prepared`], and χ² = Σ w f² − c·b.
 pub fn sums_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg: bool) -> DirectFit {
     let (k, j, n) = (unit.k(), prep.j(), prep.grid.n);
-    let dim = k + j;
     let x0 = offset(prep, unit, shift);
     let fl = x0.floor();
     let d = x0 - fl;
@@ -138,31 +148,45 @@ pub fn sums_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg: b
                 .collect()
         })
         .collect();
+    // the template columns T_a·x^u on the grid
+    let kc = prep.cols(k);
+    let dim = kc + j;
+    let mut cols: Vec<Vec<f64>> = shifted;
+    for _ in 1..prep.groups {
+        for _ in 0..k {
+            let next: Vec<f64> = cols[cols.len() - k]
+                .iter()
+                .zip(&prep.x)
+                .map(|(v, x)| v * x)
+                .collect();
+            cols.push(next);
+        }
+    }
     let dot = |a: &[f64], b: &[f64]| -> f64 { a.iter().zip(b).map(|(x, y)| x * y).sum() };
     let mut a = vec![0.0; dim * dim];
     let mut b = vec![0.0; dim];
-    for p in 0..k {
-        let wt: Vec<f64> = prep.w.iter().zip(&shifted[p]).map(|(w, t)| w * t).collect();
-        for q in p..k {
-            let v = dot(&wt, &shifted[q]);
+    for p in 0..kc {
+        let wt: Vec<f64> = prep.w.iter().zip(&cols[p]).map(|(w, t)| w * t).collect();
+        for q in p..kc {
+            let v = dot(&wt, &cols[q]);
             a[p * dim + q] = v;
             a[q * dim + p] = v;
         }
         for q in 0..j {
-            let v = dot(&prep.wp[q], &shifted[p]);
-            a[p * dim + k + q] = v;
-            a[(k + q) * dim + p] = v;
+            let v = dot(&prep.wp[q], &cols[p]);
+            a[p * dim + kc + q] = v;
+            a[(kc + q) * dim + p] = v;
         }
-        b[p] = dot(&prep.wf, &shifted[p]);
+        b[p] = dot(&prep.wf, &cols[p]);
     }
     for p in 0..j {
-        b[k + p] = prep.pf[p];
+        b[kc + p] = prep.pf[p];
         for q in 0..j {
-            a[(k + p) * dim + k + q] = prep.pp[p * j + q];
+            a[(kc + p) * dim + kc + q] = prep.pp[p * j + q];
         }
     }
-    let active: Vec<bool> = (0..dim).map(|r| r >= k || a[r * dim + r] > thr[r]).collect();
-    let coeffs = solve_constrained(&a, &b, &active, k, nonneg);
+    let active = active_columns(&a, dim, k, kc, thr);
+    let coeffs = solve_constrained(&a, &b, &active, k, prep.groups, nonneg);
     let fit: f64 = coeffs.iter().zip(&b).map(|(c, b)| c * b).sum();
     DirectFit {
         chi2: prep.fww - fit,

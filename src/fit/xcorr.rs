@@ -300,7 +300,7 @@ pub fn fit(e: &Engine, s: &Spectrum) -> Result<FitResult, FitError> {
         let thr = thresholds(&prep, u);
         let f = direct_fit(&prep, u, (1.0 + p.z).log10() / dll, &thr, prep.nonneg);
         if cands.is_empty() {
-            k_best = u.k();
+            k_best = prep.cols(u.k());
         }
         cands.push(Candidate {
             class: p.class,
