@@ -6,7 +6,6 @@ column mapping), with which templates and engine settings, by whom.
 Paths inside the campaign folder are stored relative to it, others absolute,
 so the folder can be moved together with its inputs.
 */
-use crate::ObjectClass;
 use chrono::{DateTime, Utc};
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
@@ -48,103 +47,9 @@ pub struct CatalogSettings {
     pub columns: BTreeMap<String, String>,
 }
 
-/// Engine settings (mirrors the engine's configuration).
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(default)]
-pub struct EngineSettings {
-    /// Step of the log10-λ grid.
-    pub dloglam: f64,
-    /// Classes fitted.
-    pub classes: Vec<ObjectClass>,
-    /// Galaxy redshift range.
-    pub z_galaxy: (f64, f64),
-    /// Quasar redshift range.
-    pub z_quasar: (f64, f64),
-    /// Star redshift range.
-    pub z_star: (f64, f64),
-    /// Legendre continuum terms.
-    pub poly_terms: usize,
-    /// Candidates kept per class.
-    pub n_candidates: usize,
-    /// Minimum separation of candidates (km/s).
-    pub min_separation_kms: f64,
-    /// Mask night-sky lines and telluric bands.
-    pub mask_sky: bool,
-    /// `chi2` or `xcorr`.
-    pub method: String,
-    /// Template amplitudes constrained to be ≥ 0.
-    pub nonnegative: bool,
-}
-
-impl Default for EngineSettings {
-    /// The engine's defaults.
-    fn default() -> Self {
-        EngineSettings::from_config(&crate::fit::FitConfig::default())
-    }
-}
-
-impl EngineSettings {
-    /// The engine configuration these settings describe.
-    pub fn to_config(&self) -> Result<crate::fit::FitConfig, String> {
-        Ok(crate::fit::FitConfig {
-            dloglam: self.dloglam,
-            classes: self.classes.clone(),
-            z_galaxy: self.z_galaxy,
-            z_quasar: self.z_quasar,
-            z_star: self.z_star,
-            poly_terms: self.poly_terms,
-            n_candidates: self.n_candidates,
-            min_separation_kms: self.min_separation_kms,
-            mask_sky: self.mask_sky,
-            method: self.method.parse()?,
-            nonnegative: self.nonnegative,
-            ..crate::fit::FitConfig::default()
-        })
-    }
-
-    /// Settings describing an engine configuration.
-    pub fn from_config(c: &crate::fit::FitConfig) -> EngineSettings {
-        EngineSettings {
-            dloglam: c.dloglam,
-            classes: c.classes.clone(),
-            z_galaxy: c.z_galaxy,
-            z_quasar: c.z_quasar,
-            z_star: c.z_star,
-            poly_terms: c.poly_terms,
-            n_candidates: c.n_candidates,
-            min_separation_kms: c.min_separation_kms,
-            mask_sky: c.mask_sky,
-            method: match c.method {
-                crate::fit::Method::Chi2 => "chi2".into(),
-                crate::fit::Method::XCorr => "xcorr".into(),
-            },
-            nonnegative: c.nonnegative,
-        }
-    }
-
-    /// One line for provenance headers.
-    pub fn summary(&self) -> String {
-        let classes: Vec<&str> = self.classes.iter().map(|c| c.as_str()).collect();
-        format!(
-            "method={} dloglam={} classes={} z_galaxy={}..{} z_quasar={}..{} z_star={}..{} \
-             poly_terms={} n_candidates={} min_separation_kms={} mask_sky={} nonnegative={}",
-            self.method,
-            self.dloglam,
-            classes.join(","),
-            self.z_galaxy.0,
-            self.z_galaxy.1,
-            self.z_quasar.0,
-            self.z_quasar.1,
-            self.z_star.0,
-            self.z_star.1,
-            self.poly_terms,
-            self.n_candidates,
-            self.min_separation_kms,
-            self.mask_sky,
-            self.nonnegative
-        )
-    }
-}
+/// Engine settings: the engine's own configuration, stored as is (fields
+/// missing from an older manifest take the engine's defaults).
+pub type EngineSettings = crate::fit::FitConfig;
 
 /// The manifest.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]

@@ -117,7 +117,7 @@ impl Campaign {
 
     /// The redshift engine with the manifest's templates and settings.
     pub fn engine(&self) -> Result<Engine, CampaignError> {
-        let config = self.manifest.engine.to_config().map_err(CampaignError::Other)?;
+        let config = self.manifest.engine.clone();
         match self.manifest.templates.as_str() {
             "builtin" | "" => Ok(Engine::new(crate::templates::builtin(), config)?),
             _ => Ok(Engine::new(&self.templates()?, config)?),

@@ -153,7 +153,7 @@ pub fn write_fits(path: &Path, rows: &[ExportRow], prov: &Provenance) -> Result<
             ("DATE", date, "UTC date the file was written"),
             ("CAMPAIGN", to_ascii(&prov.campaign), "campaign name"),
             ("TEMPLSET", to_ascii(&prov.template_set), "template set"),
-            ("ZMETHOD", e.method.clone(), "redshift engine method"),
+            ("ZMETHOD", e.method.as_str().to_string(), "redshift engine method"),
             ("ZCLASSES", classes.join(","), "classes fitted"),
             (
                 "MINCONF",
@@ -165,7 +165,7 @@ pub fn write_fits(path: &Path, rows: &[ExportRow], prov: &Provenance) -> Result<
         for (k, v, comment) in str_keys {
             hdu.write_key(&mut f, k, (v.as_str(), comment)).map_err(&fe)?;
         }
-        let f64_keys: [(&str, f64, &str); 8] = [
+        let f64_keys: [(&str, f64, &str); 9] = [
             ("DLOGLAM", e.dloglam, "log10 wavelength step of the fit grid"),
             ("ZGALMIN", e.z_galaxy.0, "galaxy redshift range, low"),
             ("ZGALMAX", e.z_galaxy.1, "galaxy redshift range, high"),
@@ -174,6 +174,7 @@ pub fn write_fits(path: &Path, rows: &[ExportRow], prov: &Provenance) -> Result<
             ("ZSTARMIN", e.z_star.0, "star redshift range, low"),
             ("ZSTARMAX", e.z_star.1, "star redshift range, high"),
             ("ZTOL", prov.tolerance, "merge tolerance on |dz|/(1+z)"),
+            ("SYSFLOOR", e.sys_floor, "systematic error floor, fraction of flux"),
         ];
         for (k, v, comment) in f64_keys {
             hdu.write_key(&mut f, k, (v, comment)).map_err(&fe)?;
@@ -202,6 +203,18 @@ pub fn write_fits(path: &Path, rows: &[ExportRow], prov: &Provenance) -> Result<
             &mut f,
             "NONNEG",
             (i64::from(e.nonnegative), "template amplitudes >= 0 (1/0)"),
+        )
+        .map_err(&fe)?;
+        hdu.write_key(
+            &mut f,
+            "STARWIN",
+            (i64::from(e.star_window_prefers_stars), "stars first below 800 km/s (1/0)"),
+        )
+        .map_err(&fe)?;
+        hdu.write_key(
+            &mut f,
+            "TPUTTERM",
+            (i64::from(e.throughput_terms), "template x throughput-tilt terms (1/0)"),
         )
         .map_err(&fe)?;
         Ok(())
@@ -287,7 +300,10 @@ pub fn read_fits(path: &Path) -> Result<(Vec<ExportRow>, Provenance), ExportErro
         min_separation_kms: x(&mut f, "MINSEPKM")?,
         mask_sky: i(&mut f, "MASKSKY")? != 0,
         nonnegative: i(&mut f, "NONNEG")? != 0,
-        method: s(&mut f, "ZMETHOD")?,
+        method: s(&mut f, "ZMETHOD")?.parse().map_err(ExportError::Format)?,
+        sys_floor: x(&mut f, "SYSFLOOR")?,
+        star_window_prefers_stars: i(&mut f, "STARWIN")? != 0,
+        throughput_terms: i(&mut f, "TPUTTERM")? != 0,
     };
     let minconf = s(&mut f, "MINCONF")?;
     let min_confidence = match minconf.as_str() {

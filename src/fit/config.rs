@@ -15,6 +15,16 @@ pub enum Method {
     XCorr,
 }
 
+impl Method {
+    /// Lower-case name, as parsed by `FromStr`.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Method::Chi2 => "chi2",
+            Method::XCorr => "xcorr",
+        }
+    }
+}
+
 impl std::str::FromStr for Method {
     type Err = String;
     fn from_str(s: &str) -> Result<Self, Self::Err> {
@@ -27,7 +37,11 @@ impl std::str::FromStr for Method {
 }
 
 /// Settings of an [`Engine`](super::Engine).
+///
+/// Serialised as is into campaign manifests and export provenance; fields
+/// missing from an older file take their defaults.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
 pub struct FitConfig {
     /// Step of the common grid in log10 λ (one trial redshift per step).
     pub dloglam: f64,
@@ -147,4 +161,33 @@ pub enum FitError {
     /// The refinement could not run.
     #[error("refinement failed: {0}")]
     Refine(String),
+}
+
+impl FitConfig {
+    /// One line for provenance headers and `zvet campaign status`.
+    pub fn summary(&self) -> String {
+        let classes: Vec<&str> = self.classes.iter().map(|c| c.as_str()).collect();
+        format!(
+            "method={} dloglam={} classes={} z_galaxy={}..{} z_quasar={}..{} z_star={}..{} \
+             poly_terms={} n_candidates={} min_separation_kms={} mask_sky={} nonnegative={} \
+             sys_floor={} star_window_prefers_stars={} throughput_terms={}",
+            self.method.as_str(),
+            self.dloglam,
+            classes.join(","),
+            self.z_galaxy.0,
+            self.z_galaxy.1,
+            self.z_quasar.0,
+            self.z_quasar.1,
+            self.z_star.0,
+            self.z_star.1,
+            self.poly_terms,
+            self.n_candidates,
+            self.min_separation_kms,
+            self.mask_sky,
+            self.nonnegative,
+            self.sys_floor,
+            self.star_window_prefers_stars,
+            self.throughput_terms
+        )
+    }
 }
