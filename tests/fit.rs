@@ -602,7 +602,12 @@ fn zvet_fit_writes_an_error_row_for_a_file_without_good_pixels_and_goes_on() {
         .output()
         .unwrap();
     // every row is written, and the exit code tells that one object failed
-    assert_eq!(st.status.code(), Some(1), "{}", String::from_utf8_lossy(&st.stderr));
+    assert_eq!(
+        st.status.code(),
+        Some(1),
+        "{}",
+        String::from_utf8_lossy(&st.stderr)
+    );
     let rows = zvet::fit::table::read_rows(&out).unwrap();
     assert_eq!(rows.len(), 2);
     assert_eq!(rows[0].object_id, "bad");

@@ -174,7 +174,11 @@ pub fn write_fits(path: &Path, rows: &[ExportRow], prov: &Provenance) -> Result<
             ("ZSTARMIN", e.z_star.0, "star redshift range, low"),
             ("ZSTARMAX", e.z_star.1, "star redshift range, high"),
             ("ZTOL", prov.tolerance, "merge tolerance on |dz|/(1+z)"),
-            ("SYSFLOOR", e.sys_floor, "systematic error floor, fraction of flux"),
+            (
+                "SYSFLOOR",
+                e.sys_floor,
+                "systematic error floor, fraction of flux",
+            ),
         ];
         for (k, v, comment) in f64_keys {
             hdu.write_key(&mut f, k, (v, comment)).map_err(&fe)?;
@@ -208,13 +212,19 @@ pub fn write_fits(path: &Path, rows: &[ExportRow], prov: &Provenance) -> Result<
         hdu.write_key(
             &mut f,
             "STARWIN",
-            (i64::from(e.star_window_prefers_stars), "stars first below 800 km/s (1/0)"),
+            (
+                i64::from(e.star_window_prefers_stars),
+                "stars first below 800 km/s (1/0)",
+            ),
         )
         .map_err(&fe)?;
         hdu.write_key(
             &mut f,
             "TPUTTERM",
-            (i64::from(e.throughput_terms), "template x throughput-tilt terms (1/0)"),
+            (
+                i64::from(e.throughput_terms),
+                "template x throughput-tilt terms (1/0)",
+            ),
         )
         .map_err(&fe)?;
         Ok(())
