@@ -51,6 +51,8 @@ pub enum Loaded {
         log_folder: PathBuf,
         /// Things that could not be read.
         problems: Vec<String>,
+        /// The engine on the campaign's templates and settings (None: keep the current one).
+        fitter: Option<Arc<dyn Fitter>>,
     },
     /// Something went wrong; the text says what.
     Failed(String),

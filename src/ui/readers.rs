@@ -3,6 +3,7 @@ Reading what the inspector opens (on a load thread) and putting it into the
 window (on the UI thread): spectra files, a catalogue joined by id, a template
 set that replaces the engine, a campaign folder with its review logs.
 */
+use super::jobs::Fitter;
 use crate::campaign::SurveyObject;
 use crate::fit::{Engine, FitConfig};
 use crate::io::{self, ReadOptions};
@@ -82,76 +83,40 @@ pub fn read_templates(path: &Path) -> Loaded {
     }
 }
 
-/// Read a campaign folder: its spectra (with the manifest's reader options),
-/// its catalogue joined by id, and the folder of its review logs.
+/// Read a campaign folder through the library (`Campaign::load_objects`: its
+/// spectra with the manifest's reader options, its catalogue joined by id,
+/// its cached fits) and build the engine the manifest names, so that objects
+/// without a cached fit are fitted with the campaign's own templates and
+/// settings.
 pub fn read_campaign(path: &Path) -> Loaded {
     let campaign = match crate::campaign::Campaign::open(path) {
         Ok(c) => c,
         Err(e) => return Loaded::Failed(format!("{}: {e}", path.display())),
     };
-    let m = campaign.manifest();
-    let r = &m.read;
-    let opts = ReadOptions {
-        air: r.air,
-        wave_col: r.wave_col.clone(),
-        flux_col: r.flux_col.clone(),
-        ivar_col: r.ivar_col.clone(),
-        err_col: r.err_col.clone(),
-        mask_col: r.mask_col.clone(),
-        id_col: r.id_col.clone(),
-        hdu: r.hdu,
+    let (objects, mut problems) = match campaign.load_objects() {
+        Ok(loaded) => loaded,
+        Err(e) => return Loaded::Failed(format!("{}: {e}", path.display())),
     };
-    let mut problems = Vec::new();
-    let mut objects = Vec::new();
-    for f in io::expand_inputs(&campaign.spectra_paths()) {
-        match io::read_file(&f, &opts) {
-            Ok(v) => objects.extend(v.into_iter().map(|spectrum| SurveyObject {
-                spectrum,
-                catalog: None,
-                fit: None,
-            })),
-            Err(e) => problems.push(e.to_string()),
+    let fitter: Option<Arc<dyn Fitter>> = match campaign.engine() {
+        Ok(engine) => Some(Arc::new(engine)),
+        Err(e) => {
+            problems.push(format!(
+                "campaign engine: {e}; fitting with the built-in templates"
+            ));
+            None
         }
-    }
-    if let (Some(cat), Some(settings)) = (campaign.catalog_path(), m.catalog.as_ref()) {
-        let mut map = crate::catalog::ColumnMap::default();
-        let overrides: Vec<String> = settings.columns.iter().map(|(k, v)| format!("{k}={v}")).collect();
-        let rows = map
-            .apply_overrides(&overrides)
-            .map_err(|e| e.to_string())
-            .and_then(|_| crate::catalog::read_csv(&cat, &map).map_err(|e| e.to_string()));
-        match rows {
-            Ok(rows) => {
-                let ids: Vec<String> = objects.iter().map(|o| o.id().to_string()).collect();
-                for (si, ri) in crate::catalog::join(&ids, &rows).matched {
-                    if let (Some(o), Some(row)) = (objects.get_mut(si), rows.get(ri)) {
-                        o.catalog = Some(row.clone());
-                    }
-                }
-            }
-            Err(e) => problems.push(format!("{}: {e}", cat.display())),
-        }
-    }
-    // Cached automatic fits are used as they are; the rest are fitted in the background.
-    match campaign.load_fits() {
-        Ok((fits, fit_problems)) => {
-            problems.extend(fit_problems);
-            for o in &mut objects {
-                o.fit = fits.get(o.id()).cloned();
-            }
-        }
-        Err(e) => problems.push(e.to_string()),
-    }
+    };
     let log = campaign.review_log_path("x");
     let log_folder = log
         .parent()
         .map(Path::to_path_buf)
         .unwrap_or_else(|| path.join("reviews"));
     Loaded::Campaign {
-        title: m.name.clone(),
+        title: campaign.manifest().name.clone(),
         objects,
         log_folder,
         problems,
+        fitter,
     }
 }
 
@@ -177,8 +142,12 @@ impl ZvetApp {
                 objects,
                 log_folder,
                 problems,
+                fitter,
             } => {
                 self.report(&problems);
+                if let Some(fitter) = fitter {
+                    self.fitter = fitter;
+                }
                 self.replace_objects(title, objects, LogPlace::Folder(log_folder));
             }
             Loaded::Catalog { path, rows } => {
