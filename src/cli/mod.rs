@@ -41,7 +41,7 @@ pub enum Command {
     Templates(templates::Args),
     /// Write the invented demo survey to files.
     Demo(demo::Args),
-    /// Create a campaign folder.
+    /// Create, fit or summarise a campaign folder.
     Campaign(campaign::Args),
     /// Merge the inspectors' review logs of a campaign.
     Merge(merge::Args),
