@@ -93,10 +93,17 @@ pub fn read_campaign(path: &Path) -> Loaded {
         Ok(c) => c,
         Err(e) => return Loaded::Failed(format!("{}: {e}", path.display())),
     };
-    let (objects, mut problems) = match campaign.load_objects() {
+    let (mut objects, mut problems) = match campaign.load_objects() {
         Ok(loaded) => loaded,
         Err(e) => return Loaded::Failed(format!("{}: {e}", path.display())),
     };
+    // The fit cache keeps candidates but not the χ²(z) curves the window
+    // draws; such objects are fitted again in the background for display.
+    for o in &mut objects {
+        if o.fit.as_ref().is_some_and(|f| f.curves.is_empty()) {
+            o.fit = None;
+        }
+    }
     let fitter: Option<Arc<dyn Fitter>> = match campaign.engine() {
         Ok(engine) => Some(Arc::new(engine)),
         Err(e) => {
