@@ -14,27 +14,8 @@ use std::path::{Path, PathBuf};
 /// Format version of `campaign.toml`.
 pub const MANIFEST_FORMAT: u32 = 1;
 
-/// How to read the spectrum files (mirrors the reader options).
-#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
-#[serde(default)]
-pub struct ReadSettings {
-    /// Wavelengths are in air (converted to vacuum on reading).
-    pub air: bool,
-    /// Wavelength column of tables.
-    pub wave_col: Option<String>,
-    /// Flux column.
-    pub flux_col: Option<String>,
-    /// Inverse-variance column.
-    pub ivar_col: Option<String>,
-    /// 1σ error column.
-    pub err_col: Option<String>,
-    /// Mask column.
-    pub mask_col: Option<String>,
-    /// Object-id column.
-    pub id_col: Option<String>,
-    /// FITS HDU to read.
-    pub hdu: Option<usize>,
-}
+/// How to read the spectrum files: the readers' own options, stored as is.
+pub type ReadSettings = crate::io::ReadOptions;
 
 /// The photometric catalogue and which of its columns mean what.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]

@@ -42,17 +42,7 @@ impl Campaign {
 
     /// The reader options of the manifest.
     pub fn read_options(&self) -> crate::io::ReadOptions {
-        let r = &self.manifest.read;
-        crate::io::ReadOptions {
-            air: r.air,
-            wave_col: r.wave_col.clone(),
-            flux_col: r.flux_col.clone(),
-            ivar_col: r.ivar_col.clone(),
-            err_col: r.err_col.clone(),
-            mask_col: r.mask_col.clone(),
-            id_col: r.id_col.clone(),
-            hdu: r.hdu,
-        }
+        self.manifest.read.clone()
     }
 
     /// Every object: the spectra of all inputs, joined with the catalogue by

@@ -3,7 +3,7 @@
 automatic fits into `fits.jsonl`, and show where it stands.
 */
 use super::read_opts::ReadArgs;
-use crate::campaign::{Campaign, EngineSettings, InitOptions, ReadSettings};
+use crate::campaign::{Campaign, EngineSettings, InitOptions};
 use anyhow::Context;
 use std::collections::BTreeMap;
 use std::path::PathBuf;
@@ -102,20 +102,10 @@ fn init(a: InitArgs) -> anyhow::Result<ExitCode> {
             .with_context(|| format!("--column {c}: expected FIELD=COLUMN"))?;
         columns.insert(field.trim().to_string(), column.trim().to_string());
     }
-    let r = a.read.to_options();
     let opts = InitOptions {
         name: a.name,
         spectra: a.spectra,
-        read: ReadSettings {
-            air: r.air,
-            wave_col: r.wave_col,
-            flux_col: r.flux_col,
-            ivar_col: r.ivar_col,
-            err_col: r.err_col,
-            mask_col: r.mask_col,
-            id_col: r.id_col,
-            hdu: r.hdu,
-        },
+        read: a.read.to_options(),
         catalog: a.catalog,
         columns,
         templates: a.templates,

@@ -37,7 +37,10 @@ use std::path::{Path, PathBuf};
 pub const NOISE_HALF_WIDTH: usize = 25;
 
 /// What the user tells the readers beyond what the files say.
-#[derive(Debug, Clone, Default, PartialEq, Eq)]
+///
+/// Stored as is in campaign manifests (`[read]`); missing fields default.
+#[derive(Debug, Clone, Default, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+#[serde(default)]
 pub struct ReadOptions {
     /// Wavelengths are in standard air (converted to vacuum).
     pub air: bool,
