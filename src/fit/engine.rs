@@ -465,8 +465,26 @@ impl Engine {
     }
 }
 
+/// Widest redshift window, as ln((1 + z_hi)/(1 + z_lo)), of a class whose
+/// templates must cover the whole fitted range at **every** trial redshift
+/// (see [`reach`]): 0.02 ≈ ±3000 km/s, which holds the default star window
+/// (±0.005) and leaves out the galaxy and quasar ranges.
+pub const NARROW_WINDOW: f64 = 0.02;
+
 /// Intersection over classes of the observed range (Å) the class's
-/// templates reach at some trial redshift of its range.
+/// templates reach at some trial redshift of its range; for a class with a
+/// narrow window ([`NARROW_WINDOW`], the stars), the range its templates
+/// reach at every trial redshift.
+///
+/// Templates are zero where they do not cover, so a trial redshift that
+/// moves a template's edge across good pixels gains (or loses) the χ² those
+/// pixels are fitted by the template rather than the polynomial alone. At
+/// high S/N that coverage term outweighs the lines: a star window whose edges
+/// sat inside the fitted range pulled an A0V standard by −100 km/s. Over a
+/// narrow window the cut costs at most 1 % of the range on each side; over
+/// the galaxy and quasar ranges it would cost most of the spectrum, and
+/// there the term is what lets a class be judged on the same pixels as the
+/// others.
 fn reach(units: &[Unit], config: &FitConfig) -> (f64, f64) {
     let dll = config.dloglam;
     let mut lo = 0.0f64;
@@ -483,8 +501,10 @@ fn reach(units: &[Unit], config: &FitConfig) -> (f64, f64) {
         let rest_hi = us
             .map(|u| (u.t0 + u.m() as i64 - 1) as f64 * dll)
             .fold(f64::NEG_INFINITY, f64::max);
-        lo = lo.max(10f64.powf(rest_lo) * (1.0 + z0));
-        hi = hi.min(10f64.powf(rest_hi) * (1.0 + z1));
+        let narrow = ((1.0 + z1) / (1.0 + z0)).ln() <= NARROW_WINDOW;
+        let (z_lo_edge, z_hi_edge) = if narrow { (z1, z0) } else { (z0, z1) };
+        lo = lo.max(10f64.powf(rest_lo) * (1.0 + z_lo_edge));
+        hi = hi.min(10f64.powf(rest_hi) * (1.0 + z_hi_edge));
     }
     (lo, hi)
 }
@@ -554,6 +574,30 @@ mod tests {
     fn minima_found_and_separated() {
         let v = [3.0, 1.0, 2.0, 2.0, 0.5, 0.6];
         assert_eq!(local_minima(&v), vec![1, 4]);
+    }
+
+    #[test]
+    fn star_templates_cover_the_fitted_range_at_every_trial_redshift() {
+        let config = FitConfig::default();
+        let e = Engine::new(crate::templates::builtin(), config.clone()).unwrap();
+        let (lo, hi) = e.fit_range();
+        let (z0, z1) = config.z_range(ObjectClass::Star);
+        for u in e.units().iter().filter(|u| u.class == ObjectClass::Star) {
+            let first = 10f64.powf(u.t0 as f64 * config.dloglam);
+            let last = 10f64.powf((u.t0 + u.m() as i64 - 1) as f64 * config.dloglam);
+            assert!(first * (1.0 + z1) <= lo * (1.0 + 1e-12), "{}: {first} Å", u.name);
+            assert!(last * (1.0 + z0) >= hi * (1.0 - 1e-12), "{}: {last} Å", u.name);
+        }
+        // the wide classes keep the range they reach at some trial redshift
+        let galaxies_only = Engine::new(
+            crate::templates::builtin(),
+            FitConfig {
+                classes: vec![ObjectClass::Galaxy],
+                ..FitConfig::default()
+            },
+        )
+        .unwrap();
+        assert!(galaxies_only.fit_range().0 < 1000.0);
     }
 
     #[test]
