@@ -278,8 +278,21 @@ pub(crate) fn recovery_table_with(per_cell: usize, seed: u64, config: FitConfig)
             let r = engine.fit(&s).unwrap();
             let b = r.best().unwrap();
             let ok = b.class == class && ((b.z - z) / (1.0 + z)).abs() < 5e-4;
+            // for a miss: the best fit of the true class within 300 km/s of the truth
+            let near = if ok {
+                String::new()
+            } else {
+                engine
+                    .refit_near(&s, z, Some(class), 300.0)
+                    .ok()
+                    .and_then(|t| {
+                        t.best()
+                            .map(|c| format!(" (χ² {:.1}; near the truth {:.1})", b.chi2, c.chi2))
+                    })
+                    .unwrap_or_default()
+            };
             let note = format!(
-                "{class} ({name}) z={z:.5} S/N={snr} → {} {} z={:.5} ± {:.5}",
+                "{class} ({name}) z={z:.5} S/N={snr} → {} {} z={:.5} ± {:.5}{near}",
                 b.class, b.template, b.z, b.z_err
             );
             (class, snr, ok, note)
@@ -320,28 +333,31 @@ pub(crate) fn recovery_table_with(per_cell: usize, seed: u64, config: FitConfig)
 
 #[test]
 fn synthetic_recovery_from_builtin_templates() {
-    // Sized for a debug build (≈ 90 s on 2 cores); the large run is below.
-    // Issue #3 asks ≥ 99 % at S/N ≥ 5 for every class. Galaxies and stars
-    // meet it (large run, 50 per cell, seed 2: 150/150 each). Not met yet:
-    // quasars 133/150 — at S/N 5–10 the quasar basis's own σ_z/(1+z) is
-    // 2e-4–2e-3, comparable to the 5e-4 criterion, so the misses are the
-    // statistical scatter of broad-line redshifts. Their rate is printed;
-    // the large run asserts.
+    // Sized for a debug build; the large run is below. Issue #3 asks ≥ 99 % at
+    // S/N ≥ 5 for every class.
     for (class, rate) in recovery_table(3, 1) {
-        if class != ObjectClass::Quasar {
-            assert!(
-                rate >= 0.99,
-                "{class}: success at S/N ≥ 5 is {:.1} %",
-                100.0 * rate
-            );
-        }
+        assert!(
+            rate >= 0.99,
+            "{class}: success at S/N ≥ 5 is {:.1} %",
+            100.0 * rate
+        );
     }
 }
 
 #[test]
-#[ignore = "large run (quasars do not meet 99 % yet): cargo test --release --no-default-features --test integration recovery_large -- --ignored --nocapture"]
+#[ignore = "large run: cargo test --release --no-default-features --test integration recovery_large -- --ignored --nocapture"]
 fn recovery_large() {
-    for (class, rate) in recovery_table(50, 2) {
+    // 50 per cell (150 per class at S/N ≥ 5); ZVET_RECOVERY_SEED and
+    // ZVET_RECOVERY_PER_CELL choose other draws for the README's table.
+    let seed = std::env::var("ZVET_RECOVERY_SEED")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(2);
+    let per_cell = std::env::var("ZVET_RECOVERY_PER_CELL")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(50);
+    for (class, rate) in recovery_table(per_cell, seed) {
         assert!(
             rate >= 0.99,
             "{class}: success at S/N ≥ 5 is {:.1} %",
@@ -545,17 +561,11 @@ fn the_a0v_star_is_at_rest_by_cross_correlation() {
 #[test]
 fn the_a0v_star_is_a_star_at_rest_by_chi2() {
     // The file's header gives a radial velocity of −21 km/s (z ≈ −7e-5); issue #3 asks
-    // `star` with |z| < 0.0003. The galaxy basis at z ≈ 0 has the lower χ²: the star
-    // window ranks the star first and flags the answer ambiguous.
+    // `star` with |z| < 0.0003.
     let (chi2, _) = both_methods(&crate::support::a0v_star());
     let b = chi2.best().unwrap();
     assert_eq!(b.class, ObjectClass::Star);
     assert!(b.z.abs() < 3e-4, "z = {}", b.z);
-    assert!(
-        chi2.warnings.names().contains("ambiguous"),
-        "{}",
-        chi2.warnings.names()
-    );
 }
 
 #[test]
@@ -621,7 +631,7 @@ fn refinement_sums_equal_the_direct_fit_at_fractional_shifts() {
     let (lo, hi) = engine.fit_range();
     let mut prep = Prepared::new(&s, 1e-4, 3, (lo, hi)).unwrap();
     for groups in [1, 2] {
-        prep.groups = groups;
+        prep.set_groups(groups);
         for u in engine.units() {
             let thr = thresholds(&prep, u);
             for _ in 0..5 {

@@ -53,6 +53,10 @@ pub struct Args {
     /// Mask strong night-sky lines and telluric bands before fitting.
     #[arg(long)]
     pub mask_sky: bool,
+    /// Give every template a throughput-tilt term (the template × a linear
+    /// function of wavelength): for spectra with a poor relative flux calibration.
+    #[arg(long)]
+    pub tilt_terms: bool,
     /// A template set folder to use instead of the built-in one.
     #[arg(long)]
     pub templates: Option<PathBuf>,
@@ -223,6 +227,7 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
         classes: args.classes.clone(),
         method: args.method,
         mask_sky: args.mask_sky,
+        throughput_terms: args.tilt_terms,
         ..FitConfig::default()
     };
     let engine = Engine::new(&set, config).context("preparing the templates")?;

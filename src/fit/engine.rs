@@ -253,7 +253,7 @@ impl Engine {
             Prepared::with_floor(s, dll, j, self.reach, self.config.sys_floor)?
         };
         p.nonneg = self.config.nonnegative;
-        p.groups = if self.config.throughput_terms { 2 } else { 1 };
+        p.set_groups(if self.config.throughput_terms { 2 } else { 1 });
         Ok(p)
     }
 
@@ -549,7 +549,7 @@ fn template_part_mean(prep: &Prepared, u: &Unit, shift: f64, coeffs: &[f64]) -> 
     let k = u.k();
     for &i in &prep.good {
         for a in 0..k {
-            let amp = if prep.groups == 2 {
+            let amp = if prep.groups() == 2 {
                 coeffs[a] + coeffs[k + a] * prep.x[i]
             } else {
                 coeffs[a]

@@ -4,29 +4,39 @@ cross-correlations.
 
 At shift s, grid pixel i sees template pixel i + c with c = g0 − t0 − s, so
 every normal-equation sum that involves a template is a cross-correlation
-X(c) = Σ_i D[i] T[i + c] of a data array D (w, w·f or w·P_j) with a template
-array T (T_a or the product T_a·T_b):
+X(c) = Σ_i D[i] T[i + c] of a data array D with a template array T (T_a or
+the product T_a·T_b). The data arrays are w·P_q (P_q the Legendre
+polynomials of x ∈ [−1, 1] across the grid) and w·f·x^u:
 
-- Σ w T_a T_b  = corr(w,      T_a·T_b)
-- Σ w T_a P_j  = corr(w·P_j,  T_a)
-- Σ w T_a f    = corr(w·f,    T_a)
+- Σ w T_a T_b      = corr(w·P_0, T_a·T_b)
+- Σ w T_a P_j      = corr(w·P_j, T_a)
+- Σ w T_a f        = corr(w·f,   T_a)
 
-With throughput terms (columns T_a·x, x ∈ [−1, 1] across the grid, i.e.
-the template times the first Legendre polynomial) the data arrays also come
-multiplied by x and x²: Σ w (T_a x)(T_b x^v) = corr(w·x^(1+v), T_a·T_b),
-Σ w (T_a x) P_j = corr(w·x·P_j, T_a), Σ w (T_a x) f = corr(w·x·f, T_a).
+With throughput terms (columns T_a·x, i.e. the template times P_1) the sums
+pick up powers of x, which the Legendre recursion x·P_j = ((j+1)·P_{j+1} +
+j·P_{j−1})/(2j+1) turns back into the same data arrays: x = P_1 and
+x² = (P_0 + 2·P_2)/3, so Σ w x T_a T_b = corr(w·P_1, T_a·T_b), Σ w x² T_a T_b
+= (corr(w·P_0, ·) + 2·corr(w·P_2, ·))/3, and Σ w x P_j T_a comes from
+corr(w·P_{j±1}, T_a). One set of data transforms w·P_q (q ≤ J) serves all.
 
 The polynomial-only sums do not depend on z (templates are zero outside
 their coverage and χ² always runs over every good pixel), so they come from
-[`Prepared`]. With L ≥ n + m − 1, X(c) = IFFT(conj(D̂)·T̂)[c mod L] / L
-without wrap-around for every overlapping lag −n < c < m. Template
-transforms are cached per (unit, L) in the engine; two real correlations
-share one complex inverse FFT (real and imaginary part).
+[`Prepared`].
+
+Only the template pixels some trial shift can reach matter: the template is
+cut to that window (its ends rounded to [`WINDOW_QUANTUM`] pixels, so that
+spectra on nearly the same grid share cached transforms). Only the lags of
+the trial shifts are read back, so the transform length L need not hold the
+whole linear correlation, only those lags free of wrap-around (the
+overlap-save condition): with the cut template of m′ pixels and the wanted
+lags in a..=b, L ≥ max(m′ − a, b + n). Template transforms are cached per
+(unit, window, L) in the engine; two real correlations share one complex
+inverse FFT (real and imaginary part).
 */
 // Index loops here mirror the sums of the normal equations term by term.
 #![allow(clippy::needless_range_loop)]
-use super::prep::{solve_normal, Prepared};
-use super::reference::{active_columns, thresholds};
+use super::prep::{n_legendre, solve_normal_into, Prepared, MAX_COLUMNS};
+use super::reference::{active_columns_into, dot, thresholds};
 use super::units::Unit;
 use rustfft::num_complex::Complex;
 use rustfft::{Fft, FftPlanner};
@@ -59,7 +69,10 @@ pub fn nice_len(min: usize) -> usize {
 /// FFT plans by (length, forward).
 type PlanMap = HashMap<(usize, bool), Arc<dyn Fft<f64>>>;
 
-/// Transforms of one unit's templates and their pairwise products at one L.
+/// Cache key of a unit's transforms: (unit, window start, window length, L).
+type UnitKey = (usize, usize, usize, usize);
+
+/// Transforms of one unit's (cut) templates and their pairwise products at one L.
 struct UnitTransforms {
     t: Vec<Vec<C>>,
     tt: Vec<Vec<C>>,
@@ -70,7 +83,7 @@ struct UnitTransforms {
 pub struct FftCache {
     plans: Mutex<PlanMap>,
     planner: Mutex<Option<FftPlanner<f64>>>,
-    units: RwLock<HashMap<(usize, usize), Arc<UnitTransforms>>>,
+    units: RwLock<HashMap<UnitKey, Arc<UnitTransforms>>>,
 }
 
 impl std::fmt::Debug for FftCache {
@@ -79,8 +92,12 @@ impl std::fmt::Debug for FftCache {
     }
 }
 
-/// Most (unit, L) transform sets kept before the cache is emptied.
-const MAX_CACHED: usize = 64;
+/// Most (unit, window, L) transform sets kept before the cache is emptied:
+/// the built-in set has 14 units, so this holds about ten spectral set-ups.
+const MAX_CACHED: usize = 160;
+
+/// Template windows start and end on multiples of this many pixels.
+pub const WINDOW_QUANTUM: usize = 256;
 
 impl FftCache {
     pub(crate) fn plan(&self, len: usize, forward: bool) -> Arc<dyn Fft<f64>> {
@@ -107,40 +124,79 @@ impl FftCache {
         buf
     }
 
-    fn unit_transforms(&self, key: usize, unit: &Unit, len: usize) -> Arc<UnitTransforms> {
-        if let Some(u) = self
-            .units
-            .read()
-            .unwrap_or_else(|e| e.into_inner())
-            .get(&(key, len))
-        {
-            return u.clone();
+    /// Forward transforms of two real arrays (zero-padded to `len`) from one
+    /// complex FFT: with Z = FFT(x + i·y), X[k] = (Z[k] + conj Z[−k])/2 and
+    /// Y[k] = (Z[k] − conj Z[−k])/(2i).
+    fn forward_real_pair(&self, x: &[f64], y: &[f64], len: usize) -> (Vec<C>, Vec<C>) {
+        let mut buf = vec![C::new(0.0, 0.0); len];
+        for (b, v) in buf.iter_mut().zip(x) {
+            b.re = *v;
         }
-        let k = unit.k();
-        let t = unit.t.iter().map(|a| self.forward_real(a, len)).collect();
-        let mut tt = Vec::with_capacity(k * (k + 1) / 2);
-        for a in 0..k {
-            for b in a..k {
-                let prod: Vec<f64> = unit.t[a].iter().zip(&unit.t[b]).map(|(x, y)| x * y).collect();
-                tt.push(self.forward_real(&prod, len));
+        for (b, v) in buf.iter_mut().zip(y) {
+            b.im = *v;
+        }
+        self.plan(len, true).process(&mut buf);
+        let half = |k: usize| (buf[k], buf[(len - k) % len].conj());
+        let fx = (0..len).map(|k| (half(k).0 + half(k).1) * 0.5).collect();
+        let fy = (0..len)
+            .map(|k| {
+                let d = (half(k).0 - half(k).1) * 0.5;
+                C::new(d.im, -d.re)
+            })
+            .collect();
+        (fx, fy)
+    }
+
+    /// Forward transforms of real arrays, two per complex FFT.
+    fn forward_many(&self, arrays: &[Vec<f64>], len: usize) -> Vec<Vec<C>> {
+        let mut out = Vec::with_capacity(arrays.len());
+        for pair in arrays.chunks(2) {
+            if let [x, y] = pair {
+                let (fx, fy) = self.forward_real_pair(x, y, len);
+                out.push(fx);
+                out.push(fy);
+            } else {
+                out.push(self.forward_real(&pair[0], len));
             }
         }
+        out
+    }
+
+    fn unit_transforms(&self, key: usize, unit: &Unit, win: &Window) -> Arc<UnitTransforms> {
+        let ck = (key, win.r0, win.m, win.len);
+        if let Some(u) = self.units.read().unwrap_or_else(|e| e.into_inner()).get(&ck) {
+            return u.clone();
+        }
+        let cut: Vec<&[f64]> = unit.t.iter().map(|a| &a[win.r0..win.r0 + win.m]).collect();
+        let t = self.forward_many(&cut.iter().map(|a| a.to_vec()).collect::<Vec<_>>(), win.len);
+        let prods = template_products(&cut);
+        let tt = self.forward_many(&prods, win.len);
         let u = Arc::new(UnitTransforms { t, tt });
         let mut map = self.units.write().unwrap_or_else(|e| e.into_inner());
         if map.len() >= MAX_CACHED {
             map.clear();
         }
-        map.insert((key, len), u.clone());
+        map.insert(ck, u.clone());
         u
     }
 }
 
-/// Conjugated transforms of the data arrays at one L: w·x^e (e < 2g − 1),
-/// w·x^u·P_j and w·f·x^u (u < g), g = columns per template.
+/// The products T_a·T_b (a ≤ b) of template arrays, in the order of the sums.
+fn template_products(t: &[&[f64]]) -> Vec<Vec<f64>> {
+    let k = t.len();
+    let mut out = Vec::with_capacity(k * (k + 1) / 2);
+    for a in 0..k {
+        for b in a..k {
+            out.push(t[a].iter().zip(t[b]).map(|(x, y)| x * y).collect());
+        }
+    }
+    out
+}
+
+/// Conjugated transforms of the data arrays at one L.
 pub struct DataTransforms {
-    w: Vec<Vec<C>>,
+    wp: Vec<Vec<C>>,
     wf: Vec<Vec<C>>,
-    wp: Vec<Vec<Vec<C>>>,
 }
 
 /// Data transforms per FFT length, made lazily for one spectrum.
@@ -152,30 +208,14 @@ pub struct DataCache {
 impl DataCache {
     fn get(&mut self, cache: &FftCache, prep: &Prepared, len: usize) -> &DataTransforms {
         self.by_len.entry(len).or_insert_with(|| {
-            let conj = |v: Vec<C>| v.into_iter().map(|c| c.conj()).collect::<Vec<_>>();
-            let g = prep.groups.max(1);
-            // w·x^e for e = 0 .. 2g − 2
-            let mut wx: Vec<Vec<f64>> = vec![prep.w.clone()];
-            for _ in 1..2 * g - 1 {
-                let next: Vec<f64> = wx[wx.len() - 1].iter().zip(&prep.x).map(|(a, x)| a * x).collect();
-                wx.push(next);
-            }
-            let tr = |v: &[f64]| conj(cache.forward_real(v, len));
+            let conj = |v: Vec<Vec<C>>| -> Vec<Vec<C>> {
+                v.into_iter()
+                    .map(|a| a.into_iter().map(|c| c.conj()).collect())
+                    .collect()
+            };
             DataTransforms {
-                w: wx.iter().map(|v| tr(v)).collect(),
-                wf: wx[..g]
-                    .iter()
-                    .map(|v| tr(&v.iter().zip(&prep.flux).map(|(a, f)| a * f).collect::<Vec<_>>()))
-                    .collect(),
-                wp: wx[..g]
-                    .iter()
-                    .map(|v| {
-                        prep.p
-                            .iter()
-                            .map(|p| tr(&v.iter().zip(p).map(|(a, p)| a * p).collect::<Vec<_>>()))
-                            .collect()
-                    })
-                    .collect(),
+                wp: conj(cache.forward_many(&prep.wl, len)),
+                wf: conj(cache.forward_many(&prep.wfx, len)),
             }
         })
     }
@@ -192,10 +232,48 @@ pub enum CorrPlan {
     Direct,
 }
 
-/// Number of correlations of a unit with `k` templates, `j` polynomials and
-/// `g` columns per template.
-fn n_corr(k: usize, j: usize, g: usize) -> usize {
-    k * (k + 1) / 2 * (2 * g - 1) + k * g * j + k * g
+/// Number of template sums (correlations) of a unit with `k` templates, `j`
+/// polynomials and `g` columns per template. Their order, at one shift:
+/// Σ w P_q T_a T_b for a ≤ b and q < 2g − 1; Σ w P_q T_a for each a and
+/// q < [`n_legendre`]; Σ w f x^u T_a for each a and u < g.
+pub(crate) fn n_corr(k: usize, j: usize, g: usize) -> usize {
+    k * (k + 1) / 2 * (2 * g - 1) + k * n_legendre(j, g) + k * g
+}
+
+/// The template pixels some trial shift reaches, and the transform length.
+#[derive(Debug, Clone, Copy)]
+struct Window {
+    /// First template pixel of the cut.
+    r0: usize,
+    /// Pixels in the cut.
+    m: usize,
+    /// FFT length free of wrap-around at the wanted lags.
+    len: usize,
+}
+
+impl Window {
+    /// `None` when no trial shift puts the template over the grid.
+    fn new(n: usize, m: usize, c_lo: i64, c_hi: i64) -> Option<Window> {
+        let (n_i, m_i) = (n as i64, m as i64);
+        // template pixels r = i + c, 0 ≤ i < n, c_lo ≤ c ≤ c_hi
+        let lo = c_lo.max(0);
+        let hi = (c_hi + n_i).min(m_i); // exclusive
+        if hi <= lo {
+            return None;
+        }
+        let q = WINDOW_QUANTUM as i64;
+        let r0 = lo.div_euclid(q) * q;
+        let r1 = (((hi + q - 1).div_euclid(q)) * q).min(m_i);
+        let mc = r1 - r0;
+        // wanted lags relative to the cut: a..=b
+        let (a, b) = (c_lo - r0, c_hi - r0);
+        let need = (mc - a).max(b + n_i).max(mc).max(n_i).max(1);
+        Some(Window {
+            r0: r0 as usize,
+            m: mc as usize,
+            len: nice_len(need as usize),
+        })
+    }
 }
 
 /// χ² of `unit` at every shift `s_lo..=s_hi` by the fast path.
@@ -212,32 +290,38 @@ pub fn chi2_curve(
     plan: CorrPlan,
 ) -> Vec<f64> {
     let n = prep.grid.n;
-    let m = unit.m();
-    let (k, j) = (unit.k(), prep.j());
+    let (k, j, g) = (unit.k(), prep.j(), prep.groups());
     let ns = (s_hi - s_lo + 1).max(0) as usize;
-    let len = nice_len(n + m - 1);
-    let use_fft = match plan {
-        CorrPlan::Fft => true,
-        CorrPlan::Direct => false,
-        CorrPlan::Auto => {
-            // measured costs (release build): a direct multiply-add at a lag
-            // ≈ 1.3 ns; a complex FFT ≈ 0.75 ns · L log2 L, one per pair of
-            // correlations (five more for the data, shared by all units)
-            let direct = 1.3 * (ns * prep.n_good()) as f64 * n_corr(k, j, prep.groups.max(1)) as f64;
-            let fft =
-                0.75 * len as f64 * (len as f64).log2() * n_corr(k, j, prep.groups.max(1)).div_ceil(2) as f64;
-            fft < direct
+    let ncorr = n_corr(k, j, g);
+    let base = prep.g0 - unit.t0;
+    let win = Window::new(n, unit.m(), base - s_hi, base - s_lo);
+    let out = match win {
+        None => vec![0.0; ns * ncorr],
+        Some(win) => {
+            let use_fft = match plan {
+                CorrPlan::Fft => true,
+                CorrPlan::Direct => false,
+                CorrPlan::Auto => {
+                    // measured costs (release build): a direct multiply-add
+                    // ≈ 0.35 ns; a complex FFT ≈ 0.5 ns · L log2 L, one per pair
+                    // of correlations (the data's own are shared by all units)
+                    let len = win.len as f64;
+                    let direct = 0.35 * (ns * n) as f64 * ncorr as f64;
+                    let fft = 0.5 * len * len.log2() * ncorr.div_ceil(2) as f64;
+                    fft < direct
+                }
+            };
+            if use_fft {
+                sums_fft(cache, data, prep, key, unit, s_lo, ns, &win)
+            } else {
+                sums_direct(prep, unit, s_lo, ns)
+            }
         }
-    };
-    let out = if !use_fft {
-        sums_direct(prep, unit, s_lo, ns)
-    } else {
-        sums_fft(cache, data, prep, key, unit, s_lo, ns, len)
     };
     solve_shifts(prep, unit, &out, ns)
 }
 
-/// The template sums at each shift by FFT: `out[si * ncorr + ci]`.
+/// The template sums at each shift by FFT, correlation-major: `out[ci · ns + si]`.
 #[allow(clippy::too_many_arguments)]
 fn sums_fft(
     cache: &FftCache,
@@ -247,175 +331,224 @@ fn sums_fft(
     unit: &Unit,
     s_lo: i64,
     ns: usize,
-    len: usize,
+    win: &Window,
 ) -> Vec<f64> {
-    let n = prep.grid.n;
-    let m = unit.m();
-    let (k, j) = (unit.k(), prep.j());
-    let ut = cache.unit_transforms(key, unit, len);
+    let n = prep.grid.n as i64;
+    let (k, g) = (unit.k(), prep.groups());
+    let len = win.len;
+    let ut = cache.unit_transforms(key, unit, win);
     let dt = data.get(cache, prep, len);
     // the list of correlations: (data spectrum, template spectrum)
-    let g = prep.groups.max(1);
     let mut pairs: Vec<(&[C], &[C])> = Vec::new();
     for tt in &ut.tt {
-        for e in 0..2 * g - 1 {
-            pairs.push((&dt.w[e], tt));
+        for q in 0..2 * g - 1 {
+            pairs.push((&dt.wp[q], tt));
         }
     }
-    for a in 0..k {
-        for u in 0..g {
-            for q in 0..j {
-                pairs.push((&dt.wp[u][q], &ut.t[a]));
-            }
+    for t in &ut.t {
+        for wp in &dt.wp {
+            pairs.push((wp, t));
         }
     }
-    for a in 0..k {
-        for u in 0..g {
-            pairs.push((&dt.wf[u], &ut.t[a]));
+    for t in &ut.t {
+        for wf in &dt.wf {
+            pairs.push((wf, t));
         }
     }
+    debug_assert_eq!(pairs.len(), n_corr(k, prep.j(), g));
     let ncorr = pairs.len();
-    let mut out = vec![0.0; ns * ncorr];
+    // correlation-major, out[ci · ns + si], filled in order (no zero fill)
+    let mut out = Vec::with_capacity(ns * ncorr);
     let inv = cache.plan(len, false);
     let scale = 1.0 / len as f64;
     let mut buf = vec![C::new(0.0, 0.0); len];
-    let lagpos = |s: i64| -> Option<usize> {
-        let c = prep.g0 - unit.t0 - s;
-        (c > -(n as i64) && c < m as i64).then(|| c.rem_euclid(len as i64) as usize)
-    };
-    for (ci, chunk) in pairs.chunks(2).enumerate() {
+    let (mc, r0) = (win.m as i64, win.r0 as i64);
+    // lag of shift si: c0 − si; the shifts whose lag overlaps the data
+    let c0 = prep.g0 - unit.t0 - s_lo - r0;
+    let si_lo = (c0 - mc + 1).clamp(0, ns as i64) as usize;
+    let si_hi = (c0 + n).clamp(si_lo as i64, ns as i64) as usize;
+    let p0 = (c0 - si_lo as i64).rem_euclid(len as i64) as usize;
+    for chunk in pairs.chunks(2) {
         let (d1, t1) = chunk[0];
-        let second = chunk.get(1);
-        for (x, b) in buf.iter_mut().enumerate() {
-            let mut v = d1[x] * t1[x];
-            if let Some((d2, t2)) = second {
+        if let Some((d2, t2)) = chunk.get(1) {
+            for x in 0..len {
                 // i·(d2·t2): both correlations are real, so they come back as Re and Im
                 let p = d2[x] * t2[x];
-                v += C::new(-p.im, p.re);
+                buf[x] = d1[x] * t1[x] + C::new(-p.im, p.re);
             }
-            *b = v;
+        } else {
+            for x in 0..len {
+                buf[x] = d1[x] * t1[x];
+            }
         }
         inv.process(&mut buf);
-        for si in 0..ns {
-            if let Some(pos) = lagpos(s_lo + si as i64) {
-                out[si * ncorr + 2 * ci] = buf[pos].re * scale;
-                if second.is_some() {
-                    out[si * ncorr + 2 * ci + 1] = buf[pos].im * scale;
-                }
+        // shift si reads lag c0 − si: from position p0 backwards, wrapping at 0
+        let parts: [&[C]; 2] = if p0 + 1 >= si_hi - si_lo {
+            [&buf[p0 + 1 - (si_hi - si_lo)..=p0], &[]]
+        } else {
+            [&buf[..=p0], &buf[len - (si_hi - si_lo - p0 - 1)..]]
+        };
+        for part in 0..chunk.len() {
+            out.resize(out.len() + si_lo, 0.0);
+            for seg in parts {
+                out.extend(
+                    seg.iter()
+                        .rev()
+                        .map(|v| if part == 0 { v.re } else { v.im } * scale),
+                );
             }
+            out.resize(out.len() + ns - si_hi, 0.0);
         }
     }
+    debug_assert_eq!(out.len(), ns * ncorr);
     out
 }
 
-/// The template sums at each shift by direct loops over the good pixels.
+/// The template sums at each shift by direct dot products over the overlap
+/// of the data arrays and the shifted template arrays.
 fn sums_direct(prep: &Prepared, unit: &Unit, s_lo: i64, ns: usize) -> Vec<f64> {
-    let m = unit.m() as i64;
-    let (k, j) = (unit.k(), prep.j());
-    let g = prep.groups.max(1);
-    let ncorr = n_corr(k, j, g);
+    let (n, m) = (prep.grid.n as i64, unit.m() as i64);
+    let (k, g) = (unit.k(), prep.groups());
+    let ncorr = n_corr(k, prep.j(), g);
+    let (wp, wf) = (&prep.wl, &prep.wfx);
+    let t: Vec<&[f64]> = unit.t.iter().map(Vec::as_slice).collect();
+    let tt = template_products(&t);
     let mut out = vec![0.0; ns * ncorr];
-    let mut tv = vec![0.0; k];
-    let mut xp = vec![1.0; 2 * g - 1];
     for si in 0..ns {
         let c = prep.g0 - unit.t0 - (s_lo + si as i64);
-        let row = &mut out[si * ncorr..(si + 1) * ncorr];
-        for &i in &prep.good {
-            let r = i as i64 + c;
-            if r < 0 || r >= m {
-                continue;
+        // pixels i with 0 ≤ i < n and 0 ≤ i + c < m
+        let (i0, i1) = ((-c).max(0), n.min(m - c));
+        if i1 <= i0 {
+            continue;
+        }
+        let (i0, i1) = (i0 as usize, i1 as usize);
+        let (r0, r1) = ((i0 as i64 + c) as usize, (i1 as i64 + c) as usize);
+        // correlation-major: out[ci · ns + si]
+        let mut ci = 0;
+        for p in &tt {
+            for q in 0..2 * g - 1 {
+                out[ci * ns + si] = dot(&wp[q][i0..i1], &p[r0..r1]);
+                ci += 1;
             }
-            for (a, t) in tv.iter_mut().enumerate() {
-                *t = unit.t[a][r as usize];
+        }
+        for a in &t {
+            for d in wp {
+                out[ci * ns + si] = dot(&d[i0..i1], &a[r0..r1]);
+                ci += 1;
             }
-            for e in 1..xp.len() {
-                xp[e] = xp[e - 1] * prep.x[i];
-            }
-            let (w, f) = (prep.w[i], prep.flux[i]);
-            let mut ci = 0;
-            for a in 0..k {
-                for b in a..k {
-                    for x in &xp {
-                        row[ci] += w * x * tv[a] * tv[b];
-                        ci += 1;
-                    }
-                }
-            }
-            for &t in &tv {
-                for x in &xp[..g] {
-                    for q in 0..j {
-                        row[ci] += w * x * t * prep.p[q][i];
-                        ci += 1;
-                    }
-                }
-            }
-            for &t in &tv {
-                for x in &xp[..g] {
-                    row[ci] += w * x * t * f;
-                    ci += 1;
-                }
+        }
+        for a in &t {
+            for d in wf {
+                out[ci * ns + si] = dot(&d[i0..i1], &a[r0..r1]);
+                ci += 1;
             }
         }
     }
     out
 }
 
-/// Assemble and solve the normal equations at each shift from the sums.
+/// Fill the normal equations `a` (row-major, dim × dim with dim = k·g + j)
+/// and `b` of a unit of `k` templates from one shift's template sums `row`
+/// (in the order of [`n_corr`]) and the polynomial sums of `prep`.
 /// Column u·k + a is T_a·x^u; then the polynomials.
+pub(crate) fn assemble(prep: &Prepared, k: usize, row: &[f64], a: &mut [f64], b: &mut [f64]) {
+    assemble_templates(prep, k, row, a, b);
+    assemble_polynomials(prep, k, a, b);
+}
+
+/// The polynomial block of the normal equations (the same at every shift).
+fn assemble_polynomials(prep: &Prepared, k: usize, a: &mut [f64], b: &mut [f64]) {
+    let j = prep.j();
+    let kc = k * prep.groups();
+    let dim = kc + j;
+    for p in 0..j {
+        b[kc + p] = prep.pf[p];
+        for q in 0..j {
+            a[(kc + p) * dim + kc + q] = prep.pp[p * j + q];
+        }
+    }
+}
+
+/// The rows and columns of the template terms (see [`assemble`]).
+fn assemble_templates(prep: &Prepared, k: usize, row: &[f64], a: &mut [f64], b: &mut [f64]) {
+    let (j, g) = (prep.j(), prep.groups());
+    let nq = n_legendre(j, g);
+    let kc = k * g;
+    let dim = kc + j;
+    // Σ w x^u P_jj T from the sums against w·P_q (Legendre recursion for x·P_jj)
+    let xp = |sums: &[f64], u: usize, jj: usize| -> f64 {
+        if u == 0 {
+            sums[jj]
+        } else if jj == 0 {
+            sums[1]
+        } else {
+            let jf = jj as f64;
+            ((jf + 1.0) * sums[jj + 1] + jf * sums[jj - 1]) / (2.0 * jf + 1.0)
+        }
+    };
+    let mut ci = 0;
+    for p in 0..k {
+        for q in p..k {
+            // Σ w x^e T_p T_q (e = u + v) from the sums against P_0, P_1, P_2
+            let s = &row[ci..ci + 2 * g - 1];
+            ci += 2 * g - 1;
+            for u in 0..g {
+                for v in 0..g {
+                    let val = match u + v {
+                        0 => s[0],
+                        1 => s[1],
+                        _ => (s[0] + 2.0 * s[2]) / 3.0,
+                    };
+                    let (r, cc) = (u * k + p, v * k + q);
+                    a[r * dim + cc] = val;
+                    a[cc * dim + r] = val;
+                }
+            }
+        }
+    }
+    for p in 0..k {
+        let sums = &row[ci..ci + nq];
+        ci += nq;
+        for u in 0..g {
+            for q in 0..j {
+                let v = xp(sums, u, q);
+                let r = u * k + p;
+                a[r * dim + kc + q] = v;
+                a[(kc + q) * dim + r] = v;
+            }
+        }
+    }
+    for p in 0..k {
+        for u in 0..g {
+            b[u * k + p] = row[ci];
+            ci += 1;
+        }
+    }
+}
+
+/// Solve the normal equations at each shift from the sums (correlation-major).
 fn solve_shifts(prep: &Prepared, unit: &Unit, out: &[f64], ns: usize) -> Vec<f64> {
-    let (k, j) = (unit.k(), prep.j());
-    let g = prep.groups.max(1);
+    let (k, j, g) = (unit.k(), prep.j(), prep.groups());
     let ncorr = n_corr(k, j, g);
     let thr = thresholds(prep, unit);
     let kc = k * g;
     let dim = kc + j;
+    assert!(dim <= MAX_COLUMNS, "{dim} columns");
     let mut a = vec![0.0; dim * dim];
     let mut b = vec![0.0; dim];
+    let mut c = vec![0.0; dim];
+    let mut active = [false; MAX_COLUMNS];
+    let mut scratch = Vec::with_capacity(dim * dim);
     let mut chi2 = Vec::with_capacity(ns);
+    let mut row = vec![0.0; ncorr];
+    assemble_polynomials(prep, k, &mut a, &mut b);
     for si in 0..ns {
-        let row = &out[si * ncorr..(si + 1) * ncorr];
-        let mut ci = 0;
-        for p in 0..k {
-            for q in p..k {
-                // Σ w x^e T_p T_q fills every (u, v) with u + v = e
-                for e in 0..2 * g - 1 {
-                    for u in 0..g {
-                        if e < u || e - u >= g {
-                            continue;
-                        }
-                        let v = e - u;
-                        let (r, c) = (u * k + p, v * k + q);
-                        a[r * dim + c] = row[ci];
-                        a[c * dim + r] = row[ci];
-                    }
-                    ci += 1;
-                }
-            }
+        for (ci, r) in row.iter_mut().enumerate() {
+            *r = out[ci * ns + si];
         }
-        for p in 0..k {
-            for u in 0..g {
-                for q in 0..j {
-                    let r = u * k + p;
-                    a[r * dim + kc + q] = row[ci];
-                    a[(kc + q) * dim + r] = row[ci];
-                    ci += 1;
-                }
-            }
-        }
-        for p in 0..k {
-            for u in 0..g {
-                b[u * k + p] = row[ci];
-                ci += 1;
-            }
-        }
-        for p in 0..j {
-            b[kc + p] = prep.pf[p];
-            for q in 0..j {
-                a[(kc + p) * dim + kc + q] = prep.pp[p * j + q];
-            }
-        }
-        let active = active_columns(&a, dim, k, kc, &thr);
-        let c = solve_normal(&a, &b, &active);
+        assemble_templates(prep, k, &row, &mut a, &mut b);
+        active_columns_into(&a, dim, k, kc, &thr, &mut active[..dim]);
+        solve_normal_into(&a, &b, &active[..dim], &mut c, &mut scratch);
         let fit: f64 = c.iter().zip(&b).map(|(c, b)| c * b).sum();
         chi2.push(prep.fww - fit);
     }

@@ -60,8 +60,9 @@ struct LinearFit {
 }
 
 impl Window {
-    /// Linear part at offset v (km/s) and width σ (km/s).
-    fn solve(&self, v: f64, sig: f64) -> Option<LinearFit> {
+    /// Linear part at offset v (km/s) and width σ (km/s); the amplitude's
+    /// variance only `with_variance` (a second solve).
+    fn solve(&self, v: f64, sig: f64, with_variance: bool) -> Option<LinearFit> {
         let k = 2 + self.centres.len();
         let mut ata = vec![0.0; k * k];
         let mut atb = vec![0.0; k];
@@ -79,9 +80,13 @@ impl Window {
         let all = vec![true; k];
         let coef = solve_normal(&ata, &atb, &all);
         // (AᵀWA)⁻¹ column of the amplitude: the covariance of the linear fit
-        let mut e = vec![0.0; k];
-        e[2] = 1.0;
-        let amp_var = solve_normal(&ata, &e, &all)[2];
+        let amp_var = if with_variance {
+            let mut e = vec![0.0; k];
+            e[2] = 1.0;
+            solve_normal(&ata, &e, &all)[2]
+        } else {
+            f64::NAN
+        };
         // χ² = Σ w f² − c·b at the least-squares solution
         let chi2 = self.fww - coef.iter().zip(&atb).map(|(c, b)| c * b).sum::<f64>();
         chi2.is_finite().then_some(LinearFit { chi2, coef, amp_var })
@@ -94,7 +99,9 @@ impl Window {
         for (k, &c) in self.centres.iter().enumerate() {
             let mu = c * (1.0 + v / C_KMS);
             let s = mu * sig / C_KMS;
-            row[2 + k] = (-0.5 * ((l - mu) / s).powi(2)).exp();
+            let u = (l - mu) / s;
+            // beyond 8σ the profile is below 1e-13 of its peak
+            row[2 + k] = if u.abs() < 8.0 { (-0.5 * u * u).exp() } else { 0.0 };
         }
     }
 }
@@ -119,7 +126,7 @@ impl CostFunction for Profiled<'_> {
         }
         let sig = sig.clamp(win.sig_lim.0, win.sig_lim.1);
         let v = v.clamp(-win.vmax, win.vmax);
-        Ok(win.solve(v, sig).map_or(f64::MAX, |f| f.chi2) + pen)
+        Ok(win.solve(v, sig, false).map_or(f64::MAX, |f| f.chi2) + pen)
     }
 }
 
@@ -176,7 +183,9 @@ pub fn measure_list(s: &Spectrum, z: f64, class: ObjectClass, list: &[(&str, f64
         let Some(p) = best else { continue };
         let v = p[0].clamp(-win.vmax, win.vmax);
         let sig = p[1].exp().clamp(smin, smax);
-        let Some(fit) = win.solve(v, sig) else { continue };
+        let Some(fit) = win.solve(v, sig, true) else {
+            continue;
+        };
         let mu = obs * (1.0 + v / C_KMS);
         let sig_l = mu * sig / C_KMS;
         let norm = (2.0 * std::f64::consts::PI).sqrt() * sig_l;

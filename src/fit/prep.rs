@@ -33,10 +33,11 @@ pub struct Prepared {
     pub good: Vec<usize>,
     /// Legendre polynomials P_j at each grid pixel.
     pub p: Vec<Vec<f64>>,
-    /// w·f at each grid pixel.
-    pub wf: Vec<f64>,
-    /// w·P_j at each grid pixel.
-    pub wp: Vec<Vec<f64>>,
+    /// w·P_q at each grid pixel for q < [`n_legendre`]`(j, groups)`: the
+    /// data arrays of every template sum (see [`super::fast`]).
+    pub wl: Vec<Vec<f64>>,
+    /// w·f·x^u at each grid pixel for u < groups.
+    pub wfx: Vec<Vec<f64>>,
     /// Σ w f².
     pub fww: f64,
     /// Σ w P_i P_j (row-major J×J).
@@ -49,8 +50,16 @@ pub struct Prepared {
     pub nonneg: bool,
     /// x ∈ [−1, 1] across the grid (the argument of the Legendre polynomials).
     pub x: Vec<f64>,
-    /// Columns per template: 1 (T_k) or 2 (T_k and the throughput term T_k·x).
-    pub groups: usize,
+    /// Columns per template: 1 (T_k) or 2 (T_k and the throughput term T_k·x);
+    /// set by [`Prepared::set_groups`], which also makes the data arrays.
+    groups: usize,
+}
+
+/// Number of Legendre data arrays w·P_q the template sums need for `j`
+/// polynomials and `g` columns per template: q ≤ j − 1 + (g − 1) for the
+/// polynomial sums and q ≤ 2(g − 1) for the template products.
+pub fn n_legendre(j: usize, g: usize) -> usize {
+    (j + g - 1).max(2 * g - 1)
 }
 
 /// Legendre polynomials P_0..P_{j-1} at x ∈ [−1, 1] (Bonnet's recursion).
@@ -149,14 +158,9 @@ impl Prepared {
                 }
             }
         }
-        let wf: Vec<f64> = w.iter().zip(&flux).map(|(w, f)| w * f).collect();
-        let wp: Vec<Vec<f64>> = p
-            .iter()
-            .map(|pj| w.iter().zip(pj).map(|(w, p)| w * p).collect())
-            .collect();
-        Ok(Prepared {
-            wf,
-            wp,
+        let mut prep = Prepared {
+            wl: Vec::new(),
+            wfx: Vec::new(),
             grid,
             g0: grid.index0(),
             flux,
@@ -170,7 +174,36 @@ impl Prepared {
             nonneg: false,
             x: xs,
             groups: 1,
-        })
+        };
+        prep.set_groups(1);
+        Ok(prep)
+    }
+
+    /// Columns per template: 1 (T_k) or 2 (T_k and the throughput term T_k·x).
+    pub fn groups(&self) -> usize {
+        self.groups
+    }
+
+    /// Set the columns per template (1, or 2 with throughput terms; clamped
+    /// to that) and make the data arrays w·P_q and w·f·x^u for it.
+    pub fn set_groups(&mut self, groups: usize) {
+        let g = groups.clamp(1, 2);
+        self.groups = g;
+        let n = self.grid.n;
+        let nq = n_legendre(self.j(), g);
+        self.wl = vec![vec![0.0; n]; nq];
+        for &i in &self.good {
+            for (q, v) in legendre(nq, self.x[i]).into_iter().enumerate() {
+                self.wl[q][i] = self.w[i] * v;
+            }
+        }
+        self.wfx = (0..g)
+            .map(|u| {
+                (0..n)
+                    .map(|i| self.w[i] * self.flux[i] * self.x[i].powi(u as i32))
+                    .collect()
+            })
+            .collect();
     }
 
     /// Number of good pixels.
@@ -221,15 +254,73 @@ fn running_mean(f: &[f64], w: &[f64], width: usize) -> Vec<f64> {
         .collect()
 }
 
-/// Least squares with the first `k` (template) coefficients constrained to
-/// be ≥ 0 when `nonneg` is set: the unconstrained solution when it is
-/// feasible, else the best feasible solution over the subsets of template
-/// columns (exact for these small systems: the constrained optimum is the
-/// unconstrained optimum on its own support). Returns the coefficients; the
-/// fitted part of χ² is c·b. Columns `k..k·groups` are the throughput terms
-/// of the templates (column `u·k + a` belongs to template `a`): they are
-/// unconstrained and leave the fit together with their template.
+/// Least squares with the template amplitudes constrained to be ≥ 0 when
+/// `nonneg` is set: the unconstrained solution when it is feasible, else the
+/// best feasible solution over the subsets of template columns (exact for
+/// these small systems: the constrained optimum is the unconstrained optimum
+/// on its own support). Returns the coefficients; the fitted part of χ² is
+/// c·b.
+///
+/// Columns `k..k·groups` are the throughput terms of the templates (column
+/// `u·k + a` belongs to template `a`): they leave the fit together with their
+/// template. With them, template a's amplitude is c_a + c_{k+a}·x, which
+/// varies across the grid; what is constrained is its value at x̄_a, the
+/// mean x of the template's own information (Σ w T_a² x / Σ w T_a², from the
+/// normal matrix). A template with a single line in the range then has that
+/// line's amplitude constrained, not the amplitude at the grid's centre,
+/// where the template is empty and the value means nothing.
 pub fn solve_constrained(
+    a: &[f64],
+    b: &[f64],
+    active: &[bool],
+    k: usize,
+    groups: usize,
+    nonneg: bool,
+) -> Vec<f64> {
+    let dim = b.len();
+    if !nonneg || groups < 2 {
+        return solve_nonneg_leading(a, b, active, k, groups, nonneg);
+    }
+    // θ = M θ′: c_a = c′_a − x̄_a c_{k+a}, so that c′_a is the amplitude at x̄_a
+    let xbar: Vec<f64> = (0..k)
+        .map(|t| {
+            let d = a[t * dim + t];
+            if d > 0.0 {
+                a[t * dim + k + t] / d
+            } else {
+                0.0
+            }
+        })
+        .collect();
+    // A′ = Mᵀ A M and b′ = Mᵀ b; M differs from I only at (t, k + t) = −x̄_t
+    let mut am = a.to_vec();
+    for t in 0..k {
+        // columns: col(k+t) −= x̄_t · col(t)
+        for r in 0..dim {
+            am[r * dim + k + t] -= xbar[t] * a[r * dim + t];
+        }
+    }
+    let mut ap = am.clone();
+    for t in 0..k {
+        // rows: row(k+t) −= x̄_t · row(t)
+        for c in 0..dim {
+            ap[(k + t) * dim + c] -= xbar[t] * am[t * dim + c];
+        }
+    }
+    let mut bp = b.to_vec();
+    for t in 0..k {
+        bp[k + t] -= xbar[t] * b[t];
+    }
+    let mut c = solve_nonneg_leading(&ap, &bp, active, k, groups, true);
+    for t in 0..k {
+        c[t] -= xbar[t] * c[k + t];
+    }
+    c
+}
+
+/// The constrained solve with the first `k` coefficients ≥ 0 (see
+/// [`solve_constrained`]).
+fn solve_nonneg_leading(
     a: &[f64],
     b: &[f64],
     active: &[bool],
@@ -263,18 +354,31 @@ pub fn solve_constrained(
     best.map_or_else(|| vec![0.0; b.len()], |(_, c)| c)
 }
 
+/// Most columns (templates, throughput terms and polynomials) a system may have.
+pub const MAX_COLUMNS: usize = 32;
+
 /// Solve the symmetric normal equations `a c = b` (row-major `dim × dim`).
 /// Columns with `active[i] == false` get coefficient 0 and are left out.
-/// The system is scaled to unit diagonal and solved by a Cholesky
-/// factorisation written out in plain loops (nalgebra's generic code is
-/// compiled at the caller's optimisation level, far too slow for the
-/// thousands of tiny solves per spectrum in a debug build); when a pivot
-/// shows the system is singular or nearly so, nalgebra's SVD solves it with
-/// small singular values dropped.
+/// See [`solve_normal_into`].
 pub fn solve_normal(a: &[f64], b: &[f64], active: &[bool]) -> Vec<f64> {
+    let mut c = vec![0.0; b.len()];
+    solve_normal_into(a, b, active, &mut c, &mut Vec::new());
+    c
+}
+
+/// [`solve_normal`] writing the coefficients into `c` (no allocation on the
+/// common path: it runs at every trial shift). The system is scaled to unit
+/// diagonal and solved by a Cholesky factorisation written out in plain
+/// loops (nalgebra's generic code is compiled at the caller's optimisation
+/// level, far too slow for the thousands of tiny solves per spectrum in a
+/// debug build); when a pivot shows the system is singular or nearly so,
+/// nalgebra's SVD solves it with small singular values dropped. At most
+/// [`MAX_COLUMNS`] active columns take part. `scratch` holds the factor
+/// (reused between calls).
+pub fn solve_normal_into(a: &[f64], b: &[f64], active: &[bool], c: &mut [f64], scratch: &mut Vec<f64>) {
     let dim = b.len();
-    let mut c = vec![0.0; dim];
-    let mut idx = [0usize; 32];
+    c[..dim].fill(0.0);
+    let mut idx = [0usize; MAX_COLUMNS];
     let mut k = 0;
     for i in 0..dim {
         if active[i] && a[i * dim + i] > 0.0 && k < idx.len() {
@@ -283,73 +387,77 @@ pub fn solve_normal(a: &[f64], b: &[f64], active: &[bool]) -> Vec<f64> {
         }
     }
     if k == 0 {
-        return c;
+        return;
     }
     let idx = &idx[..k];
-    let mut d = [0.0f64; 32];
+    // 1/√diagonal (multiplications below instead of divisions: this runs
+    // at every trial shift)
+    let mut d = [0.0f64; MAX_COLUMNS];
     for r in 0..k {
-        d[r] = a[idx[r] * dim + idx[r]].sqrt();
+        d[r] = 1.0 / a[idx[r] * dim + idx[r]].sqrt();
     }
     // scaled matrix (lower triangle used) and right-hand side
-    let mut l = vec![0.0f64; k * k];
-    let mut v = [0.0f64; 32];
+    scratch.clear();
+    scratch.resize(k * k, 0.0);
+    let l = &mut scratch[..k * k];
+    let mut v = [0.0f64; MAX_COLUMNS];
     for r in 0..k {
-        v[r] = b[idx[r]] / d[r];
+        v[r] = b[idx[r]] * d[r];
+        let row = &a[idx[r] * dim..(idx[r] + 1) * dim];
         for s in 0..=r {
-            l[r * k + s] = a[idx[r] * dim + idx[s]] / (d[r] * d[s]);
+            l[r * k + s] = row[idx[s]] * (d[r] * d[s]);
         }
     }
+    // reciprocal pivots
+    let mut inv = [0.0f64; MAX_COLUMNS];
     let mut ok = true;
     'outer: for j in 0..k {
-        let mut sum = l[j * k + j];
-        for p in 0..j {
-            sum -= l[j * k + p] * l[j * k + p];
-        }
+        let (head, tail) = l.split_at_mut(j * k + j);
+        let lj = &head[j * k..];
+        let sum = tail[0] - lj.iter().map(|v| v * v).sum::<f64>();
         // relative pivot test on the unit-diagonal matrix
         if sum <= 1e-10 {
             ok = false;
             break 'outer;
         }
         let piv = sum.sqrt();
-        l[j * k + j] = piv;
+        tail[0] = piv;
+        inv[j] = 1.0 / piv;
         for i in j + 1..k {
-            let mut s2 = l[i * k + j];
-            for p in 0..j {
-                s2 -= l[i * k + p] * l[j * k + p];
-            }
-            l[i * k + j] = s2 / piv;
+            let (upper, lower) = l.split_at_mut(i * k);
+            let lj = &upper[j * k..j * k + j];
+            let li = &mut lower[..k];
+            let s2 = li[j] - li[..j].iter().zip(lj).map(|(a, b)| a * b).sum::<f64>();
+            li[j] = s2 * inv[j];
         }
     }
-    let x: Vec<f64> = if ok {
-        let mut y = [0.0f64; 32];
+    let mut x = [0.0f64; MAX_COLUMNS];
+    if ok {
+        let mut y = [0.0f64; MAX_COLUMNS];
         for i in 0..k {
-            let mut s2 = v[i];
-            for p in 0..i {
-                s2 -= l[i * k + p] * y[p];
-            }
-            y[i] = s2 / l[i * k + i];
+            let li = &l[i * k..i * k + i];
+            let s2 = v[i] - li.iter().zip(&y[..i]).map(|(a, b)| a * b).sum::<f64>();
+            y[i] = s2 * inv[i];
         }
-        let mut x = vec![0.0; k];
         for i in (0..k).rev() {
             let mut s2 = y[i];
             for p in i + 1..k {
                 s2 -= l[p * k + i] * x[p];
             }
-            x[i] = s2 / l[i * k + i];
+            x[i] = s2 * inv[i];
         }
-        x
     } else {
-        let m = DMatrix::from_fn(k, k, |r, s| a[idx[r] * dim + idx[s]] / (d[r] * d[s]));
+        let m = DMatrix::from_fn(k, k, |r, s| a[idx[r] * dim + idx[s]] * (d[r] * d[s]));
         let rhs = DVector::from_fn(k, |r, _| v[r]);
-        match m.svd(true, true).solve(&rhs, 1e-10) {
-            Ok(x) => x.iter().copied().collect(),
-            Err(_) => vec![0.0; k],
+        if let Ok(sol) = m.svd(true, true).solve(&rhs, 1e-10) {
+            for (xi, si) in x.iter_mut().zip(sol.iter()) {
+                *xi = *si;
+            }
         }
-    };
-    for r in 0..k {
-        c[idx[r]] = x[r] / d[r];
     }
-    c
+    for r in 0..k {
+        c[idx[r]] = x[r] * d[r];
+    }
 }
 
 #[cfg(test)]
@@ -399,6 +507,52 @@ mod tests {
             assert_relative_eq!(b.w[i], 1.0 / var / os, max_relative = 1e-12);
         }
         assert!(b.fww < a.fww);
+    }
+
+    #[test]
+    fn the_constraint_holds_a_throughput_scaled_line_where_the_line_is() {
+        // one template holding a single line near x = −0.8, its throughput term
+        // T·x, and a constant; the data are the line times (−1 − 2.5x): negative
+        // at the grid's centre (x = 0) but +1 at the line, so a line of positive
+        // amplitude that the constraint must keep (by construction)
+        let n = 400;
+        let xs: Vec<f64> = (0..n).map(|i| -1.0 + 2.0 * i as f64 / (n - 1) as f64).collect();
+        let line: Vec<f64> = xs
+            .iter()
+            .map(|x| (-0.5 * ((x + 0.8) / 0.02).powi(2)).exp())
+            .collect();
+        let cols: Vec<Vec<f64>> = vec![
+            line.clone(),
+            line.iter().zip(&xs).map(|(t, x)| t * x).collect(),
+            vec![1.0; n],
+        ];
+        let data: Vec<f64> = line
+            .iter()
+            .zip(&xs)
+            .map(|(t, x)| 0.3 + t * (-1.0 - 2.5 * x))
+            .collect();
+        let dim = cols.len();
+        let mut a = vec![0.0; dim * dim];
+        let mut b = vec![0.0; dim];
+        for r in 0..dim {
+            b[r] = (0..n).map(|i| cols[r][i] * data[i]).sum();
+            for c in 0..dim {
+                a[r * dim + c] = (0..n).map(|i| cols[r][i] * cols[c][i]).sum();
+            }
+        }
+        let fww: f64 = data.iter().map(|v| v * v).sum();
+        let c = solve_constrained(&a, &b, &[true; 3], 1, 2, true);
+        let chi2 = fww - c.iter().zip(&b).map(|(c, b)| c * b).sum::<f64>();
+        assert!(chi2.abs() < 1e-8 * fww, "χ² {chi2}, coefficients {c:?}");
+        assert_relative_eq!(c[0], -1.0, epsilon = 1e-6);
+        assert_relative_eq!(c[1], -2.5, epsilon = 1e-6);
+        // a line of negative amplitude is still refused
+        let neg: Vec<f64> = line.iter().map(|t| 0.3 - t).collect();
+        let bn: Vec<f64> = (0..dim)
+            .map(|r| (0..n).map(|i| cols[r][i] * neg[i]).sum())
+            .collect();
+        let c = solve_constrained(&a, &bn, &[true; 3], 1, 2, true);
+        assert_eq!((c[0], c[1]), (0.0, 0.0), "{c:?}");
     }
 
     #[test]

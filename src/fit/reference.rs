@@ -60,7 +60,7 @@ pub fn direct_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg:
             let v = unit.interp(t, i as f64 + x0);
             // column u·k + t is T_t·x^u (u = 1: the throughput term)
             let mut m = v;
-            for u in 0..prep.groups {
+            for u in 0..prep.groups() {
                 row[u * k + t] = m;
                 m *= prep.x[i];
             }
@@ -84,7 +84,7 @@ pub fn direct_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg:
         }
     }
     let active = active_columns(&a, dim, k, kc, thr);
-    let coeffs = solve_constrained(&a, &b, &active, k, prep.groups, nonneg);
+    let coeffs = solve_constrained(&a, &b, &active, k, prep.groups(), nonneg);
     let mut chi2 = 0.0;
     for (gi, &i) in prep.good.iter().enumerate() {
         let model: f64 = coeffs
@@ -101,16 +101,62 @@ pub fn direct_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg:
 /// Which columns take part: a template (and its throughput term) when its
 /// Σ w T² exceeds the threshold; polynomials always.
 pub(crate) fn active_columns(a: &[f64], dim: usize, k: usize, kc: usize, thr: &[f64]) -> Vec<bool> {
-    (0..dim)
-        .map(|r| r >= kc || a[(r % k) * dim + r % k] > thr[r % k])
-        .collect()
+    let mut out = vec![false; dim];
+    active_columns_into(a, dim, k, kc, thr, &mut out);
+    out
+}
+
+/// [`active_columns`] into `out` (length `dim`).
+pub(crate) fn active_columns_into(a: &[f64], dim: usize, k: usize, kc: usize, thr: &[f64], out: &mut [bool]) {
+    for (r, o) in out.iter_mut().enumerate().take(dim) {
+        *o = r >= kc || a[(r % k) * dim + r % k] > thr[r % k];
+    }
+}
+
+/// Σ a_i b_i c_i over the shortest length (eight partial sums, as [`dot`]).
+pub fn dot3(a: &[f64], b: &[f64], c: &[f64]) -> f64 {
+    let n = a.len().min(b.len()).min(c.len());
+    let (a, b, c) = (&a[..n], &b[..n], &c[..n]);
+    let mut acc = [0.0f64; 8];
+    let (ca, cb, cc) = (a.chunks_exact(8), b.chunks_exact(8), c.chunks_exact(8));
+    let tail: f64 = (ca.remainder().iter().zip(cb.remainder()).zip(cc.remainder()))
+        .map(|((x, y), z)| x * y * z)
+        .sum();
+    for ((x, y), z) in ca.zip(cb).zip(cc) {
+        for l in 0..8 {
+            acc[l] += x[l] * y[l] * z[l];
+        }
+    }
+    tail + ((acc[0] + acc[4]) + (acc[1] + acc[5])) + ((acc[2] + acc[6]) + (acc[3] + acc[7]))
+}
+
+/// Σ a_i b_i over the shorter length, with eight partial sums so that the
+/// loop pipelines (and vectorises) instead of waiting on one running sum.
+pub fn dot(a: &[f64], b: &[f64]) -> f64 {
+    let n = a.len().min(b.len());
+    let (a, b) = (&a[..n], &b[..n]);
+    let mut acc = [0.0f64; 8];
+    let (ca, cb) = (a.chunks_exact(8), b.chunks_exact(8));
+    let tail: f64 = ca
+        .remainder()
+        .iter()
+        .zip(cb.remainder())
+        .map(|(x, y)| x * y)
+        .sum();
+    for (x, y) in ca.zip(cb) {
+        for l in 0..8 {
+            acc[l] += x[l] * y[l];
+        }
+    }
+    tail + ((acc[0] + acc[4]) + (acc[1] + acc[5])) + ((acc[2] + acc[6]) + (acc[3] + acc[7]))
 }
 
 /// The same fit as [`direct_fit`] computed for speed (the refinement's cost
 /// function): the shift's sub-pixel part gives one set of cubic weights for
 /// every pixel, so each shifted template is a 4-tap filter of its array; the
-/// template sums are plain dot products, the polynomial-only sums come from
-/// [`Prepared`], and χ² = Σ w f² − c·b.
+/// template sums are the fast path's (the same data arrays, the same order,
+/// here as plain dot products at one fractional shift) and so is the
+/// assembly of the normal equations; χ² = Σ w f² − c·b.
 pub fn sums_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg: bool) -> DirectFit {
     let (k, j, n) = (unit.k(), prep.j(), prep.grid.n);
     let x0 = offset(prep, unit, shift);
@@ -128,70 +174,63 @@ pub fn sums_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg: b
             (0.5 * d - 0.5) * d * d,
         ]
     };
-    let m = unit.m() as i64;
-    let shifted: Vec<Vec<f64>> = unit
-        .t
-        .iter()
-        .map(|t| {
-            (0..n as i64)
-                .map(|i| {
-                    let r = i + i0;
-                    let mut v = 0.0;
-                    for (q, wq) in wts.iter().enumerate() {
-                        let idx = r + q as i64 - 1;
-                        if idx >= 0 && idx < m {
-                            v += wq * t[idx as usize];
-                        }
-                    }
-                    v
-                })
-                .collect()
-        })
-        .collect();
-    // the template columns T_a·x^u on the grid
+    let t: Vec<Vec<f64>> = unit.t.iter().map(|t| shift_cubic(t, i0, &wts, n)).collect();
+    // the template sums in the fast path's order, then its normal equations
+    let g = prep.groups();
+    let mut row = Vec::with_capacity(super::fast::n_corr(k, j, g));
+    for a in 0..k {
+        for b in a..k {
+            for q in 0..2 * g - 1 {
+                row.push(dot3(&prep.wl[q], &t[a], &t[b]));
+            }
+        }
+    }
+    for ta in &t {
+        for d in &prep.wl {
+            row.push(dot(d, ta));
+        }
+    }
+    for ta in &t {
+        for d in &prep.wfx {
+            row.push(dot(d, ta));
+        }
+    }
     let kc = prep.cols(k);
     let dim = kc + j;
-    let mut cols: Vec<Vec<f64>> = shifted;
-    for _ in 1..prep.groups {
-        for _ in 0..k {
-            let next: Vec<f64> = cols[cols.len() - k]
-                .iter()
-                .zip(&prep.x)
-                .map(|(v, x)| v * x)
-                .collect();
-            cols.push(next);
-        }
-    }
-    let dot = |a: &[f64], b: &[f64]| -> f64 { a.iter().zip(b).map(|(x, y)| x * y).sum() };
     let mut a = vec![0.0; dim * dim];
     let mut b = vec![0.0; dim];
-    for p in 0..kc {
-        let wt: Vec<f64> = prep.w.iter().zip(&cols[p]).map(|(w, t)| w * t).collect();
-        for q in p..kc {
-            let v = dot(&wt, &cols[q]);
-            a[p * dim + q] = v;
-            a[q * dim + p] = v;
-        }
-        for q in 0..j {
-            let v = dot(&prep.wp[q], &cols[p]);
-            a[p * dim + kc + q] = v;
-            a[(kc + q) * dim + p] = v;
-        }
-        b[p] = dot(&prep.wf, &cols[p]);
-    }
-    for p in 0..j {
-        b[kc + p] = prep.pf[p];
-        for q in 0..j {
-            a[(kc + p) * dim + kc + q] = prep.pp[p * j + q];
-        }
-    }
+    super::fast::assemble(prep, k, &row, &mut a, &mut b);
     let active = active_columns(&a, dim, k, kc, thr);
-    let coeffs = solve_constrained(&a, &b, &active, k, prep.groups, nonneg);
+    let coeffs = solve_constrained(&a, &b, &active, k, prep.groups(), nonneg);
     let fit: f64 = coeffs.iter().zip(&b).map(|(c, b)| c * b).sum();
     DirectFit {
         chi2: prep.fww - fit,
         coeffs,
     }
+}
+
+/// `out[i] = Σ_q wts[q] · t[i + i0 + q − 1]` for i < n, zero-padded outside `t`
+/// (the 4-tap cubic-convolution filter; edges by index checks, the interior
+/// without them).
+fn shift_cubic(t: &[f64], i0: i64, wts: &[f64; 4], n: usize) -> Vec<f64> {
+    let m = t.len() as i64;
+    let at = |j: i64| if j >= 0 && j < m { t[j as usize] } else { 0.0 };
+    let edge = |i: i64| -> f64 { (0..4).map(|q| wts[q] * at(i + i0 + q as i64 - 1)).sum() };
+    let mut out = vec![0.0; n];
+    // interior: 0 ≤ i + i0 − 1 and i + i0 + 2 < m
+    let lo = (1 - i0).clamp(0, n as i64) as usize;
+    let hi = (m - 2 - i0).clamp(lo as i64, n as i64) as usize;
+    for i in (0..lo).chain(hi..n) {
+        out[i] = edge(i as i64);
+    }
+    if hi > lo {
+        let base = (lo as i64 + i0 - 1) as usize;
+        let src = &t[base..base + (hi - lo) + 3];
+        for (o, w) in out[lo..hi].iter_mut().zip(src.windows(4)) {
+            *o = wts[0] * w[0] + wts[1] * w[1] + wts[2] * w[2] + wts[3] * w[3];
+        }
+    }
+    out
 }
 
 /// The oracle: χ² at every whole shift in `s_lo..=s_hi`, one direct fit each

@@ -58,10 +58,7 @@ pub fn simulate(set: &TemplateSet, spec: &SimSpec, rng: &mut impl Rng) -> Option
             (vec![t], t.name.clone())
         }
     };
-    // positive mixing weights, the first template dominant
-    let coefs: Vec<f64> = (0..templates.len())
-        .map(|i| if i == 0 { 1.0 } else { rng.random_range(0.0..0.6) })
-        .collect();
+    let coefs = mix_weights(&templates, rng);
     let tilt = rng.random_range(-spec.max_tilt..=spec.max_tilt);
     let n = spec.n.max(2);
     let (l0, l1) = spec.lam;
@@ -102,4 +99,36 @@ pub fn simulate(set: &TemplateSet, spec: &SimSpec, rng: &mut impl Rng) -> Option
     };
     let s = Spectrum::new(wave, flux, Some(vec![1.0 / (sigma * sigma); n]), Some(good), meta).ok()?;
     Some((s, name))
+}
+
+/// Scatter (dex) of a quasar's broad-line strengths about the typical mix:
+/// the equivalent widths of the strong broad lines spread by about 0.2 dex
+/// among quasars (from memory).
+pub const QUASAR_LINE_SCATTER_DEX: f64 = 0.2;
+
+/// Mixing weights of a basis. Built-in quasar bases take their typical mix
+/// ([`crate::templates::quasars::typical_weight`]: continuum and both line
+/// bases at 1), each line basis scaled by a log-normal factor of
+/// [`QUASAR_LINE_SCATTER_DEX`], and the red continuum from 0–0.6. Any other
+/// basis: the first template at 1, the others from 0–0.6 (galaxies from
+/// passive to star-forming).
+fn mix_weights(templates: &[&Template], rng: &mut impl Rng) -> Vec<f64> {
+    use crate::templates::quasars::typical_weight;
+    let typical: Option<Vec<f64>> = templates.iter().map(|t| typical_weight(&t.name)).collect();
+    match typical {
+        Some(w) if templates.len() > 1 => {
+            let scatter = Normal::new(0.0, QUASAR_LINE_SCATTER_DEX).expect("finite σ");
+            w.iter()
+                .enumerate()
+                .map(|(i, &w)| match (i, w > 0.0) {
+                    (0, _) => w,
+                    (_, true) => w * 10f64.powf(scatter.sample(rng)),
+                    (_, false) => rng.random_range(0.0..0.6),
+                })
+                .collect()
+        }
+        _ => (0..templates.len())
+            .map(|i| if i == 0 { 1.0 } else { rng.random_range(0.0..0.6) })
+            .collect(),
+    }
 }

@@ -183,6 +183,18 @@ pub fn lines(grid: &Grid, components: &[Component]) -> Vec<f64> {
     f
 }
 
+/// Weight of a built-in quasar basis in a typical quasar (the module's
+/// bases are scaled so that 1 on the continuum and on both line bases is a
+/// typical composite; the red continuum only varies the slope, 0).
+/// `None` for a name that is not a built-in quasar basis.
+pub fn typical_weight(name: &str) -> Option<f64> {
+    match name {
+        "qso-continuum" | "qso-uv-lines" | "qso-balmer" => Some(1.0),
+        "qso-red" => Some(0.0),
+        _ => None,
+    }
+}
+
 /// Generator parameters for the descriptor.
 #[derive(Debug, Serialize)]
 pub struct Parameters {
