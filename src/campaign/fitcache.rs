@@ -60,6 +60,9 @@ pub struct LineRecord {
     pub ew_rest: Option<f64>,
     /// S/N.
     pub snr: Option<f64>,
+    /// Offset and width were fitted (absent in older caches: fitted).
+    #[serde(default = "fitted_default")]
+    pub width_fitted: bool,
 }
 
 /// One line of `fits.jsonl`.
@@ -124,6 +127,7 @@ impl From<&FitResult> for FitRecord {
                     sigma_kms: fin(l.sigma_kms),
                     ew_rest: fin(l.ew_rest),
                     snr: fin(l.snr),
+                    width_fitted: l.width_fitted,
                 })
                 .collect(),
         }
@@ -164,10 +168,15 @@ impl From<FitRecord> for FitResult {
                     sigma_kms: nan(l.sigma_kms),
                     ew_rest: nan(l.ew_rest),
                     snr: nan(l.snr),
+                    width_fitted: l.width_fitted,
                 })
                 .collect(),
         }
     }
+}
+
+fn fitted_default() -> bool {
+    true
 }
 
 /// Parse the text of a `fits.jsonl`; bad lines come back as

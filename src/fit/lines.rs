@@ -8,7 +8,9 @@ falling in the window (the line itself and its neighbours, e.g. [N II] next
 to Hα), all sharing one velocity offset and one width. Continuum and
 amplitudes enter linearly and are solved exactly (weighted least squares
 with the inverse variance); offset and width are found by argmin's
-Nelder–Mead on that profiled χ². Flux = amplitude · √(2π) σ_λ, its error
+Nelder–Mead on that profiled χ² (for a line detected at [`DETECT_SNR`]; an
+undetected line's flux is forced at the rest centre and the start width).
+Flux = amplitude · √(2π) σ_λ, its error
 from the covariance of the linear solve, the rest-frame equivalent width =
 flux / (continuum at the centre · (1+z)) (positive for emission).
 */
@@ -26,6 +28,9 @@ use argmin::solver::neldermead::NelderMead;
 /// earlier once the simplex's χ² values agree to 0.01, far below a
 /// meaningful Δχ²).
 const MAX_ITERS: u64 = 60;
+/// Amplitude S/N (at the rest centre, twice the start width) below which a
+/// line counts as undetected and is measured at a fixed centre and width.
+pub const DETECT_SNR: f64 = 2.0;
 /// Fewest good pixels in a line window.
 const MIN_WINDOW_PIXELS: usize = 8;
 
@@ -71,10 +76,19 @@ impl Window {
             self.design(i, v, sig, &mut row);
             for a in 0..k {
                 let wa = self.w[i] * row[a];
+                if wa == 0.0 {
+                    continue;
+                }
                 atb[a] += wa * self.f[i];
-                for b in 0..k {
+                // upper triangle; mirrored below
+                for b in a..k {
                     ata[a * k + b] += wa * row[b];
                 }
+            }
+        }
+        for a in 0..k {
+            for b in 0..a {
+                ata[a * k + b] = ata[b * k + a];
             }
         }
         let all = vec![true; k];
@@ -96,10 +110,12 @@ impl Window {
         let l = self.lam[i];
         row[0] = 1.0;
         row[1] = (l - self.lam_c) / self.lam_c;
+        let scale = 1.0 + v / C_KMS;
+        let inv_s = C_KMS / sig;
         for (k, &c) in self.centres.iter().enumerate() {
-            let mu = c * (1.0 + v / C_KMS);
-            let s = mu * sig / C_KMS;
-            let u = (l - mu) / s;
+            let mu = c * scale;
+            // (λ − μ)/σ_λ with σ_λ = μ σ / c
+            let u = (l - mu) * inv_s / mu;
             // beyond 8σ the profile is below 1e-13 of its peak
             row[2 + k] = if u.abs() < 8.0 { (-0.5 * u * u).exp() } else { 0.0 };
         }
@@ -167,22 +183,33 @@ pub fn measure_list(s: &Spectrum, z: f64, class: ObjectClass, list: &[(&str, f64
             sig_lim: (smin, smax),
             vmax: 0.5 * half_kms,
         };
-        let simplex = vec![
-            vec![0.0, s0.ln()],
-            vec![0.3 * s0, s0.ln()],
-            vec![0.0, (1.8 * s0).ln()],
-        ];
-        let Ok(nm) = NelderMead::new(simplex).with_sd_tolerance(1e-2) else {
-            continue;
+        // Probe at the rest centre with twice the start width (tolerant of an
+        // offset): a line below DETECT_SNR there is not searched for, since
+        // offset and width fitted to noise are noise; its flux is forced at
+        // the rest centre and the start width (an upper-limit measurement,
+        // common practice).
+        let detected = win
+            .solve(0.0, 2.0 * s0, true)
+            .is_some_and(|f| f.amp_var > 0.0 && f.coef[2] >= DETECT_SNR * f.amp_var.sqrt());
+        let (v, sig) = if detected {
+            let simplex = vec![
+                vec![0.0, s0.ln()],
+                vec![0.3 * s0, s0.ln()],
+                vec![0.0, (1.8 * s0).ln()],
+            ];
+            let Ok(nm) = NelderMead::new(simplex).with_sd_tolerance(1e-2) else {
+                continue;
+            };
+            let best = Executor::new(Profiled(&win), nm)
+                .configure(|st| st.max_iters(MAX_ITERS))
+                .run()
+                .ok()
+                .and_then(|r| r.state.best_param);
+            let Some(p) = best else { continue };
+            (p[0].clamp(-win.vmax, win.vmax), p[1].exp().clamp(smin, smax))
+        } else {
+            (0.0, s0)
         };
-        let best = Executor::new(Profiled(&win), nm)
-            .configure(|st| st.max_iters(MAX_ITERS))
-            .run()
-            .ok()
-            .and_then(|r| r.state.best_param);
-        let Some(p) = best else { continue };
-        let v = p[0].clamp(-win.vmax, win.vmax);
-        let sig = p[1].exp().clamp(smin, smax);
         let Some(fit) = win.solve(v, sig, true) else {
             continue;
         };
@@ -215,6 +242,7 @@ pub fn measure_list(s: &Spectrum, z: f64, class: ObjectClass, list: &[(&str, f64
             sigma_kms: sig,
             ew_rest,
             snr: if flux_err > 0.0 { flux / flux_err } else { 0.0 },
+            width_fitted: detected,
         });
     }
     out
@@ -265,5 +293,26 @@ mod tests {
         assert_relative_eq!(m[0].obs_wave, centre, max_relative = 5e-6);
         // EW_rest = F / (C (1+z)) = 30 / (2 · 1.1)
         assert_relative_eq!(m[0].ew_rest, 30.0 / 2.2, max_relative = 1e-3);
+        assert!(m[0].width_fitted);
+    }
+
+    #[test]
+    fn an_absent_line_is_forced_at_its_rest_centre_and_start_width() {
+        // a flat continuum of 2 with σ = 0.1 noise (deterministic pseudo-random), no line
+        let wave: Vec<f64> = (0..3000).map(|i| 5000.0 + 0.5 * i as f64).collect();
+        let flux: Vec<f64> = (0..3000)
+            .map(|i| 2.0 + 0.1 * ((i as f64 * 12.9898).sin() * 43_758.545).fract())
+            .collect();
+        let s = Spectrum::new(wave, flux, Some(vec![100.0; 3000]), None, SpectrumMeta::default()).unwrap();
+        let m = measure_list(&s, 0.1, ObjectClass::Galaxy, &[("[O III] 5008", 5008.24)]);
+        assert_eq!(m.len(), 1);
+        assert!(!m[0].width_fitted);
+        assert_relative_eq!(m[0].obs_wave, 5008.24 * 1.1, max_relative = 1e-15);
+        assert_relative_eq!(
+            m[0].sigma_kms,
+            limits(ObjectClass::Galaxy).2,
+            max_relative = 1e-15
+        );
+        assert!(m[0].snr.abs() < DETECT_SNR, "S/N {}", m[0].snr);
     }
 }

@@ -102,6 +102,15 @@ pub struct LineMeasurement {
     pub ew_rest: f64,
     /// flux / flux_err.
     pub snr: f64,
+    /// Offset and width were fitted; `false` for an undetected line, whose
+    /// flux is forced at the rest centre and the start width (see
+    /// [`measure_list`](super::lines::measure_list)).
+    #[serde(default = "width_fitted_default")]
+    pub width_fitted: bool,
+}
+
+fn width_fitted_default() -> bool {
+    true
 }
 
 /// Everything the engine found for one spectrum.
