@@ -58,6 +58,26 @@ fn full_fit(c: &mut Criterion) {
             })
         })
     });
+    // the same with a throughput-tilt term per template (`zvet fit --tilt-terms`)
+    let tilted = Engine::new(
+        zvet::templates::builtin(),
+        FitConfig {
+            throughput_terms: true,
+            ..FitConfig::default()
+        },
+    )
+    .unwrap();
+    tilted.fit(&batch[0]).unwrap();
+    g.bench_function(
+        format!("all_threads_{}_tilt_terms", rayon::current_num_threads()),
+        |b| {
+            b.iter(|| {
+                batch.par_iter().for_each(|s| {
+                    std::hint::black_box(tilted.fit(s).unwrap());
+                })
+            })
+        },
+    );
     g.finish();
 }
 

@@ -77,10 +77,13 @@ pub struct FitConfig {
     pub sys_floor: f64,
     /// Inside the star window (|cz| ≤
     /// [`STAR_VMAX_KMS`](super::engine::STAR_VMAX_KMS)) a star solution
-    /// ranks before a galaxy solution of lower χ², and the result is flagged
-    /// ambiguous. The galaxy basis holds the light of A stars and can mimic
-    /// almost any single star at rest with its extra freedom, while galaxies
-    /// slower than the Galaxy's own stars are rare among survey targets.
+    /// ranks before a galaxy solution of lower χ² when the difference is
+    /// within the galaxy basis's extra freedom (Δk · ln N, the Bayesian
+    /// information criterion's price of its extra parameters), and the result
+    /// is flagged ambiguous. The galaxy basis holds the light of A stars and
+    /// can mimic almost any single star at rest with its extra freedom, while
+    /// galaxies slower than the Galaxy's own stars are rare among survey
+    /// targets.
     #[serde(default = "yes")]
     pub star_window_prefers_stars: bool,
     /// Add one throughput term per template: the column T_k·x with x the

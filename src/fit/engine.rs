@@ -377,17 +377,21 @@ impl Engine {
             let kb = any_other && implausible(&b.0);
             ka.cmp(&kb).then(a.0.chi2.total_cmp(&b.0.chi2))
         });
-        // inside the star window a galaxy solution yields to a star solution
-        // (see FitConfig::star_window_prefers_stars); the inverted order leaves Δχ² < 0,
-        // so the answer is flagged ambiguous for the inspector
+        // inside the star window a galaxy solution yields to a star solution whose
+        // χ² is higher by less than the galaxy basis's extra freedom is worth
+        // (see FitConfig::star_window_prefers_stars); the inverted order leaves
+        // Δχ² < 0, so the answer is flagged ambiguous for the inspector
         if self.config.star_window_prefers_stars
             && cands[0].0.class == ObjectClass::Galaxy
             && velocity_sep_kms(cands[0].0.z, 0.0) <= STAR_VMAX_KMS
         {
-            if let Some(i) = cands
-                .iter()
-                .position(|(c, _, _)| c.class == ObjectClass::Star && !implausible(c))
-            {
+            let galaxy_k = self.units[cands[0].1.unit].k();
+            if let Some(i) = cands.iter().position(|(c, m, _)| {
+                c.class == ObjectClass::Star
+                    && !implausible(c)
+                    && c.chi2 - cands[0].0.chi2
+                        <= star_window_allowance(&prep, galaxy_k, self.units[m.unit].k())
+            }) {
                 let star = cands.remove(i);
                 cands.insert(0, star);
             }
@@ -507,6 +511,17 @@ fn reach(units: &[Unit], config: &FitConfig) -> (f64, f64) {
         hi = hi.min(10f64.powf(rest_hi) * (1.0 + z_hi_edge));
     }
     (lo, hi)
+}
+
+/// How much higher a star's χ² may be than a galaxy's in the star window and
+/// still rank first: the Schwarz (1978) Bayesian information criterion's
+/// price of the galaxy basis's extra parameters, Δk · ln N, with N the
+/// independent good pixels. A galaxy that beats every star by more is a
+/// galaxy, however slow.
+fn star_window_allowance(prep: &Prepared, galaxy_k: usize, star_k: usize) -> f64 {
+    let extra = prep.cols(galaxy_k).saturating_sub(prep.cols(star_k)) as f64;
+    let n = (prep.n_good() as f64 / prep.oversampling).max(2.0);
+    extra * n.ln()
 }
 
 /// |Δv| between two redshifts in km/s (relativistic-free, c·|Δln(1+z)|).
