@@ -323,23 +323,23 @@ pub(crate) fn recovery_table_with(per_cell: usize, seed: u64, config: FitConfig)
     }
     // calibration of σ_z: for Gaussian errors the median |Δz|/σ_z is 0.674 (the
     // normal distribution's quartile, common practice)
-    let pulls: Vec<String> = ObjectClass::ALL
-        .iter()
-        .map(|&c| {
-            let mut p: Vec<f64> = results
-                .iter()
-                .filter(|r| r.0 == c && r.1 >= 5.0 && r.2 && r.4.is_finite())
-                .map(|r| r.4)
-                .collect();
-            p.sort_by(f64::total_cmp);
-            let med = p.get(p.len() / 2).copied().unwrap_or(f64::NAN);
-            format!("{c} {med:.2}")
-        })
-        .collect();
-    eprintln!(
-        "median |Δz|/σ_z of the successes at S/N ≥ 5 (0.67 if σ_z is right): {}",
-        pulls.join(", ")
-    );
+    eprintln!("median |Δz|/σ_z of the successes (0.67 if σ_z is right):");
+    for c in ObjectClass::ALL {
+        let cells: Vec<String> = snrs
+            .iter()
+            .map(|&snr| {
+                let mut p: Vec<f64> = results
+                    .iter()
+                    .filter(|r| r.0 == c && (r.1 - snr).abs() < 1e-12 && r.2 && r.4.is_finite())
+                    .map(|r| r.4)
+                    .collect();
+                p.sort_by(f64::total_cmp);
+                let med = p.get(p.len() / 2).copied().unwrap_or(f64::NAN);
+                format!("{med:>9.2}")
+            })
+            .collect();
+        eprintln!("{:<8} {}", c.as_str(), cells.join("  "));
+    }
     for r in results.iter().filter(|r| !r.2) {
         eprintln!("  miss: {}", r.3);
     }

@@ -27,7 +27,8 @@ pub struct Prepared {
     pub g0: i64,
     /// Flux (0 where bad).
     pub flux: Vec<f64>,
-    /// Weights = inverse variance / oversampling (0 where bad).
+    /// Weights = inverse variance / Σρ, the pixel's summed noise correlation
+    /// with its neighbours from the resampling (0 where bad).
     pub w: Vec<f64>,
     /// Indices of pixels with w > 0.
     pub good: Vec<usize>,
@@ -44,7 +45,7 @@ pub struct Prepared {
     pub pp: Vec<f64>,
     /// Σ w f P_j.
     pub pf: Vec<f64>,
-    /// The resampler's oversampling factor the weights were divided by.
+    /// The resampler's mean oversampling (good pixels per independent pixel).
     pub oversampling: f64,
     /// Template amplitudes are constrained to be ≥ 0.
     pub nonneg: bool,
@@ -115,7 +116,7 @@ impl Prepared {
         let mut good = Vec::new();
         for i in 0..n {
             if r.ivar[i] > 0.0 && r.ivar[i].is_finite() && r.flux[i].is_finite() {
-                w[i] = r.ivar[i] / os;
+                w[i] = r.ivar[i] / r.correlation[i];
                 flux[i] = r.flux[i];
                 good.push(i);
             }
@@ -123,9 +124,9 @@ impl Prepared {
         if sys_floor > 0.0 && sys_floor.is_finite() {
             let fbar = running_mean(&flux, &w, SYS_FLOOR_WINDOW);
             for &i in &good {
-                // w = ivar/os; the floor is a variance per pixel like σ²
+                // w = ivar / Σρ; the floor is a variance per pixel like σ²
                 let var = 1.0 / r.ivar[i] + (sys_floor * fbar[i]).powi(2);
-                w[i] = 1.0 / var / os;
+                w[i] = 1.0 / var / r.correlation[i];
             }
         }
         let needed = MIN_PIXELS.max(poly_terms + 2);
@@ -501,10 +502,10 @@ mod tests {
         let a = Prepared::new(&s, 1e-4, 2, (0.0, 1e9)).unwrap();
         let b = Prepared::with_floor(&s, 1e-4, 2, (0.0, 1e9), 0.1).unwrap();
         assert_eq!(a.good, b.good);
-        let os = a.oversampling;
+        let rho = s.resample(&s.log_grid(1e-4)).correlation;
         for &i in &a.good {
-            let var = 1.0 / (a.w[i] * os) + 1.0;
-            assert_relative_eq!(b.w[i], 1.0 / var / os, max_relative = 1e-12);
+            let var = 1.0 / (a.w[i] * rho[i]) + 1.0;
+            assert_relative_eq!(b.w[i], 1.0 / var / rho[i], max_relative = 1e-12);
         }
         assert!(b.fww < a.fww);
     }

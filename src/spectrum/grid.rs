@@ -10,8 +10,12 @@ pixels less than half covered by good input are bad.
 
 When the output grid is finer than the input, neighbouring output pixels share
 input pixels and their noise is correlated; the propagated ivar then counts the
-same information more than once. [`Resampled::oversampling`] reports the mean
-number of output pixels per input pixel so that the engine can scale χ².
+same information more than once. [`Resampled::correlation`] gives, per output
+pixel, the sum of its noise correlation coefficients with every output pixel
+(itself included): dividing the ivar by it leaves the information of a model
+that is smooth over a few pixels as the input had it (two output pixels per
+input pixel: 2; output pixels that each average whole input pixels: 1).
+[`Resampled::oversampling`] is the resulting mean factor.
 */
 use super::Spectrum;
 use serde::{Deserialize, Serialize};
@@ -73,8 +77,12 @@ pub struct Resampled {
     pub flux: Vec<f64>,
     /// Inverse variance per output pixel (0 where bad).
     pub ivar: Vec<f64>,
-    /// Mean number of output pixels per good input pixel (>1 when upsampling).
+    /// Good output pixels per independent pixel: their number over
+    /// Σ 1/[`correlation`](Resampled::correlation) (≥ 1; > 1 when upsampling).
     pub oversampling: f64,
+    /// Per output pixel, Σ_k ρ(j, k) over the output pixels k whose noise is
+    /// correlated with pixel j's (ρ(j, j) = 1 included); 1 where bad.
+    pub correlation: Vec<f64>,
 }
 
 /// Pixel edges of a strictly increasing set of centres: midpoints inside,
@@ -102,58 +110,84 @@ impl Spectrum {
         let lw: Vec<f64> = self.wave().iter().map(|w| w.log10()).collect();
         let ein = edges(&lw);
         let n_out = grid.n;
-        let mut wsum = vec![0.0; n_out];
-        let mut fsum = vec![0.0; n_out];
-        let mut vsum = vec![0.0; n_out];
-        let mut cover = vec![0.0; n_out];
         let half = 0.5 * grid.dloglam;
         let (flux, ivar, good) = (self.flux(), self.ivar(), self.good());
-        let mut contributing = 0usize;
-        for i in 0..lw.len() {
-            if !good[i] {
-                continue;
-            }
-            let mut used = false;
+        // output pixels j overlapping good input pixel i, with the overlap lengths
+        let overlaps = |i: usize, out: &mut Vec<(usize, f64)>| {
+            out.clear();
             let (a, b) = (ein[i], ein[i + 1]);
             // output pixels whose span [c-half, c+half] overlaps [a, b]
             let j_lo = ((a - grid.loglam0 + half) / grid.dloglam).floor().max(0.0) as usize;
             let j_hi_f = ((b - grid.loglam0 + half) / grid.dloglam).floor();
             if j_hi_f < 0.0 {
-                continue;
+                return;
             }
             let j_hi = (j_hi_f as usize).min(n_out.saturating_sub(1));
             for j in j_lo..=j_hi {
                 let c = grid.loglam(j);
                 let ov = (b.min(c + half) - a.max(c - half)).max(0.0);
-                if ov <= 0.0 {
-                    continue;
+                if ov > 0.0 {
+                    out.push((j, ov));
                 }
-                used = true;
-                wsum[j] += ov;
-                fsum[j] += ov * flux[i];
-                vsum[j] += ov * ov / ivar[i];
-                cover[j] += ov;
             }
-            contributing += usize::from(used);
+        };
+        let mut wsum = vec![0.0; n_out];
+        let mut fsum = vec![0.0; n_out];
+        let mut vsum = vec![0.0; n_out];
+        let mut ov = Vec::new();
+        for i in (0..lw.len()).filter(|&i| good[i]) {
+            overlaps(i, &mut ov);
+            for &(j, o) in &ov {
+                wsum[j] += o;
+                fsum[j] += o * flux[i];
+                vsum[j] += o * o / ivar[i];
+            }
         }
         let mut out_f = vec![0.0; n_out];
         let mut out_iv = vec![0.0; n_out];
-        let mut n_used = 0usize;
         for j in 0..n_out {
-            if wsum[j] > 0.0 && cover[j] >= 0.5 * grid.dloglam {
+            // wsum is also the good coverage of the pixel
+            if wsum[j] >= 0.5 * grid.dloglam {
                 out_f[j] = fsum[j] / wsum[j];
                 let var = vsum[j] / (wsum[j] * wsum[j]);
                 if var > 0.0 && var.is_finite() {
                     out_iv[j] = 1.0 / var;
-                    n_used += 1;
                 }
+            }
+        }
+        // Σ_k ρ(j, k): cov(j, k) = Σ_i o_ij o_ik var_i / (W_j W_k) over the
+        // inputs i both pixels draw on; ρ = cov / √(var_j var_k)
+        let mut corr = vec![0.0; n_out];
+        let sd_over_w = |j: usize| (1.0 / out_iv[j]).sqrt() * wsum[j];
+        for i in (0..lw.len()).filter(|&i| good[i]) {
+            overlaps(i, &mut ov);
+            for &(j, oj) in ov.iter().filter(|(j, _)| out_iv[*j] > 0.0) {
+                for &(k, ok) in ov.iter().filter(|(k, _)| out_iv[*k] > 0.0) {
+                    corr[j] += oj * ok / ivar[i] / (sd_over_w(j) * sd_over_w(k));
+                }
+            }
+        }
+        let mut n_used = 0usize;
+        let mut independent = 0.0;
+        for j in 0..n_out {
+            if out_iv[j] > 0.0 && corr[j] > 0.0 && corr[j].is_finite() {
+                corr[j] = corr[j].max(1.0);
+                n_used += 1;
+                independent += 1.0 / corr[j];
+            } else {
+                corr[j] = 1.0;
             }
         }
         Resampled {
             grid: *grid,
             flux: out_f,
             ivar: out_iv,
-            oversampling: (n_used as f64 / contributing.max(1) as f64).max(1.0),
+            oversampling: if independent > 0.0 {
+                (n_used as f64 / independent).max(1.0)
+            } else {
+                1.0
+            },
+            correlation: corr,
         }
     }
 }
@@ -196,6 +230,58 @@ mod tests {
                 "j={j} ivar={} expected≈{}",
                 r.ivar[j],
                 4.0 * n_in
+            );
+        }
+    }
+
+    /// A spectrum whose pixels are uniform in log10 λ with step `step`,
+    /// edges on the edges of `grid`'s pixels, ivar 4.
+    fn log_spec(grid: &LogGrid, step: f64, n: usize) -> Spectrum {
+        let start = grid.loglam0 - 0.5 * grid.dloglam + 0.5 * step;
+        let wave: Vec<f64> = (0..n).map(|i| 10f64.powf(start + i as f64 * step)).collect();
+        Spectrum::new(
+            wave,
+            vec![1.0; n],
+            Some(vec![4.0; n]),
+            None,
+            SpectrumMeta::default(),
+        )
+        .unwrap()
+    }
+
+    #[test]
+    fn correlation_counts_output_pixels_that_share_an_input_pixel() {
+        // By construction: an input pixel split exactly into two output pixels
+        // gives both the same noise (ρ = 1 between them, Σρ = 2, and the pair
+        // carries one pixel's information); output pixels that each average two
+        // whole input pixels share none (Σρ = 1) and have twice the input ivar.
+        let g = LogGrid::covering(5000.0, 5100.0, 1e-4);
+        let up = log_spec(&g, 2e-4, g.n / 2).resample(&g);
+        for j in 0..2 * (g.n / 2) {
+            assert_relative_eq!(up.correlation[j], 2.0, epsilon = 1e-9);
+            assert_relative_eq!(up.ivar[j], 4.0, epsilon = 1e-9);
+        }
+        assert_relative_eq!(up.oversampling, 2.0, epsilon = 1e-9);
+        let down = log_spec(&g, 0.5e-4, 2 * g.n).resample(&g);
+        for j in 0..g.n {
+            assert_relative_eq!(down.correlation[j], 1.0, epsilon = 1e-9);
+            assert_relative_eq!(down.ivar[j], 8.0, epsilon = 1e-9);
+        }
+        // in every case the weights ivar/Σρ keep the information of a constant
+        // flux: Σ_j ivar_j/Σρ_j = Σ_i ivar_i (up to a last output pixel that is
+        // less than half covered and dropped)
+        for (step, n_in) in [
+            (2e-4, g.n / 2),
+            (0.5e-4, 2 * g.n),
+            (1.5e-4, g.n * 2 / 3),
+            (1.3e-4, g.n * 10 / 13),
+        ] {
+            let r = log_spec(&g, step, n_in).resample(&g);
+            let info: f64 = r.ivar.iter().zip(&r.correlation).map(|(iv, c)| iv / c).sum();
+            let input = 4.0 * n_in as f64;
+            assert!(
+                (info - input).abs() <= 4.0 + 1e-9 * input,
+                "step {step}: {info} vs {input}"
             );
         }
     }
