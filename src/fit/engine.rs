@@ -320,11 +320,11 @@ impl Engine {
             let min_sep = self.min_sep_pixels();
             let n_cand = self.config.n_candidates;
             let mut kept = separated(minima, min_sep, 3 * n_cand);
-            if prep.nonneg {
-                // the curves are unconstrained; rank the deepest minima again
-                // with non-negative template amplitudes
-                for m in kept.iter_mut() {
-                    let u = &self.units[m.unit];
+            for m in kept.iter_mut() {
+                let u = &self.units[m.unit];
+                if prep.nonneg && !fast::curve_constrained(&prep, u) {
+                    // an unconstrained curve: rank its deepest minima again
+                    // with non-negative template amplitudes
                     m.chi2 = sums_fit(&prep, u, m.shift as f64, &thresholds(&prep, u), true).chi2;
                 }
             }

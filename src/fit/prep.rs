@@ -319,6 +319,21 @@ pub fn solve_constrained(
     c
 }
 
+/// Whether coefficients `c` of a system with normal matrix `a` meet the
+/// constraint of [`solve_constrained`]: every template amplitude ≥ 0, taken
+/// at the template's x̄ when there are throughput terms.
+pub fn amplitudes_feasible(a: &[f64], c: &[f64], k: usize, groups: usize) -> bool {
+    let dim = c.len();
+    (0..k).all(|t| {
+        if groups < 2 {
+            return c[t] >= 0.0;
+        }
+        let d = a[t * dim + t];
+        let xbar = if d > 0.0 { a[t * dim + k + t] / d } else { 0.0 };
+        c[t] + xbar * c[k + t] >= 0.0
+    })
+}
+
 /// The constrained solve with the first `k` coefficients ≥ 0 (see
 /// [`solve_constrained`]).
 fn solve_nonneg_leading(

@@ -234,10 +234,12 @@ fn shift_cubic(t: &[f64], i0: i64, wts: &[f64; 4], n: usize) -> Vec<f64> {
 }
 
 /// The oracle: χ² at every whole shift in `s_lo..=s_hi`, one direct fit each
-/// (unconstrained, like the fast path's curves).
+/// (constrained as the fast path's curves are, see
+/// [`curve_constrained`](super::fast::curve_constrained)).
 pub fn chi2_curve(prep: &Prepared, unit: &Unit, s_lo: i64, s_hi: i64) -> Vec<f64> {
     let thr = thresholds(prep, unit);
+    let nonneg = super::fast::curve_constrained(prep, unit);
     (s_lo..=s_hi)
-        .map(|s| direct_fit(prep, unit, s as f64, &thr, false).chi2)
+        .map(|s| direct_fit(prep, unit, s as f64, &thr, nonneg).chi2)
         .collect()
 }
