@@ -283,16 +283,7 @@ pub fn solve_constrained(
         return solve_nonneg_leading(a, b, active, k, groups, nonneg);
     }
     // θ = M θ′: c_a = c′_a − x̄_a c_{k+a}, so that c′_a is the amplitude at x̄_a
-    let xbar: Vec<f64> = (0..k)
-        .map(|t| {
-            let d = a[t * dim + t];
-            if d > 0.0 {
-                a[t * dim + k + t] / d
-            } else {
-                0.0
-            }
-        })
-        .collect();
+    let xbar: Vec<f64> = (0..k).map(|t| information_centre(a, dim, k, t)).collect();
     // A′ = Mᵀ A M and b′ = Mᵀ b; M differs from I only at (t, k + t) = −x̄_t
     let mut am = a.to_vec();
     for t in 0..k {
@@ -328,10 +319,19 @@ pub fn amplitudes_feasible(a: &[f64], c: &[f64], k: usize, groups: usize) -> boo
         if groups < 2 {
             return c[t] >= 0.0;
         }
-        let d = a[t * dim + t];
-        let xbar = if d > 0.0 { a[t * dim + k + t] / d } else { 0.0 };
-        c[t] + xbar * c[k + t] >= 0.0
+        c[t] + information_centre(a, dim, k, t) * c[k + t] >= 0.0
     })
+}
+
+/// x̄ of template `t`: Σ w T_t² x / Σ w T_t², read from the normal matrix
+/// `a` (dim × dim) whose column k + t is the template's throughput term.
+fn information_centre(a: &[f64], dim: usize, k: usize, t: usize) -> f64 {
+    let d = a[t * dim + t];
+    if d > 0.0 {
+        a[t * dim + k + t] / d
+    } else {
+        0.0
+    }
 }
 
 /// The constrained solve with the first `k` coefficients ≥ 0 (see
