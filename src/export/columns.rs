@@ -3,6 +3,7 @@ The columns of the training catalogue: one list drives the CSV and the FITS
 writers and readers, so the two formats cannot drift apart.
 */
 use super::{ExportError, ExportRow};
+use crate::catalog::CatalogRow;
 use crate::catalog::BANDS;
 use crate::review::merge::ConsensusState;
 use crate::review::{Confidence, Flag, VerdictClass, ZSource};
@@ -123,7 +124,7 @@ fn join<T>(items: impl IntoIterator<Item = T>, f: impl Fn(T) -> String, sep: &st
 impl ExportRow {
     /// Colours u−g, g−r, r−i, i−z (missing when a magnitude is).
     pub fn colours(&self) -> [Option<f64>; 4] {
-        let m = &self.mag;
+        let m = &self.catalog.mag;
         [
             diff(m[0], m[1]),
             diff(m[1], m[2]),
@@ -135,14 +136,15 @@ impl ExportRow {
     /// The row's values in [`COLUMNS`] order.
     pub fn cells(&self) -> Vec<Cell> {
         let s = |x: &str| Cell::Str(x.to_string());
-        let mut c = vec![s(&self.id), Cell::F64(self.ra), Cell::F64(self.dec)];
-        c.extend(self.mag.iter().map(|&m| Cell::F64(m)));
-        c.extend(self.mag_err.iter().map(|&m| Cell::F64(m)));
+        let cat = &self.catalog;
+        let mut c = vec![s(&cat.id), Cell::F64(cat.ra), Cell::F64(cat.dec)];
+        c.extend(cat.mag.iter().map(|&m| Cell::F64(m)));
+        c.extend(cat.mag_err.iter().map(|&m| Cell::F64(m)));
         c.extend(self.colours().iter().map(|&m| Cell::F64(m)));
         c.extend([
-            s(self.phot_class.map_or("", |x| x.as_str())),
-            Cell::F64(self.phot_class_prob),
-            Cell::F64(self.phot_z),
+            s(cat.phot_class.map_or("", |x| x.as_str())),
+            Cell::F64(cat.phot_class_prob),
+            Cell::F64(cat.phot_z),
             s(self.auto_class.map_or("", |x| x.as_str())),
             Cell::F64(self.auto_z),
             Cell::F64(self.auto_z_err),
@@ -217,14 +219,16 @@ impl ExportRow {
             .flatten()
             .collect();
         Ok(ExportRow {
-            id: st(0)?.to_string(),
-            ra: f(1)?,
-            dec: f(2)?,
-            mag,
-            mag_err,
-            phot_class: parse::<ObjectClass>(name(17), word(17)?)?,
-            phot_class_prob: f(18)?,
-            phot_z: f(19)?,
+            catalog: CatalogRow {
+                id: st(0)?.to_string(),
+                ra: f(1)?,
+                dec: f(2)?,
+                mag,
+                mag_err,
+                phot_class: parse::<ObjectClass>(name(17), word(17)?)?,
+                phot_class_prob: f(18)?,
+                phot_z: f(19)?,
+            },
             auto_class: parse::<ObjectClass>(name(20), word(20)?)?,
             auto_z: f(21)?,
             auto_z_err: f(22)?,

@@ -58,22 +58,9 @@ pub enum ExportError {
 /// One row of the training catalogue.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ExportRow {
-    /// Object id.
-    pub id: String,
-    /// Right ascension (deg).
-    pub ra: Option<f64>,
-    /// Declination (deg).
-    pub dec: Option<f64>,
-    /// u g r i z magnitudes.
-    pub mag: [Option<f64>; 5],
-    /// Their errors.
-    pub mag_err: [Option<f64>; 5],
-    /// Photometric class.
-    pub phot_class: Option<ObjectClass>,
-    /// Its probability.
-    pub phot_class_prob: Option<f64>,
-    /// Photometric redshift.
-    pub phot_z: Option<f64>,
+    /// The object's id and catalogue facts (position, photometry, photometric
+    /// class and z); all empty but the id when the catalogue has no row.
+    pub catalog: CatalogRow,
     /// Automatic class.
     pub auto_class: Option<ObjectClass>,
     /// Automatic redshift.
@@ -179,14 +166,10 @@ pub fn build_rows(
         let cat = catalog.get(id);
         let best = fits.get(id).and_then(|f| f.best().map(|b| (f, b)));
         rows.push(ExportRow {
-            id: id.clone(),
-            ra: cat.and_then(|r| r.ra),
-            dec: cat.and_then(|r| r.dec),
-            mag: cat.map_or([None; 5], |r| r.mag),
-            mag_err: cat.map_or([None; 5], |r| r.mag_err),
-            phot_class: cat.and_then(|r| r.phot_class),
-            phot_class_prob: cat.and_then(|r| r.phot_class_prob),
-            phot_z: cat.and_then(|r| r.phot_z),
+            catalog: CatalogRow {
+                id: id.clone(),
+                ..cat.cloned().unwrap_or_default()
+            },
             auto_class: best.map(|(_, b)| b.class),
             auto_z: best.and_then(|(_, b)| finite(b.z)),
             auto_z_err: best.and_then(|(_, b)| finite(b.z_err)),

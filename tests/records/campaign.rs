@@ -179,10 +179,10 @@ fn export_of_the_campaign_applies_filters() {
     let (rows, prov) = export::read(&out).unwrap();
     assert_eq!(rows.len(), 200);
     assert_eq!(prov.template_set, "builtin");
-    let r7 = rows.iter().find(|r| r.id == "o007").unwrap();
+    let r7 = rows.iter().find(|r| r.catalog.id == "o007").unwrap();
     assert_eq!(r7.vetted_class, s.truth[7]);
-    assert_eq!(r7.phot_class.map(VerdictClass::from), Some(s.phot[7]));
-    assert_relative_eq!(r7.ra.unwrap(), 10.07);
+    assert_eq!(r7.catalog.phot_class.map(VerdictClass::from), Some(s.phot[7]));
+    assert_relative_eq!(r7.catalog.ra.unwrap(), 10.07);
     assert_relative_eq!(r7.colours()[0].unwrap(), 0.5);
     assert_eq!(r7.inspectors, vec!["ana", "ben"]);
 

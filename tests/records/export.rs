@@ -15,14 +15,16 @@ use zvet::ObjectClass;
 /// separators and quotes in notes, a newline, every consensus state.
 pub fn sample_rows() -> Vec<ExportRow> {
     let base = ExportRow {
-        id: "obj-0001".into(),
-        ra: Some(150.123456789012),
-        dec: Some(-2.5),
-        mag: [Some(21.03), Some(20.11), Some(19.72), Some(19.5), Some(19.41)],
-        mag_err: [Some(0.08), Some(0.02), Some(0.015), Some(0.02), Some(0.05)],
-        phot_class: Some(ObjectClass::Galaxy),
-        phot_class_prob: Some(0.93),
-        phot_z: Some(0.31),
+        catalog: zvet::catalog::CatalogRow {
+            id: "obj-0001".into(),
+            ra: Some(150.123456789012),
+            dec: Some(-2.5),
+            mag: [Some(21.03), Some(20.11), Some(19.72), Some(19.5), Some(19.41)],
+            mag_err: [Some(0.08), Some(0.02), Some(0.015), Some(0.02), Some(0.05)],
+            phot_class: Some(ObjectClass::Galaxy),
+            phot_class_prob: Some(0.93),
+            phot_z: Some(0.31),
+        },
         auto_class: Some(ObjectClass::Galaxy),
         auto_z: Some(0.3123456789),
         auto_z_err: Some(1.2e-4),
@@ -39,10 +41,10 @@ pub fn sample_rows() -> Vec<ExportRow> {
         consensus: ConsensusState::Single,
     };
     let mut r2 = base.clone();
-    r2.id = "obj-0002".into();
-    r2.mag = [None, Some(22.4), Some(21.9), Some(21.0), None];
-    r2.mag_err = [None, Some(0.1), Some(0.08), Some(0.05), None];
-    r2.phot_class = Some(ObjectClass::Star);
+    r2.catalog.id = "obj-0002".into();
+    r2.catalog.mag = [None, Some(22.4), Some(21.9), Some(21.0), None];
+    r2.catalog.mag_err = [None, Some(0.1), Some(0.08), Some(0.05), None];
+    r2.catalog.phot_class = Some(ObjectClass::Star);
     r2.auto_class = Some(ObjectClass::Quasar);
     r2.auto_z = Some(2.2);
     r2.auto_delta_chi2 = None;
@@ -56,14 +58,14 @@ pub fn sample_rows() -> Vec<ExportRow> {
     r2.inspectors = vec!["ana".into(), "ben".into()];
     r2.consensus = ConsensusState::Agreed;
     let mut r3 = base.clone();
-    r3.id = "obj-0003".into();
-    r3.ra = None;
-    r3.dec = None;
-    r3.mag = [None; 5];
-    r3.mag_err = [None; 5];
-    r3.phot_class = None;
-    r3.phot_class_prob = None;
-    r3.phot_z = None;
+    r3.catalog.id = "obj-0003".into();
+    r3.catalog.ra = None;
+    r3.catalog.dec = None;
+    r3.catalog.mag = [None; 5];
+    r3.catalog.mag_err = [None; 5];
+    r3.catalog.phot_class = None;
+    r3.catalog.phot_class_prob = None;
+    r3.catalog.phot_z = None;
     r3.auto_class = None;
     r3.auto_z = None;
     r3.auto_z_err = None;
@@ -78,13 +80,13 @@ pub fn sample_rows() -> Vec<ExportRow> {
     r3.inspectors = vec!["ana".into(), "ben".into(), "judge".into()];
     r3.consensus = ConsensusState::Adjudicated;
     let mut r4 = base;
-    r4.id = "obj-0004".into();
+    r4.catalog.id = "obj-0004".into();
     r4.vetted_class = zvet::review::VerdictClass::Star;
     r4.vetted_z = Some(-0.000123);
     r4.z_source = Some(ZSource::Refit);
     r4.confidence = Some(Confidence::Doubtful);
     vec![r4.clone(), r2, r3, {
-        r4.id = "obj-0000".into();
+        r4.catalog.id = "obj-0000".into();
         r4
     }]
 }
