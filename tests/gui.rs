@@ -516,3 +516,44 @@ fn typing_a_redshift_from_the_keyboard_replaces_the_old_one() {
         }
     );
 }
+
+#[test]
+fn nudging_the_redshift_and_the_view_keys() {
+    let (_d, log) = log_path("nudge");
+    let mut h = harness(&log);
+    let z0 = h.state().state.shown.as_ref().unwrap().z();
+    // two steps up and one down: one NUDGE_STEP · (1 + z) up, as a typed redshift
+    press(&mut h, Key::Period);
+    press(&mut h, Key::Period);
+    press(&mut h, Key::Comma);
+    let z1 = h.state().state.shown.as_ref().unwrap().z();
+    let step = |z: f64| zvet::ui::NUDGE_STEP * (1.0 + z);
+    let expect = {
+        let a = z0 + step(z0);
+        let b = a + step(a);
+        b - step(b)
+    };
+    assert!((z1 - expect).abs() < 1e-12, "{z1} vs {expect}");
+    assert!(events(&log).is_empty(), "nudging records nothing by itself");
+    press(&mut h, Key::Space);
+    match last_change(&log) {
+        Change::Verdict { z, source, .. } => {
+            assert!((z.unwrap() - z1).abs() < 1e-12);
+            assert_eq!(source, ZSource::Typed);
+        }
+        other => panic!("{other:?}"),
+    }
+    // view keys change the view only: rest frame and smoothing (odd widths)
+    let (rest, smooth) = (h.state().state.view.rest_frame, h.state().state.view.smoothing);
+    press(&mut h, Key::O);
+    press(&mut h, Key::CloseBracket);
+    assert_eq!(h.state().state.view.rest_frame, !rest);
+    assert_eq!(h.state().state.view.smoothing, smooth + 2);
+    press(&mut h, Key::OpenBracket);
+    press(&mut h, Key::OpenBracket);
+    assert_eq!(
+        h.state().state.view.smoothing,
+        (smooth as isize - 2).max(1) as usize
+    );
+    assert_eq!(events(&log).len(), 1, "view keys record nothing");
+}
