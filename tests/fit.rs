@@ -668,3 +668,43 @@ fn refinement_sums_equal_the_direct_fit_at_fractional_shifts() {
         }
     }
 }
+
+#[test]
+fn odd_spectra_give_a_result_or_an_error_never_a_panic() {
+    // spectra far from the survey case: very short, outside most templates' reach,
+    // flat zero flux, or a single huge spike; the engine must answer or refuse
+    let engine = Engine::new(zvet::templates::builtin(), FitConfig::default()).unwrap();
+    let make = |lo: f64, hi: f64, n: usize, f: &dyn Fn(usize) -> f64| {
+        let wave: Vec<f64> = (0..n)
+            .map(|i| lo + (hi - lo) * i as f64 / (n - 1) as f64)
+            .collect();
+        let flux: Vec<f64> = (0..n).map(f).collect();
+        Spectrum::new(wave, flux, Some(vec![1.0; n]), None, SpectrumMeta::default()).unwrap()
+    };
+    let cases = [
+        ("30 pixels", make(5000.0, 5030.0, 30, &|i| 1.0 + 0.01 * i as f64)),
+        (
+            "far ultraviolet",
+            make(950.0, 1100.0, 300, &|i| (i as f64 * 0.3).sin() + 2.0),
+        ),
+        ("infrared", make(20_000.0, 25_000.0, 800, &|_| 1.0)),
+        ("zero flux", make(4000.0, 9000.0, 2000, &|_| 0.0)),
+        (
+            "one spike",
+            make(4000.0, 9000.0, 2000, &|i| if i == 1000 { 1e12 } else { 0.0 }),
+        ),
+    ];
+    for (name, s) in &cases {
+        match engine.fit(s) {
+            Ok(r) => {
+                let b = r.best().expect("a result has a best candidate");
+                assert!(b.z.is_finite(), "{name}: z = {}", b.z);
+            }
+            Err(e) => assert!(!e.to_string().is_empty(), "{name}"),
+        }
+        // the curves, where the spectrum can be prepared at all, are finite
+        if let Ok(curves) = engine.chi2_curves_with(s, CorrPlan::Fft) {
+            assert!(curves.iter().flatten().all(|v| v.is_finite()), "{name}");
+        }
+    }
+}

@@ -413,3 +413,32 @@ fn crash_test_sigkill() {
     assert!(reported_total >= kills / 10, "the child hardly wrote anything");
     assert!(unreported_on_disk >= kills / 10, "few kills landed inside record");
 }
+
+#[test]
+fn a_log_reopens_while_another_thread_starts_processes() {
+    // An flock is shared with a child process between fork and exec, so a lock
+    // dropped at that moment lingers for an instant; a parallel test that starts
+    // processes once made a reopen fail that way. Reopen 200 times while another
+    // thread starts processes without pause.
+    use std::sync::atomic::{AtomicBool, Ordering};
+    let dir = support::scratch("review_spawn_race");
+    let path = dir.join("ana.jsonl");
+    let stop = std::sync::Arc::new(AtomicBool::new(false));
+    let spawner = {
+        let stop = stop.clone();
+        std::thread::spawn(move || {
+            while !stop.load(Ordering::Relaxed) {
+                let _ = std::process::Command::new(env!("CARGO_BIN_EXE_zvet"))
+                    .arg("--version")
+                    .stdout(std::process::Stdio::null())
+                    .status();
+            }
+        })
+    };
+    let result = (0..200).try_for_each(|i| ReviewLog::open(&path, "ana").map(|_| ()).map_err(|e| (i, e)));
+    stop.store(true, Ordering::Relaxed);
+    spawner.join().unwrap();
+    if let Err((i, e)) = result {
+        panic!("reopen #{i}: {e}");
+    }
+}

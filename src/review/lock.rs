@@ -22,6 +22,11 @@ pub struct LogLock {
     _file: File,
 }
 
+/// Further attempts at a lock that is held, [`LOCK_RETRY_PAUSE`] apart.
+const LOCK_RETRIES: u32 = 20;
+/// Pause between attempts (20 × 10 ms: a fifth of a second in all).
+const LOCK_RETRY_PAUSE: std::time::Duration = std::time::Duration::from_millis(10);
+
 /// The lock-file path for a log: the log's path with `.lock` appended.
 pub fn lock_path(log: &Path) -> PathBuf {
     let mut s = log.as_os_str().to_owned();
@@ -54,7 +59,21 @@ pub fn acquire(log: &Path, inspector: &str) -> Result<LogLock, ReviewError> {
         .truncate(false)
         .open(&path)
         .map_err(io)?;
-    match file.try_lock() {
+    // A lock held only for an instant is not a holder: a child process that
+    // another thread is starting shares our open files until it executes its
+    // program, which keeps a lock we just dropped alive for that moment. Try
+    // again for a short while before calling the log taken.
+    let mut attempt = 0;
+    let taken = loop {
+        match file.try_lock() {
+            Err(TryLockError::WouldBlock) if attempt < LOCK_RETRIES => {
+                attempt += 1;
+                std::thread::sleep(LOCK_RETRY_PAUSE);
+            }
+            other => break other,
+        }
+    };
+    match taken {
         Ok(()) => {}
         Err(TryLockError::WouldBlock) => {
             let mut holder = String::new();
