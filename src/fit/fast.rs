@@ -138,14 +138,14 @@ impl FftCache {
             b.im = *v;
         }
         self.plan(len, true).process(&mut buf);
-        let half = |k: usize| (buf[k], buf[(len - k) % len].conj());
-        let fx = (0..len).map(|k| (half(k).0 + half(k).1) * 0.5).collect();
-        let fy = (0..len)
-            .map(|k| {
-                let d = (half(k).0 - half(k).1) * 0.5;
-                C::new(d.im, -d.re)
-            })
-            .collect();
+        let mut fx = Vec::with_capacity(len);
+        let mut fy = Vec::with_capacity(len);
+        for k in 0..len {
+            let (z, zc) = (buf[k], buf[(len - k) % len].conj());
+            fx.push((z + zc) * 0.5);
+            let d = (z - zc) * 0.5;
+            fy.push(C::new(d.im, -d.re));
+        }
         (fx, fy)
     }
 
