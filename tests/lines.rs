@@ -1,6 +1,8 @@
 //! The line list against a published galaxy line list (linetools 0.3.2,
 //! `galaxy_forbidden.ascii`, `galaxy_recomb.ascii`, `galaxy_abs.ascii`, whose
-//! headers state laboratory vacuum wavelengths in Å), fetched at test time.
+//! headers state laboratory vacuum wavelengths in Å) and against Morton (2003)
+//! Table 2 for the ultraviolet resonance lines, all shipped by linetools and
+//! fetched at test time.
 use crate::support;
 use zvet::lines::{self, Line, LineKind};
 
@@ -31,87 +33,220 @@ fn read_linetools(file: &str) -> Vec<(String, f64, Option<f64>)> {
     rows
 }
 
-/// Species of a linetools name: `[OIII]_5007` → `[OIII]`, hydrogen series → `HI`.
-fn their_species(name: &str) -> String {
-    let sp = name.split('_').next().unwrap_or(name);
-    let hydrogen = [
-        "Ly", "Ha", "Hb", "Hg", "Hd", "He", "H1", "H8", "H9", "Pa", "P1", "Br",
-    ];
-    if (hydrogen.iter().any(|p| sp.starts_with(p)) && !sp.starts_with("HeI")) || sp == "Hepsilon" {
-        return "HI".into();
-    }
-    if sp == "G" {
-        return "Gband".into();
-    }
-    sp.to_string()
+/// Our line ↔ a row of a linetools galaxy list, one to one: (our name, file, their name).
+/// Every line both lists hold is here; the test fails when one is missing on either side.
+const GALAXY_LISTS: &[(&str, &str, &str)] = &[
+    ("Lyα", "galaxy_recomb.ascii", "Lyalpha"),
+    ("Hα", "galaxy_recomb.ascii", "Halpha"),
+    ("Hβ", "galaxy_recomb.ascii", "Hbeta"),
+    ("Hγ", "galaxy_recomb.ascii", "Hgamma"),
+    ("Hδ", "galaxy_recomb.ascii", "Hdelta"),
+    ("Hε", "galaxy_recomb.ascii", "Hepsilon"),
+    ("H8", "galaxy_recomb.ascii", "H8"),
+    ("H9", "galaxy_recomb.ascii", "H9"),
+    ("H10", "galaxy_recomb.ascii", "H10"),
+    ("Paβ", "galaxy_recomb.ascii", "Pabeta"),
+    ("Paγ", "galaxy_recomb.ascii", "Pagamma"),
+    ("Paδ", "galaxy_recomb.ascii", "Padelta"),
+    ("Paε", "galaxy_recomb.ascii", "Paepsilon"),
+    ("He I 4473", "galaxy_recomb.ascii", "HeI_4471"),
+    ("He I 5877", "galaxy_recomb.ascii", "HeI_5876"),
+    ("He I 6680", "galaxy_recomb.ascii", "HeI_6678"),
+    ("He II 4687", "galaxy_recomb.ascii", "HeII_4687"),
+    ("[O III] 5008", "galaxy_forbidden.ascii", "[OIII]_5007"),
+    ("[O III] 4960", "galaxy_forbidden.ascii", "[OIII]_4959"),
+    ("[O III] 4364", "galaxy_forbidden.ascii", "[OIII]_4363"),
+    ("O III] 1661", "galaxy_forbidden.ascii", "OIII]_1660"),
+    ("O III] 1666", "galaxy_forbidden.ascii", "OIII]_1666"),
+    ("[N II] 6585", "galaxy_forbidden.ascii", "[NII]_6584"),
+    ("[N II] 6550", "galaxy_forbidden.ascii", "[NII]_6548"),
+    ("[S II] 6718", "galaxy_forbidden.ascii", "[SII]_6716"),
+    ("[S II] 6733", "galaxy_forbidden.ascii", "[SII]_6731"),
+    ("[O II] 3727", "galaxy_forbidden.ascii", "[OII]_3726"),
+    ("[O II] 3730", "galaxy_forbidden.ascii", "[OII]_3729"),
+    ("[C III] 1907", "galaxy_forbidden.ascii", "[CIII]_1906"),
+    ("C III]", "galaxy_forbidden.ascii", "CIII]_1908"),
+    ("[Ne III] 3870", "galaxy_forbidden.ascii", "[NeIII]_3869"),
+    ("Mg II 2796", "galaxy_abs.ascii", "MgII_2796"),
+    ("Mg II 2804", "galaxy_abs.ascii", "MgII_2803"),
+    ("Ca II K", "galaxy_abs.ascii", "CaII_3934"),
+    ("Ca II H", "galaxy_abs.ascii", "CaII_3969"),
+    ("Na D2", "galaxy_abs.ascii", "NaI_5891"),
+    ("Na D1", "galaxy_abs.ascii", "NaI_5897"),
+    ("G band", "galaxy_abs.ascii", "G_Band"),
+    ("Mg b 5169", "galaxy_abs.ascii", "MgI_5168"),
+    ("Mg b 5174", "galaxy_abs.ascii", "MgI_5174"),
+    ("Mg b 5185", "galaxy_abs.ascii", "MgI_5185"),
+];
+
+/// Our ultraviolet and resonance lines ↔ Morton (2003, ApJS 149, 205), Table 2
+/// (`morton03_table2.dat`, shipped by linetools 0.3.2): (our name, ion, Morton's
+/// vacuum wavelength in Å). A doublet centroid of ours is Morton's multiplet mean
+/// (`MltMean`). The test finds each wavelength in that ion's block of the file.
+const MORTON_2003: &[(&str, &str, f64)] = &[
+    ("Lyβ", "H I", 1025.7222),
+    ("O VI 1032", "O VI", 1031.9261),
+    ("O VI 1038", "O VI", 1037.6167),
+    ("N V 1239", "N V", 1238.821),
+    ("N V 1243", "N V", 1242.804),
+    ("Si II 1260", "Si II", 1260.4221),
+    ("O I 1302", "O I", 1302.1685),
+    ("C II 1335", "C II", 1334.5323),
+    ("Si IV 1394", "Si IV", 1393.7602),
+    ("Si IV 1403", "Si IV", 1402.7729),
+    ("Si II 1527", "Si II", 1526.7070),
+    ("C IV 1548", "C IV", 1548.204),
+    ("C IV", "C IV", 1549.062),
+    ("C IV 1551", "C IV", 1550.781),
+    ("Fe II 1608", "Fe II", 1608.4511),
+    ("Al II 1671", "Al II", 1670.7886),
+    ("Al III", "Al III", 1857.401),
+    ("Si III] 1892", "Si III", 1892.030),
+    ("Fe II 2344", "Fe II", 2344.2139),
+    ("Fe II 2374", "Fe II", 2374.4612),
+    ("Fe II 2383", "Fe II", 2382.7652),
+    ("Fe II 2587", "Fe II", 2586.6500),
+    ("Fe II 2600", "Fe II", 2600.1729),
+    ("Mg II", "Mg II", 2798.743),
+    ("Mg I 2853", "Mg I", 2852.9631),
+    ("K I 7667", "K I", 7667.0089),
+    ("K I 7701", "K I", 7701.0835),
+];
+
+/// Lines of ours that neither table holds, each with the reason.
+const IN_NEITHER: &[(&str, &str)] = &[
+    ("Si IV+O IV]", "blend position, common practice"),
+    ("He II 1640", "not a resonance line; not in the galaxy lists"),
+    ("C II] 2326", "blend of five components, common practice"),
+    ("[Ne V] 3427", "not in the galaxy lists"),
+    ("[Ne III] 3969", "not in the galaxy lists"),
+    ("Ca I 4228", "Morton's Table 2 has no calcium"),
+    ("Fe I 4385", "not a resonance line"),
+    ("Fe I 5271", "not a resonance line"),
+    ("Fe I 5330", "not a resonance line"),
+    ("[O I] 6302", "not in the galaxy lists"),
+    ("[O I] 6366", "not in the galaxy lists"),
+    ("[Ar III] 7138", "not in the galaxy lists"),
+    ("Na I 8186", "not a resonance line"),
+    ("Na I 8197", "not a resonance line"),
+    ("Ca II 8500", "not a resonance line"),
+    ("Ca II 8544", "not a resonance line"),
+    ("Ca II 8664", "not a resonance line"),
+    ("Mg I 8809", "not a resonance line"),
+    ("[S III] 9071", "not in the galaxy lists"),
+    ("[S III] 9533", "not in the galaxy lists"),
+];
+
+fn ours(name: &str) -> &'static Line {
+    lines::all()
+        .iter()
+        .find(|l| l.name == name)
+        .unwrap_or_else(|| panic!("no line named {name} in our list"))
 }
 
-/// Species of one of our names: `[O III] 5008` → `[OIII]`, `Hα` → `HI`, `Na D2` → `NaI`.
-fn our_species(l: &Line) -> String {
-    let n = l.name;
-    if n.starts_with("Ly") || n.starts_with("Pa") || (n.starts_with('H') && !n.starts_with("He")) {
-        return "HI".into();
-    }
-    if n.starts_with("Ca II") {
-        return "CaII".into();
-    }
-    if n.starts_with("Na D") || n.starts_with("Na I") {
-        return "NaI".into();
-    }
-    if n.starts_with("Mg b") {
-        return "MgI".into();
-    }
-    if n == "G band" {
-        return "Gband".into();
-    }
-    // Drop a trailing wavelength, then the spaces.
-    let base = match n.rsplit_once(' ') {
-        Some((head, tail)) if tail.chars().all(|c| c.is_ascii_digit()) => head,
-        _ => n,
-    };
-    base.replace(' ', "")
-}
+/// Our table rounds to 0.01 Å; the published tables give 0.001 Å or better.
+/// 0.05 Å (3 km/s at 5000 Å) is far below a pixel of the fit grid (69 km/s).
+const TOL: f64 = 0.05;
 
 #[test]
-fn lines_match_published_lists() {
-    let ours: Vec<&Line> = lines::all().iter().collect();
-    let mut shared = 0;
+fn lines_match_published_lists_one_to_one() {
     let mut report = Vec::new();
+    let mut seen_theirs = std::collections::BTreeSet::new();
     for file in [
         "galaxy_forbidden.ascii",
         "galaxy_recomb.ascii",
         "galaxy_abs.ascii",
     ] {
-        for (name, wave, _) in read_linetools(file) {
-            let sp = their_species(&name);
-            let best = ours
+        let rows = read_linetools(file);
+        for &(mine, _, theirs) in GALAXY_LISTS.iter().filter(|m| m.1 == file) {
+            assert!(seen_theirs.insert((file, theirs)), "{theirs} mapped twice");
+            let wave = rows
                 .iter()
-                .filter(|l| our_species(l) == sp)
-                .min_by(|a, b| (a.wave - wave).abs().total_cmp(&(b.wave - wave).abs()));
-            let Some(best) = best else { continue };
-            let d = (best.wave - wave).abs();
-            if d > 1.5 {
-                continue; // a line we do not list
-            }
-            shared += 1;
+                .find(|r| r.0 == theirs)
+                .unwrap_or_else(|| panic!("{file} has no row {theirs}"))
+                .1;
+            let d = (ours(mine).wave - wave).abs();
             // He II 4686 is a fine-structure multiplet; published centroids
             // differ by ~0.1 Å with the weighting (ours: NIST strongest component).
-            let tol = if best.name == "He II 4687" { 0.12 } else { 0.05 };
+            let tol = if mine == "He II 4687" { 0.12 } else { TOL };
             if d > tol {
                 report.push(format!(
-                    "{} {wave} vs ours {} {} (Δ = {d:.3} Å)",
-                    name, best.name, best.wave
+                    "{mine} {} vs {file} {theirs} {wave} (Δ = {d:.3} Å)",
+                    ours(mine).wave
                 ));
             }
         }
     }
-    assert!(
-        report.is_empty(),
-        "lines off by more than 0.05 Å:\n{}",
-        report.join("\n")
+    let morton = read_morton();
+    for &(mine, ion, published) in MORTON_2003 {
+        // The published value must really be in that ion's block of the file.
+        let found = morton
+            .iter()
+            .filter(|(i, _)| i == ion)
+            .any(|(_, w)| (w - published).abs() < 5e-4);
+        assert!(
+            found,
+            "{published} Å not found under {ion} in Morton (2003) Table 2"
+        );
+        let d = (ours(mine).wave - published).abs();
+        if d > TOL {
+            report.push(format!(
+                "{mine} {} vs Morton 2003 {ion} {published} (Δ = {d:.3} Å)",
+                ours(mine).wave
+            ));
+        }
+    }
+    assert!(report.is_empty(), "lines off:\n{}", report.join("\n"));
+
+    // Every emission or absorption line of ours is checked or named as unchecked, once.
+    let mut named = std::collections::BTreeMap::new();
+    let all_names = GALAXY_LISTS
+        .iter()
+        .map(|m| m.0)
+        .chain(MORTON_2003.iter().map(|m| m.0))
+        .chain(IN_NEITHER.iter().map(|m| m.0));
+    for n in all_names {
+        *named.entry(n).or_insert(0) += 1;
+    }
+    for l in lines::all() {
+        match named.get(l.name) {
+            Some(1) => {}
+            Some(k) => panic!("{} named {k} times", l.name),
+            None => panic!("{} is neither checked nor listed as unchecked", l.name),
+        }
+    }
+    assert_eq!(
+        named.len(),
+        lines::all().len(),
+        "a mapped name is not in our list"
     );
-    // Matching really happened: most of their optical lines are ours too.
-    assert!(shared >= 38, "only {shared} shared lines found");
+}
+
+/// (ion, vacuum wavelength) of every line in Morton (2003) Table 2. A block starts
+/// at a header naming the ion's ground term (`C IV   2s 2S J=1/2 GROUND …`); the
+/// vacuum wavelength sits in columns 18–32 of each data line (the file's format).
+fn read_morton() -> Vec<(String, f64)> {
+    let path = support::linetools_list("morton03_table2.dat");
+    let text = std::fs::read_to_string(&path).expect("read Morton table");
+    let mut ion = String::new();
+    let mut out = Vec::new();
+    for line in text.lines() {
+        if line.contains("GROUND") && !line.starts_with(' ') {
+            let t: Vec<&str> = line.split_whitespace().take(2).collect();
+            ion = t.join(" ");
+            continue;
+        }
+        if !(line.starts_with(' ') || line.starts_with("MltMean")) {
+            continue;
+        }
+        if let Some(w) = line.get(17..32).and_then(|c| c.trim().parse::<f64>().ok()) {
+            if w > 900.0 {
+                out.push((ion.clone(), w));
+            }
+        }
+    }
+    assert!(out.len() > 1000, "only {} Morton rows parsed", out.len());
+    out
 }
 
 #[test]
