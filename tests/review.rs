@@ -271,10 +271,19 @@ fn crash_child() {
 /// review::crash_test_sigkill -- --nocapture` (a few minutes).
 #[test]
 fn crash_test_sigkill() {
-    let kills: usize = std::env::var("ZVET_CRASH_KILLS")
-        .ok()
-        .and_then(|s| s.parse().ok())
-        .unwrap_or(200);
+    // Fewer than 50 kills would let the closing guards (a tenth of the kills
+    // each) pass with nothing exercised: such a value is refused, not obeyed.
+    const MIN_KILLS: usize = 50;
+    let kills: usize = match std::env::var("ZVET_CRASH_KILLS") {
+        Ok(v) => v
+            .parse()
+            .unwrap_or_else(|_| panic!("ZVET_CRASH_KILLS={v:?} is not a whole number")),
+        Err(_) => 200,
+    };
+    assert!(
+        kills >= MIN_KILLS,
+        "ZVET_CRASH_KILLS={kills}: at least {MIN_KILLS} kills are needed for the test to mean anything"
+    );
     let dir = support::scratch("review_crash");
     let path = dir.join("crash.jsonl");
     let exe = std::env::current_exe().unwrap();
@@ -410,8 +419,13 @@ fn crash_test_sigkill() {
     // between events and in the middle of `record` (event on disk, not yet
     // reported).
     // (Loose bounds: on a loaded machine the child is slower.)
+    // kills ≥ MIN_KILLS, so each bound is at least 5 events.
     assert!(reported_total >= kills / 10, "the child hardly wrote anything");
     assert!(unreported_on_disk >= kills / 10, "few kills landed inside record");
+    assert!(
+        before_ready + 1 < kills,
+        "almost every kill landed before the child was ready"
+    );
 }
 
 #[test]
