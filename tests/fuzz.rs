@@ -9,15 +9,16 @@ Seeds come from the demo survey (its FITS tables, catalogue, a campaign made
 from it with a review log and a fit cache) and from the committed FITS
 image fixtures of `tests/data/io/`. Each mutant must give `Ok` with sane data
 (see [`sane_spectrum`]) or an error; a panic is a crash. The input being run
-is written to `target/fuzz/current.*` first, so that an abort (which no test
+is written to `target/fuzz/current-PID.*` first, so that an abort (which no test
 can catch, e.g. a failed allocation) still leaves the crasher behind; crashers
 go to `target/fuzz/crashes/` and, once fixed, into the regression corpus
 `tests/data/fuzz/<target>/`, which [`regression_corpus`] replays on every run.
 
 - in `cargo test`: [`short_run`], `ZVET_FUZZ_INPUTS` inputs (default 1500);
-- long run (memory bounded by the shell's `ulimit -v`, in KiB):
-  `cargo test --release --test integration fuzz::long_run --no-run`, then
-  `(ulimit -v 4194304; ZVET_FUZZ_INPUTS=1000000 ZVET_FUZZ_MINUTES=60 ZVET_FUZZ_SEED=1 target/release/deps/integration-* fuzz::long_run --ignored --nocapture)`.
+- long run, memory bounded by the shell's `ulimit -v` (KiB): build with
+  `cargo test --test integration --no-run`, then run the binary it names,
+  `(ulimit -v 4194304; ZVET_FUZZ_INPUTS=1000000 ZVET_FUZZ_MINUTES=60 ZVET_FUZZ_SEED=1 ZVET_FUZZ_PROGRESS=1 target/debug/deps/integration-HASH fuzz::long_run --ignored --nocapture)`.
+  Several processes with different `ZVET_FUZZ_SEED`s may run side by side.
 */
 use crate::support::{scratch, target_dir};
 use std::panic::{catch_unwind, AssertUnwindSafe};
@@ -358,10 +359,26 @@ fn panic_text(p: Box<dyn std::any::Any + Send>) -> String {
 
 /// The seed corpus: per reader, a list of inputs.
 pub fn seeds() -> Vec<(Target, Vec<u8>)> {
-    let dir = scratch("fuzz-seeds");
+    // One folder per process: a long run and `cargo test` may run side by side.
+    let dir = scratch(&format!("fuzz-seeds-{}", std::process::id()));
     let mut out = Vec::new();
     // The demo survey: FITS tables, catalogue.
-    let survey = zvet::demo::generate_n(zvet::demo::DEFAULT_SEED, 3);
+    let mut survey = zvet::demo::generate_n(zvet::demo::DEFAULT_SEED, 3);
+    // Every 16th pixel (about 250): small inputs make many more runs per second.
+    for o in &mut survey.objects {
+        let s = &o.spectrum;
+        let keep: Vec<usize> = (0..s.len()).step_by(16).collect();
+        let pick = |v: &[f64]| keep.iter().map(|&i| v[i]).collect::<Vec<f64>>();
+        let good: Vec<bool> = keep.iter().map(|&i| s.good()[i]).collect();
+        o.spectrum = zvet::Spectrum::new(
+            pick(s.wave()),
+            pick(s.flux()),
+            Some(pick(s.ivar())),
+            Some(good),
+            s.meta.clone(),
+        )
+        .expect("a thinned demo spectrum");
+    }
     let w = zvet::demo::write_survey(&survey, &dir.join("demo")).expect("demo survey");
     let mut fits: Vec<PathBuf> = std::fs::read_dir(&w.spectra)
         .unwrap()
@@ -373,10 +390,10 @@ pub fn seeds() -> Vec<(Target, Vec<u8>)> {
     }
     let cat = std::fs::read_to_string(&w.catalog).unwrap();
     out.push((Target::Catalog, cat.clone().into_bytes()));
-    // A demo spectrum as a text table (every 10th pixel, to keep inputs small).
+    // A (thinned) demo spectrum as a text table.
     let s = &survey.objects[0].spectrum;
     let mut text = String::from("wave,flux,err\n");
-    for i in (0..s.len()).step_by(10) {
+    for i in 0..s.len() {
         let iv = s.ivar()[i];
         let err = if iv > 0.0 { 1.0 / iv.sqrt() } else { f64::NAN };
         text.push_str(&format!("{:.3},{:.5e},{:.5e}\n", s.wave()[i], s.flux()[i], err));
@@ -392,6 +409,14 @@ pub fn seeds() -> Vec<(Target, Vec<u8>)> {
         "img_nm_cd.fits",
     ] {
         out.push((Target::FitsImage, std::fs::read(io.join(name)).unwrap()));
+    }
+    for name in [
+        "tab_vector_loglam.fits",
+        "tab_vector_sigma.fits",
+        "tab_pixel_sigma.fits",
+        "tab_mask.fits",
+    ] {
+        out.push((Target::FitsTable, std::fs::read(io.join(name)).unwrap()));
     }
     out.push((Target::Text, std::fs::read(io.join("text_spec_ws.txt")).unwrap()));
     // A campaign on the demo: manifest, a review log, a fit cache.
@@ -484,10 +509,11 @@ pub fn run(n: u64, minutes: f64, seed: u64) -> RunReport {
     let work = target_dir().join("fuzz");
     let crash_dir = work.join("crashes");
     std::fs::create_dir_all(&crash_dir).unwrap();
-    let input_dir = scratch("fuzz-inputs");
+    let input_dir = scratch(&format!("fuzz-inputs-{}", std::process::id()));
     let mut rng = Rng(seed);
     let mut report = RunReport::default();
     let start = std::time::Instant::now();
+    let progress = std::env::var_os("ZVET_FUZZ_PROGRESS").is_some();
     let by_target: Vec<Vec<&Vec<u8>>> = Target::ALL
         .iter()
         .map(|t| seeds.iter().filter(|(s, _)| s == t).map(|(_, b)| b).collect())
@@ -506,7 +532,7 @@ pub fn run(n: u64, minutes: f64, seed: u64) -> RunReport {
         let b = list[rng.below(list.len())];
         let input = mutate(a, b, target, &mut rng);
         // Kept on disk while it runs: an abort leaves it behind.
-        let current = work.join(format!("current.{}", target.name()));
+        let current = work.join(format!("current-{}.{}", std::process::id(), target.name()));
         let _ = std::fs::write(&current, &input);
         let outcome = catch_unwind(AssertUnwindSafe(|| run_one(target, &input, &input_dir)));
         report.inputs += 1;
@@ -515,6 +541,13 @@ pub fn run(n: u64, minutes: f64, seed: u64) -> RunReport {
             Ok(Err(wrong)) => Some(format!("wrong answer: {wrong}")),
             Err(p) => Some(format!("panic: {}", panic_text(p))),
         };
+        if progress && i % 50_000 == 0 && i > 0 {
+            eprintln!(
+                "fuzz: {i} inputs, {} problems, {:.0} s",
+                report.crashes.len(),
+                start.elapsed().as_secs_f64()
+            );
+        }
         if let Some(msg) = problem {
             let saved = crash_dir.join(format!("{}-{seed}-{i}", target.name()));
             let _ = std::fs::write(&saved, &input);
@@ -554,7 +587,7 @@ fn short_run() {
 }
 
 #[test]
-#[ignore = "long run: (ulimit -v 4194304; ZVET_FUZZ_INPUTS=1000000 ZVET_FUZZ_MINUTES=60 ZVET_FUZZ_SEED=1 target/release/deps/integration-* fuzz::long_run --ignored --nocapture)"]
+#[ignore = "long run: (ulimit -v 4194304; ZVET_FUZZ_INPUTS=1000000 ZVET_FUZZ_MINUTES=60 ZVET_FUZZ_SEED=1 target/debug/deps/integration-HASH fuzz::long_run --ignored --nocapture)"]
 fn long_run() {
     let n = env_u64("ZVET_FUZZ_INPUTS", 1_000_000);
     let minutes = std::env::var("ZVET_FUZZ_MINUTES")
