@@ -229,9 +229,19 @@ fn full_disk_report_keeps_the_old_set_whole() {
             (p, b)
         })
         .collect();
-    disk.fill_leaving(8 * 1024);
+    // Room for the new plots (as many bytes as the old set) but not for the
+    // large report.json and report.html: writing file by file would leave a
+    // mix of new plots and old pages.
+    let old_bytes: usize = old.iter().map(|(_, b)| b.len()).sum();
+    disk.fill_leaving(old_bytes + 16 * 1024);
     let mut n2 = numbers(&ReportInput::default());
-    n2.campaign = "x".repeat(200_000);
+    for (k, (_, count)) in n2.flags.iter_mut().enumerate() {
+        *count = 3 + k;
+    }
+    for (k, (_, count)) in n2.confidence.iter_mut().enumerate() {
+        *count = 5 + k;
+    }
+    n2.campaign = "x".repeat(400_000);
     assert!(write_report(&out, &n2).is_err(), "a full disk must be an error");
     for (p, b) in &old {
         assert_eq!(&std::fs::read(p).unwrap(), b, "{} changed", p.display());
