@@ -85,7 +85,7 @@ pub struct HduLayout {
 impl HduLayout {
     /// Offset of the first byte after this HDU's padded data unit.
     pub fn end(&self) -> u64 {
-        self.data_start + padded(self.data_len)
+        self.data_start.saturating_add(padded(self.data_len))
     }
 
     /// Where the readers' errors point.
@@ -94,8 +94,10 @@ impl HduLayout {
     }
 }
 
+/// `n` rounded up to whole blocks (saturating: a size near 2⁶⁴ is refused
+/// later as running past the end of the file).
 fn padded(n: u64) -> u64 {
-    n.div_ceil(BLOCK) * BLOCK
+    n.div_ceil(BLOCK).saturating_mul(BLOCK)
 }
 
 /// Read the layout of the FITS file at `path` (inflating `.gz` as a stream)
