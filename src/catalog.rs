@@ -108,6 +108,28 @@ pub enum CatalogError {
         /// what is wrong
         message: String,
     },
+    /// A value outside the range it can physically take.
+    #[error("{}: line {line}, column '{column}': {value} is outside {range}", path.display())]
+    OutOfRange {
+        /// the file
+        path: PathBuf,
+        /// 1-based line
+        line: u64,
+        /// column name as in the header
+        column: String,
+        /// the value found
+        value: f64,
+        /// the allowed range, in words
+        range: &'static str,
+    },
+    /// A catalogue without any row, or without positions.
+    #[error("{}: {message}", path.display())]
+    Unusable {
+        /// the file
+        path: PathBuf,
+        /// what is missing
+        message: String,
+    },
     /// An unknown field name in a `field=column` override.
     #[error("unknown catalogue field '{0}' (fields: {1})")]
     UnknownField(String, String),
@@ -290,6 +312,8 @@ pub fn read_csv(path: &Path, map: &ColumnMap) -> Result<Vec<CatalogRow>, Catalog
         source,
     };
     let bytes = std::fs::read(path).map_err(io)?;
+    // A UTF-8 byte-order mark (spreadsheet exports) is not part of the first name.
+    let bytes = bytes.strip_prefix("\u{feff}".as_bytes()).unwrap_or(&bytes);
     // Tab-separated when the first non-comment line has tabs and no commas.
     let first = String::from_utf8_lossy(&bytes)
         .lines()
@@ -306,7 +330,7 @@ pub fn read_csv(path: &Path, map: &ColumnMap) -> Result<Vec<CatalogRow>, Catalog
         .comment(Some(b'#'))
         .trim(csv::Trim::All)
         .flexible(false)
-        .from_reader(&bytes[..]);
+        .from_reader(bytes);
     let csv_err = |e: csv::Error| CatalogError::Csv {
         path: path.to_path_buf(),
         line: e.position().map_or(0, |p| p.line()),
@@ -335,6 +359,24 @@ pub fn read_csv(path: &Path, map: &ColumnMap) -> Result<Vec<CatalogRow>, Catalog
     };
     let ra = find(&header, &map.ra);
     let dec = find(&header, &map.dec);
+    if ra.is_none() || dec.is_none() {
+        return Err(CatalogError::Unusable {
+            path: path.to_path_buf(),
+            message: format!(
+                "no {} column (tried: {}; name it in the column mapping, e.g. ra=RA_DEG)",
+                if ra.is_none() {
+                    "right ascension"
+                } else {
+                    "declination"
+                },
+                if ra.is_none() {
+                    map.ra.join(", ")
+                } else {
+                    map.dec.join(", ")
+                }
+            ),
+        });
+    }
     let mag = map.mag.clone().map(|m| find(&header, &m));
     let mag_err = map.mag_err.clone().map(|m| find(&header, &m));
     let class = find(&header, &map.phot_class);
@@ -393,13 +435,40 @@ pub fn read_csv(path: &Path, map: &ColumnMap) -> Result<Vec<CatalogRow>, Catalog
             }
             _ => None,
         };
+        let within = |col: Option<usize>, lo: f64, hi: f64, hi_open: bool, range: &'static str| {
+            let v = num(col)?;
+            match v {
+                Some(x) if x < lo || x > hi || (hi_open && x == hi) => Err(CatalogError::OutOfRange {
+                    path: path.to_path_buf(),
+                    line,
+                    column: header[col.unwrap_or(0)].clone(),
+                    value: x,
+                    range,
+                }),
+                _ => Ok(v),
+            }
+        };
+        // Ranges: RA in [0, 360) degrees, Dec in [−90, +90] degrees (the
+        // equatorial system, common practice), a probability in [0, 1], a
+        // redshift above −1 (1 + z > 0 by definition).
         let mut row = CatalogRow {
             id,
-            ra: num(ra)?,
-            dec: num(dec)?,
+            ra: within(ra, 0.0, 360.0, true, "0 ≤ RA < 360 degrees")?,
+            dec: within(dec, -90.0, 90.0, false, "−90 ≤ Dec ≤ +90 degrees")?,
             phot_class,
-            phot_class_prob: num(prob)?,
-            phot_z: num(pz)?,
+            phot_class_prob: within(prob, 0.0, 1.0, false, "0 ≤ probability ≤ 1")?,
+            phot_z: match num(pz)? {
+                Some(z) if z <= -1.0 => {
+                    return Err(CatalogError::OutOfRange {
+                        path: path.to_path_buf(),
+                        line,
+                        column: header[pz.unwrap_or(0)].clone(),
+                        value: z,
+                        range: "z > −1",
+                    })
+                }
+                v => v,
+            },
             ..Default::default()
         };
         for k in 0..5 {
@@ -408,7 +477,55 @@ pub fn read_csv(path: &Path, map: &ColumnMap) -> Result<Vec<CatalogRow>, Catalog
         }
         rows.push(row);
     }
+    if rows.is_empty() {
+        return Err(CatalogError::Unusable {
+            path: path.to_path_buf(),
+            message: "no rows below the header".into(),
+        });
+    }
     Ok(rows)
+}
+
+/// One line on how the catalogue ids match the spectra ids, for every
+/// command that joins them: `None` when every spectrum has a row. Names up
+/// to three unmatched spectrum ids, and says when ids differ only in letter
+/// case (ids are compared exactly).
+pub fn match_summary<S: AsRef<str>, C: AsRef<str>>(spectra_ids: &[S], catalog_ids: &[C]) -> Option<String> {
+    let cat: std::collections::HashSet<&str> = catalog_ids.iter().map(|c| c.as_ref().trim()).collect();
+    let lower: HashMap<String, &str> = catalog_ids
+        .iter()
+        .map(|c| (c.as_ref().trim().to_lowercase(), c.as_ref().trim()))
+        .collect();
+    let missing: Vec<&str> = spectra_ids
+        .iter()
+        .map(|s| s.as_ref().trim())
+        .filter(|s| !cat.contains(s))
+        .collect();
+    if missing.is_empty() {
+        return None;
+    }
+    let n = spectra_ids.len();
+    let matched = n - missing.len();
+    let mut msg =
+        format!(
+        "catalogue: {matched} of {n} spectra have a catalogue row ({} catalogue rows in all); no row for {}",
+        catalog_ids.len(),
+        missing.iter().take(3).map(|s| format!("'{s}'")).collect::<Vec<_>>().join(", ")
+    );
+    if missing.len() > 3 {
+        msg.push_str(&format!(" and {} more", missing.len() - 3));
+    }
+    let by_case: Vec<(&str, &str)> = missing
+        .iter()
+        .filter_map(|s| lower.get(&s.to_lowercase()).map(|c| (*s, *c)))
+        .collect();
+    if let Some((s, c)) = by_case.first() {
+        msg.push_str(&format!(
+            "; {} id(s) differ from a catalogue id only in letter case (e.g. spectrum '{s}', catalogue '{c}'): ids are compared exactly",
+            by_case.len()
+        ));
+    }
+    Some(msg)
 }
 
 /// Spectra paired with catalogue rows.
@@ -489,12 +606,15 @@ mod tests {
 
     #[test]
     fn overrides_and_errors() {
-        let p = write("b.tsv", "SRC\trmag\tzp\nx\t18.5\t0.7\ny\t19.5\tbad\n");
+        let p = write(
+            "b.tsv",
+            "SRC\tra\tdec\trmag\tzp\nx\t1\t2\t18.5\t0.7\ny\t1\t2\t19.5\tbad\n",
+        );
         let mut map = ColumnMap::default();
         map.apply_overrides(&["id=SRC", "r=rmag", "phot_z=zp"]).unwrap();
         let e = read_csv(&p, &map).unwrap_err();
         assert!(matches!(e, CatalogError::BadValue { line: 3, .. }), "{e}");
-        let p = write("c.tsv", "SRC\trmag\tzp\nx\t18.5\t0.7\n");
+        let p = write("c.tsv", "SRC\tra\tdec\trmag\tzp\nx\t1\t2\t18.5\t0.7\n");
         let rows = read_csv(&p, &map).unwrap();
         assert_eq!(rows[0].mag[2], Some(18.5));
         assert_eq!(rows[0].phot_z, Some(0.7));
@@ -509,7 +629,7 @@ mod tests {
             Err(CatalogError::MissingColumn { .. })
         ));
         assert!(m.set("y", "Y").is_err());
-        let p = write("d.csv", "id,r\nq,1\nq,2\n");
+        let p = write("d.csv", "id,ra,dec,r\nq,1,2,1\nq,1,2,2\n");
         assert!(matches!(
             read_csv(&p, &ColumnMap::default()),
             Err(CatalogError::BadId { line: 3, .. })

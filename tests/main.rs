@@ -2,11 +2,13 @@
 mod support;
 
 mod fit;
+mod fuzz;
 #[cfg(feature = "gui")]
 mod gui;
 mod io;
 mod lines;
 mod records;
 mod review;
+mod robust;
 mod smoke;
 mod templates;

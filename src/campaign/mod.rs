@@ -15,7 +15,7 @@ pub mod fitcache;
 pub mod manifest;
 mod objects;
 
-pub use atomic::{atomic_create, atomic_write};
+pub use atomic::{atomic_create, atomic_dir, atomic_write, close_fits, sync_dir};
 pub use manifest::{CatalogSettings, EngineSettings, Manifest, ReadSettings, MANIFEST_FORMAT};
 
 use crate::catalog::CatalogRow;
@@ -239,19 +239,10 @@ impl Campaign {
             }
             Err(e) => return Err(io_err(&mpath)(e)),
         };
-        let manifest: Manifest = toml::from_str(&text).map_err(|e| CampaignError::Manifest {
+        let manifest = Manifest::parse(&text).map_err(|message| CampaignError::Manifest {
             path: mpath.clone(),
-            message: e.to_string(),
+            message,
         })?;
-        if manifest.format > MANIFEST_FORMAT {
-            return Err(CampaignError::Manifest {
-                path: mpath,
-                message: format!(
-                    "written in manifest format {} by a newer zvet (this one reads up to {MANIFEST_FORMAT})",
-                    manifest.format
-                ),
-            });
-        }
         Ok(Campaign {
             dir: dir.to_path_buf(),
             manifest,
@@ -361,10 +352,17 @@ impl Campaign {
         let mut logs = Vec::new();
         let mut problems = Vec::new();
         for name in self.log_inspectors()? {
-            let log = InspectorLog::read(&self.review_log_path(&name), &name)?;
+            let path = self.review_log_path(&name);
+            if !path.is_file() {
+                problems.push(format!("reviews/{name}.jsonl is not a file (a folder?); skipped"));
+                continue;
+            }
+            let log = InspectorLog::read(&path, &name)?;
             problems.extend(log.problems.iter().map(|p| format!("reviews/{name}.jsonl {p}")));
             logs.push(log);
         }
+        let (logs, notes) = crate::review::merge::dedupe_logs(logs);
+        problems.extend(notes);
         Ok((logs, problems))
     }
 

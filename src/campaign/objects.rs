@@ -81,6 +81,11 @@ impl Campaign {
         });
         let (mut catalog, cat_problems) = self.load_catalog()?;
         problems.extend(cat_problems);
+        if self.manifest.catalog.is_some() {
+            let ids: Vec<&str> = spectra.iter().map(|s| s.meta.id.as_str()).collect();
+            let cat_ids: Vec<&String> = catalog.keys().collect();
+            problems.extend(crate::catalog::match_summary(&ids, &cat_ids));
+        }
         let (mut fits, fit_problems) = self.load_fits()?;
         problems.extend(fit_problems);
         let objects = spectra

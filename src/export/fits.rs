@@ -72,7 +72,8 @@ fn fits_err(path: &Path) -> impl Fn(fitsio::errors::Error) -> ExportError + '_ {
     }
 }
 
-/// Write the catalogue as a FITS binary table (atomically).
+/// Write the catalogue as a FITS binary table through the one atomic output
+/// path (every write and the close checked; on failure the old file stays).
 pub fn write_fits(path: &Path, rows: &[ExportRow], prov: &Provenance) -> Result<(), ExportError> {
     let cells: Vec<Vec<Cell>> = rows.iter().map(|r| r.cells()).collect();
     // Column-major data.
@@ -227,7 +228,8 @@ pub fn write_fits(path: &Path, rows: &[ExportRow], prov: &Provenance) -> Result<
             ),
         )
         .map_err(&fe)?;
-        Ok(())
+        // What the library's close wrote is checked too.
+        crate::campaign::close_fits(f, rows.len()).map_err(Step::Io)
     });
     written.map_err(|e| match e {
         Step::Io(source) => ExportError::Io {
@@ -253,6 +255,11 @@ impl From<std::io::Error> for Step {
 /// Read a catalogue written by [`write_fits`].
 pub fn read_fits(path: &Path) -> Result<(Vec<ExportRow>, Provenance), ExportError> {
     let fe = fits_err(path);
+    // Sizes the headers declare are checked before the library allocates by them.
+    crate::io::fits_layout(path).map_err(|e| ExportError::Fits {
+        path: path.to_path_buf(),
+        message: e.to_string(),
+    })?;
     let mut f = FitsFile::open(path).map_err(&fe)?;
     let hdu = f.hdu(FITS_EXTNAME).map_err(&fe)?;
     let mut columns: Vec<Vec<Cell>> = Vec::new();

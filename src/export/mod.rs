@@ -255,6 +255,11 @@ pub fn export_campaign(
     problems.extend(p);
     let (catalog, p) = campaign.load_catalog()?;
     problems.extend(p);
+    if campaign.catalog_path().is_some() {
+        let ids: Vec<&String> = fits.keys().collect();
+        let cat_ids: Vec<&String> = catalog.keys().collect();
+        problems.extend(crate::catalog::match_summary(&ids, &cat_ids));
+    }
     let rows = build_rows(&merged, &catalog, &fits, opts);
     let conflicts = merged.conflicts().count();
     let with_verdict = merged.objects.len() - conflicts;

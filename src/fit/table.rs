@@ -3,15 +3,19 @@ The per-object result table of `zvet fit`: one [`FitRow`] per object, written
 as CSV, JSON Lines or a FITS binary table (chosen by the file extension),
 read back for `--resume` and `--merge`.
 
-CSV and JSON Lines are written row by row and flushed, so an interrupted run
-loses at most the row being written and `--resume` carries on; a FITS table
-is written once at the end through a temporary file that is then renamed.
+CSV and JSON Lines are written row by row and flushed, every write checked,
+so an interrupted run (a kill, a full disk) loses at most the row being
+written; that torn row is cut off when `--resume` reopens the file
+([`repair_tail`]) and the run carries on. A FITS table is written once at the
+end through the one atomic output path (`campaign::atomic_create`): a
+temporary file, the FITS library's status checked, renamed into place — or an
+error, and the old file stays.
 Missing numbers are empty (CSV), `null` (JSON) or NaN (FITS).
 */
 use super::result::FitResult;
 use serde::{Deserialize, Serialize};
 use std::fs::File;
-use std::io::{BufRead, BufReader, BufWriter, Write};
+use std::io::{BufWriter, Write};
 use std::path::{Path, PathBuf};
 
 /// Errors of the result table.
@@ -173,14 +177,51 @@ fn fmt_err(path: &Path, message: impl std::fmt::Display) -> TableError {
     }
 }
 
-/// Read every row of a result table.
+/// The length of the complete rows of a CSV or JSON Lines table: everything
+/// up to and including its last line end. An interrupted writer (a kill, a
+/// full disk) can leave a torn last row without its line end; it is not a
+/// row.
+pub fn complete_len(bytes: &[u8]) -> usize {
+    bytes.iter().rposition(|&b| b == b'\n').map_or(0, |i| i + 1)
+}
+
+/// Cut a torn last row off a CSV or JSON Lines table so that rows appended
+/// later start on a line of their own. Returns the number of bytes cut (0
+/// when the file ends with a complete row or does not exist). A FITS table
+/// is never torn (it is written whole or not at all).
+pub fn repair_tail(path: &Path) -> Result<u64, TableError> {
+    if TableFormat::from_path(path)? == TableFormat::Fits {
+        return Ok(0);
+    }
+    let bytes = match std::fs::read(path) {
+        Ok(b) => b,
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(0),
+        Err(e) => return Err(io_err(path)(e)),
+    };
+    let keep = complete_len(&bytes);
+    if keep == bytes.len() {
+        return Ok(0);
+    }
+    let f = std::fs::OpenOptions::new()
+        .write(true)
+        .open(path)
+        .map_err(io_err(path))?;
+    f.set_len(keep as u64).map_err(io_err(path))?;
+    f.sync_all().map_err(io_err(path))?;
+    Ok((bytes.len() - keep) as u64)
+}
+
+/// Read every row of a result table. A torn last row of a CSV or JSON Lines
+/// table (see [`complete_len`]) is not read; any other bad row is an error
+/// naming its line.
 pub fn read_rows(path: &Path) -> Result<Vec<FitRow>, TableError> {
     match TableFormat::from_path(path)? {
         TableFormat::Csv => {
-            let mut rd = csv::Reader::from_path(path).map_err(|e| fmt_err(path, e))?;
+            let bytes = std::fs::read(path).map_err(io_err(path))?;
+            let bytes = &bytes[..complete_len(&bytes)];
+            let mut rd = csv::Reader::from_reader(bytes);
             let mut out = Vec::new();
             for (i, rec) in rd.deserialize().enumerate() {
-                // a torn last line (interrupted run) is skipped, anything else is an error
                 match rec {
                     Ok(r) => out.push(r),
                     Err(e) => return Err(fmt_err(path, format!("row {}: {e}", i + 1))),
@@ -189,21 +230,18 @@ pub fn read_rows(path: &Path) -> Result<Vec<FitRow>, TableError> {
             Ok(out)
         }
         TableFormat::Jsonl => {
-            let f = File::open(path).map_err(io_err(path))?;
-            let lines: Vec<String> = BufReader::new(f)
-                .lines()
-                .collect::<Result<_, _>>()
-                .map_err(io_err(path))?;
-            let last = lines.len();
+            let bytes = std::fs::read(path).map_err(io_err(path))?;
+            let bytes = &bytes[..complete_len(&bytes)];
             let mut out = Vec::new();
-            for (i, line) in lines.iter().enumerate() {
+            for (i, line) in bytes.split(|&b| b == b'\n').enumerate() {
+                let Ok(line) = std::str::from_utf8(line) else {
+                    return Err(fmt_err(path, format!("line {}: not UTF-8 text", i + 1)));
+                };
                 if line.trim().is_empty() {
                     continue;
                 }
                 match serde_json::from_str(line) {
                     Ok(r) => out.push(r),
-                    // an interrupted writer can leave a torn last line: ignore only that one
-                    Err(_) if i + 1 == last => {}
                     Err(e) => return Err(fmt_err(path, format!("line {}: {e}", i + 1))),
                 }
             }
@@ -226,9 +264,13 @@ enum WriterKind {
 }
 
 impl RowWriter {
-    /// Create `path` (or, with `append`, add to it: existing rows are kept).
+    /// Create `path` (or, with `append`, add to it: existing rows are kept
+    /// and a torn last row is cut off first, see [`repair_tail`]).
     pub fn create(path: &Path, append: bool) -> Result<RowWriter, TableError> {
         let exists = append && path.exists();
+        if exists {
+            repair_tail(path)?;
+        }
         let kind = match TableFormat::from_path(path)? {
             TableFormat::Csv => {
                 let f = std::fs::OpenOptions::new()
@@ -281,13 +323,24 @@ impl RowWriter {
         }
     }
 
-    /// Finish the file (FITS: written now, atomically).
+    /// Finish the file: CSV and JSON Lines are flushed and fsynced (with
+    /// their folder); a FITS table is written now, atomically. Every error is
+    /// returned.
     pub fn finish(self) -> Result<(), TableError> {
-        match self.kind {
-            WriterKind::Csv(mut w) => w.flush().map_err(io_err(&self.path)),
-            WriterKind::Jsonl(mut w) => w.flush().map_err(io_err(&self.path)),
-            WriterKind::Fits(rows) => super::table_fits::write(&self.path, &rows),
-        }
+        let path = &self.path;
+        let file = match self.kind {
+            WriterKind::Csv(w) => w
+                .into_inner()
+                .map_err(|e| io_err(path)(std::io::Error::other(e.to_string())))?,
+            WriterKind::Jsonl(w) => w.into_inner().map_err(|e| io_err(path)(e.into_error()))?,
+            WriterKind::Fits(rows) => return super::table_fits::write(path, &rows),
+        };
+        file.sync_all().map_err(io_err(path))?;
+        let dir = match path.parent() {
+            Some(p) if !p.as_os_str().is_empty() => p,
+            _ => Path::new("."),
+        };
+        crate::campaign::sync_dir(dir).map_err(io_err(dir))
     }
 }
 

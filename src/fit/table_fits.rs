@@ -48,12 +48,12 @@ const NUM: [(&str, Getter<Option<f64>>); 11] = [
     ("n_good", |r| r.n_good.map(|v| v as f64)),
 ];
 
-/// Write `rows` to `path` through a temporary file renamed into place.
+/// Write `rows` to `path` through the one atomic output path: a temporary
+/// file whose every write and close is checked, renamed into place; on any
+/// failure an error and the old file stays.
 pub fn write(path: &Path, rows: &[FitRow]) -> Result<(), TableError> {
-    let tmp = path.with_extension(format!("fits.tmp{}", std::process::id()));
-    let _ = std::fs::remove_file(&tmp);
-    let result = (|| -> Result<(), fitsio::errors::Error> {
-        let mut f = FitsFile::create(&tmp).open()?;
+    let result = crate::campaign::atomic_create(path, ".fits", |tmp: &Path| -> Result<(), Step> {
+        let mut f = FitsFile::create(tmp).open()?;
         let mut cols = Vec::new();
         let text_cols: Vec<(&str, Vec<String>)> = TEXT
             .iter()
@@ -86,7 +86,7 @@ pub fn write(path: &Path, rows: &[FitRow]) -> Result<(), TableError> {
         );
         let hdu = f.create_table(EXTNAME.to_string(), &cols)?;
         if rows.is_empty() {
-            return Ok(());
+            return Ok(crate::campaign::close_fits(f, 0)?);
         }
         for (name, vals) in &text_cols {
             hdu.write_col(&mut f, *name, vals)?;
@@ -97,20 +97,39 @@ pub fn write(path: &Path, rows: &[FitRow]) -> Result<(), TableError> {
         }
         let w: Vec<i64> = rows.iter().map(|r| i64::from(r.warnings)).collect();
         hdu.write_col(&mut f, "warnings", &w)?;
-        Ok(())
-    })();
-    if let Err(e) = result {
-        let _ = std::fs::remove_file(&tmp);
-        return Err(err(path, e));
-    }
-    std::fs::rename(&tmp, path).map_err(|source| TableError::Io {
-        path: path.to_path_buf(),
-        source,
+        Ok(crate::campaign::close_fits(f, rows.len())?)
+    });
+    result.map_err(|e| match e {
+        Step::Io(source) => TableError::Io {
+            path: path.to_path_buf(),
+            source,
+        },
+        Step::Fits(e) => err(path, e),
     })
+}
+
+/// A failure of one step of writing the FITS table.
+enum Step {
+    Io(std::io::Error),
+    Fits(fitsio::errors::Error),
+}
+
+impl From<std::io::Error> for Step {
+    fn from(e: std::io::Error) -> Self {
+        Step::Io(e)
+    }
+}
+
+impl From<fitsio::errors::Error> for Step {
+    fn from(e: fitsio::errors::Error) -> Self {
+        Step::Fits(e)
+    }
 }
 
 /// Read the rows of the `FITS_RESULTS` table of `path`.
 pub fn read(path: &Path) -> Result<Vec<FitRow>, TableError> {
+    // Sizes the headers declare are checked before the library allocates by them.
+    crate::io::fits_layout(path).map_err(|e| err(path, e))?;
     let mut f = FitsFile::open(path).map_err(|e| err(path, e))?;
     let hdu = f.hdu(EXTNAME).map_err(|e| err(path, e))?;
     let ids: Vec<String> = hdu.read_col(&mut f, "object_id").map_err(|e| err(path, e))?;

@@ -209,6 +209,18 @@ pub enum LoadError {
         /// the violated invariant
         source: SpectrumError,
     },
+    /// The file declares more than zvet reads (bounds in the README, "what
+    /// zvet does with bad input").
+    #[error("too large: {0}")]
+    TooLarge(String),
+    /// A FITS construct zvet does not read (variable-length or complex columns).
+    #[error("{}unsupported: {detail}", At(at))]
+    Unsupported {
+        /// where
+        at: Loc,
+        /// what is not supported
+        detail: String,
+    },
     /// The FITS library panicked on this file (caught; the file is malformed).
     #[error("malformed FITS file (the FITS library gave up: {0})")]
     Malformed(String),

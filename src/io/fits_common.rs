@@ -10,6 +10,7 @@ must never bring the program down, so every call into it runs inside
 resort; types and shapes are checked before reading wherever possible.
 */
 use super::fits_image::{self, ImagePlan};
+use super::fits_scan::ColumnForm;
 use super::fits_table::{self, TablePlan};
 use super::{synonyms, LoadError, Loc, ReadOptions};
 use crate::spectrum::Spectrum;
@@ -41,6 +42,9 @@ pub(crate) fn guard<T>(f: impl FnOnce() -> Result<T, LoadError>) -> Result<T, Lo
 pub(crate) enum HduKind {
     /// An image (shape in C order: slowest axis first; empty for NAXIS = 0).
     Image { shape: Vec<usize> },
+    /// An HDU the FITS library cannot describe safely (variable-length or
+    /// complex columns): never handed to it.
+    Unsupported { reason: String },
     /// A binary or ASCII table.
     Table {
         cols: Vec<ConcreteColumnDescription>,
@@ -156,6 +160,9 @@ fn open(path: &Path) -> Result<OpenFits, LoadError> {
             "the FITS library reads '[', a leading '!' or '-' in a file name as instructions; rename the file".into(),
         ));
     }
+    // Every size the headers declare, checked against the real file before
+    // the FITS library sizes anything by them.
+    let layout = super::fits_scan::fits_layout(path)?;
     let mut f = match FitsFile::open(path) {
         Ok(f) => f,
         Err(e) => {
@@ -177,6 +184,26 @@ fn open(path: &Path) -> Result<OpenFits, LoadError> {
     let mut hdus = Vec::with_capacity(n);
     let mut primary = Primary::default();
     for i in 0..n {
+        let odd = layout.get(i).and_then(|l| {
+            l.columns.iter().find_map(|(name, form)| match form {
+                ColumnForm::VariableLength => Some(format!(
+                    "column '{name}' is a variable-length array (TFORM P or Q), which zvet does not read"
+                )),
+                ColumnForm::Complex => Some(format!(
+                    "column '{name}' holds complex numbers (TFORM C or M), which zvet does not read"
+                )),
+                ColumnForm::Fixed { .. } => None,
+            })
+        });
+        if let Some(reason) = odd {
+            let name = layout[i].extname.clone();
+            hdus.push(HduSummary {
+                index: i,
+                name,
+                kind: HduKind::Unsupported { reason },
+            });
+            continue;
+        }
         let hdu = f.hdu(i).map_err(|e| short(e, Loc::hdu(i, None)))?;
         let name = key_string(&mut f, &hdu, "EXTNAME").filter(|n| n != "_PRIMARY");
         if i == 0 {
@@ -276,6 +303,12 @@ fn plan(fits: &OpenFits, opts: &ReadOptions) -> Result<Vec<Source>, LoadError> {
         let src = match &h.kind {
             HduKind::Image { .. } => fits_image::plan(f, fits, h, opts, true)?,
             HduKind::Table { .. } => fits_table::plan(f, fits, h, opts, true)?,
+            HduKind::Unsupported { reason } => {
+                return Err(LoadError::Unsupported {
+                    at: h.loc(),
+                    detail: reason.clone(),
+                })
+            }
         };
         return src.map(|s| vec![s]).ok_or_else(|| LoadError::BadHdu {
             at: h.loc(),
@@ -284,10 +317,18 @@ fn plan(fits: &OpenFits, opts: &ReadOptions) -> Result<Vec<Source>, LoadError> {
     }
     let mut sources = Vec::new();
     let mut table_misses = Vec::new();
+    let mut unsupported = None;
     for h in &fits.hdus {
         let src = match &h.kind {
             HduKind::Image { .. } => fits_image::plan(f, fits, h, opts, false),
             HduKind::Table { .. } => fits_table::plan(f, fits, h, opts, false),
+            HduKind::Unsupported { reason } => {
+                unsupported.get_or_insert_with(|| LoadError::Unsupported {
+                    at: h.loc(),
+                    detail: reason.clone(),
+                });
+                continue;
+            }
         };
         match src {
             Ok(Some(s)) => sources.push(s),
@@ -318,6 +359,9 @@ fn plan(fits: &OpenFits, opts: &ReadOptions) -> Result<Vec<Source>, LoadError> {
                 fits.hdus.len()
             )));
         }
+        if let Some(e) = unsupported {
+            return Err(e);
+        }
         if let Some(h) = table_misses.first() {
             if let Some(e) = fits_table::explain_miss(h, opts) {
                 return Err(e);
@@ -331,6 +375,7 @@ fn plan(fits: &OpenFits, opts: &ReadOptions) -> Result<Vec<Source>, LoadError> {
                 HduKind::Table { nrows, cols } => {
                     format!("{}: table {} rows × {} columns", h.loc(), nrows, cols.len())
                 }
+                HduKind::Unsupported { reason } => format!("{}: {reason}", h.loc()),
             })
             .collect();
         return Err(LoadError::NoSpectrum(format!(

@@ -124,6 +124,12 @@ pub(crate) fn plan(
     if !forced && role_of(h.name.as_deref()).is_some() {
         return Ok(None);
     }
+    if n as u64 > super::MAX_PIXELS {
+        return Err(LoadError::TooLarge(format!(
+            "{loc}: an image of {n} pixels (zvet reads spectra of at most {} pixels)",
+            super::MAX_PIXELS
+        )));
+    }
     // The nearest companion of each role after this HDU, before the next
     // flux image; else the first anywhere.
     let images: Vec<&HduSummary> = fits
@@ -255,6 +261,15 @@ fn read_pixels(f: &mut FitsFile, fits: &OpenFits, index: usize, what: &str) -> R
     let hdu = f.hdu(index).map_err(|e| fits.err(e, Loc::hdu(index, None)))?;
     let loc = Loc::hdu(index, key_string(f, &hdu, "EXTNAME"));
     match &hdu.info {
+        fitsio::hdu::HduInfo::ImageInfo { shape, .. }
+            if pixels(shape).is_some_and(|n| n as u64 > super::MAX_PIXELS) =>
+        {
+            return Err(LoadError::TooLarge(format!(
+                "{loc}: the {what} HDU has {} pixels (zvet reads spectra of at most {})",
+                pixels(shape).unwrap_or(0),
+                super::MAX_PIXELS
+            )))
+        }
         fitsio::hdu::HduInfo::ImageInfo { shape, .. } if pixels(shape).is_some() => {}
         _ => {
             return Err(LoadError::BadHdu {

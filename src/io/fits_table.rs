@@ -178,6 +178,13 @@ pub(crate) fn plan(
     // Vector shape: the flux holds several values per row.
     let vector = flux.repeat > 1;
     let per_row = if vector { flux.repeat } else { 1 };
+    let pixels = if vector { per_row } else { *nrows };
+    if pixels as u64 > super::MAX_PIXELS {
+        return Err(LoadError::TooLarge(format!(
+            "{loc}: a spectrum of {pixels} pixels (zvet reads spectra of at most {} pixels)",
+            super::MAX_PIXELS
+        )));
+    }
     for (what, c) in [
         ("wavelength", Some(&wave)),
         ("uncertainty", err.as_ref().map(|e| &e.0)),

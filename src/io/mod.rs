@@ -23,11 +23,15 @@ mod detect;
 mod error;
 mod fits_common;
 mod fits_image;
+mod fits_scan;
 mod fits_table;
 mod text;
 
 pub use detect::{detect_format, Format};
 pub use error::{LoadError, Loc};
+pub use fits_scan::{
+    fits_layout, fits_layout_exact, layout_of_bytes, ColumnForm, HduLayout, MAX_INFLATED, MAX_PIXELS,
+};
 
 use crate::spectrum::{air_to_vacuum, Medium, Spectrum, SpectrumMeta};
 use std::path::{Path, PathBuf};
@@ -261,10 +265,14 @@ pub(crate) enum ErrKind {
 
 impl ErrKind {
     /// Convert to inverse variance (0 where the input is unusable, so the
-    /// pixel is masked by [`Spectrum::new`]).
+    /// pixel is masked by [`Spectrum::new`]; −1 where it is negative, which
+    /// [`RawSpectrum::finish`] masks with a warning).
     pub(crate) fn to_ivar(self, v: &[f64]) -> Vec<f64> {
         v.iter()
             .map(|&x| {
+                if x < 0.0 {
+                    return NEGATIVE_ERR;
+                }
                 let iv = match self {
                     ErrKind::Ivar => x,
                     ErrKind::Sigma => 1.0 / (x * x),
@@ -279,6 +287,15 @@ impl ErrKind {
             .collect()
     }
 }
+
+/// Marks a pixel whose uncertainty (σ, variance or inverse variance) is negative.
+const NEGATIVE_ERR: f64 = -1.0;
+
+/// Shortest and longest wavelength (Å, after unit conversion) of a
+/// physically meaningful spectrum: 1 Å (hard X-rays) to 10⁸ Å (1 cm, the
+/// radio). A wavelength solution outside this range (a CDELT1 of 10³⁰, a
+/// unit off by 10¹⁰) is an error, not a spectrum.
+pub const WAVELENGTH_RANGE: (f64, f64) = (1.0, 1.0e8);
 
 /// Raw arrays as a reader found them, before conversion to a [`Spectrum`].
 #[derive(Debug, Default)]
@@ -316,6 +333,35 @@ impl RawSpectrum {
         if flux.iter().all(|f| !f.is_finite()) {
             return Err(LoadError::NoGoodPixels { at });
         }
+        // (non-finite and non-positive values are named by `Spectrum::new`)
+        let (lo, hi) = wave
+            .iter()
+            .filter(|w| w.is_finite() && **w > 0.0)
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &w| {
+                (a.min(w), b.max(w))
+            });
+        if lo < WAVELENGTH_RANGE.0 || hi > WAVELENGTH_RANGE.1 {
+            return Err(LoadError::BadWcs {
+                at,
+                reason: format!(
+                    "wavelengths span {lo:.4e}–{hi:.4e} Å, outside any physical range ({:e}–{:e} Å); is the wavelength solution or its unit right?",
+                    WAVELENGTH_RANGE.0, WAVELENGTH_RANGE.1
+                ),
+            });
+        }
+        let mut ivar = ivar;
+        let mut negative = 0usize;
+        if let Some(iv) = ivar.as_mut() {
+            for v in iv.iter_mut().filter(|v| **v < 0.0) {
+                *v = 0.0;
+                negative += 1;
+            }
+        }
+        if negative > 0 {
+            meta.warnings.push(format!(
+                "{negative} pixel(s) with a negative uncertainty were masked"
+            ));
+        }
         let good = bad.map(|b| b.into_iter().map(|x| !x).collect());
         let no_err = ivar.is_none();
         let mut s = Spectrum::new(wave, flux, ivar, good, meta)
@@ -328,12 +374,6 @@ impl RawSpectrum {
             if s.n_good() == 0 {
                 return Err(LoadError::NoGoodPixels { at });
             }
-        }
-        let (lo, hi) = (s.wave()[0], s.wave()[s.len() - 1]);
-        if lo < 1.0 || hi > 1.0e8 {
-            s.meta
-                .warnings
-                .push(format!("wavelengths span {lo:.4}–{hi:.4} Å; is the unit right?"));
         }
         Ok(s)
     }

@@ -11,13 +11,19 @@ white space, with a header line naming the columns.
   1σ uncertainty, in that order (common practice for two/three-column files);
   the spectrum then carries a warning.
 - Empty fields and `nan` are missing values (the pixel is masked).
+- A UTF-8 byte-order mark is skipped; lines may end in LF, CR LF or CR.
+- At most [`MAX_TEXT_BYTES`] bytes and [`super::MAX_PIXELS`] data lines.
 */
 use super::{
     file_stem, find_name, synonyms, tried, unit_to_angstrom, ErrKind, LoadError, Loc, RawSpectrum,
     ReadOptions, WaveScale,
 };
 use crate::spectrum::{Spectrum, SpectrumMeta};
+use std::io::Read;
 use std::path::Path;
+
+/// Largest text table read (256 MiB); the whole file is held in memory.
+pub const MAX_TEXT_BYTES: u64 = 1 << 28;
 
 /// Column separator of a text table.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -63,8 +69,33 @@ fn name_and_unit(h: &str) -> (String, Option<String>) {
 
 /// Read a text table as one spectrum.
 pub(crate) fn read_text(path: &Path, opts: &ReadOptions) -> Result<Spectrum, LoadError> {
-    let content = std::fs::read(path)?;
+    let size = std::fs::metadata(path)?.len();
+    if size > MAX_TEXT_BYTES {
+        return Err(LoadError::TooLarge(format!(
+            "a text table of {size} bytes (zvet reads text spectra of at most {} MiB)",
+            MAX_TEXT_BYTES >> 20
+        )));
+    }
+    let mut content = Vec::new();
+    std::io::Read::read_to_end(
+        &mut std::fs::File::open(path)?.take(MAX_TEXT_BYTES + 1),
+        &mut content,
+    )?;
+    if content.len() as u64 > MAX_TEXT_BYTES {
+        return Err(LoadError::TooLarge(format!(
+            "a text table of more than {} MiB",
+            MAX_TEXT_BYTES >> 20
+        )));
+    }
     let content = String::from_utf8_lossy(&content);
+    // A UTF-8 byte-order mark (spreadsheet exports write one) is not text.
+    let content = content.strip_prefix('\u{feff}').unwrap_or(&content);
+    // Line ends: LF, CR LF, or CR alone (old spreadsheet exports).
+    let content = if content.contains('\r') {
+        std::borrow::Cow::Owned(content.replace("\r\n", "\n").replace('\r', "\n"))
+    } else {
+        std::borrow::Cow::Borrowed(content)
+    };
     let mut last_comment: Option<(usize, String)> = None;
     let mut header: Option<(usize, String)> = None;
     let mut data: Vec<(usize, &str)> = Vec::new();
@@ -86,6 +117,12 @@ pub(crate) fn read_text(path: &Path, opts: &ReadOptions) -> Result<Spectrum, Loa
                 header = Some((i + 1, t.to_string()));
                 continue;
             }
+        }
+        if data.len() as u64 >= super::MAX_PIXELS {
+            return Err(LoadError::TooLarge(format!(
+                "more than {} data lines (zvet reads spectra of at most that many pixels)",
+                super::MAX_PIXELS
+            )));
         }
         data.push((i + 1, t));
     }

@@ -19,7 +19,7 @@ What is counted (also in the README):
 mod html;
 pub mod plots;
 
-use crate::campaign::{atomic_write, Campaign, CampaignError};
+use crate::campaign::{atomic_dir, Campaign, CampaignError};
 use crate::catalog::CatalogRow;
 use crate::fit::FitResult;
 use crate::review::merge::{AgreementStats, InspectorLog, Merged, CLASSES};
@@ -309,35 +309,40 @@ pub const REPORT_FILES: [&str; 8] = [
     "flags.svg",
 ];
 
-/// Write the report into `out_dir` (created if needed): the SVG plots, the
-/// numbers as `report.json` and `report.html` with the plots inlined. Each
-/// file is written atomically. Returns the paths written.
+/// Write the report into `out_dir` as a set: the SVG plots, the numbers as
+/// `report.json` and `report.html` with the plots inlined are written into
+/// a temporary folder beside it that then replaces `out_dir` whole
+/// ([`atomic_dir`]); on any failure (a full disk) `out_dir` keeps the old
+/// report, whole. Returns the paths written.
 pub fn write_report(out_dir: &Path, n: &ReportNumbers) -> Result<Vec<PathBuf>, ReportError> {
-    std::fs::create_dir_all(out_dir).map_err(|source| ReportError::Io {
-        path: out_dir.to_path_buf(),
-        source,
-    })?;
     let svgs = plots::all(n)?;
-    let mut written = Vec::new();
-    let mut put = |name: &str, bytes: &[u8]| -> Result<(), ReportError> {
-        let path = out_dir.join(name);
-        atomic_write(&path, |w| w.write_all(bytes)).map_err(|source| ReportError::Io {
-            path: path.clone(),
-            source,
-        })?;
-        written.push(path);
-        Ok(())
-    };
-    for (name, svg) in &svgs {
-        put(name, svg.as_bytes())?;
-    }
     let json = serde_json::to_string_pretty(n).map_err(|e| ReportError::Plot {
         name: "report.json".into(),
         message: e.to_string(),
     })?;
-    put("report.json", json.as_bytes())?;
-    put("report.html", html::render(n, &svgs).as_bytes())?;
-    Ok(written)
+    let html = html::render(n, &svgs);
+    let mut files: Vec<(&str, &[u8])> = svgs
+        .iter()
+        .map(|(name, svg)| (name.as_ref(), svg.as_bytes()))
+        .collect();
+    files.push(("report.json", json.as_bytes()));
+    files.push(("report.html", html.as_bytes()));
+    let mut failed_at = out_dir.to_path_buf();
+    atomic_dir(out_dir, |tmp: &Path| -> std::io::Result<()> {
+        for (name, bytes) in &files {
+            failed_at = out_dir.join(name);
+            let mut f = std::fs::File::create(tmp.join(name))?;
+            std::io::Write::write_all(&mut f, bytes)?;
+            f.sync_all()?;
+        }
+        failed_at = out_dir.to_path_buf();
+        Ok(())
+    })
+    .map_err(|source| ReportError::Io {
+        path: failed_at.clone(),
+        source,
+    })?;
+    Ok(files.iter().map(|(name, _)| out_dir.join(name)).collect())
 }
 
 /// Read a campaign's logs, fits and catalogue into a report input.
@@ -353,6 +358,11 @@ pub fn input_from_campaign(campaign: &Campaign) -> Result<ReportInput, ReportErr
     let mut known: BTreeSet<&String> = fits.keys().collect();
     known.extend(merged.objects.keys());
     let n_objects = (!fits.is_empty()).then_some(known.len());
+    if campaign.catalog_path().is_some() {
+        let ids: Vec<&String> = known.iter().copied().collect();
+        let cat_ids: Vec<&String> = catalog.keys().collect();
+        problems.extend(crate::catalog::match_summary(&ids, &cat_ids));
+    }
     Ok(ReportInput {
         campaign: campaign.manifest().name.clone(),
         n_objects,

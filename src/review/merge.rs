@@ -46,24 +46,92 @@ pub fn dz_scaled(z1: f64, z2: f64) -> f64 {
 /// One inspector's current verdicts (a replayed log).
 #[derive(Debug, Clone, Default)]
 pub struct InspectorLog {
-    /// Inspector name.
+    /// Inspector name: the one the log's events name (see [`InspectorLog::read`]).
     pub inspector: String,
     /// Verdict per object id.
     pub verdicts: BTreeMap<String, Verdict>,
     /// Lines of the log that could not be used.
     pub problems: Vec<LogProblem>,
+    /// The name the log's file gives (`reviews/NAME.jsonl`).
+    pub file_name: String,
+    /// A digest of the log's events (0 for an empty log): two files with the
+    /// same digest hold the same events, one is a copy of the other.
+    pub fingerprint: u64,
 }
 
 impl InspectorLog {
-    /// Read and replay a log file (without locking it).
+    /// Read and replay a log file (without locking it). `inspector` is the
+    /// name the file gives; the inspector named inside the events (the most
+    /// frequent `inspector` field) wins over it, since a copied or renamed
+    /// file keeps its events' author.
     pub fn read(path: &Path, inspector: &str) -> Result<InspectorLog, ReviewError> {
+        use std::hash::{Hash, Hasher};
         let (events, problems) = read_log(path)?;
+        let mut counts: BTreeMap<&str, usize> = BTreeMap::new();
+        for e in &events {
+            if !e.inspector.trim().is_empty() {
+                *counts.entry(e.inspector.as_str()).or_default() += 1;
+            }
+        }
+        let inside = counts
+            .iter()
+            .max_by_key(|(_, n)| **n)
+            .map(|(name, _)| name.to_string());
+        let mut h = std::collections::hash_map::DefaultHasher::new();
+        for e in &events {
+            serde_json::to_string(e).unwrap_or_default().hash(&mut h);
+        }
         Ok(InspectorLog {
-            inspector: inspector.to_string(),
+            inspector: inside.unwrap_or_else(|| inspector.to_string()),
             verdicts: replay(&events),
             problems,
+            file_name: inspector.to_string(),
+            fingerprint: if events.is_empty() { 0 } else { h.finish() },
         })
     }
+}
+
+/// Keep each inspector once: a log holding the same events as one already
+/// kept (a copy saved under another name) is left out with a warning; a log
+/// whose events name another inspector than its file counts under the name
+/// inside, with a note; when that name is already taken by a different log,
+/// the file name is kept and the clash is named. `logs` in file-name order;
+/// the warnings name the files as `reviews/NAME.jsonl`.
+pub fn dedupe_logs(logs: Vec<InspectorLog>) -> (Vec<InspectorLog>, Vec<String>) {
+    let mut kept: Vec<InspectorLog> = Vec::with_capacity(logs.len());
+    let mut warnings = Vec::new();
+    let file = |l: &InspectorLog| format!("reviews/{}.jsonl", l.file_name);
+    for mut l in logs {
+        if l.fingerprint != 0 {
+            if let Some(k) = kept.iter().find(|k| k.fingerprint == l.fingerprint) {
+                warnings.push(format!(
+                    "{} holds the same events as {} (a copy?): counted once, as inspector '{}'",
+                    file(&l),
+                    file(k),
+                    k.inspector
+                ));
+                continue;
+            }
+        }
+        if kept.iter().any(|k| k.inspector == l.inspector) {
+            warnings.push(format!(
+                "{}: its events name inspector '{}', whose log is already read; counted as '{}' (its file name)",
+                file(&l),
+                l.inspector,
+                l.file_name
+            ));
+            l.inspector = l.file_name.clone();
+        } else if l.inspector != l.file_name {
+            warnings.push(format!(
+                "{}: its events were recorded by inspector '{}'; counted as '{}' (the name inside the log wins over the file name)",
+                file(&l),
+                l.inspector,
+                l.inspector
+            ));
+        }
+        kept.push(l);
+    }
+    (kept, warnings)
 }
 
 /// Options of the merge.
@@ -431,6 +499,8 @@ mod tests {
             inspector: name.into(),
             verdicts: items.into_iter().map(|(i, v)| (i.to_string(), v)).collect(),
             problems: vec![],
+            file_name: name.into(),
+            fingerprint: 0,
         }
     }
 

@@ -85,17 +85,39 @@ pub struct Resampled {
     pub correlation: Vec<f64>,
 }
 
-/// Pixel edges of a strictly increasing set of centres: midpoints inside,
-/// half-steps mirrored at both ends.
-fn edges(centres: &[f64]) -> Vec<f64> {
+/// A step more than this many times the smallest step around a pixel is a
+/// gap in the wavelength coverage (pixels absent, e.g. a chip gap).
+const GAP_FACTOR: f64 = 2.0;
+
+/// Pixel edges (low, high) of a strictly increasing set of centres: halfway
+/// to each neighbour, half-steps mirrored at both ends — and mirrored at a
+/// gap too, so that a pixel beside absent pixels keeps its own width instead
+/// of stretching over half the gap (absent pixels are not interpolated). A
+/// regular grid (steps changing slowly) is not affected.
+fn edges(centres: &[f64]) -> Vec<(f64, f64)> {
     let n = centres.len();
-    let mut e = Vec::with_capacity(n + 1);
-    e.push(centres[0] - 0.5 * (centres[1] - centres[0]));
-    for i in 0..n - 1 {
-        e.push(0.5 * (centres[i] + centres[i + 1]));
-    }
-    e.push(centres[n - 1] + 0.5 * (centres[n - 1] - centres[n - 2]));
-    e
+    let step = |k: usize| centres[k + 1] - centres[k];
+    (0..n)
+        .map(|i| {
+            // the smallest step among the two on each side of the pixel
+            let local = [i.checked_sub(2), i.checked_sub(1), Some(i), Some(i + 1)]
+                .into_iter()
+                .flatten()
+                .filter(|&k| k + 1 < n)
+                .map(step)
+                .fold(f64::INFINITY, f64::min);
+            let cap = |x: f64| if x > GAP_FACTOR * local { local } else { x };
+            let left = (i > 0).then(|| cap(step(i - 1)));
+            let right = (i + 1 < n).then(|| cap(step(i)));
+            let (l, r) = match (left, right) {
+                (Some(l), Some(r)) => (l, r),
+                (Some(l), None) => (l, l),
+                (None, Some(r)) => (r, r),
+                (None, None) => (0.0, 0.0),
+            };
+            (centres[i] - 0.5 * l, centres[i] + 0.5 * r)
+        })
+        .collect()
 }
 
 impl Spectrum {
@@ -115,7 +137,7 @@ impl Spectrum {
         // output pixels j overlapping good input pixel i, with the overlap lengths
         let overlaps = |i: usize, out: &mut Vec<(usize, f64)>| {
             out.clear();
-            let (a, b) = (ein[i], ein[i + 1]);
+            let (a, b) = ein[i];
             // output pixels whose span [c-half, c+half] overlaps [a, b]
             let j_lo = ((a - grid.loglam0 + half) / grid.dloglam).floor().max(0.0) as usize;
             let j_hi_f = ((b - grid.loglam0 + half) / grid.dloglam).floor();
