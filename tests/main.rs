@@ -2,6 +2,7 @@
 mod support;
 
 mod fit;
+mod frames;
 #[cfg(feature = "gui")]
 mod gui;
 mod io;
