@@ -3,6 +3,7 @@ mod support;
 
 mod fit;
 mod fuzz;
+mod frames;
 #[cfg(feature = "gui")]
 mod gui;
 mod io;

@@ -8,6 +8,7 @@ use zvet::review::VerdictClass;
 mod agreement;
 mod campaign;
 mod export;
+mod export_readers;
 mod scenario;
 
 /// A recorded reference file of tests/data/records/.

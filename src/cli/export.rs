@@ -1,7 +1,8 @@
 /*!
-`zvet export CAMPAIGN --out FILE.{csv,fits}`: merge the logs and write the
-training catalogue, optionally only objects at or above a confidence level
-and without given flags.
+`zvet export CAMPAIGN --out FILE.{csv,ecsv,fits}`: merge the logs and write
+the training catalogue, optionally only objects at or above a confidence
+level and without given flags. A CSV gets its provenance in a `.json`
+sidecar; ECSV and FITS carry it in their headers.
 */
 use crate::campaign::Campaign;
 use crate::export::{export_campaign, ExportOptions};
@@ -14,7 +15,8 @@ use std::process::ExitCode;
 pub struct Args {
     /// The campaign folder.
     pub campaign: PathBuf,
-    /// Output file; `.csv` or `.fits` chooses the format.
+    /// Output file; `.csv` (plain CSV + `FILE.csv.json` provenance), `.ecsv`
+    /// (astropy's Enhanced CSV, units and provenance in its header) or `.fits`.
     #[arg(long, value_name = "FILE")]
     pub out: PathBuf,
     /// Keep only objects at or above this confidence (doubtful, tentative, solid, certain).
@@ -58,5 +60,11 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
         s.filtered,
         s.conflicts
     );
+    if crate::export::Format::of(&args.out).ok() == Some(crate::export::Format::Csv) {
+        println!(
+            "provenance, units and column descriptions: {}",
+            crate::export::sidecar_path(&args.out).display()
+        );
+    }
     Ok(ExitCode::SUCCESS)
 }

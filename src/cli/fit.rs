@@ -8,11 +8,13 @@ an interrupted run can be continued with `--resume`. `--shard K/N` keeps
 every N-th object (the K-th of each N, K from 1), so that the tasks of a
 cluster job array split one list of inputs; `--merge` joins their outputs.
 An object that cannot be read or fitted gets a row with `error` filled.
+The time spent reading the inputs is printed at the end (total and slowest
+file; every file with `--read-times`).
 */
 use super::read_opts::ReadArgs;
 use crate::fit::table::{read_rows, write_rows, FitRow, RowWriter};
 use crate::fit::{Engine, FitConfig, Method};
-use crate::io::ReadOptions;
+use crate::io::{FileReadTime, ReadOptions};
 use crate::spectrum::Spectrum;
 use crate::templates::TemplateSet;
 use crate::ObjectClass;
@@ -60,6 +62,10 @@ pub struct Args {
     /// A template set folder to use instead of the built-in one.
     #[arg(long)]
     pub templates: Option<PathBuf>,
+    /// Print how long reading each input file took (stderr; the total and
+    /// the slowest file are always printed).
+    #[arg(long)]
+    pub read_times: bool,
     /// Join these shard outputs into --out instead of fitting.
     #[arg(long, num_args = 1.., conflicts_with_all = ["inputs", "resume", "shard"])]
     pub merge: Vec<PathBuf>,
@@ -241,7 +247,8 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
         HashSet::new()
     };
     let mut writer = RowWriter::create(&args.out, args.resume)?;
-    let items = open_inputs(&args.inputs, args.read.to_options());
+    let (times_tx, times_rx) = std::sync::mpsc::channel();
+    let items = open_inputs_timed(&args.inputs, args.read.to_options(), Some(times_tx));
     let progress = std::io::stderr().is_terminal().then(|| {
         let p = indicatif::ProgressBar::new_spinner();
         if let Ok(style) =
@@ -261,6 +268,7 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
     if let Some(p) = progress {
         p.finish_and_clear();
     }
+    report_read_times(&times_rx.try_iter().collect::<Vec<_>>(), args.read_times);
     eprintln!(
         "zvet fit: {} fitted, {} failed, {} already in the output{} → {}",
         summary.fitted,
@@ -282,6 +290,36 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
     })
 }
 
+/// Total reading time, the slowest file, and with `each` one line per file (stderr).
+fn report_read_times(times: &[FileReadTime], each: bool) {
+    let ms = |t: &FileReadTime| t.elapsed.as_secs_f64() * 1e3;
+    if each {
+        for t in times {
+            eprintln!(
+                "zvet fit: read {}: {} object(s) in {:.1} ms",
+                t.path.display(),
+                t.objects,
+                ms(t)
+            );
+        }
+    }
+    let total: f64 = times.iter().map(ms).sum();
+    if let Some(slow) = times.iter().max_by(|a, b| a.elapsed.cmp(&b.elapsed)) {
+        eprintln!(
+            "zvet fit: reading {} file(s) took {:.1} ms (slowest {}: {:.1} ms){}",
+            times.len(),
+            total,
+            slow.path.display(),
+            ms(slow),
+            if each {
+                ""
+            } else {
+                "; --read-times lists every file"
+            }
+        );
+    }
+}
+
 /// The template set: a user folder or the built-in set.
 fn load_templates(path: Option<&Path>) -> anyhow::Result<TemplateSet> {
     match path {
@@ -295,30 +333,47 @@ fn load_templates(path: Option<&Path>) -> anyhow::Result<TemplateSet> {
 /// Every object of the inputs, streamed file by file; a file that cannot be
 /// opened becomes one failed item (id = file stem) and the run goes on.
 pub fn open_inputs(paths: &[PathBuf], opts: ReadOptions) -> impl Iterator<Item = Item> + Send {
+    open_inputs_timed(paths, opts, None)
+}
+
+/// [`open_inputs`], sending each file's reading time to `times` when its
+/// objects have all been taken.
+pub fn open_inputs_timed(
+    paths: &[PathBuf],
+    opts: ReadOptions,
+    times: Option<std::sync::mpsc::Sender<FileReadTime>>,
+) -> impl Iterator<Item = Item> + Send {
     crate::io::expand_inputs(paths).into_iter().flat_map(move |path| {
+        let sink = times.clone();
+        let done = move |t: FileReadTime| {
+            if let Some(s) = sink {
+                let _ = s.send(t);
+            }
+        };
         let source = path.display().to_string();
         let stem = path
             .file_name()
             .map(|n| n.to_string_lossy().into_owned())
             .unwrap_or_else(|| source.clone());
         let stem = stem.split('.').next().unwrap_or(&stem).to_string();
-        let items: Box<dyn Iterator<Item = Item> + Send> = match crate::io::stream_file(&path, &opts) {
-            Ok(it) => {
-                let (source, stem) = (source.clone(), stem.clone());
-                Box::new(it.map(move |r| {
-                    r.map_err(|e| ReadFailure {
-                        object_id: stem.clone(),
-                        source: source.clone(),
-                        message: e.to_string(),
-                    })
-                }))
-            }
-            Err(e) => Box::new(std::iter::once(Err(ReadFailure {
-                object_id: stem,
-                source,
-                message: e.to_string(),
-            }))),
-        };
+        let items: Box<dyn Iterator<Item = Item> + Send> =
+            match crate::io::stream_file_timed(&path, &opts, done) {
+                Ok(it) => {
+                    let (source, stem) = (source.clone(), stem.clone());
+                    Box::new(it.map(move |r| {
+                        r.map_err(|e| ReadFailure {
+                            object_id: stem.clone(),
+                            source: source.clone(),
+                            message: e.to_string(),
+                        })
+                    }))
+                }
+                Err(e) => Box::new(std::iter::once(Err(ReadFailure {
+                    object_id: stem,
+                    source,
+                    message: e.to_string(),
+                }))),
+            };
         items
     })
 }

@@ -5,17 +5,28 @@ vacuum wavelength range, the medium the file used, median S/N, masked
 fraction, flux unit and the readers' warnings. `--json` prints one JSON
 object per line instead.
 
+A multi-object frame (2-D image with one spectrum per row and a row table)
+is explained first: where the flux, row table, wavelengths and noise were
+found and how many sky and unused rows were skipped. Every file ends with
+the time its reading took (in `--json` mode each object carries `read_ms`,
+and the per-file line goes to stderr).
+
 A bad file (or a bad object in a multi-object file) gives one line on
 stderr; the other files are still read, and the exit code is 1 when anything
 failed (2 is kept for usage errors).
 */
 use super::read_opts::ReadArgs;
-use crate::io::{expand_inputs, stream_file};
+use crate::io::{expand_inputs, frame_layout, stream_file_timed};
 use crate::spectrum::{Medium, Spectrum};
 use serde::Serialize;
 use std::io::Write;
 use std::path::PathBuf;
 use std::process::ExitCode;
+use std::time::Duration;
+
+fn ms(d: Duration) -> f64 {
+    d.as_secs_f64() * 1e3
+}
 
 /// Arguments of `zvet inspect`.
 #[derive(Debug, clap::Args)]
@@ -60,6 +71,9 @@ pub struct Summary {
     pub noise_estimated: bool,
     /// The readers' warnings.
     pub warnings: Vec<String>,
+    /// Milliseconds spent reading this object (the first of a file includes
+    /// opening the file).
+    pub read_ms: f64,
 }
 
 impl Summary {
@@ -84,6 +98,7 @@ impl Summary {
             flux_unit: s.meta.flux_unit.clone(),
             noise_estimated: s.meta.noise_estimated,
             warnings: s.meta.warnings.clone(),
+            read_ms: 0.0,
         }
     }
 
@@ -132,7 +147,14 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
         return Ok(ExitCode::from(1));
     }
     for path in &files {
-        let stream = match stream_file(path, &opts) {
+        if !args.json {
+            // Explain a multi-object frame before its objects (an error here
+            // is reported by the read below).
+            if let Ok(Some(layout)) = frame_layout(path, &opts) {
+                writeln!(out, "{}\n{layout}", path.display())?;
+            }
+        }
+        let mut stream = match stream_file_timed(path, &opts, |_| {}) {
             Ok(s) => s,
             Err(e) => {
                 failures += 1;
@@ -140,11 +162,15 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
                 continue;
             }
         };
-        for item in stream {
+        let mut before = Duration::ZERO;
+        while let Some(item) = stream.next() {
+            let spent = stream.so_far().elapsed - before;
+            before = stream.so_far().elapsed;
             match item {
                 Ok(s) => {
                     objects += 1;
-                    let sum = Summary::of(&s);
+                    let mut sum = Summary::of(&s);
+                    sum.read_ms = ms(spent);
                     if args.json {
                         writeln!(out, "{}", serde_json::to_string(&sum)?)?;
                     } else {
@@ -156,6 +182,18 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
                     eprintln!("zvet: {e}");
                 }
             }
+        }
+        let t = stream.so_far();
+        let line = format!(
+            "{}: {} object(s) read in {:.1} ms",
+            path.display(),
+            t.objects,
+            ms(t.elapsed)
+        );
+        if args.json {
+            eprintln!("zvet: {line}");
+        } else {
+            writeln!(out, "{line}")?;
         }
     }
     out.flush()?;

@@ -1,10 +1,18 @@
 /*!
-The columns of the training catalogue: one list drives the CSV and the FITS
-writers and readers, so the two formats cannot drift apart.
+The columns of the training catalogue, each defined once by name: its storage
+type, unit, the precision it is written at, and how its value is taken from
+and put back into an [`ExportRow`]. Every writer (CSV, ECSV, FITS) and every
+reader goes through [`COLUMNS`], and readers find columns by name, so the
+formats cannot drift apart and a new column is one entry here (plus its field
+in [`ExportRow`]).
+
+Floats are rounded and formatted in one place ([`Precision`]): magnitudes and
+colours to 0.001 mag, their errors to 0.0001 mag, positions to 1e-7 deg,
+redshifts at full (shortest round-trip) precision, so a colour reads 2.150
+rather than 2.1499999999999986 in every format.
 */
 use super::{ExportError, ExportRow};
 use crate::catalog::CatalogRow;
-use crate::catalog::BANDS;
 use crate::review::merge::ConsensusState;
 use crate::review::{Confidence, Flag, VerdictClass, ZSource};
 use crate::ObjectClass;
@@ -21,86 +29,101 @@ pub enum Kind {
     I16,
 }
 
-/// One column of the catalogue.
+/// How a float column is rounded and written.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub struct ColumnSpec {
-    /// Column name.
-    pub name: &'static str,
-    /// Storage type.
-    pub kind: Kind,
-    /// Unit (FITS TUNITn), if any.
-    pub unit: Option<&'static str>,
-    /// What it holds.
-    pub doc: &'static str,
+pub enum Precision {
+    /// Shortest text that reads back as the same double (redshifts).
+    Full,
+    /// A fixed number of decimals (magnitudes: 3).
+    Decimals(u8),
+    /// A number of significant digits (fluxes, errors).
+    Significant(u8),
 }
 
-const fn col(name: &'static str, kind: Kind, unit: Option<&'static str>, doc: &'static str) -> ColumnSpec {
-    ColumnSpec {
-        name,
-        kind,
-        unit,
-        doc,
+impl Precision {
+    /// The value as written to text; `None` and non-finite values are empty.
+    pub fn text(self, x: Option<f64>) -> String {
+        let Some(x) = x.filter(|x| x.is_finite()) else {
+            return String::new();
+        };
+        match self {
+            Precision::Full => format!("{x:?}"),
+            Precision::Decimals(d) => {
+                let d = usize::from(d);
+                let s = format!("{x:.d$}");
+                // No "-0.000": a value that rounds to zero is written as zero.
+                if s.starts_with('-') && s.bytes().all(|b| matches!(b, b'-' | b'0' | b'.')) {
+                    s[1..].to_string()
+                } else {
+                    s
+                }
+            }
+            Precision::Significant(n) => {
+                let n = usize::from(n.max(1));
+                let e = format!("{:.*e}", n - 1, x);
+                let r: f64 = e.parse().unwrap_or(x);
+                if r == 0.0 {
+                    return "0".into();
+                }
+                let exp = r.abs().log10().floor() as i32;
+                if (-4..6).contains(&exp) {
+                    let d = (n as i32 - 1 - exp).max(0) as usize;
+                    format!("{r:.d$}")
+                } else {
+                    e
+                }
+            }
+        }
+    }
+
+    /// The value rounded to this precision (the nearest double of its text),
+    /// so binary formats hold what the text formats show.
+    pub fn round(self, x: Option<f64>) -> Option<f64> {
+        let x = x.filter(|x| x.is_finite())?;
+        match self {
+            Precision::Full => Some(x),
+            _ => self.text(Some(x)).parse().ok(),
+        }
     }
 }
 
-use Kind::*;
-const DEG: Option<&str> = Some("deg");
-const MAG: Option<&str> = Some("mag");
+type Get<T> = fn(&ExportRow) -> T;
+type Set<T> = fn(&mut ExportRow, T) -> Result<(), String>;
+type SetStr = for<'a> fn(&mut ExportRow, &'a str) -> Result<(), String>;
 
-/// All columns, in file order.
-pub const COLUMNS: [ColumnSpec; 36] = [
-    col("id", Str, None, "object id"),
-    col("ra", F64, DEG, "right ascension (catalogue)"),
-    col("dec", F64, DEG, "declination (catalogue)"),
-    col("mag_u", F64, MAG, "u AB magnitude"),
-    col("mag_g", F64, MAG, "g AB magnitude"),
-    col("mag_r", F64, MAG, "r AB magnitude"),
-    col("mag_i", F64, MAG, "i AB magnitude"),
-    col("mag_z", F64, MAG, "z AB magnitude"),
-    col("mag_u_err", F64, MAG, "u magnitude error"),
-    col("mag_g_err", F64, MAG, "g magnitude error"),
-    col("mag_r_err", F64, MAG, "r magnitude error"),
-    col("mag_i_err", F64, MAG, "i magnitude error"),
-    col("mag_z_err", F64, MAG, "z magnitude error"),
-    col("u_g", F64, MAG, "colour u − g"),
-    col("g_r", F64, MAG, "colour g − r"),
-    col("r_i", F64, MAG, "colour r − i"),
-    col("i_z", F64, MAG, "colour i − z"),
-    col("phot_class", Str, None, "photometric classifier's class"),
-    col("phot_class_prob", F64, None, "its probability"),
-    col("phot_z", F64, None, "photometric redshift"),
-    col("auto_class", Str, None, "automatic (engine) class"),
-    col("auto_z", F64, None, "automatic redshift"),
-    col("auto_z_err", F64, None, "its 1σ error"),
-    col(
-        "auto_delta_chi2",
-        F64,
-        None,
-        "Δχ² to the runner-up (NaN/empty: none)",
-    ),
-    col("auto_warnings", Str, None, "engine warnings, `|`-separated"),
-    col(
-        "vetted_class",
-        Str,
-        None,
-        "vetted class: galaxy, quasar, star, unclear",
-    ),
-    col("vetted_z", F64, None, "vetted redshift"),
-    col("vetted_z_err", F64, None, "its 1σ error"),
-    col("z_source", Str, None, "automatic, candidate, refit or typed"),
-    col("confidence", Str, None, "doubtful, tentative, solid, certain"),
-    col("confidence_level", I16, None, "confidence 1–4 (FITS: 0 = none)"),
-    col("flags", Str, None, "inspector flags, `,`-separated"),
-    col("note", Str, None, "inspectors' notes"),
-    col(
-        "inspectors",
-        Str,
-        None,
-        "inspectors whose verdicts counted, `,`-separated",
-    ),
-    col("n_inspectors", I16, None, "their number"),
-    col("consensus", Str, None, "single, agreed or adjudicated"),
-];
+/// How a column's value is taken from a row and put back.
+#[derive(Clone, Copy)]
+pub enum Access {
+    /// A text column.
+    Str(Get<String>, SetStr),
+    /// A float column and the precision it is written at.
+    F64(Get<Option<f64>>, Set<Option<f64>>, Precision),
+    /// A small-integer column.
+    I16(Get<Option<i16>>, Set<Option<i16>>),
+}
+
+impl std::fmt::Debug for Access {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            Access::Str(..) => f.write_str("Str"),
+            Access::F64(_, _, p) => write!(f, "F64({p:?})"),
+            Access::I16(..) => f.write_str("I16"),
+        }
+    }
+}
+
+/// One column of the catalogue.
+#[derive(Debug, Clone, Copy)]
+pub struct ColumnSpec {
+    /// Column name.
+    pub name: &'static str,
+    /// Unit (FITS TUNITn, ECSV unit), if any.
+    pub unit: Option<&'static str>,
+    /// What it holds.
+    pub doc: &'static str,
+    /// Getter and setter.
+    pub access: Access,
+}
 
 /// One value of a row.
 #[derive(Debug, Clone, PartialEq)]
@@ -113,13 +136,364 @@ pub enum Cell {
     I16(Option<i16>),
 }
 
+impl ColumnSpec {
+    /// Storage type.
+    pub fn kind(&self) -> Kind {
+        match self.access {
+            Access::Str(..) => Kind::Str,
+            Access::F64(..) => Kind::F64,
+            Access::I16(..) => Kind::I16,
+        }
+    }
+
+    /// Precision of a float column (`Full` for the others).
+    pub fn precision(&self) -> Precision {
+        match self.access {
+            Access::F64(_, _, p) => p,
+            _ => Precision::Full,
+        }
+    }
+
+    /// The row's value of this column (floats rounded to the column's precision).
+    pub fn value(&self, row: &ExportRow) -> Cell {
+        match self.access {
+            Access::Str(g, _) => Cell::Str(g(row)),
+            Access::F64(g, _, p) => Cell::F64(p.round(g(row))),
+            Access::I16(g, _) => Cell::I16(g(row)),
+        }
+    }
+
+    /// The row's value as CSV/ECSV text (empty = missing).
+    pub fn text(&self, row: &ExportRow) -> String {
+        match self.access {
+            Access::Str(g, _) => g(row),
+            Access::F64(g, _, p) => p.text(g(row)),
+            Access::I16(g, _) => g(row).map_or(String::new(), |x| x.to_string()),
+        }
+    }
+
+    /// Parse this column's text (as [`ColumnSpec::text`] writes it).
+    pub fn parse(&self, s: &str) -> Result<Cell, String> {
+        let t = s.trim();
+        Ok(match self.kind() {
+            Kind::Str => Cell::Str(s.to_string()),
+            Kind::F64 if t.is_empty() || t.eq_ignore_ascii_case("nan") => Cell::F64(None),
+            Kind::F64 => Cell::F64(Some(
+                t.parse()
+                    .map_err(|_| format!("{}: '{s}' is not a number", self.name))?,
+            )),
+            Kind::I16 if t.is_empty() => Cell::I16(None),
+            Kind::I16 => Cell::I16(Some(
+                t.parse()
+                    .map_err(|_| format!("{}: '{s}' is not an integer", self.name))?,
+            )),
+        })
+    }
+
+    /// Put a value back into `row`.
+    pub fn store(&self, row: &mut ExportRow, cell: Cell) -> Result<(), String> {
+        let wrong = |c: &Cell| format!("{}: a {:?} column cannot hold {c:?}", self.name, self.kind());
+        match (self.access, cell) {
+            (Access::Str(_, s), Cell::Str(v)) => s(row, &v),
+            (Access::F64(_, s, _), Cell::F64(v)) => s(row, v.filter(|x| x.is_finite())),
+            (Access::I16(_, s), Cell::I16(v)) => s(row, v),
+            (_, c) => Err(wrong(&c)),
+        }
+    }
+}
+
+/// Find a column by name.
+pub fn column(name: &str) -> Option<&'static ColumnSpec> {
+    COLUMNS.iter().find(|c| c.name == name)
+}
+
+/// Parse a lower-case word through its serde spelling; empty = `None`.
+fn word<T: serde::de::DeserializeOwned>(name: &str, s: &str) -> Result<Option<T>, String> {
+    let w = s.trim();
+    if w.is_empty() {
+        return Ok(None);
+    }
+    serde_json::from_str(&format!("\"{w}\""))
+        .map(Some)
+        .map_err(|_| format!("{name}: unknown value '{w}'"))
+}
+
 fn diff(a: Option<f64>, b: Option<f64>) -> Option<f64> {
     Some(a? - b?)
 }
 
-fn join<T>(items: impl IntoIterator<Item = T>, f: impl Fn(T) -> String, sep: &str) -> String {
-    items.into_iter().map(f).collect::<Vec<_>>().join(sep)
+/// Derived columns are not stored back.
+fn derived<T>(_: &mut ExportRow, _: T) -> Result<(), String> {
+    Ok(())
 }
+
+const fn col(
+    name: &'static str,
+    unit: Option<&'static str>,
+    doc: &'static str,
+    access: Access,
+) -> ColumnSpec {
+    ColumnSpec {
+        name,
+        unit,
+        doc,
+        access,
+    }
+}
+
+const DEG: Option<&str> = Some("deg");
+const MAG: Option<&str> = Some("mag");
+/// Positions: 1e-7 deg = 0.36 mas (common practice: well below astrometric errors).
+const POS: Precision = Precision::Decimals(7);
+/// Magnitudes and colours: 0.001 mag (common practice for catalogue photometry).
+const MAGP: Precision = Precision::Decimals(3);
+/// Magnitude errors: 0.0001 mag.
+const MAGE: Precision = Precision::Decimals(4);
+/// Redshift errors: three significant digits.
+const ZERR: Precision = Precision::Significant(3);
+
+macro_rules! mag {
+    ($name:literal, $b:literal, $doc:literal) => {
+        col(
+            $name,
+            MAG,
+            $doc,
+            Access::F64(
+                |r| r.catalog.mag[$b],
+                |r, v| {
+                    r.catalog.mag[$b] = v;
+                    Ok(())
+                },
+                MAGP,
+            ),
+        )
+    };
+}
+macro_rules! mag_err {
+    ($name:literal, $b:literal, $doc:literal) => {
+        col(
+            $name,
+            MAG,
+            $doc,
+            Access::F64(
+                |r| r.catalog.mag_err[$b],
+                |r, v| {
+                    r.catalog.mag_err[$b] = v;
+                    Ok(())
+                },
+                MAGE,
+            ),
+        )
+    };
+}
+macro_rules! colour {
+    ($name:literal, $b:literal, $doc:literal) => {
+        col($name, MAG, $doc, Access::F64(|r| r.colours()[$b], derived, MAGP))
+    };
+}
+/// A float field of the row (`$($f).+` is its path).
+macro_rules! float {
+    ($name:literal, $unit:expr, $p:expr, $doc:literal, $($f:ident).+) => {
+        col(
+            $name,
+            $unit,
+            $doc,
+            Access::F64(
+                |r| r.$($f).+,
+                |r, v| {
+                    r.$($f).+ = v;
+                    Ok(())
+                },
+                $p,
+            ),
+        )
+    };
+}
+/// An optional vocabulary word of the row.
+macro_rules! vocab {
+    ($name:literal, $doc:literal, $ty:ty, $($f:ident).+) => {
+        col(
+            $name,
+            None,
+            $doc,
+            Access::Str(
+                |r| r.$($f).+.map_or(String::new(), |x| x.as_str().to_string()),
+                |r, s| {
+                    r.$($f).+ = word::<$ty>($name, s)?;
+                    Ok(())
+                },
+            ),
+        )
+    };
+}
+
+/// All columns, in file order.
+pub const COLUMNS: [ColumnSpec; 36] = [
+    col(
+        "id",
+        None,
+        "object id",
+        Access::Str(
+            |r| r.catalog.id.clone(),
+            |r, s| {
+                r.catalog.id = s.to_string();
+                Ok(())
+            },
+        ),
+    ),
+    float!("ra", DEG, POS, "right ascension (catalogue)", catalog.ra),
+    float!("dec", DEG, POS, "declination (catalogue)", catalog.dec),
+    mag!("mag_u", 0, "u AB magnitude"),
+    mag!("mag_g", 1, "g AB magnitude"),
+    mag!("mag_r", 2, "r AB magnitude"),
+    mag!("mag_i", 3, "i AB magnitude"),
+    mag!("mag_z", 4, "z AB magnitude"),
+    mag_err!("mag_u_err", 0, "u magnitude error"),
+    mag_err!("mag_g_err", 1, "g magnitude error"),
+    mag_err!("mag_r_err", 2, "r magnitude error"),
+    mag_err!("mag_i_err", 3, "i magnitude error"),
+    mag_err!("mag_z_err", 4, "z magnitude error"),
+    colour!("u_g", 0, "colour u − g"),
+    colour!("g_r", 1, "colour g − r"),
+    colour!("r_i", 2, "colour r − i"),
+    colour!("i_z", 3, "colour i − z"),
+    vocab!(
+        "phot_class",
+        "photometric classifier's class",
+        ObjectClass,
+        catalog.phot_class
+    ),
+    float!(
+        "phot_class_prob",
+        None,
+        Precision::Decimals(4),
+        "its probability",
+        catalog.phot_class_prob
+    ),
+    float!(
+        "phot_z",
+        None,
+        Precision::Full,
+        "photometric redshift",
+        catalog.phot_z
+    ),
+    vocab!("auto_class", "automatic (engine) class", ObjectClass, auto_class),
+    float!("auto_z", None, Precision::Full, "automatic redshift", auto_z),
+    float!("auto_z_err", None, ZERR, "its 1σ error", auto_z_err),
+    float!(
+        "auto_delta_chi2",
+        None,
+        Precision::Decimals(2),
+        "Δχ² to the runner-up (NaN/empty: none)",
+        auto_delta_chi2
+    ),
+    col(
+        "auto_warnings",
+        None,
+        "engine warnings, `|`-separated",
+        Access::Str(
+            |r| r.auto_warnings.clone(),
+            |r, s| {
+                r.auto_warnings = s.to_string();
+                Ok(())
+            },
+        ),
+    ),
+    col(
+        "vetted_class",
+        None,
+        "vetted class: galaxy, quasar, star, unclear",
+        Access::Str(
+            |r| r.vetted_class.as_str().to_string(),
+            |r, s| {
+                r.vetted_class = word::<VerdictClass>("vetted_class", s)?
+                    .ok_or_else(|| "vetted_class is empty".to_string())?;
+                Ok(())
+            },
+        ),
+    ),
+    float!("vetted_z", None, Precision::Full, "vetted redshift", vetted_z),
+    float!("vetted_z_err", None, ZERR, "its 1σ error", vetted_z_err),
+    vocab!(
+        "z_source",
+        "automatic, candidate, refit or typed",
+        ZSource,
+        z_source
+    ),
+    vocab!(
+        "confidence",
+        "doubtful, tentative, solid, certain",
+        Confidence,
+        confidence
+    ),
+    col(
+        "confidence_level",
+        None,
+        "confidence 1–4 (FITS: 0 = none)",
+        Access::I16(|r| r.confidence.map(|x| i16::from(x.level())), derived),
+    ),
+    col(
+        "flags",
+        None,
+        "inspector flags, `,`-separated",
+        Access::Str(
+            |r| r.flags.iter().map(|f| f.as_str()).collect::<Vec<_>>().join(","),
+            |r, s| {
+                r.flags = s
+                    .split(',')
+                    .filter_map(|x| word::<Flag>("flags", x).transpose())
+                    .collect::<Result<BTreeSet<_>, _>>()?;
+                Ok(())
+            },
+        ),
+    ),
+    col(
+        "note",
+        None,
+        "inspectors' notes",
+        Access::Str(
+            |r| r.note.clone(),
+            |r, s| {
+                r.note = s.to_string();
+                Ok(())
+            },
+        ),
+    ),
+    col(
+        "inspectors",
+        None,
+        "inspectors whose verdicts counted, `,`-separated",
+        Access::Str(
+            |r| r.inspectors.join(","),
+            |r, s| {
+                r.inspectors = s.split(',').filter(|x| !x.is_empty()).map(String::from).collect();
+                Ok(())
+            },
+        ),
+    ),
+    col(
+        "n_inspectors",
+        None,
+        "their number",
+        Access::I16(
+            |r| Some(r.inspectors.len().min(i16::MAX as usize) as i16),
+            derived,
+        ),
+    ),
+    col(
+        "consensus",
+        None,
+        "single, agreed or adjudicated",
+        Access::Str(
+            |r| r.consensus.as_str().to_string(),
+            |r, s| {
+                r.consensus = word::<ConsensusState>("consensus", s)?
+                    .ok_or_else(|| "consensus is empty".to_string())?;
+                Ok(())
+            },
+        ),
+    ),
+];
 
 impl ExportRow {
     /// Colours u−g, g−r, r−i, i−z (missing when a magnitude is).
@@ -133,122 +507,94 @@ impl ExportRow {
         ]
     }
 
-    /// The row's values in [`COLUMNS`] order.
+    /// The row's values in [`COLUMNS`] order (floats at their precision).
     pub fn cells(&self) -> Vec<Cell> {
-        let s = |x: &str| Cell::Str(x.to_string());
-        let cat = &self.catalog;
-        let mut c = vec![s(&cat.id), Cell::F64(cat.ra), Cell::F64(cat.dec)];
-        c.extend(cat.mag.iter().map(|&m| Cell::F64(m)));
-        c.extend(cat.mag_err.iter().map(|&m| Cell::F64(m)));
-        c.extend(self.colours().iter().map(|&m| Cell::F64(m)));
-        c.extend([
-            s(cat.phot_class.map_or("", |x| x.as_str())),
-            Cell::F64(cat.phot_class_prob),
-            Cell::F64(cat.phot_z),
-            s(self.auto_class.map_or("", |x| x.as_str())),
-            Cell::F64(self.auto_z),
-            Cell::F64(self.auto_z_err),
-            Cell::F64(self.auto_delta_chi2),
-            s(&self.auto_warnings),
-            s(self.vetted_class.as_str()),
-            Cell::F64(self.vetted_z),
-            Cell::F64(self.vetted_z_err),
-            s(self.z_source.map_or("", |x| x.as_str())),
-            s(self.confidence.map_or("", |x| x.as_str())),
-            Cell::I16(self.confidence.map(|x| x.level() as i16)),
-            Cell::Str(join(&self.flags, |f| f.as_str().to_string(), ",")),
-            s(&self.note),
-            Cell::Str(self.inspectors.join(",")),
-            Cell::I16(Some(self.inspectors.len().min(i16::MAX as usize) as i16)),
-            s(self.consensus.as_str()),
-        ]);
-        c
+        COLUMNS.iter().map(|c| c.value(self)).collect()
     }
 
-    /// Rebuild a row from values in [`COLUMNS`] order (the readers' side).
-    pub fn from_cells(cells: &[Cell]) -> Result<ExportRow, ExportError> {
-        if cells.len() != COLUMNS.len() {
-            return Err(ExportError::Format(format!(
-                "{} values for {} columns",
-                cells.len(),
-                COLUMNS.len()
-            )));
-        }
-        let f = |i: usize| match &cells[i] {
-            Cell::F64(x) => Ok(*x),
-            other => Err(ExportError::Format(format!(
-                "{}: not a number: {other:?}",
-                COLUMNS[i].name
-            ))),
+    /// Rebuild a row from `(column name, value)` pairs, found by name in
+    /// any order. Names that are not columns of the catalogue are ignored
+    /// (a user may add columns); a missing column is an error.
+    pub fn from_named<'a>(
+        cells: impl IntoIterator<Item = (&'a str, Cell)>,
+    ) -> Result<ExportRow, ExportError> {
+        let mut row = ExportRow {
+            catalog: CatalogRow::default(),
+            auto_class: None,
+            auto_z: None,
+            auto_z_err: None,
+            auto_delta_chi2: None,
+            auto_warnings: String::new(),
+            vetted_class: VerdictClass::Unclear,
+            vetted_z: None,
+            vetted_z_err: None,
+            z_source: None,
+            confidence: None,
+            flags: BTreeSet::new(),
+            note: String::new(),
+            inspectors: Vec::new(),
+            consensus: ConsensusState::Single,
         };
-        let st = |i: usize| match &cells[i] {
-            Cell::Str(x) => Ok(x.as_str()),
-            other => Err(ExportError::Format(format!(
-                "{}: not text: {other:?}",
-                COLUMNS[i].name
-            ))),
-        };
-        let word = |i: usize| -> Result<Option<String>, ExportError> {
-            let s = st(i)?.trim();
-            Ok((!s.is_empty()).then(|| format!("\"{s}\"")))
-        };
-        // Parse the lower-case names through their serde spelling.
-        fn parse<T: serde::de::DeserializeOwned>(
-            name: &str,
-            w: Option<String>,
-        ) -> Result<Option<T>, ExportError> {
-            w.map(|w| {
-                serde_json::from_str(&w)
-                    .map_err(|_| ExportError::Format(format!("{name}: unknown value {w}")))
-            })
-            .transpose()
+        let mut seen = [false; COLUMNS.len()];
+        for (name, cell) in cells {
+            let Some(j) = COLUMNS.iter().position(|c| c.name == name) else {
+                continue;
+            };
+            COLUMNS[j].store(&mut row, cell).map_err(ExportError::Format)?;
+            seen[j] = true;
         }
-        let name = |i: usize| COLUMNS[i].name;
-        let mut mag = [None; 5];
-        let mut mag_err = [None; 5];
-        for b in 0..BANDS.len() {
-            mag[b] = f(3 + b)?;
-            mag_err[b] = f(8 + b)?;
-        }
-        let flags: BTreeSet<Flag> = st(31)?
-            .split(',')
-            .filter(|x| !x.trim().is_empty())
-            .map(|x| parse::<Flag>(name(31), Some(format!("\"{}\"", x.trim()))).map(|o| o.into_iter()))
-            .collect::<Result<Vec<_>, _>>()?
-            .into_iter()
-            .flatten()
-            .collect();
-        Ok(ExportRow {
-            catalog: CatalogRow {
-                id: st(0)?.to_string(),
-                ra: f(1)?,
-                dec: f(2)?,
-                mag,
-                mag_err,
-                phot_class: parse::<ObjectClass>(name(17), word(17)?)?,
-                phot_class_prob: f(18)?,
-                phot_z: f(19)?,
-            },
-            auto_class: parse::<ObjectClass>(name(20), word(20)?)?,
-            auto_z: f(21)?,
-            auto_z_err: f(22)?,
-            auto_delta_chi2: f(23)?,
-            auto_warnings: st(24)?.to_string(),
-            vetted_class: parse::<VerdictClass>(name(25), word(25)?)?
-                .ok_or_else(|| ExportError::Format("vetted_class is empty".into()))?,
-            vetted_z: f(26)?,
-            vetted_z_err: f(27)?,
-            z_source: parse::<ZSource>(name(28), word(28)?)?,
-            confidence: parse::<Confidence>(name(29), word(29)?)?,
-            flags,
-            note: st(32)?.to_string(),
-            inspectors: st(33)?
-                .split(',')
-                .filter(|x| !x.is_empty())
-                .map(String::from)
-                .collect(),
-            consensus: parse::<ConsensusState>(name(35), word(35)?)?
-                .ok_or_else(|| ExportError::Format("consensus is empty".into()))?,
-        })
+        missing_check(&seen)?;
+        Ok(row)
+    }
+}
+
+/// Error naming the columns not seen.
+pub(super) fn missing_check(seen: &[bool]) -> Result<(), ExportError> {
+    let missing: Vec<&str> = COLUMNS
+        .iter()
+        .zip(seen)
+        .filter(|(_, s)| !**s)
+        .map(|(c, _)| c.name)
+        .collect();
+    if missing.is_empty() {
+        Ok(())
+    } else {
+        Err(ExportError::Format(format!(
+            "not a zvet training catalogue: missing column(s) {}",
+            missing.join(", ")
+        )))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn names_are_unique() {
+        let mut names: Vec<&str> = COLUMNS.iter().map(|c| c.name).collect();
+        names.sort_unstable();
+        names.dedup();
+        assert_eq!(names.len(), COLUMNS.len());
+    }
+
+    #[test]
+    fn precision_text() {
+        // 21.03 − 18.88 in binary is 2.1499999999999986 (IEEE 754 double).
+        let colour = 21.03 - 18.88;
+        assert_eq!(Precision::Decimals(3).text(Some(colour)), "2.150");
+        assert_eq!(Precision::Decimals(3).round(Some(colour)), Some(2.15));
+        assert_eq!(Precision::Decimals(3).text(Some(-0.0001)), "0.000");
+        assert_eq!(
+            Precision::Full.text(Some(0.3123456789012345)),
+            "0.3123456789012345"
+        );
+        assert_eq!(Precision::Significant(3).text(Some(1.2345e-4)), "0.000123");
+        assert_eq!(Precision::Significant(3).text(Some(1.2345e-7)), "1.23e-7");
+        assert_eq!(Precision::Significant(3).text(Some(812.46)), "812");
+        assert_eq!(Precision::Significant(3).text(Some(3.0e9)), "3.00e9");
+        assert_eq!(Precision::Significant(3).text(Some(0.0)), "0");
+        assert_eq!(Precision::Full.text(None), "");
+        assert_eq!(Precision::Full.text(Some(f64::NAN)), "");
     }
 }

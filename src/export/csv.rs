@@ -1,168 +1,125 @@
 /*!
-The catalogue as CSV: provenance as `# key: value` lines at the top, then a
-header row and one row per object (RFC 4180 quoting, UTF-8, empty field =
-missing value, floats written in their shortest exact form).
+The catalogue as plain CSV: a header row of column names, then one row per
+object (RFC 4180 quoting, UTF-8 without byte-order mark, empty field =
+missing value, floats at their column's [`Precision`](super::Precision)).
+Nothing else is in the file, so any CSV reader takes it with no options.
+
+Provenance, units, types and column descriptions go to a JSON sidecar next to
+it, named by appending `.json` to the whole file name (`cat.csv` →
+`cat.csv.json`).
 */
-use super::columns::{Cell, Kind, COLUMNS};
-use super::{ExportError, ExportRow, Provenance};
-use crate::campaign::{atomic_write, EngineSettings};
-use crate::review::{Confidence, Flag};
-use std::path::Path;
+use super::columns::{ColumnSpec, COLUMNS};
+use super::{columns_json, ExportError, ExportRow, Provenance};
+use crate::campaign::atomic_write;
+use std::path::{Path, PathBuf};
 
-fn provenance_lines(p: &Provenance) -> Result<Vec<(String, String)>, ExportError> {
-    let engine =
-        serde_json::to_string(&p.engine).map_err(|e| ExportError::Format(format!("engine settings: {e}")))?;
-    let units: Vec<String> = COLUMNS
-        .iter()
-        .filter_map(|c| c.unit.map(|u| format!("{}={u}", c.name)))
-        .collect();
-    Ok(vec![
-        ("format".into(), "zvet training catalogue".into()),
-        ("zvet_version".into(), p.zvet_version.clone()),
-        ("campaign".into(), p.campaign.clone()),
-        ("template_set".into(), p.template_set.clone()),
-        ("engine".into(), engine),
-        ("date".into(), p.date.to_rfc3339()),
-        ("merge_tolerance".into(), p.tolerance.to_string()),
-        (
-            "min_confidence".into(),
-            p.min_confidence.map_or("none".into(), |c| c.as_str().into()),
-        ),
-        (
-            "exclude_flags".into(),
-            p.exclude_flags
-                .iter()
-                .map(|f| f.as_str())
-                .collect::<Vec<_>>()
-                .join(","),
-        ),
-        ("units".into(), units.join(" ")),
-    ])
+/// The sidecar of a CSV catalogue: `F.csv` → `F.csv.json`.
+pub fn sidecar_path(path: &Path) -> PathBuf {
+    let mut name = path.as_os_str().to_os_string();
+    name.push(".json");
+    PathBuf::from(name)
 }
 
-/// Write the catalogue as CSV (atomically).
+/// Write the catalogue as CSV and its provenance sidecar (each atomically;
+/// the sidecar first, so a CSV on disk always has its provenance).
 pub fn write_csv(path: &Path, rows: &[ExportRow], prov: &Provenance) -> Result<(), ExportError> {
-    let header = provenance_lines(prov)?;
-    let io = |source| ExportError::Io {
-        path: path.to_path_buf(),
-        source,
-    };
-    atomic_write(path, |w| {
-        for (k, v) in &header {
-            // One line each: a value never contains a newline.
-            writeln!(w, "# {k}: {}", v.replace(['\n', '\r'], " "))?;
-        }
-        let mut cw = ::csv::Writer::from_writer(w);
-        cw.write_record(COLUMNS.iter().map(|c| c.name))?;
-        for r in rows {
-            let fields: Vec<String> = r
-                .cells()
-                .into_iter()
-                .map(|c| match c {
-                    Cell::Str(s) => s,
-                    Cell::F64(x) => x.map_or(String::new(), |x| format!("{x:?}")),
-                    Cell::I16(x) => x.map_or(String::new(), |x| x.to_string()),
-                })
-                .collect();
-            cw.write_record(&fields)?;
-        }
-        cw.flush()?;
-        Ok(())
+    let mut side = prov.to_json()?;
+    side["table"] = path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default()
+        .into();
+    side["columns"] = columns_json();
+    let side_text =
+        serde_json::to_string_pretty(&side).map_err(|e| ExportError::Format(format!("provenance: {e}")))?;
+    let side_path = sidecar_path(path);
+    atomic_write(&side_path, |w| {
+        w.write_all(side_text.as_bytes())?;
+        w.write_all(b"\n")
     })
-    .map_err(io)
-}
-
-/// Read a catalogue CSV written by [`write_csv`].
-pub fn read_csv(path: &Path) -> Result<(Vec<ExportRow>, Provenance), ExportError> {
-    let text = std::fs::read_to_string(path).map_err(|source| ExportError::Io {
-        path: path.to_path_buf(),
+    .map_err(|source| ExportError::Io {
+        path: side_path.clone(),
         source,
     })?;
+    atomic_write(path, |w| write_table(w, rows)).map_err(|source| ExportError::Io {
+        path: path.to_path_buf(),
+        source,
+    })
+}
+
+/// The header row and the data rows (shared with the ECSV writer).
+pub(super) fn write_table(w: &mut dyn std::io::Write, rows: &[ExportRow]) -> std::io::Result<()> {
+    let mut cw = ::csv::Writer::from_writer(w);
+    cw.write_record(COLUMNS.iter().map(|c| c.name))?;
+    for r in rows {
+        cw.write_record(COLUMNS.iter().map(|c| c.text(r)))?;
+    }
+    cw.flush()
+}
+
+/// Rows of a header-first CSV body, columns found by name. `first_line` is
+/// the file line of the header row (for messages).
+pub(super) fn read_table(path: &Path, body: &[u8], first_line: usize) -> Result<Vec<ExportRow>, ExportError> {
     let bad =
         |line: usize, msg: String| ExportError::Format(format!("{} line {line}: {msg}", path.display()));
-    let mut meta = std::collections::BTreeMap::new();
-    let mut body_start = 0;
-    let mut n_header = 0;
-    for line in text.split_inclusive('\n') {
-        let Some(rest) = line.strip_prefix('#') else { break };
-        body_start += line.len();
-        n_header += 1;
-        if let Some((k, v)) = rest.trim().split_once(':') {
-            meta.insert(k.trim().to_string(), v.trim().to_string());
-        }
-    }
-    let get = |k: &str| meta.get(k).cloned().unwrap_or_default();
-    let engine: EngineSettings =
-        serde_json::from_str(&get("engine")).map_err(|e| bad(0, format!("provenance 'engine': {e}")))?;
-    let min_confidence = match get("min_confidence").as_str() {
-        "" | "none" => None,
-        s => Some(
-            serde_json::from_str::<Confidence>(&format!("\"{s}\""))
-                .map_err(|e| bad(0, format!("min_confidence: {e}")))?,
-        ),
-    };
-    let exclude_flags = get("exclude_flags")
-        .split(',')
-        .filter(|s| !s.is_empty())
-        .map(|s| {
-            serde_json::from_str::<Flag>(&format!("\"{s}\""))
-                .map_err(|e| bad(0, format!("exclude_flags: {e}")))
-        })
-        .collect::<Result<Vec<_>, _>>()?;
-    let prov = Provenance {
-        zvet_version: get("zvet_version"),
-        campaign: get("campaign"),
-        template_set: get("template_set"),
-        engine,
-        date: chrono::DateTime::parse_from_rfc3339(&get("date"))
-            .map_err(|e| bad(0, format!("date: {e}")))?
-            .with_timezone(&chrono::Utc),
-        tolerance: get("merge_tolerance")
-            .parse()
-            .map_err(|e| bad(0, format!("merge_tolerance: {e}")))?,
-        min_confidence,
-        exclude_flags,
-    };
-
-    let mut rd = ::csv::Reader::from_reader(&text.as_bytes()[body_start..]);
+    let mut rd = ::csv::Reader::from_reader(body);
     let names: Vec<String> = rd
         .headers()
-        .map_err(|e| bad(n_header + 1, e.to_string()))?
+        .map_err(|e| bad(first_line, e.to_string()))?
         .iter()
-        .map(String::from)
+        .map(|s| s.trim().to_string())
         .collect();
-    let want: Vec<&str> = COLUMNS.iter().map(|c| c.name).collect();
-    if names != want {
-        return Err(bad(
-            n_header + 1,
-            "not the columns of a zvet training catalogue".into(),
-        ));
-    }
+    let specs: Vec<Option<&ColumnSpec>> = names.iter().map(|n| super::column(n)).collect();
+    let seen: Vec<bool> = COLUMNS
+        .iter()
+        .map(|c| names.iter().any(|n| n == c.name))
+        .collect();
+    super::columns::missing_check(&seen).map_err(|e| bad(first_line, e.to_string()))?;
     let mut rows = Vec::new();
-    for (i, rec) in rd.records().enumerate() {
-        let line = n_header + 2 + i;
-        let rec = rec.map_err(|e| bad(line, e.to_string()))?;
-        let cells = COLUMNS
+    for rec in rd.records() {
+        let rec = rec.map_err(|e| {
+            let line = e
+                .position()
+                .map_or(first_line, |p| first_line + p.line() as usize - 1);
+            bad(line, e.to_string())
+        })?;
+        let line = rec
+            .position()
+            .map_or(first_line, |p| first_line + p.line() as usize - 1);
+        let cells = specs
             .iter()
             .zip(rec.iter())
-            .map(|(c, s)| {
-                Ok(match c.kind {
-                    Kind::Str => Cell::Str(s.to_string()),
-                    Kind::F64 if s.is_empty() => Cell::F64(None),
-                    Kind::F64 => Cell::F64(Some(
-                        s.parse()
-                            .map_err(|_| bad(line, format!("{}: '{s}' is not a number", c.name)))?,
-                    )),
-                    Kind::I16 if s.is_empty() => Cell::I16(None),
-                    Kind::I16 => {
-                        Cell::I16(Some(s.parse().map_err(|_| {
-                            bad(line, format!("{}: '{s}' is not an integer", c.name))
-                        })?))
-                    }
-                })
-            })
-            .collect::<Result<Vec<_>, ExportError>>()?;
-        rows.push(ExportRow::from_cells(&cells).map_err(|e| bad(line, e.to_string()))?);
+            .filter_map(|(spec, text)| spec.map(|c| c.parse(text).map(|v| (c.name, v))))
+            .collect::<Result<Vec<_>, String>>()
+            .map_err(|m| bad(line, m))?;
+        rows.push(ExportRow::from_named(cells).map_err(|e| bad(line, e.to_string()))?);
     }
+    Ok(rows)
+}
+
+/// Read a catalogue CSV written by [`write_csv`] with its sidecar.
+pub fn read_csv(path: &Path) -> Result<(Vec<ExportRow>, Provenance), ExportError> {
+    let io = |p: &Path| {
+        let p = p.to_path_buf();
+        move |source| ExportError::Io { path: p, source }
+    };
+    let body = std::fs::read(path).map_err(io(path))?;
+    let side_path = sidecar_path(path);
+    let side = std::fs::read_to_string(&side_path).map_err(|e| {
+        if e.kind() == std::io::ErrorKind::NotFound {
+            ExportError::Format(format!(
+                "{}: the provenance sidecar {} is missing (it is written next to the CSV)",
+                path.display(),
+                side_path.display()
+            ))
+        } else {
+            io(&side_path)(e)
+        }
+    })?;
+    let side: serde_json::Value = serde_json::from_str(&side)
+        .map_err(|e| ExportError::Format(format!("{}: {e}", side_path.display())))?;
+    let prov = Provenance::from_json(&side)
+        .map_err(|m| ExportError::Format(format!("{}: {m}", side_path.display())))?;
+    let rows = read_table(path, &body, 1)?;
     Ok((rows, prov))
 }

@@ -89,7 +89,7 @@ pub fn write_fits(path: &Path, rows: &[ExportRow], prov: &Provenance) -> Result<
     let mut descs = Vec::new();
     for (j, c) in COLUMNS.iter().enumerate() {
         let mut d = ColumnDescription::new(c.name);
-        match c.kind {
+        match c.kind() {
             Kind::Str => {
                 let width = strings(j).iter().map(|s| s.len()).max().unwrap_or(0).max(1);
                 d.with_type(ColumnDataType::String).that_repeats(width);
@@ -108,7 +108,7 @@ pub fn write_fits(path: &Path, rows: &[ExportRow], prov: &Provenance) -> Result<
         let mut f = FitsFile::create(tmp).open().map_err(&fe)?;
         let hdu = f.create_table(FITS_EXTNAME, &descs).map_err(&fe)?;
         for (j, c) in COLUMNS.iter().enumerate() {
-            match c.kind {
+            match c.kind() {
                 Kind::Str => {
                     hdu.write_col(&mut f, c.name, &strings(j)).map_err(&fe)?;
                 }
@@ -264,7 +264,7 @@ pub fn read_fits(path: &Path) -> Result<(Vec<ExportRow>, Provenance), ExportErro
     let hdu = f.hdu(FITS_EXTNAME).map_err(&fe)?;
     let mut columns: Vec<Vec<Cell>> = Vec::new();
     for c in COLUMNS.iter() {
-        let col: Vec<Cell> = match c.kind {
+        let col: Vec<Cell> = match c.kind() {
             Kind::Str => hdu
                 .read_col::<String>(&mut f, c.name)
                 .map_err(&fe)?
@@ -289,9 +289,9 @@ pub fn read_fits(path: &Path) -> Result<(Vec<ExportRow>, Provenance), ExportErro
     let n = columns.first().map_or(0, Vec::len);
     let mut rows = Vec::with_capacity(n);
     for i in 0..n {
-        let cells: Vec<Cell> = columns.iter().map(|c| c[i].clone()).collect();
+        let cells = COLUMNS.iter().zip(&columns).map(|(c, v)| (c.name, v[i].clone()));
         rows.push(
-            ExportRow::from_cells(&cells)
+            ExportRow::from_named(cells)
                 .map_err(|e| ExportError::Format(format!("{} row {}: {e}", path.display(), i + 1)))?,
         );
     }

@@ -1,17 +1,23 @@
 /*!
 The training catalogue: one row per vetted object, joining the photometric
 catalogue (position, magnitudes, colours, photometric class and redshift), the
-automatic fit and the merged verdict, with provenance in the header. Written
-as CSV (provenance as leading `#` lines) or as a FITS binary table
-(provenance as header keywords, units in TUNITn); both are read back by this
-module for the round-trip tests.
+automatic fit and the merged verdict, with provenance. Written as
+- plain CSV (header row first, nothing else, so `pandas.read_csv(F)` and
+  astropy's `Table.read(F)` read it with no options) with the provenance,
+  units and column descriptions in a JSON sidecar `F.csv.json`;
+- ECSV (astropy's Enhanced CSV, ECSV 1.0): units, types, descriptions and
+  provenance in its YAML header;
+- a FITS binary table (provenance as header keywords, units in TUNITn).
+All are read back by this module (columns found by name, see [`COLUMNS`]).
 */
 mod columns;
 mod csv;
+mod ecsv;
 mod fits;
 
-pub use columns::{Cell, ColumnSpec, Kind, COLUMNS};
-pub use csv::{read_csv, write_csv};
+pub use columns::{column, Access, Cell, ColumnSpec, Kind, Precision, COLUMNS};
+pub use csv::{read_csv, sidecar_path, write_csv};
+pub use ecsv::{read_ecsv, write_ecsv};
 pub use fits::{from_ascii, read_fits, to_ascii, write_fits, FITS_EXTNAME};
 
 use crate::campaign::{Campaign, CampaignError, EngineSettings};
@@ -47,8 +53,8 @@ pub enum ExportError {
     /// A catalogue file with unexpected contents.
     #[error("{0}")]
     Format(String),
-    /// The output name has neither `.csv` nor `.fits`/`.fit`.
-    #[error("{}: the output must end in .csv or .fits", .0.display())]
+    /// The output name has none of `.csv`, `.ecsv`, `.fits`/`.fit`.
+    #[error("{}: the output must end in .csv, .ecsv or .fits", .0.display())]
     UnknownFormat(PathBuf),
     /// The campaign could not be read.
     #[error(transparent)]
@@ -139,6 +145,94 @@ impl Provenance {
     }
 }
 
+/// The `format` value of the sidecar and ECSV provenance.
+pub const FORMAT_NAME: &str = "zvet training catalogue";
+
+impl Provenance {
+    /// Provenance as JSON: the CSV sidecar and the ECSV `meta` hold these keys.
+    pub fn to_json(&self) -> Result<serde_json::Value, ExportError> {
+        let engine = serde_json::to_value(&self.engine)
+            .map_err(|e| ExportError::Format(format!("engine settings: {e}")))?;
+        Ok(serde_json::json!({
+            "format": FORMAT_NAME,
+            "zvet_version": self.zvet_version,
+            "campaign": self.campaign,
+            "template_set": self.template_set,
+            "engine": engine,
+            "date": self.date.to_rfc3339_opts(chrono::SecondsFormat::AutoSi, true),
+            "merge_tolerance": self.tolerance,
+            "min_confidence": self.min_confidence.map(|c| c.as_str()),
+            "exclude_flags": self.exclude_flags.iter().map(|f| f.as_str()).collect::<Vec<_>>(),
+        }))
+    }
+
+    /// Read [`Provenance::to_json`]'s keys back.
+    pub fn from_json(v: &serde_json::Value) -> Result<Provenance, String> {
+        let text = |k: &str| -> Result<String, String> {
+            v.get(k)
+                .and_then(|x| x.as_str())
+                .map(String::from)
+                .ok_or_else(|| format!("provenance: '{k}' is missing or not text"))
+        };
+        if text("format")? != FORMAT_NAME {
+            return Err(format!("provenance: format is not '{FORMAT_NAME}'"));
+        }
+        let engine: EngineSettings = serde_json::from_value(v.get("engine").cloned().unwrap_or_default())
+            .map_err(|e| format!("provenance 'engine': {e}"))?;
+        let date = chrono::DateTime::parse_from_rfc3339(&text("date")?)
+            .map_err(|e| format!("provenance 'date': {e}"))?
+            .with_timezone(&Utc);
+        let tolerance = v
+            .get("merge_tolerance")
+            .and_then(|x| x.as_f64())
+            .ok_or("provenance: 'merge_tolerance' is missing or not a number")?;
+        let word = |w: &str| format!("\"{w}\"");
+        let min_confidence = match v.get("min_confidence").and_then(|x| x.as_str()) {
+            None => None,
+            Some(w) => Some(
+                serde_json::from_str::<Confidence>(&word(w))
+                    .map_err(|_| format!("provenance 'min_confidence': unknown level {w}"))?,
+            ),
+        };
+        let exclude_flags = v
+            .get("exclude_flags")
+            .and_then(|x| x.as_array())
+            .map(|a| a.iter().filter_map(|x| x.as_str()).collect::<Vec<_>>())
+            .unwrap_or_default()
+            .into_iter()
+            .map(|w| {
+                serde_json::from_str::<Flag>(&word(w))
+                    .map_err(|_| format!("provenance 'exclude_flags': unknown flag {w}"))
+            })
+            .collect::<Result<_, _>>()?;
+        Ok(Provenance {
+            zvet_version: text("zvet_version")?,
+            campaign: text("campaign")?,
+            template_set: text("template_set")?,
+            engine,
+            date,
+            tolerance,
+            min_confidence,
+            exclude_flags,
+        })
+    }
+}
+
+/// Units, types and descriptions of the columns as JSON (CSV sidecar).
+pub(crate) fn columns_json() -> serde_json::Value {
+    COLUMNS
+        .iter()
+        .map(|c| {
+            serde_json::json!({
+                "name": c.name,
+                "datatype": ecsv::datatype(c.kind()),
+                "unit": c.unit,
+                "description": c.doc,
+            })
+        })
+        .collect()
+}
+
 fn finite(x: f64) -> Option<f64> {
     x.is_finite().then_some(x)
 }
@@ -192,14 +286,16 @@ pub fn build_rows(
 /// Output format by file name.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Format {
-    /// CSV with `#` provenance lines.
+    /// Plain CSV, provenance in the `.json` sidecar.
     Csv,
+    /// astropy's Enhanced CSV (ECSV 1.0).
+    Ecsv,
     /// FITS binary table.
     Fits,
 }
 
 impl Format {
-    /// From the extension (`.csv`, `.fits`, `.fit`, `.fts`; case-insensitive).
+    /// From the extension (`.csv`, `.ecsv`, `.fits`, `.fit`, `.fts`; case-insensitive).
     pub fn of(path: &Path) -> Result<Format, ExportError> {
         let ext = path
             .extension()
@@ -207,6 +303,7 @@ impl Format {
             .map(str::to_ascii_lowercase);
         match ext.as_deref() {
             Some("csv") => Ok(Format::Csv),
+            Some("ecsv") => Ok(Format::Ecsv),
             Some("fits" | "fit" | "fts") => Ok(Format::Fits),
             _ => Err(ExportError::UnknownFormat(path.to_path_buf())),
         }
@@ -217,14 +314,16 @@ impl Format {
 pub fn write(path: &Path, rows: &[ExportRow], prov: &Provenance) -> Result<(), ExportError> {
     match Format::of(path)? {
         Format::Csv => write_csv(path, rows, prov),
+        Format::Ecsv => write_ecsv(path, rows, prov),
         Format::Fits => write_fits(path, rows, prov),
     }
 }
 
-/// Read an export back (either format).
+/// Read an export back (any format).
 pub fn read(path: &Path) -> Result<(Vec<ExportRow>, Provenance), ExportError> {
     match Format::of(path)? {
         Format::Csv => read_csv(path),
+        Format::Ecsv => read_ecsv(path),
         Format::Fits => read_fits(path),
     }
 }

@@ -25,13 +25,17 @@ mod fits_common;
 mod fits_image;
 mod fits_scan;
 mod fits_table;
+mod frames;
 mod text;
+mod timing;
 
 pub use detect::{detect_format, Format};
 pub use error::{LoadError, Loc};
 pub use fits_scan::{
     fits_layout, fits_layout_exact, layout_of_bytes, ColumnForm, HduLayout, MAX_INFLATED, MAX_PIXELS,
 };
+pub use frames::{frame_layout, FrameLayout, RowUse};
+pub use timing::{stream_file_timed, FileReadTime, Timed};
 
 use crate::spectrum::{air_to_vacuum, Medium, Spectrum, SpectrumMeta};
 use std::path::{Path, PathBuf};
@@ -453,11 +457,18 @@ pub fn stream_file(
     let format = detect_format(path).map_err(wrap)?;
     let path_buf = path.to_path_buf();
     let it: Box<dyn Iterator<Item = Result<Spectrum, LoadError>> + Send> = match format {
-        Format::Fits => Box::new(
-            fits_common::open_stream(path, opts)
-                .map_err(wrap)?
-                .map(move |r| r.map_err(|e| e.with_path(&path_buf))),
-        ),
+        // A multi-object frame (2-D image + row table) is read by its own reader.
+        Format::Fits => match frames::open_stream(path, opts).map_err(wrap)? {
+            Some(frame) => {
+                let p = path_buf.clone();
+                Box::new(frame.map(move |r| r.map_err(|e| e.with_path(&p))))
+            }
+            None => Box::new(
+                fits_common::open_stream(path, opts)
+                    .map_err(wrap)?
+                    .map(move |r| r.map_err(|e| e.with_path(&path_buf))),
+            ),
+        },
         Format::Text => {
             let s = text::read_text(path, opts).map_err(wrap)?;
             Box::new(std::iter::once(Ok(s)))

@@ -1,4 +1,4 @@
-//! The training catalogue: CSV and FITS round trips and what astropy reads.
+//! The training catalogue: CSV, ECSV and FITS round trips and what astropy reads.
 use super::{data, strings};
 use crate::support;
 use approx::assert_relative_eq;
@@ -17,7 +17,7 @@ pub fn sample_rows() -> Vec<ExportRow> {
     let base = ExportRow {
         catalog: zvet::catalog::CatalogRow {
             id: "obj-0001".into(),
-            ra: Some(150.123456789012),
+            ra: Some(150.1234568),
             dec: Some(-2.5),
             mag: [Some(21.03), Some(20.11), Some(19.72), Some(19.5), Some(19.41)],
             mag_err: [Some(0.08), Some(0.02), Some(0.015), Some(0.02), Some(0.05)],
@@ -113,18 +113,75 @@ fn export_csv_round_trip() {
     let (back, prov) = export::read(&p).unwrap();
     assert_eq!(back, rows);
     assert_eq!(prov, sample_provenance());
+    // Header row first, nothing before it; provenance in the sidecar.
     let text = std::fs::read_to_string(&p).unwrap();
-    assert!(text.starts_with("# format: zvet training catalogue\n"));
-    assert!(text.contains("# template_set: builtin\n"));
-    // The colour columns are the magnitude differences.
-    let mut rd = csv::ReaderBuilder::new()
-        .comment(Some(b'#'))
-        .from_reader(text.as_bytes());
+    assert!(text.starts_with("id,ra,dec,mag_u,"), "{}", &text[..40]);
+    assert!(!text.contains("\n#"));
+    let side: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("cat.csv.json")).unwrap()).unwrap();
+    assert_eq!(side["template_set"], "builtin");
+    assert_eq!(side["table"], "cat.csv");
+    assert_eq!(side["columns"][1]["unit"], "deg");
+    assert_eq!(side["columns"].as_array().unwrap().len(), COLUMNS.len());
+    // The colour columns are the magnitude differences, at 0.001 mag:
+    // 21.03 − 20.11 is 0.9200000000000017 in binary (IEEE 754 doubles).
+    let mut rd = csv::Reader::from_reader(text.as_bytes());
     let hdr = rd.headers().unwrap().clone();
     let col = |n: &str| hdr.iter().position(|h| h == n).unwrap();
     let first = rd.records().next().unwrap().unwrap();
-    let ug: f64 = first[col("u_g")].parse().unwrap();
-    assert_relative_eq!(ug, 21.03 - 20.11, epsilon = 1e-12);
+    assert_eq!(&first[col("u_g")], "0.920");
+    assert_eq!(&first[col("mag_r_err")], "0.0150");
+    assert_eq!(&first[col("auto_z")], "0.3123456789");
+    assert_eq!(&first[col("auto_z_err")], "0.000120");
+    assert_eq!(&first[col("ra")], "150.1234568");
+}
+
+#[test]
+fn export_ecsv_round_trip() {
+    let dir = support::scratch("export_ecsv");
+    let p = dir.join("cat.ecsv");
+    let rows = sample_rows();
+    export::write(&p, &rows, &sample_provenance()).unwrap();
+    let (back, prov) = export::read(&p).unwrap();
+    assert_eq!(back, rows);
+    assert_eq!(prov, sample_provenance());
+    let text = std::fs::read_to_string(&p).unwrap();
+    // ECSV 1.0 (astropy APE 6): the first two lines are fixed.
+    assert!(text.starts_with("# %ECSV 1.0\n# ---\n"));
+    assert!(text.contains("# - {\"name\": \"ra\", \"unit\": \"deg\", \"datatype\": \"float64\""));
+}
+
+/// Values written with more digits than they mean come out at the column's
+/// precision in every format, and read back as those rounded values.
+#[test]
+fn export_rounds_to_meaningful_precision() {
+    let dir = support::scratch("export_precision");
+    let mut r = sample_rows().remove(0);
+    r.catalog.ra = Some(150.123456789012);
+    // 21.03 − 18.88 = 2.1499999999999986 in IEEE 754 doubles.
+    r.catalog.mag = [Some(21.03), Some(18.88), Some(19.0), Some(18.5), Some(18.25)];
+    r.catalog.mag_err = [Some(0.012345), Some(0.02), Some(0.02), Some(0.02), Some(0.02)];
+    r.vetted_z = Some(0.123456789012345);
+    for name in ["p.csv", "p.ecsv", "p.fits"] {
+        let p = dir.join(name);
+        export::write(&p, std::slice::from_ref(&r), &sample_provenance()).unwrap();
+        let back = export::read(&p).unwrap().0.remove(0);
+        assert_eq!(
+            back.colours()[0],
+            Some(21.03 - 18.88),
+            "{name}: colours derive from the magnitudes"
+        );
+        assert_eq!(back.catalog.ra, Some(150.1234568), "{name}");
+        assert_eq!(back.catalog.mag_err[0], Some(0.0123), "{name}");
+        // Redshifts keep full precision.
+        assert_eq!(back.vetted_z, r.vetted_z, "{name}");
+        if name != "p.fits" {
+            let text = std::fs::read_to_string(&p).unwrap();
+            assert!(text.contains(",2.150,"), "{name}");
+            assert!(text.contains(",0.123456789012345,"), "{name}");
+            assert!(!text.contains("2.1499999"), "{name}");
+        }
+    }
 }
 
 #[test]
@@ -152,9 +209,41 @@ fn export_fixture_for_astropy() {
 }
 
 #[test]
+fn csv_columns_are_found_by_name_in_any_order() {
+    let dir = support::scratch("export_by_name");
+    let p = dir.join("cat.csv");
+    let rows = sample_rows();
+    export::write(&p, &rows, &sample_provenance()).unwrap();
+    // Reverse the column order and add a column of the user's own.
+    let text = std::fs::read_to_string(&p).unwrap();
+    let mut rd = csv::Reader::from_reader(text.as_bytes());
+    let mut w = csv::Writer::from_writer(Vec::new());
+    let hdr: Vec<String> = rd.headers().unwrap().iter().map(String::from).collect();
+    w.write_record(hdr.iter().rev().map(String::as_str).chain(["my_score"]))
+        .unwrap();
+    for rec in rd.records() {
+        let rec = rec.unwrap();
+        let v: Vec<&str> = rec.iter().collect();
+        w.write_record(v.iter().rev().copied().chain(["7"])).unwrap();
+    }
+    std::fs::write(&p, w.into_inner().unwrap()).unwrap();
+    assert_eq!(export::read(&p).unwrap().0, rows);
+    // Without a needed column the error names it.
+    let text = std::fs::read_to_string(&p)
+        .unwrap()
+        .replacen("vetted_z,", "vz,", 1);
+    std::fs::write(&p, text).unwrap();
+    let err = export::read(&p).unwrap_err().to_string();
+    assert!(
+        err.contains("missing column(s) vetted_z") && err.contains("line 1"),
+        "{err}"
+    );
+}
+
+#[test]
 fn export_of_no_rows_reads_back_empty() {
     let dir = support::scratch("export_empty");
-    for name in ["empty.csv", "empty.fits"] {
+    for name in ["empty.csv", "empty.ecsv", "empty.fits"] {
         let p = dir.join(name);
         export::write(&p, &[], &sample_provenance()).unwrap();
         let (rows, prov) = export::read(&p).unwrap();
@@ -168,15 +257,28 @@ fn reading_a_foreign_or_damaged_export_is_an_error() {
     let dir = support::scratch("export_bad");
     let p = dir.join("other.csv");
     std::fs::write(&p, "a,b\n1,2\n").unwrap();
-    assert!(export::read(&p).is_err());
+    let err = export::read(&p).unwrap_err().to_string();
+    assert!(err.contains("sidecar") && err.contains("other.csv.json"), "{err}");
     let good = dir.join("good.csv");
     export::write(&good, &sample_rows(), &sample_provenance()).unwrap();
+    std::fs::copy(dir.join("good.csv.json"), dir.join("other.csv.json")).unwrap();
+    let err = export::read(&p).unwrap_err().to_string();
+    assert!(err.contains("missing column(s) id, ra"), "{err}");
     let text = std::fs::read_to_string(&good)
         .unwrap()
         .replace(",galaxy,", ",galaxxy,");
     std::fs::write(&p, text).unwrap();
     let err = export::read(&p).unwrap_err().to_string();
-    assert!(err.contains("line 12") && err.contains("galaxxy"), "{err}");
+    assert!(err.contains("line 2") && err.contains("galaxxy"), "{err}");
+    // A damaged ECSV header is an error, not a panic.
+    let e = dir.join("bad.ecsv");
+    std::fs::write(&e, "# %ECSV 1.0\n# ---\n# meta:\n#   \"date\": nonsense\nid\n").unwrap();
+    assert!(export::read(&e).unwrap_err().to_string().contains("line 4"));
+    std::fs::write(&e, "id,ra\n").unwrap();
+    assert!(export::read(&e)
+        .unwrap_err()
+        .to_string()
+        .contains("not an ECSV file"));
     std::fs::write(dir.join("bad.fits"), b"SIMPLE  = T").unwrap();
     assert!(export::read(&dir.join("bad.fits")).is_err());
 }
@@ -184,7 +286,7 @@ fn reading_a_foreign_or_damaged_export_is_an_error() {
 #[test]
 fn export_rejects_unknown_extension() {
     let err = export::write(Path::new("x.txt"), &[], &sample_provenance()).unwrap_err();
-    assert!(err.to_string().contains(".csv or .fits"));
+    assert!(err.to_string().contains(".csv, .ecsv or .fits"));
     assert_eq!(COLUMNS.len(), 36);
 }
 
@@ -204,7 +306,7 @@ fn export_matches_astropy_view() {
     for (j, (spec, c)) in COLUMNS.iter().zip(cols).enumerate() {
         assert_eq!(c["name"], spec.name);
         let (kind, size) = (c["kind"].as_str().unwrap(), c["itemsize"].as_u64().unwrap());
-        match spec.kind {
+        match spec.kind() {
             Kind::F64 => assert_eq!((kind, size), ("f", 8), "{}", spec.name),
             Kind::I16 => assert_eq!((kind, size), ("i", 2), "{}", spec.name),
             Kind::Str => assert!(kind == "S" || kind == "U", "{}", spec.name),

@@ -3,7 +3,7 @@
 
 Usage (from the repository root):
     cargo test --no-default-features --test integration records::export::export_fixture_for_astropy
-    python3 tests/scripts/check_export_astropy.py
+    PYTHONPATH=target/reference/python python3 tests/scripts/check_export_astropy.py
 
 The first command writes target/test-scratch/astropy_export/sample.{fits,csv}
 (the fixed rows of tests/records/export.rs::sample_rows). This script opens them with

@@ -135,3 +135,60 @@ pub fn g2_model() -> PathBuf {
 pub fn linetools_list(name: &str) -> PathBuf {
     reference_file("linetools==0.3.2", &format!("linetools/data/lines/{name}"))
 }
+
+/// The Python reference libraries the export and frame checks run with,
+/// pinned (installed from the package index with pip into
+/// `target/reference/python/`, never committed).
+pub const PYTHON_LIBS: &[&str] = &["astropy==8.0.2", "pandas==3.1.1", "numpy==2.4.6"];
+
+/// `python3` with [`PYTHON_LIBS`] on its path (installed once with
+/// `pip install --target`); panics with pip's message when that fails.
+pub fn reference_python() -> Command {
+    let _guard = FETCH.lock().unwrap_or_else(|e| e.into_inner());
+    let dir = target_dir().join("reference").join("python");
+    let done = dir.join(".installed");
+    let want = PYTHON_LIBS.join(" ");
+    if std::fs::read_to_string(&done).ok().as_deref() != Some(want.as_str()) {
+        let _ = std::fs::remove_dir_all(&dir);
+        std::fs::create_dir_all(&dir).expect("create target/reference/python");
+        let out = Command::new("python3")
+            .args(["-m", "pip", "install", "--only-binary=:all:", "-q", "--target"])
+            .arg(&dir)
+            .args(PYTHON_LIBS)
+            .output()
+            .unwrap_or_else(|e| panic!("cannot run python3 to install {want}: {e}"));
+        assert!(
+            out.status.success(),
+            "installing {want} with pip failed:\n{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        std::fs::write(&done, &want).expect("mark installed");
+    }
+    let mut cmd = Command::new("python3");
+    cmd.env("PYTHONPATH", &dir).env("PYTHONNOUSERSITE", "1");
+    cmd
+}
+
+/// Run `tests/scripts/<script>` with [`reference_python`] and `args`; its
+/// standard output parsed as JSON. Panics with the script's stderr on failure.
+pub fn run_reference_script(script: &str, args: &[&Path]) -> serde_json::Value {
+    let path = Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("tests/scripts")
+        .join(script);
+    let out = reference_python()
+        .arg(&path)
+        .args(args)
+        .output()
+        .unwrap_or_else(|e| panic!("cannot run {script}: {e}"));
+    assert!(
+        out.status.success(),
+        "{script} failed:\n{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    serde_json::from_slice(&out.stdout).unwrap_or_else(|e| {
+        panic!(
+            "{script} printed no JSON ({e}):\n{}",
+            String::from_utf8_lossy(&out.stdout)
+        )
+    })
+}
