@@ -4,6 +4,8 @@ mod support;
 mod fit;
 #[cfg(feature = "gui")]
 mod gui;
+#[cfg(feature = "gui")]
+mod gui_review;
 mod io;
 mod lines;
 mod records;

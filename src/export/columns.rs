@@ -88,8 +88,13 @@ pub const COLUMNS: [ColumnSpec; 36] = [
     col("vetted_z", F64, None, "vetted redshift"),
     col("vetted_z_err", F64, None, "its 1σ error"),
     col("z_source", Str, None, "automatic, candidate, refit or typed"),
-    col("confidence", Str, None, "doubtful, tentative, solid, certain"),
-    col("confidence_level", I16, None, "confidence 1–4 (FITS: 0 = none)"),
+    col("confidence", Str, None, "certainty: guess, probable, secure"),
+    col(
+        "confidence_level",
+        I16,
+        None,
+        "certainty 1–3: 1 guess, 2 probable, 3 secure (FITS: 0 = none)",
+    ),
     col("flags", Str, None, "inspector flags, `,`-separated"),
     col("note", Str, None, "inspectors' notes"),
     col(
