@@ -55,8 +55,14 @@ pub struct QueueItem {
     pub snr: f64,
     /// The photometric classifier's class.
     pub phot_class: Option<ObjectClass>,
-    /// Class of the current verdict (None = not reviewed).
+    /// Class of the current verdict (None = no class recorded).
     pub verdict_class: Option<VerdictClass>,
+    /// Redshift of the current verdict.
+    pub verdict_z: Option<f64>,
+    /// The verdict is complete ([`Verdict::is_complete`]): the object counts as reviewed.
+    pub complete: bool,
+    /// Something is recorded on the object (a flag, a note, a class…).
+    pub started: bool,
     /// Flags of the current verdict.
     pub flags: Vec<Flag>,
 }
@@ -77,15 +83,19 @@ impl QueueItem {
                 .unwrap_or_else(|| obj.spectrum.median_snr()),
             phot_class: obj.catalog.as_ref().and_then(|c| c.phot_class),
             verdict_class: verdict.and_then(|v| v.class),
+            verdict_z: verdict.and_then(|v| v.z),
+            complete: verdict.is_some_and(Verdict::is_complete),
+            started: verdict.is_some_and(|v| *v != Verdict::default()),
             flags: verdict
                 .map(|v| v.flags.iter().copied().collect())
                 .unwrap_or_default(),
         }
     }
 
-    /// True once the inspector has set a class.
+    /// True once the verdict is complete (class, grade and, unless
+    /// unclear, redshift): the same rule the export and the report use.
     pub fn is_reviewed(&self) -> bool {
-        self.verdict_class.is_some()
+        self.complete
     }
 
     /// True when the photometric class and the fit's class both exist and differ.
@@ -96,6 +106,16 @@ impl QueueItem {
     /// The class the object currently has: the verdict's, else the fit's.
     pub fn current_class(&self) -> Option<VerdictClass> {
         self.verdict_class.or(self.fit_class.map(VerdictClass::from))
+    }
+
+    /// The redshift the object currently has: the verdict's once a class is
+    /// recorded (None for unclear or a class without z), else the fit's.
+    pub fn current_z(&self) -> Option<f64> {
+        if self.verdict_class.is_some() {
+            self.verdict_z
+        } else {
+            self.fit_z
+        }
     }
 
     /// How much the object needs a human, higher first. Each reason adds a
@@ -175,9 +195,9 @@ pub enum StatusFilter {
     /// Everything.
     #[default]
     Any,
-    /// Only objects without a class verdict.
+    /// Only objects without a complete verdict.
     Unreviewed,
-    /// Only objects with a class verdict.
+    /// Only objects with a complete verdict.
     Reviewed,
 }
 
@@ -289,16 +309,51 @@ mod tests {
             snr: 10.0,
             phot_class: Some(ObjectClass::Galaxy),
             verdict_class: None,
+            verdict_z: None,
+            complete: false,
+            started: false,
             flags: vec![],
         }
+    }
+
+    fn reviewed(mut i: QueueItem, class: VerdictClass, z: Option<f64>) -> QueueItem {
+        i.verdict_class = Some(class);
+        i.verdict_z = z;
+        i.complete = true;
+        i.started = true;
+        i
+    }
+
+    #[test]
+    fn a_reviewed_row_carries_the_vetted_class_and_z() {
+        let obj = crate::demo::generate_n(crate::demo::DEFAULT_SEED, 1)
+            .objects
+            .remove(0);
+        let typed = Verdict {
+            class: Some(VerdictClass::Quasar),
+            z: Some(5.424),
+            confidence: Some(crate::review::Confidence::Secure),
+            ..Default::default()
+        };
+        let it = QueueItem::new(&obj, None, Some(&typed));
+        assert!(it.is_reviewed());
+        assert_eq!(it.current_class(), Some(VerdictClass::Quasar));
+        assert_eq!(it.current_z(), Some(5.424));
+        // A class with no redshift is not a review, and shows no z.
+        let half = Verdict {
+            class: Some(VerdictClass::Star),
+            ..Default::default()
+        };
+        let it = QueueItem::new(&obj, None, Some(&half));
+        assert!(!it.is_reviewed() && it.started);
+        assert_eq!(it.current_z(), None);
     }
 
     #[test]
     fn unreviewed_come_first_then_by_attention() {
         let clean = item("clean");
-        let mut reviewed_bad = item("reviewed_bad");
+        let mut reviewed_bad = reviewed(item("reviewed_bad"), VerdictClass::Galaxy, Some(0.3));
         reviewed_bad.phot_class = Some(ObjectClass::Quasar);
-        reviewed_bad.verdict_class = Some(VerdictClass::Galaxy);
         let mut faint = item("faint");
         faint.snr = 1.0;
         let mut warned = item("warned");
@@ -342,8 +397,7 @@ mod tests {
     fn filters_select_what_they_say() {
         let mut a = item("a");
         a.phot_class = Some(ObjectClass::Quasar);
-        let mut b = item("b");
-        b.verdict_class = Some(VerdictClass::Star);
+        let mut b = reviewed(item("b"), VerdictClass::Star, Some(0.0));
         b.flags = vec![Flag::Blend];
         let mut c = item("c");
         c.delta_chi2 = Some(4.0);

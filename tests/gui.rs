@@ -11,11 +11,11 @@ use zvet::review::{read_log, Change, Confidence, Event, Flag, VerdictClass, ZSou
 use zvet::ui::{LogPlace, Session, ZvetApp};
 
 /// Objects in the test survey (the hard cases come first in the demo order).
-const N: usize = 10;
+pub(crate) const N: usize = 10;
 
 /// The demo's first objects with their automatic fits already attached, so
 /// the tests do not wait for the background workers.
-fn fitted_objects() -> Vec<zvet::campaign::SurveyObject> {
+pub(crate) fn fitted_objects() -> Vec<zvet::campaign::SurveyObject> {
     static FITS: std::sync::OnceLock<Vec<Option<FitResult>>> = std::sync::OnceLock::new();
     let survey = demo::generate_n(demo::DEFAULT_SEED, N);
     let fits = FITS.get_or_init(|| {
@@ -37,7 +37,7 @@ fn fitted_objects() -> Vec<zvet::campaign::SurveyObject> {
         .collect()
 }
 
-fn new_app(log: &Path) -> ZvetApp {
+pub(crate) fn new_app(log: &Path) -> ZvetApp {
     ZvetApp::new(Session {
         title: demo::SURVEY_NAME.to_string(),
         objects: fitted_objects(),
@@ -48,7 +48,7 @@ fn new_app(log: &Path) -> ZvetApp {
     })
 }
 
-fn harness(log: &Path) -> Harness<'static, ZvetApp> {
+pub(crate) fn harness(log: &Path) -> Harness<'static, ZvetApp> {
     let mut h = Harness::builder()
         .with_size(egui::vec2(1500.0, 950.0))
         .build_ui_state(|ui, app: &mut ZvetApp| app.show(ui), new_app(log));
@@ -56,29 +56,29 @@ fn harness(log: &Path) -> Harness<'static, ZvetApp> {
     h
 }
 
-fn log_path(name: &str) -> (tempfile::TempDir, PathBuf) {
+pub(crate) fn log_path(name: &str) -> (tempfile::TempDir, PathBuf) {
     let dir = tempfile::tempdir().unwrap();
     let p = dir.path().join(format!("{name}.jsonl"));
     (dir, p)
 }
 
-fn events(log: &Path) -> Vec<Event> {
+pub(crate) fn events(log: &Path) -> Vec<Event> {
     if !log.exists() {
         return Vec::new();
     }
     read_log(log).unwrap().0
 }
 
-fn last_change(log: &Path) -> Change {
+pub(crate) fn last_change(log: &Path) -> Change {
     events(log).last().expect("an event was recorded").change.clone()
 }
 
-fn selected_id(h: &Harness<'_, ZvetApp>) -> String {
+pub(crate) fn selected_id(h: &Harness<'_, ZvetApp>) -> String {
     let s = &h.state().state;
     s.objects[s.selected.unwrap()].id().to_string()
 }
 
-fn press(h: &mut Harness<'_, ZvetApp>, key: Key) {
+pub(crate) fn press(h: &mut Harness<'_, ZvetApp>, key: Key) {
     h.key_press(key);
     h.run_steps(2);
 }
@@ -115,7 +115,7 @@ fn space_then_n_vets_a_clean_object_in_two_keys() {
             z: Some(best.z),
             z_err: Some(best.z_err),
             source: ZSource::Automatic,
-            confidence: Confidence::Solid,
+            confidence: Confidence::Secure,
         }
     );
     let fit = ev[0].fit.as_ref().expect("the fit seen is recorded");
@@ -130,17 +130,23 @@ fn class_confidence_flag_and_note_by_keyboard() {
     let mut h = harness(&log);
     let id = selected_id(&h);
     press(&mut h, Key::Q);
-    assert_eq!(
-        last_change(&log),
-        Change::Class {
-            class: VerdictClass::Quasar
+    // A class key records a complete verdict: the class with a redshift.
+    match last_change(&log) {
+        Change::Verdict {
+            class, z, confidence, ..
+        } => {
+            assert_eq!(class, VerdictClass::Quasar);
+            assert!(z.is_some_and(f64::is_finite));
+            assert_eq!(confidence, Confidence::Secure);
         }
-    );
-    press(&mut h, Key::Num4);
+        other => panic!("expected a verdict, got {other:?}"),
+    }
+    h.key_press_modifiers(egui::Modifiers::SHIFT, Key::P);
+    h.run_steps(2);
     assert_eq!(
         last_change(&log),
         Change::Confidence {
-            confidence: Confidence::Certain
+            confidence: Confidence::Probable
         }
     );
     press(&mut h, Key::F);
@@ -183,18 +189,24 @@ fn class_confidence_flag_and_note_by_mouse() {
     let mut h = harness(&log);
     h.get_by_label("star").click();
     h.run_steps(2);
-    assert_eq!(
-        last_change(&log),
-        Change::Class {
-            class: VerdictClass::Star
-        }
+    assert!(
+        matches!(
+            last_change(&log),
+            Change::Verdict {
+                class: VerdictClass::Star,
+                z: Some(_),
+                ..
+            }
+        ),
+        "{:?}",
+        last_change(&log)
     );
-    h.get_by_label("tentative").click();
+    h.get_by_label("probable").click();
     h.run_steps(2);
     assert_eq!(
         last_change(&log),
         Change::Confidence {
-            confidence: Confidence::Tentative
+            confidence: Confidence::Probable
         }
     );
     h.get_by_label("sky residual").click();
@@ -271,7 +283,7 @@ fn previewing_and_accepting_a_candidate() {
             z: Some(second.z),
             z_err: Some(second.z_err),
             source: ZSource::Candidate,
-            confidence: Confidence::Solid,
+            confidence: Confidence::Secure,
         }
     );
 }
@@ -287,12 +299,15 @@ fn typing_a_redshift() {
     h.run_steps(1);
     h.get_by_label("set z").click();
     h.run_steps(2);
+    let class = h.state().state.shown.as_ref().unwrap().class();
     assert_eq!(
         last_change(&log),
-        Change::Redshift {
-            z: 0.51234,
+        Change::Verdict {
+            class: class.into(),
+            z: Some(0.51234),
             z_err: None,
-            source: ZSource::Typed
+            source: ZSource::Typed,
+            confidence: Confidence::Secure,
         }
     );
     // Nonsense is refused with a message, nothing recorded.
@@ -408,7 +423,7 @@ fn errors_show_in_the_window_and_nothing_crashes() {
 
 /// Key press and its character in one frame, as a real keyboard delivers
 /// them (kittest's `key_press` spreads events over frames).
-fn key_and_text(key: Key, text: &str) -> [egui::Event; 3] {
+pub(crate) fn key_and_text(key: Key, text: &str) -> [egui::Event; 3] {
     let k = |pressed| egui::Event::Key {
         key,
         pressed,
@@ -482,8 +497,12 @@ fn opening_a_campaign_folder_reads_spectra_catalogue_and_uses_its_logs() {
     let camp_log = camp.join("reviews").join("tester.jsonl");
     assert_eq!(
         last_change(&camp_log),
-        Change::Class {
-            class: VerdictClass::Unclear
+        Change::Verdict {
+            class: VerdictClass::Unclear,
+            z: None,
+            z_err: None,
+            source: ZSource::Typed,
+            confidence: Confidence::Secure,
         }
     );
     assert!(events(&log).is_empty(), "the demo's log was left alone");
@@ -507,13 +526,13 @@ fn typing_a_redshift_from_the_keyboard_replaces_the_old_one() {
     });
     h.step();
     h.run_steps(2);
-    assert_eq!(
-        last_change(&log),
-        Change::Redshift {
-            z: 1.234,
-            z_err: None,
-            source: ZSource::Typed
-        }
+    assert!(
+        matches!(
+            last_change(&log),
+            Change::Verdict { z: Some(z), source: ZSource::Typed, .. } if (z - 1.234).abs() < 1e-12
+        ),
+        "{:?}",
+        last_change(&log)
     );
 }
 

@@ -6,6 +6,8 @@ mod fuzz;
 mod frames;
 #[cfg(feature = "gui")]
 mod gui;
+#[cfg(feature = "gui")]
+mod gui_review;
 mod io;
 mod lines;
 mod records;

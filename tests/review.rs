@@ -17,7 +17,7 @@ fn accept(z: f64) -> Change {
         z: Some(z),
         z_err: Some(2e-4),
         source: ZSource::Automatic,
-        confidence: Confidence::Solid,
+        confidence: Confidence::Secure,
     }
 }
 

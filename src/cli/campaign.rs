@@ -170,8 +170,16 @@ fn status(a: StatusArgs) -> anyhow::Result<ExitCode> {
     println!("  fits      {} cached", fits.len());
     let (logs, problems) = c.read_logs()?;
     for l in &logs {
-        let reviewed = l.verdicts.values().filter(|v| v.class.is_some()).count();
+        let reviewed = l.verdicts.values().filter(|v| v.is_complete()).count();
         println!("  inspector {:<16} {reviewed} reviewed", l.inspector);
+    }
+    // Registered inspectors who have not reviewed yet are listed too.
+    for name in m
+        .inspectors
+        .iter()
+        .filter(|n| !logs.iter().any(|l| &l.inspector == *n))
+    {
+        println!("  inspector {name:<16} 0 reviewed");
     }
     for p in fit_problems.iter().chain(&problems) {
         println!("  problem   {p}");

@@ -19,7 +19,9 @@ pub struct Args {
     /// (astropy's Enhanced CSV, units and provenance in its header) or `.fits`.
     #[arg(long, value_name = "FILE")]
     pub out: PathBuf,
-    /// Keep only objects at or above this confidence (doubtful, tentative, solid, certain).
+    /// Keep only objects at or above this certainty (guess, probable, secure;
+    /// the old words doubtful, tentative, solid, certain are read as guess,
+    /// probable, secure, secure).
     #[arg(long, value_name = "LEVEL", value_parser = parse_confidence)]
     pub min_confidence: Option<Confidence>,
     /// Leave out objects with any of these flags (comma-separated).
@@ -54,11 +56,13 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
         eprintln!("zvet: warning: {p}");
     }
     println!(
-        "{} objects written to {} ({} left out by the filters, {} conflicts awaiting adjudication)",
+        "{} objects written to {} ({} left out by the filters, {} conflicts awaiting adjudication, \
+         {} incomplete verdicts left out)",
         s.rows,
         args.out.display(),
         s.filtered,
-        s.conflicts
+        s.conflicts,
+        s.incomplete
     );
     if crate::export::Format::of(&args.out).ok() == Some(crate::export::Format::Csv) {
         println!(

@@ -422,14 +422,14 @@ pub const COLUMNS: [ColumnSpec; 36] = [
     ),
     vocab!(
         "confidence",
-        "doubtful, tentative, solid, certain",
+        "certainty: guess, probable, secure",
         Confidence,
         confidence
     ),
     col(
         "confidence_level",
         None,
-        "confidence 1–4 (FITS: 0 = none)",
+        "certainty 1–3: 1 guess, 2 probable, 3 secure (FITS: 0 = none)",
         Access::I16(|r| r.confidence.map(|x| i16::from(x.level())), derived),
     ),
     col(

@@ -237,8 +237,10 @@ fn finite(x: f64) -> Option<f64> {
     x.is_finite().then_some(x)
 }
 
-/// Rows for every object with a consensus verdict that passes the filters,
-/// sorted by id. Conflicts have no verdict and are left out.
+/// Rows for every object with a complete consensus verdict
+/// ([`crate::review::Verdict::is_complete`]) that passes the filters, sorted
+/// by id. Conflicts have no verdict and are left out, and so are incomplete
+/// verdicts (e.g. a class without a redshift in an old log).
 pub fn build_rows(
     merged: &Merged,
     catalog: &BTreeMap<String, CatalogRow>,
@@ -248,7 +250,9 @@ pub fn build_rows(
     let mut rows = Vec::new();
     for (id, c) in &merged.objects {
         let Some(v) = &c.verdict else { continue };
-        let Some(class) = v.class else { continue };
+        let Some(class) = v.class.filter(|_| v.is_complete()) else {
+            continue;
+        };
         if let Some(min) = opts.min_confidence {
             if v.confidence.is_none_or(|x| x < min) {
                 continue;
@@ -337,6 +341,8 @@ pub struct ExportSummary {
     pub filtered: usize,
     /// Conflicts left out (no consensus yet).
     pub conflicts: usize,
+    /// Consensus verdicts left out because they are incomplete.
+    pub incomplete: usize,
     /// Problems met while reading logs, fits and catalogue.
     pub problems: Vec<String>,
 }
@@ -361,12 +367,18 @@ pub fn export_campaign(
     }
     let rows = build_rows(&merged, &catalog, &fits, opts);
     let conflicts = merged.conflicts().count();
-    let with_verdict = merged.objects.len() - conflicts;
+    let incomplete = merged
+        .objects
+        .values()
+        .filter(|c| c.verdict.as_ref().is_some_and(|v| !v.is_complete()))
+        .count();
+    let with_verdict = merged.objects.len() - conflicts - incomplete;
     write(out, &rows, &Provenance::for_campaign(campaign, &merged, opts))?;
     Ok(ExportSummary {
         rows: rows.len(),
         filtered: with_verdict - rows.len(),
         conflicts,
+        incomplete,
         problems,
     })
 }

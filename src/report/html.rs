@@ -132,14 +132,8 @@ pub fn render(n: &ReportNumbers, svgs: &[(String, String)]) -> String {
     }
 
     o.push_str("<h2>Progress per inspector</h2><table><tr><th>inspector</th><th>reviewed</th>");
-    for c in [
-        "doubtful",
-        "tentative",
-        "solid",
-        "certain",
-        "no confidence",
-        "log problems",
-    ] {
+    let grades = crate::review::Confidence::ALL.map(|c| c.as_str());
+    for c in grades.iter().chain(&["no certainty", "log problems"]) {
         let _ = write!(o, "<th>{c}</th>");
     }
     o.push_str("</tr>");
@@ -153,7 +147,9 @@ pub fn render(n: &ReportNumbers, svgs: &[(String, String)]) -> String {
     o.push_str("</table>");
     o.push_str(&plot(svgs, "progress.svg"));
 
-    o.push_str("<h2>Confidence and flags (consensus verdicts)</h2><table><tr><th>confidence</th><th>objects</th></tr>");
+    o.push_str(
+        "<h2>Certainty and flags (consensus verdicts)</h2><table><tr><th>certainty</th><th>objects</th></tr>",
+    );
     for (k, v) in &n.confidence {
         let _ = write!(o, "<tr><th>{}</th><td>{v}</td></tr>", esc(k));
     }

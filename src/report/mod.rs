@@ -110,10 +110,10 @@ pub struct ZPair {
 pub struct InspectorProgress {
     /// Name.
     pub name: String,
-    /// Objects with a class in this inspector's log.
+    /// Objects with a complete verdict in this inspector's log.
     pub reviewed: usize,
-    /// Of those, per confidence level (doubtful … certain), then none.
-    pub by_confidence: [usize; 5],
+    /// Of those, per certainty grade (guess, probable, secure), then none.
+    pub by_confidence: [usize; 4],
     /// Unusable log lines.
     pub log_problems: usize,
 }
@@ -162,7 +162,7 @@ pub struct ReportNumbers {
     pub outliers: Vec<Outlier>,
     /// Per inspector.
     pub inspectors: Vec<InspectorProgress>,
-    /// Consensus verdicts per confidence level, weakest first, then `none`.
+    /// Complete consensus verdicts per certainty grade, weakest first, then `none`.
     pub confidence: Vec<(String, usize)>,
     /// Consensus verdicts per flag, in the flags' display order.
     pub flags: Vec<(String, usize)>,
@@ -200,8 +200,8 @@ pub fn numbers(input: &ReportInput) -> ReportNumbers {
     let mut auto = Vec::new();
     let mut z_pairs = Vec::new();
     let mut outliers = Vec::new();
-    // Counted by index: confidence levels 1–4 then "none"; flags in Flag::ALL order.
-    let mut confidence = [0usize; 5];
+    // Counted by index: certainty grades 1–3 then "none"; flags in Flag::ALL order.
+    let mut confidence = [0usize; 4];
     let mut flags = [0usize; Flag::ALL.len()];
     let mut conflicts = Vec::new();
     for (id, c) in objects {
@@ -210,8 +210,11 @@ pub fn numbers(input: &ReportInput) -> ReportNumbers {
             conflicts.push((id.clone(), c.reason.clone()));
             continue;
         };
-        let Some(class) = v.class else { continue };
-        confidence[v.confidence.map_or(4, |c| c.level() as usize - 1)] += 1;
+        // The same completeness rule as the queue and the export.
+        let Some(class) = v.class.filter(|_| v.is_complete()) else {
+            continue;
+        };
+        confidence[v.confidence.map_or(3, |c| c.level() as usize - 1)] += 1;
         for f in &v.flags {
             if let Some(i) = Flag::ALL.iter().position(|x| x == f) {
                 flags[i] += 1;
@@ -250,11 +253,11 @@ pub fn numbers(input: &ReportInput) -> ReportNumbers {
         .logs
         .iter()
         .map(|l| {
-            let mut by_confidence = [0usize; 5];
+            let mut by_confidence = [0usize; 4];
             let mut reviewed = 0;
-            for v in l.verdicts.values().filter(|v| v.class.is_some()) {
+            for v in l.verdicts.values().filter(|v| v.is_complete()) {
                 reviewed += 1;
-                by_confidence[v.confidence.map_or(4, |c| c.level() as usize - 1)] += 1;
+                by_confidence[v.confidence.map_or(3, |c| c.level() as usize - 1)] += 1;
             }
             InspectorProgress {
                 name: l.inspector.clone(),

@@ -181,11 +181,7 @@ impl ReviewLog {
         let parsed = parse(&bytes);
         let state = Replay::from_events(&parsed.events);
         let next_seq = parsed.events.iter().map(|e| e.seq).max().unwrap_or(0) + 1;
-        let reviewed = state
-            .objects
-            .values()
-            .filter(|s| s.verdict.class.is_some())
-            .count();
+        let reviewed = state.objects.values().filter(|s| s.verdict.is_complete()).count();
         Ok((
             ReviewLog {
                 path: path.to_path_buf(),
@@ -238,7 +234,7 @@ impl ReviewLog {
                 _ => ReviewError::NothingToRedo(object_id.to_string()),
             });
         }
-        let was_reviewed = obj.verdict.class.is_some();
+        let was_reviewed = obj.verdict.is_complete();
 
         let mut buf = Vec::with_capacity(256);
         if self.open_tail {
@@ -277,7 +273,7 @@ impl ReviewLog {
         self.file.sync_data().map_err(io)?;
 
         self.state.apply(&event);
-        let now_reviewed = self.state.objects[object_id].verdict.class.is_some();
+        let now_reviewed = self.state.objects[object_id].verdict.is_complete();
         match (was_reviewed, now_reviewed) {
             (false, true) => self.reviewed += 1,
             (true, false) => self.reviewed -= 1,
@@ -316,12 +312,12 @@ impl ReviewLog {
             .is_some_and(|s| s.can_redo(&self.inspector))
     }
 
-    /// True when the object's verdict has a class.
+    /// True when the object's verdict is complete ([`Verdict::is_complete`]).
     pub fn is_reviewed(&self, object_id: &str) -> bool {
-        self.verdict(object_id).is_some_and(|v| v.class.is_some())
+        self.verdict(object_id).is_some_and(Verdict::is_complete)
     }
 
-    /// Number of objects whose verdict has a class.
+    /// Number of objects whose verdict is complete.
     pub fn reviewed_count(&self) -> usize {
         self.reviewed
     }

@@ -509,20 +509,20 @@ mod tests {
 
     #[test]
     fn consensus_rules() {
-        let mut a1 = v(Galaxy, Some(0.500), Certain);
+        let mut a1 = v(Galaxy, Some(0.500), Secure);
         a1.flags.insert(Flag::Blend);
         a1.note = "strong Hα".into();
-        let mut b1 = v(Galaxy, Some(0.501), Tentative);
+        let mut b1 = v(Galaxy, Some(0.501), Probable);
         b1.flags.insert(Flag::SkyResidual);
         let a = log(
             "ana",
             vec![
                 ("agree", a1),
-                ("zdiff", v(Quasar, Some(2.0), Solid)),
-                ("cdiff", v(Star, Some(0.0), Solid)),
-                ("only_a", v(Unclear, None, Doubtful)),
-                ("adj", v(Galaxy, Some(0.1), Solid)),
-                ("unclear2", v(Unclear, None, Doubtful)),
+                ("zdiff", v(Quasar, Some(2.0), Secure)),
+                ("cdiff", v(Star, Some(0.0), Secure)),
+                ("only_a", v(Unclear, None, Guess)),
+                ("adj", v(Galaxy, Some(0.1), Secure)),
+                ("unclear2", v(Unclear, None, Guess)),
             ],
         );
         let b = log(
@@ -530,13 +530,13 @@ mod tests {
             vec![
                 ("agree", b1),
                 // |Δz|/(1+z̄) = 0.01/3.005 = 0.0033 > 0.0015
-                ("zdiff", v(Quasar, Some(2.01), Solid)),
-                ("cdiff", v(Galaxy, Some(0.0), Solid)),
-                ("adj", v(Quasar, Some(1.1), Solid)),
-                ("unclear2", v(Unclear, Some(0.3), Doubtful)),
+                ("zdiff", v(Quasar, Some(2.01), Secure)),
+                ("cdiff", v(Galaxy, Some(0.0), Secure)),
+                ("adj", v(Quasar, Some(1.1), Secure)),
+                ("unclear2", v(Unclear, Some(0.3), Guess)),
             ],
         );
-        let judge = log("judge", vec![("adj", v(Quasar, Some(1.1), Certain))]);
+        let judge = log("judge", vec![("adj", v(Quasar, Some(1.1), Secure))]);
         let m = merge(
             &[b, a, judge],
             &MergeOptions {
@@ -548,7 +548,7 @@ mod tests {
         assert_eq!(agree.state, ConsensusState::Agreed);
         let cv = agree.verdict.as_ref().unwrap();
         assert_relative_eq!(cv.z.unwrap(), 0.5); // ana is more confident
-        assert_eq!(cv.confidence, Some(Tentative)); // the lower of the two
+        assert_eq!(cv.confidence, Some(Probable)); // the lower of the two
         assert_eq!(cv.flags.len(), 2);
         assert_eq!(cv.note, "ana: strong Hα");
         assert_eq!(m.objects["zdiff"].state, ConsensusState::Conflict);

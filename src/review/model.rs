@@ -1,6 +1,6 @@
 /*!
-The words of a verdict: class, redshift and where it came from, a confidence on
-a four-step scale, flags, a note; and the events that the review log records.
+The words of a verdict: class, redshift and where it came from, a certainty
+grade (guess, probable, secure), flags, a note; and the events that the review log records.
 */
 use crate::ObjectClass;
 use chrono::{DateTime, Utc};
@@ -53,42 +53,48 @@ impl VerdictClass {
     }
 }
 
-/// How sure the inspector is, four steps from weakest to strongest.
+/// How sure the inspector is: three grades named as redshift papers grade
+/// their identifications, weakest first.
+///
+/// Logs written before this scale used four words; they are read onto the
+/// grades (`doubtful` → guess, `tentative` → probable, `solid` and `certain`
+/// → secure), so an old log replays unchanged and is written in the new words
+/// from then on.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Confidence {
-    /// A guess; do not train on it.
-    Doubtful,
-    /// Plausible, one feature or weak features.
-    Tentative,
-    /// Several features agree.
-    Solid,
-    /// Beyond doubt.
-    Certain,
+    /// A best guess: one weak feature or a shape; keep it out of training sets.
+    #[serde(alias = "doubtful")]
+    Guess,
+    /// Probably right: one clear feature, or several weak ones that agree.
+    #[serde(alias = "tentative")]
+    Probable,
+    /// Secure: several features agree; the default of a plain accept.
+    #[serde(alias = "solid", alias = "certain")]
+    Secure,
 }
 
 impl Confidence {
-    /// All levels, weakest first.
-    pub const ALL: [Confidence; 4] = [
-        Confidence::Doubtful,
-        Confidence::Tentative,
-        Confidence::Solid,
-        Confidence::Certain,
-    ];
+    /// All grades, weakest first.
+    pub const ALL: [Confidence; 3] = [Confidence::Guess, Confidence::Probable, Confidence::Secure];
 
-    /// Level number 1–4.
+    /// Grade number 1–3 (1 guess, 2 probable, 3 secure), as exported.
     pub fn level(self) -> u8 {
         self as u8 + 1
     }
 
-    /// Lower-case name.
+    /// Lower-case name, as written in logs and exports.
     pub fn as_str(self) -> &'static str {
         match self {
-            Confidence::Doubtful => "doubtful",
-            Confidence::Tentative => "tentative",
-            Confidence::Solid => "solid",
-            Confidence::Certain => "certain",
+            Confidence::Guess => "guess",
+            Confidence::Probable => "probable",
+            Confidence::Secure => "secure",
         }
+    }
+
+    /// The grade of a word, new or old (`None` for anything else).
+    pub fn parse(word: &str) -> Option<Confidence> {
+        serde_json::from_value(serde_json::Value::String(word.trim().to_ascii_lowercase())).ok()
     }
 }
 
@@ -177,6 +183,22 @@ pub struct Verdict {
     pub flags: BTreeSet<Flag>,
     /// Free note.
     pub note: String,
+}
+
+impl Verdict {
+    /// The completeness rule, shared by the window's queue, the export and
+    /// the report: a verdict is complete when it has a class, a certainty
+    /// grade and — unless the class is `unclear` — a redshift. Keys that
+    /// record a verdict always record a complete one; a verdict left
+    /// incomplete (a flag or note alone, or an old log's class without a
+    /// redshift) counts as not reviewed and is not exported.
+    pub fn is_complete(&self) -> bool {
+        match self.class {
+            None => false,
+            Some(VerdictClass::Unclear) => self.confidence.is_some(),
+            Some(_) => self.z.is_some_and(f64::is_finite) && self.confidence.is_some(),
+        }
+    }
 }
 
 /// What the engine showed the inspector when the event was recorded.
@@ -275,4 +297,57 @@ pub struct Event {
     /// What changed.
     #[serde(flatten)]
     pub change: Change,
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn old_grade_words_are_read_onto_the_three_grades() {
+        // The four words of logs written before the three-grade scale.
+        for (old, new) in [
+            ("doubtful", Confidence::Guess),
+            ("tentative", Confidence::Probable),
+            ("solid", Confidence::Secure),
+            ("certain", Confidence::Secure),
+        ] {
+            let c: Confidence = serde_json::from_str(&format!("\"{old}\"")).unwrap();
+            assert_eq!(c, new, "{old}");
+            assert_eq!(Confidence::parse(old), Some(new));
+        }
+        // New words round-trip and are what is written.
+        for c in Confidence::ALL {
+            let text = serde_json::to_string(&c).unwrap();
+            assert_eq!(text, format!("\"{}\"", c.as_str()));
+            assert_eq!(serde_json::from_str::<Confidence>(&text).unwrap(), c);
+        }
+        assert_eq!(Confidence::parse("sure"), None);
+        let levels: Vec<u8> = Confidence::ALL.iter().map(|c| c.level()).collect();
+        assert_eq!(levels, [1, 2, 3]);
+    }
+
+    #[test]
+    fn completeness_needs_class_grade_and_a_redshift_unless_unclear() {
+        let mut v = Verdict {
+            class: Some(VerdictClass::Star),
+            ..Default::default()
+        };
+        assert!(!v.is_complete(), "class alone");
+        v.confidence = Some(Confidence::Secure);
+        assert!(!v.is_complete(), "class and grade, no z");
+        v.z = Some(0.0001);
+        assert!(v.is_complete());
+        let unclear = Verdict {
+            class: Some(VerdictClass::Unclear),
+            confidence: Some(Confidence::Guess),
+            ..Default::default()
+        };
+        assert!(unclear.is_complete());
+        let flagged = Verdict {
+            flags: [Flag::Blend].into(),
+            ..Default::default()
+        };
+        assert!(!flagged.is_complete());
+    }
 }

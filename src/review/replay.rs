@@ -189,7 +189,7 @@ mod tests {
             z: Some(z),
             z_err: Some(1e-4),
             source: ZSource::Automatic,
-            confidence: Confidence::Solid,
+            confidence: Confidence::Secure,
         }
     }
 
@@ -227,7 +227,7 @@ mod tests {
                 "a",
                 "o1",
                 Change::Confidence {
-                    confidence: Confidence::Certain,
+                    confidence: Confidence::Secure,
                 },
             ),
         ];
@@ -235,7 +235,7 @@ mod tests {
         assert_eq!(v.class, Some(VerdictClass::Quasar));
         assert_relative_eq!(v.z.unwrap(), 0.5);
         assert_eq!(v.z_source, Some(ZSource::Automatic));
-        assert_eq!(v.confidence, Some(Confidence::Certain));
+        assert_eq!(v.confidence, Some(Confidence::Secure));
         assert!(v.flags.contains(&Flag::Blend));
         assert_eq!(v.note, "two objects");
     }
@@ -340,7 +340,7 @@ mod tests {
                     z: None,
                     z_err: Some(0.1),
                     source: ZSource::Typed,
-                    confidence: Confidence::Doubtful,
+                    confidence: Confidence::Guess,
                 },
             ),
         ];

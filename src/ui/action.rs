@@ -52,11 +52,14 @@ pub enum Action {
     /// Move along the displayed list (+1 next, −1 previous).
     Step(isize),
     /// Accept the shown solution (class, z and its source) with the current
-    /// or default confidence.
+    /// or default grade; on a reviewed object keep or ask (`apply.rs`).
     AcceptShown,
-    /// Set the class only.
+    /// Confirm the replacement of a recorded verdict the window asked about.
+    Confirm,
+    /// Record a verdict of this class (see the verdict rules in `apply.rs`).
     SetClass(VerdictClass),
-    /// Set the confidence.
+    /// Set the certainty grade (accepting the shown solution when the
+    /// verdict is not complete yet).
     SetConfidence(Confidence),
     /// Raise or clear a flag (whichever it is not now).
     ToggleFlag(Flag),
@@ -113,4 +116,6 @@ pub enum Action {
     Open(OpenKind, Vec<PathBuf>),
     /// Open a file dialog for the given kind.
     Browse(OpenKind),
+    /// Close the window (everything is already in the log).
+    Quit,
 }

@@ -23,14 +23,18 @@ pub enum LogPlace {
     File(PathBuf),
     /// `<folder>/<inspector>.jsonl` (demo, campaign, loose files).
     Folder(PathBuf),
+    /// Not known yet: the files named on the command line are still being
+    /// read, and no log is opened (or created) until they are in.
+    Pending,
 }
 
 impl LogPlace {
-    /// The log file for `inspector`.
-    pub fn path_for(&self, inspector: &str) -> PathBuf {
+    /// The log file for `inspector` (None while the place is pending).
+    pub fn path_for(&self, inspector: &str) -> Option<PathBuf> {
         match self {
-            LogPlace::File(p) => p.clone(),
-            LogPlace::Folder(d) => d.join(format!("{}.jsonl", settings::file_safe(inspector))),
+            LogPlace::File(p) => Some(p.clone()),
+            LogPlace::Folder(d) => Some(d.join(format!("{}.jsonl", settings::file_safe(inspector)))),
+            LogPlace::Pending => None,
         }
     }
 }
@@ -76,6 +80,10 @@ pub struct ZvetApp {
     /// (e.g. a catalogue given on the command line with the spectra).
     pub(crate) after_load: Vec<super::action::Action>,
     prepared: Option<(PrepKey, Prepared)>,
+    /// The resume file of the open log, and what it last held.
+    pub(crate) resume: Option<(PathBuf, Option<super::resume::Resume>)>,
+    /// Object id to open on (from the resume file).
+    pub(crate) resume_target: Option<String>,
 }
 
 impl ZvetApp {
@@ -104,17 +112,92 @@ impl ZvetApp {
             name_file,
             after_load: Vec::new(),
             prepared: None,
+            resume: None,
+            resume_target: None,
         };
         app.restart_fits();
         match inspector {
-            Some(name) => app.set_inspector(&name),
+            Some(name) => app.set_inspector(&name, false),
             None => app.state.name_prompt = Some(String::new()),
         }
-        app.rebuild_queue();
-        if let Some(&first) = app.state.order.first() {
-            app.select(first);
+        if app.state.selected.is_none() {
+            app.rebuild_queue();
+            app.select_start();
         }
         app
+    }
+
+    /// Select where the inspector left off (the resume file's object), else
+    /// the top of the list.
+    pub(crate) fn select_start(&mut self) {
+        let target = self.resume_target.take().and_then(|id| {
+            self.state
+                .objects
+                .iter()
+                .position(|o| o.id() == id)
+                .filter(|i| self.state.order.contains(i))
+        });
+        if let Some(i) = target.or_else(|| self.state.order.first().copied()) {
+            self.select(i);
+        }
+    }
+
+    /// What the resume file should hold now.
+    fn resume_now(&self) -> super::resume::Resume {
+        let v = &self.state.view;
+        super::resume::Resume {
+            v: super::resume::RESUME_VERSION,
+            object: self.state.current().map(|o| o.id().to_string()),
+            sort: self.state.sort,
+            filter: self.state.filter.clone(),
+            smoothing: v.smoothing,
+            rest_frame: v.rest_frame,
+            show_model: v.show_model,
+            show_sky: v.show_sky,
+        }
+    }
+
+    /// Write the resume file when what it holds changed.
+    pub(crate) fn save_resume(&mut self) {
+        if self.log.is_none() || self.state.objects.is_empty() {
+            return;
+        }
+        let now = self.resume_now();
+        let Some((path, saved)) = self.resume.as_mut() else {
+            return;
+        };
+        if saved.as_ref() == Some(&now) {
+            return;
+        }
+        let path = path.clone();
+        *saved = Some(now.clone());
+        if let Err(e) = super::resume::write(&path, &now) {
+            self.state.say(
+                format!("could not remember the position in {}: {e}", path.display()),
+                true,
+            );
+        }
+    }
+
+    /// Read the resume file beside the log at `log_path` into the state.
+    pub(crate) fn load_resume(&mut self, log_path: &std::path::Path) {
+        let path = super::resume::path_for(log_path);
+        let read = super::resume::read(&path);
+        let saved = match read {
+            Ok(Some(r)) => {
+                self.state.sort = r.sort;
+                self.state.filter = r.filter.clone();
+                self.state.view = r.view();
+                self.resume_target = r.object.clone();
+                Some(r)
+            }
+            Ok(None) => None,
+            Err(e) => {
+                self.state.say(e, true);
+                None
+            }
+        };
+        self.resume = Some((path, saved));
     }
 
     /// Apply `action` after the next spectra or campaign load has arrived.
@@ -215,6 +298,10 @@ impl ZvetApp {
         for a in actions {
             self.apply(a);
         }
+        self.save_resume();
+        if self.state.quit_asked {
+            ctx.send_viewport_cmd(egui::ViewportCommand::Close);
+        }
     }
 
     /// Collect finished fits and loads.
@@ -231,9 +318,8 @@ impl ZvetApp {
                     let v = self.verdict_of(i).cloned();
                     self.state.refresh_item(i, v.as_ref());
                     if self.state.selected == Some(i) && self.state.shown.is_none() {
-                        self.state.shown = self.state.current_fit().and_then(Shown::automatic);
                         let v = self.current_verdict().cloned();
-                        self.state.sync_texts(v.as_ref());
+                        self.state.show_recorded(v.as_ref());
                     }
                 }
                 (JobKind::Fit, Err(e)) => {
@@ -260,10 +346,11 @@ impl ZvetApp {
                 }
             }
         }
-        // The list is re-sorted once every automatic fit is in, not while the
-        // inspector works through it (rows would jump).
-        if any_fit && !self.jobs.busy() {
-            self.rebuild_queue();
+        // The list is never re-sorted by itself (a row would move under the
+        // pointer): new fits only mark the order as out of date, and the
+        // inspector re-sorts when ready.
+        if any_fit {
+            self.state.order_stale = true;
         }
         for loaded in self.loads.poll() {
             self.apply_loaded(loaded);
@@ -320,6 +407,7 @@ impl ZvetApp {
         Some(view::prepare(
             &obj.spectrum,
             shown.map(|s| s.z()),
+            shown.map(|s| s.class()),
             &model,
             &self.state.view,
         ))

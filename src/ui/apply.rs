@@ -2,17 +2,31 @@
 Applying the frame's actions. Every change of a verdict goes through
 [`ReviewLog::record`] with the matching [`Change`]; the window only decides
 which change the inspector's key or click means.
+
+The verdict rules (also in the README):
+- Space records the shown class and z. On an object whose verdict is
+  complete it never replaces that verdict quietly: when the shown solution
+  *is* the recorded one, Space keeps it and records nothing; when it differs
+  (another candidate, a nudge), the window asks, and only a second Space (or
+  Enter) replaces it — Esc keeps the old one.
+- A class key records a complete verdict of that class: at a typed z when the
+  shown z was typed, else at the z shown when it already is of that class,
+  else at that class's best solution in the fit. `U` records unclear, no z.
+- A typed z records the shown class at that z.
+- A grade key (Shift+S/P/G) changes the grade of a complete verdict, and on
+  any other object accepts the shown solution with that grade.
+- The grade of a verdict is kept by later accepts; a plain accept of a new
+  object is secure.
 */
-use crate::fit::Candidate;
-use crate::review::{Change, Confidence, FitSeen, ReviewLog, ZSource};
+use crate::review::{Change, Confidence, FitSeen, ReviewLog, Verdict, VerdictClass, ZSource};
 
 use super::action::Action;
 use super::app::ZvetApp;
 use super::settings;
-use super::state::Shown;
+use super::state::{Pending, Shown};
 
-/// Confidence given when the inspector accepts without choosing one.
-pub const DEFAULT_CONFIDENCE: Confidence = Confidence::Solid;
+/// Grade given when the inspector accepts without choosing one.
+pub const DEFAULT_CONFIDENCE: Confidence = Confidence::Secure;
 
 /// One nudge step, as a fraction of (1+z) (≈ 300 km/s).
 pub const NUDGE_STEP: f64 = 0.001;
@@ -32,6 +46,19 @@ pub fn parse_z(text: &str) -> Result<f64, String> {
 impl ZvetApp {
     /// Apply one action.
     pub fn apply(&mut self, action: Action) {
+        // A replacement waiting for confirmation lasts only until the next
+        // request: Space (or Enter) confirms, anything else keeps the verdict.
+        let pending = self.state.pending.take();
+        match (&action, pending) {
+            (Action::AcceptShown | Action::Confirm, Some(p)) => return self.confirm(p),
+            (Action::Escape, Some(_)) => {
+                self.state.say("the recorded verdict was kept", false);
+                let v = self.current_verdict().cloned();
+                self.state.show_recorded(v.as_ref());
+                return;
+            }
+            _ => {}
+        }
         match action {
             Action::Select(i) => self.select(i),
             Action::Step(d) => {
@@ -40,8 +67,9 @@ impl ZvetApp {
                 }
             }
             Action::AcceptShown => self.accept_shown(),
-            Action::SetClass(class) => self.record(Change::Class { class }),
-            Action::SetConfidence(confidence) => self.record(Change::Confidence { confidence }),
+            Action::Confirm => {}
+            Action::SetClass(class) => self.set_class(class),
+            Action::SetConfidence(confidence) => self.set_grade(confidence),
             Action::ToggleFlag(flag) => {
                 self.state.flag_chord = false;
                 let on = !self.current_verdict().is_some_and(|v| v.flags.contains(&flag));
@@ -51,11 +79,12 @@ impl ZvetApp {
             Action::TypeZ(text) => match parse_z(&text) {
                 Ok(z) => {
                     self.show_z(z, ZSource::Typed);
-                    self.record(Change::Redshift {
-                        z,
-                        z_err: None,
-                        source: ZSource::Typed,
-                    });
+                    let Some(class) = self.state.shown.as_ref().map(|s| s.class()) else {
+                        self.state
+                            .say("no class to go with the z yet: press G, Q or S first", true);
+                        return;
+                    };
+                    self.record_verdict(class.into(), Some(z), None, ZSource::Typed, None);
                 }
                 Err(e) => self.state.say(e, true),
             },
@@ -69,8 +98,12 @@ impl ZvetApp {
                 }
             }
             Action::AcceptCandidate(k) => {
+                // A click on "accept #k" says which verdict it means: recorded at once.
                 self.preview(k);
-                self.accept_shown();
+                if let Some(s) = self.state.shown.clone() {
+                    let err = Some(s.candidate.z_err).filter(|e| e.is_finite());
+                    self.record_verdict(s.class().into(), Some(s.z()), err, s.source, None);
+                }
             }
             Action::Nudge(steps) => {
                 if let Some(z) = self.state.shown.as_ref().map(|s| s.z()) {
@@ -116,13 +149,17 @@ impl ZvetApp {
             Action::Escape => {
                 self.state.help_open = false;
                 self.state.flag_chord = false;
-                if self.log.is_some() {
-                    self.state.name_prompt = None;
+                if self.state.name_prompt.take().is_some() && self.log.is_none() {
+                    self.state.say(
+                        "no inspector name: you can look, but recording asks for a name first",
+                        false,
+                    );
                 }
             }
+            Action::Quit => self.state.quit_asked = true,
             Action::Focus(f) => self.state.focus = Some(f),
             Action::FlagChord => self.state.flag_chord = true,
-            Action::SetInspector(name) => self.set_inspector(&name),
+            Action::SetInspector(name) => self.set_inspector(&name, true),
             Action::AskInspector => self.state.name_prompt = Some(self.inspector.clone().unwrap_or_default()),
             Action::Open(kind, paths) => self.loads.open(kind, paths),
             Action::Browse(kind) => self.loads.browse(kind),
@@ -147,6 +184,7 @@ impl ZvetApp {
             Ok(()) => {
                 let v = log.verdict(&id).cloned();
                 self.state.refresh_item(index, v.as_ref());
+                self.state.order_stale = true;
             }
             Err(e) => self.state.say(format!("could not record: {e}"), true),
         }
@@ -157,30 +195,139 @@ impl ZvetApp {
         self.state.current_fit().and_then(FitSeen::of)
     }
 
-    /// Accept the shown class and z with the verdict's confidence (or the default).
+    /// The certainty an accept records: the verdict's, else secure.
+    fn grade_now(&self) -> Confidence {
+        self.current_verdict()
+            .and_then(|v| v.confidence)
+            .unwrap_or(DEFAULT_CONFIDENCE)
+    }
+
+    /// The complete verdict change for `class` at `z` (grade as given, or kept, or secure).
+    fn verdict_change(
+        &self,
+        class: VerdictClass,
+        z: Option<f64>,
+        z_err: Option<f64>,
+        source: ZSource,
+        grade: Option<Confidence>,
+    ) -> Change {
+        Change::Verdict {
+            class,
+            z,
+            z_err: z_err.filter(|e| e.is_finite() && z.is_some()),
+            source,
+            confidence: grade.unwrap_or_else(|| self.grade_now()),
+        }
+    }
+
+    /// Record a complete verdict unless it is exactly the recorded one.
+    fn record_verdict(
+        &mut self,
+        class: VerdictClass,
+        z: Option<f64>,
+        z_err: Option<f64>,
+        source: ZSource,
+        grade: Option<Confidence>,
+    ) {
+        let change = self.verdict_change(class, z, z_err, source, grade);
+        if self.current_verdict().is_some_and(|v| same_verdict(v, &change)) {
+            return;
+        }
+        self.record(change);
+    }
+
+    /// Space: accept the shown class and z — never quietly replacing a
+    /// complete verdict (see the module notes).
     fn accept_shown(&mut self) {
         let Some(shown) = self.state.shown.clone() else {
             self.state
                 .say("no fit to accept yet: wait for it, or type a z and a class", true);
             return;
         };
-        let confidence = self
-            .current_verdict()
-            .and_then(|v| v.confidence)
-            .unwrap_or(DEFAULT_CONFIDENCE);
         let z_err = match shown.source {
             ZSource::Typed => None,
-            _ => Some(shown.candidate.z_err).filter(|e| e.is_finite()),
+            _ => Some(shown.candidate.z_err),
         };
-        self.record(Change::Verdict {
-            class: shown.class().into(),
-            z: Some(shown.z()),
-            z_err,
-            source: shown.source,
-            confidence,
-        });
-        let v = self.current_verdict().cloned();
-        self.state.sync_texts(v.as_ref());
+        let change = self.verdict_change(shown.class().into(), Some(shown.z()), z_err, shown.source, None);
+        match (self.current_verdict().cloned(), self.state.selected) {
+            (Some(v), Some(index)) if v.is_complete() => {
+                if shown.is_recorded_in(&v) || same_verdict(&v, &change) {
+                    self.state
+                        .say(format!("kept the recorded verdict: {}", verdict_words(&v)), false);
+                } else {
+                    self.state.pending = Some(Pending {
+                        index,
+                        text: format!(
+                            "Replace the recorded verdict ({}) with {} z = {:.5}?",
+                            verdict_words(&v),
+                            shown.class(),
+                            shown.z()
+                        ),
+                        change,
+                    });
+                }
+            }
+            _ => self.record(change),
+        }
+    }
+
+    /// Record a confirmed replacement (if it is still for the selected object).
+    fn confirm(&mut self, p: Pending) {
+        if self.state.selected == Some(p.index) {
+            self.record(p.change);
+            let v = self.current_verdict().cloned();
+            self.state.sync_texts(v.as_ref());
+        }
+    }
+
+    /// A class key: record a complete verdict of `class` (module notes).
+    fn set_class(&mut self, class: VerdictClass) {
+        let Some(oc) = class.object_class() else {
+            let grade = self.grade_now();
+            self.record(Change::Verdict {
+                class,
+                z: None,
+                z_err: None,
+                source: ZSource::Typed,
+                confidence: grade,
+            });
+            return;
+        };
+        let fit = self.state.listed_fit();
+        let shown = match self.state.shown.as_ref() {
+            Some(s) if s.source == ZSource::Typed => Some(Shown::class_at(fit, oc, s.z(), ZSource::Typed)),
+            Some(s) if s.class() == oc => Some(s.clone()),
+            _ => fit.and_then(|f| Shown::best_of_class(f, oc)),
+        };
+        let Some(shown) = shown else {
+            self.state.say(
+                format!("the fit has no {oc} solution yet: type a z (Z) to record {oc}"),
+                true,
+            );
+            return;
+        };
+        self.state.z_text = format!("{:.5}", shown.z());
+        let z_err = Some(shown.candidate.z_err).filter(|_| shown.source != ZSource::Typed);
+        self.state.shown = Some(shown.clone());
+        self.record_verdict(class, Some(shown.z()), z_err, shown.source, None);
+    }
+
+    /// A grade key: regrade a complete verdict, else accept the shown
+    /// solution with this grade.
+    fn set_grade(&mut self, grade: Confidence) {
+        if self.current_verdict().is_some_and(Verdict::is_complete) {
+            if self.current_verdict().and_then(|v| v.confidence) != Some(grade) {
+                self.record(Change::Confidence { confidence: grade });
+            }
+            return;
+        }
+        let Some(s) = self.state.shown.clone() else {
+            self.state
+                .say("no fit to grade yet: wait for it, or type a z and a class", true);
+            return;
+        };
+        let z_err = Some(s.candidate.z_err).filter(|_| s.source != ZSource::Typed);
+        self.record_verdict(s.class().into(), Some(s.z()), z_err, s.source, Some(grade));
     }
 
     /// Show candidate `k` of the listed fit.
@@ -202,21 +349,26 @@ impl ZvetApp {
         });
     }
 
-    /// Show redshift `z` with the shown class's template (or the best's).
+    /// Show redshift `z` in the shown class (that class's template moved to `z`).
     fn show_z(&mut self, z: f64, source: ZSource) {
-        let base: Option<Candidate> = self
+        let fit = self.state.listed_fit();
+        let class = self
             .state
             .shown
             .as_ref()
-            .map(|s| s.candidate.clone())
-            .or_else(|| self.state.current_fit().and_then(|f| f.best()).cloned());
-        if let Some(mut c) = base {
-            c.z = z;
-            self.state.shown = Some(Shown {
-                candidate: c,
-                rank: None,
-                source,
-            });
+            .map(|s| s.class())
+            .or_else(|| fit.and_then(|f| f.best()).map(|c| c.class));
+        if let Some(class) = class {
+            let mut shown = Shown::class_at(fit, class, z, source);
+            // Keep the template the inspector was looking at, when it is of that class.
+            if let Some(old) = self.state.shown.as_ref().filter(|s| s.class() == class) {
+                if shown.rank.is_none() {
+                    shown.candidate = old.candidate.clone();
+                    shown.candidate.z = z;
+                    shown.candidate.z_err = f64::NAN;
+                }
+            }
+            self.state.shown = Some(shown);
         }
     }
 
@@ -236,23 +388,32 @@ impl ZvetApp {
         }
         self.record(if undo { Change::Undo } else { Change::Redo });
         let v = self.current_verdict().cloned();
-        self.state.sync_texts(v.as_ref());
+        self.state.show_recorded(v.as_ref());
     }
 
-    /// Use `name` as the inspector: open that inspector's log and remember the name.
-    pub(crate) fn set_inspector(&mut self, name: &str) {
+    /// Use `name` as the inspector: open that inspector's log, go back to
+    /// where they left off, and — when the name was typed in the dialog
+    /// (`remember`) — remember it. A name from the command line is used for
+    /// this session only.
+    pub(crate) fn set_inspector(&mut self, name: &str, remember: bool) {
         let name = name.trim();
         if name.is_empty() {
             self.state.say("the inspector name may not be empty", true);
             self.state.name_prompt = Some(String::new());
             return;
         }
-        let path = self.log_place.path_for(name);
+        // Close the old log first so its lock is released.
+        self.log = None;
+        self.resume = None;
+        let Some(path) = self.log_place.path_for(name) else {
+            // The files are still being read: the log opens once they are in.
+            self.inspector = Some(name.to_string());
+            self.state.name_prompt = None;
+            return;
+        };
         if let Some(dir) = path.parent() {
             let _ = std::fs::create_dir_all(dir);
         }
-        // Close the old log first so its lock is released.
-        self.log = None;
         match ReviewLog::open(&path, name) {
             Ok((log, problems)) => {
                 for p in problems {
@@ -267,13 +428,28 @@ impl ZvetApp {
                 self.inspector = Some(name.to_string());
                 self.state.name_prompt = None;
                 if let Some(f) = &self.name_file {
-                    if let Err(e) = settings::write_name(f, name) {
-                        self.state.say(format!("could not remember the name: {e}"), true);
+                    let remembered = settings::read_name(f);
+                    if remember {
+                        if let Err(e) = settings::write_name(f, name) {
+                            self.state.say(format!("could not remember the name: {e}"), true);
+                        }
+                    } else if remembered.as_deref().is_some_and(|r| r != name) {
+                        self.state.say(
+                            format!(
+                                "{name} for this session only; the remembered name stays {}",
+                                remembered.unwrap_or_default()
+                            ),
+                            false,
+                        );
                     }
                 }
+                let here = self.state.current().map(|o| o.id().to_string());
+                self.load_resume(&path);
+                if self.resume_target.is_none() {
+                    self.resume_target = here;
+                }
                 self.rebuild_queue();
-                let v = self.current_verdict().cloned();
-                self.state.sync_texts(v.as_ref());
+                self.select_start();
             }
             Err(e) => {
                 self.state.say(
@@ -284,6 +460,27 @@ impl ZvetApp {
             }
         }
     }
+}
+
+/// True when recording `change` would leave `v` as it is.
+fn same_verdict(v: &Verdict, change: &Change) -> bool {
+    let mut after = v.clone();
+    crate::review::apply_change(&mut after, change);
+    after == *v
+}
+
+/// A verdict in words for the window: class, z and its source, grade.
+pub fn verdict_words(v: &Verdict) -> String {
+    let class = v.class.map_or("no class", |c| c.as_str());
+    let z = match (v.z, v.z_source) {
+        (Some(z), Some(s)) => format!(" z = {z:.5} ({})", s.as_str()),
+        (Some(z), None) => format!(" z = {z:.5}"),
+        _ => String::new(),
+    };
+    let grade = v
+        .confidence
+        .map_or(String::new(), |c| format!(", {}", c.as_str()));
+    format!("{class}{z}{grade}")
 }
 
 #[cfg(test)]

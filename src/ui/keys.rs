@@ -1,8 +1,9 @@
 /*!
 The keyboard scheme. A clean object is vetted in two keystrokes: `Space`
 accepts what is shown, `N` moves on. The table [`KEYS`] is the single source
-for the help overlay; [`read`] turns this frame's key presses into actions.
-Nothing here fires while a text field has the keyboard.
+for the help overlay; [`read`] turns this frame's key presses into actions,
+walking the frame's events so that every press counts once, however fast the
+presses come. Nothing here fires while a text field has the keyboard.
 */
 use egui::{Key, Modifiers};
 
@@ -10,33 +11,48 @@ use super::action::Action;
 use super::state::{AppState, FocusRequest, PlotMove};
 use crate::review::{Confidence, Flag, VerdictClass};
 
-/// (keys, what they do) for the help overlay, in reading order.
+/// (keys, what they do) for the help overlay and the README, in reading order.
 pub const KEYS: &[(&str, &str)] = &[
     (
         "Space",
-        "accept the shown class and z (confidence: as set, else solid)",
+        "accept the shown class and z; on a reviewed object: keep its verdict, or ask before replacing it",
+    ),
+    (
+        "Enter  /  Esc",
+        "when asked: replace the recorded verdict / keep it",
     ),
     ("N  or  ↓", "next object in the list"),
     ("B  or  ↑", "previous object in the list"),
-    ("G  Q  S  U", "class: galaxy, quasar, star, unclear"),
-    ("1  2  3  4", "confidence: doubtful, tentative, solid, certain"),
+    (
+        "G  Q  S",
+        "record galaxy / quasar / star with a z (typed z kept, else that class's best)",
+    ),
+    ("U", "record unclear (no redshift)"),
+    (
+        "Shift+S  Shift+P  Shift+G",
+        "certainty: secure, probable, guess (on a new object: accept with it)",
+    ),
     (
         "F then 1–6",
         "flag: low signal, sky residual, blend, artefact, broad absorption, wrong target",
     ),
     ("C  /  Shift+C", "show the next / previous candidate"),
     (",  /  .", "nudge the shown z down / up by 0.001·(1+z)"),
-    ("R", "refit near the shown z (or click in the χ²(z) plot)"),
-    ("Z", "type a redshift (Enter records it)"),
+    (
+        "R",
+        "refit near the shown z in the shown class (or click in χ²(z))",
+    ),
+    ("Z", "type a redshift (Enter records it with the shown class)"),
     ("E", "edit the note (Enter records it)"),
     ("Ctrl+Z  /  Ctrl+Y", "undo / redo on this object"),
     ("O", "observed or rest-frame wavelength axis"),
-    ("[  /  ]", "less / more smoothing"),
-    ("←  →", "pan the spectrum"),
-    ("+  /  −", "zoom in / out"),
-    ("0", "whole spectrum again"),
+    ("[  /  ]", "less / more smoothing (flux and model alike)"),
+    ("←  →", "pan the spectrum in wavelength"),
+    ("+  /  −", "zoom in / out in wavelength"),
+    ("0", "whole spectrum again (or double-click the plot)"),
     ("H  or  F1", "this help"),
-    ("Esc", "close help, leave a text field"),
+    ("Esc", "close help or a dialog, leave a text field"),
+    ("Ctrl+Q", "quit (every verdict is already in the log)"),
 ];
 
 /// The id of the text field a focus request names (shared with the verdict panel).
@@ -47,147 +63,181 @@ pub fn field_id(f: FocusRequest) -> egui::Id {
     }
 }
 
-/// If `key` was pressed, give its text field the keyboard now — so letters
-/// typed in the same frame already go into the field — and drop the key's own
-/// character. True when it happened.
-/// `current`: the field's text now (the redshift field's is selected).
-fn focus_on(ctx: &egui::Context, key: Key, letter: &str, field: FocusRequest, current: &str) -> bool {
-    let hit = ctx.input_mut(|i| {
-        if !i.consume_key(Modifiers::NONE, key) {
-            return false;
-        }
-        if let Some(p) = i
-            .events
-            .iter()
-            .position(|e| matches!(e, egui::Event::Text(t) if t.eq_ignore_ascii_case(letter)))
-        {
-            i.events.remove(p);
-        }
-        true
-    });
-    if hit {
-        let id = field_id(field);
-        ctx.memory_mut(|m| m.request_focus(id));
-        if field == FocusRequest::Redshift {
-            // Select the old z so that typing replaces it.
-            let mut te = egui::text_edit::TextEditState::load(ctx, id).unwrap_or_default();
-            te.cursor
-                .set_char_range(Some(egui::text::CCursorRange::select_all_str(current)));
-            te.store(ctx, id);
-        }
+/// Give `field` the keyboard now — so letters typed after its key in the
+/// same frame already go into it. `current`: the field's text now (the
+/// redshift field's is selected, so typing replaces it).
+fn focus_field(ctx: &egui::Context, field: FocusRequest, current: &str) {
+    let id = field_id(field);
+    ctx.memory_mut(|m| m.request_focus(id));
+    if field == FocusRequest::Redshift {
+        let mut te = egui::text_edit::TextEditState::load(ctx, id).unwrap_or_default();
+        te.cursor
+            .set_char_range(Some(egui::text::CCursorRange::select_all_str(current)));
+        te.store(ctx, id);
     }
-    hit
 }
 
-/// Read this frame's key presses into `out`.
+/// Read this frame's key presses into `out`, each press once and in order
+/// (several presses of one key in a frame are several actions). Presses
+/// that mean something here are taken out of the frame's input, so no
+/// widget acts on them a second time.
 pub fn read(ctx: &egui::Context, state: &AppState, out: &mut Vec<Action>) {
-    // A text field has (or is about to get) the keyboard: keys are text.
-    if ctx.egui_wants_keyboard_input() || state.name_prompt.is_some() || state.focus.is_some() {
-        return;
-    }
-    // Fields first: everything typed after `E` or `Z` in this frame is text.
-    for (key, letter, field) in [
-        (Key::E, "e", FocusRequest::Note),
-        (Key::Z, "z", FocusRequest::Redshift),
-    ] {
-        // Ctrl+Z is undo, not the redshift field.
-        if key == Key::Z && ctx.input(|i| i.modifiers.command) {
-            continue;
-        }
-        if focus_on(ctx, key, letter, field, &state.z_text) {
-            out.push(Action::Focus(field));
-            return;
-        }
-    }
-    ctx.input_mut(|i| {
-        let mut take = |m: Modifiers, k: Key| i.consume_key(m, k);
-        let none = Modifiers::NONE;
-        if take(Modifiers::COMMAND, Key::Z) {
-            out.push(Action::Undo);
-        }
-        if take(Modifiers::COMMAND, Key::Y) {
-            out.push(Action::Redo);
-        }
-        if take(none, Key::Escape) {
+    // The name dialog: only Esc (dismiss) and Ctrl+Q (quit) are keys.
+    if state.name_prompt.is_some() {
+        let esc = ctx.input_mut(|i| {
+            if i.consume_key(Modifiers::COMMAND, Key::Q) {
+                out.push(Action::Quit);
+            }
+            i.consume_key(Modifiers::NONE, Key::Escape)
+        });
+        if esc {
+            // The dialog's field lets go of the keyboard with it.
+            ctx.memory_mut(|m| m.stop_text_input());
             out.push(Action::Escape);
         }
-        if take(none, Key::H) || take(none, Key::F1) {
-            out.push(Action::ToggleHelp);
-        }
-        if state.flag_chord {
-            for (k, key) in DIGITS.iter().enumerate().take(Flag::ALL.len()) {
-                if take(none, *key) {
-                    out.push(Action::ToggleFlag(Flag::ALL[k]));
+        return;
+    }
+    // A text field has (or is about to get) the keyboard: keys are text.
+    if ctx.egui_wants_keyboard_input() || state.focus.is_some() {
+        return;
+    }
+    let mut chord = state.flag_chord;
+    let mut field = None;
+    ctx.input_mut(|i| {
+        let mut k = 0;
+        while k < i.events.len() {
+            let egui::Event::Key {
+                key,
+                pressed: true,
+                modifiers,
+                repeat,
+                ..
+            } = i.events[k]
+            else {
+                k += 1;
+                continue;
+            };
+            let plain = !(modifiers.command || modifiers.ctrl || modifiers.mac_cmd || modifiers.alt);
+            if plain && !modifiers.shift && !chord && matches!(key, Key::E | Key::Z) {
+                // Everything typed after `E` or `Z` in this frame is text:
+                // drop the key's own character and leave the rest to the field.
+                i.events.remove(k);
+                let letter = if key == Key::E { "e" } else { "z" };
+                if let Some(p) = i.events[k..]
+                    .iter()
+                    .position(|e| matches!(e, egui::Event::Text(t) if t.eq_ignore_ascii_case(letter)))
+                {
+                    i.events.remove(k + p);
                 }
+                field = Some(if key == Key::E {
+                    FocusRequest::Note
+                } else {
+                    FocusRequest::Redshift
+                });
+                break;
             }
-            return;
-        }
-        if take(none, Key::Space) {
-            out.push(Action::AcceptShown);
-        }
-        if take(none, Key::N) || take(none, Key::ArrowDown) {
-            out.push(Action::Step(1));
-        }
-        if take(none, Key::B) || take(none, Key::ArrowUp) {
-            out.push(Action::Step(-1));
-        }
-        for (key, class) in [
-            (Key::G, VerdictClass::Galaxy),
-            (Key::Q, VerdictClass::Quasar),
-            (Key::S, VerdictClass::Star),
-            (Key::U, VerdictClass::Unclear),
-        ] {
-            if take(none, key) {
-                out.push(Action::SetClass(class));
+            match action_for(key, modifiers, repeat, &mut chord, state) {
+                Some(a) => {
+                    out.push(a);
+                    i.events.remove(k);
+                }
+                None => k += 1,
             }
-        }
-        for (k, conf) in Confidence::ALL.iter().enumerate() {
-            if take(none, DIGITS[k]) {
-                out.push(Action::SetConfidence(*conf));
-            }
-        }
-        if take(none, Key::F) {
-            out.push(Action::FlagChord);
-        }
-        if take(Modifiers::SHIFT, Key::C) {
-            out.push(Action::CycleCandidate(-1));
-        } else if take(none, Key::C) {
-            out.push(Action::CycleCandidate(1));
-        }
-        if take(none, Key::Comma) {
-            out.push(Action::Nudge(-1.0));
-        }
-        if take(none, Key::Period) {
-            out.push(Action::Nudge(1.0));
-        }
-        if take(none, Key::R) {
-            out.push(Action::RefitShown);
-        }
-        if take(none, Key::O) {
-            out.push(Action::ToggleRestFrame);
-        }
-        if take(none, Key::OpenBracket) {
-            out.push(Action::Smooth(-1));
-        }
-        if take(none, Key::CloseBracket) {
-            out.push(Action::Smooth(1));
-        }
-        if take(none, Key::ArrowLeft) {
-            out.push(Action::Move(PlotMove::Pan(-0.2)));
-        }
-        if take(none, Key::ArrowRight) {
-            out.push(Action::Move(PlotMove::Pan(0.2)));
-        }
-        if take(none, Key::Plus) || take(none, Key::Equals) {
-            out.push(Action::Move(PlotMove::Zoom(1.5)));
-        }
-        if take(none, Key::Minus) {
-            out.push(Action::Move(PlotMove::Zoom(1.0 / 1.5)));
-        }
-        if take(none, Key::Num0) {
-            out.push(Action::Move(PlotMove::Reset));
         }
     });
+    if let Some(f) = field {
+        focus_field(ctx, f, &state.z_text);
+        out.push(Action::Focus(f));
+    }
+}
+
+/// The action of one key press (`None`: not ours). `chord`: `F` was pressed
+/// and the next digit names a flag.
+fn action_for(key: Key, m: Modifiers, repeat: bool, chord: &mut bool, state: &AppState) -> Option<Action> {
+    let cmd = m.command || m.ctrl || m.mac_cmd;
+    if cmd && !m.alt {
+        return match key {
+            Key::Z if m.shift => Some(Action::Redo),
+            Key::Z => Some(Action::Undo),
+            Key::Y => Some(Action::Redo),
+            Key::Q => Some(Action::Quit),
+            _ => None,
+        };
+    }
+    if cmd || m.alt {
+        return None;
+    }
+    if key == Key::Escape {
+        *chord = false;
+        return Some(Action::Escape);
+    }
+    if *chord {
+        let a = chord_key(key, repeat);
+        if a.is_some() {
+            *chord = false;
+        }
+        return a;
+    }
+    // Keys that record: one press, one action — auto-repeat does not record.
+    let records = |a: Action| (!repeat).then_some(a);
+    if m.shift {
+        return match key {
+            Key::S => records(Action::SetConfidence(Confidence::Secure)),
+            Key::P => records(Action::SetConfidence(Confidence::Probable)),
+            Key::G => records(Action::SetConfidence(Confidence::Guess)),
+            Key::C => Some(Action::CycleCandidate(-1)),
+            // Symbols that need Shift on some layouts.
+            Key::Plus | Key::Equals => Some(Action::Move(PlotMove::Zoom(1.5))),
+            Key::Minus => Some(Action::Move(PlotMove::Zoom(1.0 / 1.5))),
+            Key::Comma => Some(Action::Nudge(-1.0)),
+            Key::Period => Some(Action::Nudge(1.0)),
+            Key::OpenBracket => Some(Action::Smooth(-1)),
+            Key::CloseBracket => Some(Action::Smooth(1)),
+            _ => None,
+        };
+    }
+    match key {
+        Key::Space => records(Action::AcceptShown),
+        Key::Enter if state.pending.is_some() => records(Action::Confirm),
+        Key::N | Key::ArrowDown => Some(Action::Step(1)),
+        Key::B | Key::ArrowUp => Some(Action::Step(-1)),
+        Key::G => records(Action::SetClass(VerdictClass::Galaxy)),
+        Key::Q => records(Action::SetClass(VerdictClass::Quasar)),
+        Key::S => records(Action::SetClass(VerdictClass::Star)),
+        Key::U => records(Action::SetClass(VerdictClass::Unclear)),
+        Key::F => {
+            if !repeat {
+                *chord = true;
+            }
+            records(Action::FlagChord)
+        }
+        Key::H | Key::F1 => records(Action::ToggleHelp),
+        Key::C => Some(Action::CycleCandidate(1)),
+        Key::Comma => Some(Action::Nudge(-1.0)),
+        Key::Period => Some(Action::Nudge(1.0)),
+        Key::R => records(Action::RefitShown),
+        Key::O => records(Action::ToggleRestFrame),
+        Key::OpenBracket => Some(Action::Smooth(-1)),
+        Key::CloseBracket => Some(Action::Smooth(1)),
+        Key::ArrowLeft => Some(Action::Move(PlotMove::Pan(-0.2))),
+        Key::ArrowRight => Some(Action::Move(PlotMove::Pan(0.2))),
+        Key::Plus | Key::Equals => Some(Action::Move(PlotMove::Zoom(1.5))),
+        Key::Minus => Some(Action::Move(PlotMove::Zoom(1.0 / 1.5))),
+        Key::Num0 => Some(Action::Move(PlotMove::Reset)),
+        _ => None,
+    }
+}
+
+/// The flag chord: after `F`, digit k toggles the k-th flag.
+fn chord_key(key: Key, repeat: bool) -> Option<Action> {
+    if repeat {
+        return None;
+    }
+    DIGITS
+        .iter()
+        .take(Flag::ALL.len())
+        .position(|d| *d == key)
+        .map(|k| Action::ToggleFlag(Flag::ALL[k]))
 }
 
 /// Digit keys 1–6 in order.

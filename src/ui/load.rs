@@ -49,6 +49,8 @@ pub enum Loaded {
         objects: Vec<SurveyObject>,
         /// Folder of the review logs.
         log_folder: PathBuf,
+        /// Inspectors the campaign knows (registered, or with a log).
+        inspectors: Vec<String>,
         /// Things that could not be read.
         problems: Vec<String>,
         /// The engine on the campaign's templates and settings (None: keep the current one).

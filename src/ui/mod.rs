@@ -21,6 +21,7 @@ pub mod keys;
 pub mod load;
 pub mod panels;
 mod readers;
+pub mod resume;
 pub mod settings;
 pub mod state;
 pub mod view;
@@ -76,9 +77,11 @@ pub fn run(opts: LaunchOptions) -> anyhow::Result<ExitCode> {
     let mut session = demo_session(&opts)?;
     let wants_files = opts.campaign.is_some() || !opts.spectra.is_empty();
     if wants_files {
-        // Start empty; the files are read in the background once the window is up.
+        // Start empty; the files are read in the background once the window
+        // is up, and no review log is opened before they are in.
         session.title = "reading…".into();
         session.objects = Vec::new();
+        session.log_place = LogPlace::Pending;
     }
     let native = eframe::NativeOptions {
         viewport: egui::ViewportBuilder::default()

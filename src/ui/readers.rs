@@ -118,13 +118,37 @@ pub fn read_campaign(path: &Path) -> Loaded {
         .parent()
         .map(Path::to_path_buf)
         .unwrap_or_else(|| path.join("reviews"));
+    let inspectors = known_inspectors(&campaign.manifest().inspectors, &log_folder);
     Loaded::Campaign {
         title: campaign.manifest().name.clone(),
         objects,
         log_folder,
+        inspectors,
         problems,
         fitter,
     }
+}
+
+/// The campaign's registered inspectors, then those with a log in `folder`
+/// (file stems of `*.jsonl`), each once.
+pub fn known_inspectors(registered: &[String], folder: &Path) -> Vec<String> {
+    let mut names: Vec<String> = registered.to_vec();
+    let mut logs: Vec<String> = std::fs::read_dir(folder)
+        .map(|rd| {
+            rd.filter_map(|e| e.ok())
+                .map(|e| e.path())
+                .filter(|p| p.extension().is_some_and(|x| x == "jsonl"))
+                .filter_map(|p| p.file_stem().map(|s| s.to_string_lossy().into_owned()))
+                .collect()
+        })
+        .unwrap_or_default();
+    logs.sort();
+    for n in logs {
+        if !names.contains(&n) {
+            names.push(n);
+        }
+    }
+    names
 }
 
 impl ZvetApp {
@@ -148,6 +172,7 @@ impl ZvetApp {
                 title,
                 objects,
                 log_folder,
+                inspectors,
                 problems,
                 fitter,
             } => {
@@ -156,6 +181,7 @@ impl ZvetApp {
                     self.fitter = fitter;
                 }
                 self.replace_objects(title, objects, LogPlace::Folder(log_folder));
+                self.state.known_inspectors = inspectors;
             }
             Loaded::Catalog { path, rows } => {
                 let ids: Vec<String> = self.state.objects.iter().map(|o| o.id().to_string()).collect();
@@ -217,12 +243,13 @@ impl ZvetApp {
         self.state.messages = messages;
         self.log_place = place;
         self.restart_fits();
-        if let Some(name) = self.inspector.clone() {
-            self.set_inspector(&name);
+        match self.inspector.clone() {
+            Some(name) => self.set_inspector(&name, false),
+            None => self.state.name_prompt = Some(String::new()),
         }
-        self.rebuild_queue();
-        if let Some(&first) = self.state.order.first() {
-            self.select(first);
+        if self.state.selected.is_none() {
+            self.rebuild_queue();
+            self.select_start();
         }
         for a in std::mem::take(&mut self.after_load) {
             self.apply(a);

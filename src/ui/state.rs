@@ -8,7 +8,7 @@ checked in tests without a window.
 use crate::campaign::SurveyObject;
 use crate::fit::{Candidate, FitResult};
 use crate::queue::{self, Filter, QueueItem, SortKey};
-use crate::review::{Verdict, ZSource};
+use crate::review::{Change, Verdict, VerdictClass, ZSource};
 use crate::ObjectClass;
 use std::sync::Arc;
 
@@ -34,6 +34,105 @@ impl Shown {
         })
     }
 
+    /// The best solution of `class` in `fit`: its best candidate of that
+    /// class, else the minimum of that class's χ²(z) curves (drawn without a
+    /// model: the fit kept no amplitudes there).
+    pub fn best_of_class(fit: &FitResult, class: ObjectClass) -> Option<Shown> {
+        if let Some((k, c)) = fit.candidates.iter().enumerate().find(|(_, c)| c.class == class) {
+            return Some(Shown {
+                candidate: c.clone(),
+                rank: Some(k),
+                source: if k == 0 {
+                    ZSource::Automatic
+                } else {
+                    ZSource::Candidate
+                },
+            });
+        }
+        let (z, template) = fit
+            .curves
+            .iter()
+            .filter(|c| c.class == class)
+            .flat_map(|c| c.z.iter().zip(&c.chi2).map(move |(z, x)| (*z, *x, &c.template)))
+            .filter(|(z, x, _)| x.is_finite() && z.is_finite())
+            .min_by(|a, b| a.1.total_cmp(&b.1))
+            .map(|(z, _, t)| (z, t.clone()))?;
+        Some(Shown {
+            candidate: Candidate {
+                class,
+                template,
+                z,
+                z_err: f64::NAN,
+                chi2: f64::NAN,
+                coeffs: Vec::new(),
+            },
+            rank: None,
+            source: ZSource::Candidate,
+        })
+    }
+
+    /// `class` at redshift `z` from `source`: the candidate of `fit` at
+    /// exactly that class and z when there is one, else that class's best
+    /// template moved to `z` (so the model, markers and close-ups are of the
+    /// chosen class).
+    pub fn class_at(fit: Option<&FitResult>, class: ObjectClass, z: f64, source: ZSource) -> Shown {
+        if let Some(f) = fit {
+            if let Some((k, c)) = f
+                .candidates
+                .iter()
+                .enumerate()
+                .find(|(_, c)| c.class == class && (c.z - z).abs() <= 1e-9 * (1.0 + z.abs()))
+            {
+                return Shown {
+                    candidate: c.clone(),
+                    rank: Some(k),
+                    source,
+                };
+            }
+        }
+        let mut candidate = fit
+            .and_then(|f| Shown::best_of_class(f, class))
+            .map(|s| s.candidate)
+            .unwrap_or_else(|| Candidate {
+                class,
+                template: String::new(),
+                z,
+                z_err: f64::NAN,
+                chi2: f64::NAN,
+                coeffs: Vec::new(),
+            });
+        candidate.z = z;
+        candidate.z_err = f64::NAN;
+        Shown {
+            candidate,
+            rank: None,
+            source,
+        }
+    }
+
+    /// What to show for a recorded verdict: its class at its redshift (the
+    /// automatic answer when it has no redshift, e.g. `unclear`).
+    pub fn for_verdict(fit: Option<&FitResult>, v: &Verdict) -> Option<Shown> {
+        match (v.class.and_then(VerdictClass::object_class), v.z) {
+            (Some(class), Some(z)) if z.is_finite() => {
+                let mut s = Shown::class_at(fit, class, z, v.z_source.unwrap_or(ZSource::Typed));
+                if let Some(e) = v.z_err {
+                    s.candidate.z_err = e;
+                }
+                Some(s)
+            }
+            _ => fit.and_then(Shown::automatic),
+        }
+    }
+
+    /// True when this is the verdict's class, redshift and source.
+    pub fn is_recorded_in(&self, v: &Verdict) -> bool {
+        v.class == Some(self.class().into())
+            && v.z
+                .is_some_and(|z| (z - self.z()).abs() <= 1e-12 * (1.0 + z.abs()))
+            && v.z_source == Some(self.source)
+    }
+
     /// The shown redshift.
     pub fn z(&self) -> f64 {
         self.candidate.z
@@ -43,6 +142,18 @@ impl Shown {
     pub fn class(&self) -> ObjectClass {
         self.candidate.class
     }
+}
+
+/// A change that would replace a recorded verdict, waiting for the
+/// inspector to confirm it (Space or Enter) or keep the old one (Esc).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Pending {
+    /// Object index it is for.
+    pub index: usize,
+    /// The change to record on confirmation.
+    pub change: Change,
+    /// What the prompt says.
+    pub text: String,
 }
 
 /// How the spectrum is drawn.
@@ -147,6 +258,17 @@ pub struct AppState {
     pub path_text: String,
     /// A refit is running for the selected object.
     pub refit_running: bool,
+    /// A replacement of a recorded verdict waiting for confirmation.
+    pub pending: Option<Pending>,
+    /// Inspectors the open campaign knows (offered by the name dialog).
+    pub known_inspectors: Vec<String>,
+    /// Fits or verdicts arrived since the list was sorted: the order is kept
+    /// (rows never move under the pointer) until the inspector re-sorts.
+    pub order_stale: bool,
+    /// The inspector asked to quit.
+    pub quit_asked: bool,
+    /// The spectrum plot's bounds as last drawn: [λ from, λ to, flux from, flux to].
+    pub spectrum_bounds: Option<[f64; 4]>,
 }
 
 impl AppState {
@@ -178,6 +300,11 @@ impl AppState {
             name_prompt: None,
             path_text: String::new(),
             refit_running: false,
+            pending: None,
+            known_inspectors: Vec::new(),
+            order_stale: false,
+            quit_asked: false,
+            spectrum_bounds: None,
         }
     }
 
@@ -191,6 +318,7 @@ impl AppState {
             .map(|(o, f)| QueueItem::new(o, f.as_ref(), verdict(o.id()).as_ref()))
             .collect();
         self.order = queue::arrange(&self.items, &self.filter, self.sort);
+        self.order_stale = false;
     }
 
     /// Refresh one object's summary (after a verdict or a fit) without
@@ -225,7 +353,8 @@ impl AppState {
         self.order.iter().position(|&i| i == sel)
     }
 
-    /// Select object `index` (shown solution back to the automatic answer).
+    /// Select object `index`: a reviewed object shows its recorded verdict,
+    /// any other the automatic answer.
     pub fn select(&mut self, index: usize, verdict: Option<&Verdict>) {
         if index >= self.objects.len() {
             return;
@@ -235,17 +364,28 @@ impl AppState {
         self.refit = None;
         self.refit_running = false;
         self.flag_chord = false;
-        self.shown = self.current_fit().and_then(Shown::automatic);
-        self.sync_texts(verdict);
+        self.pending = None;
+        self.show_recorded(verdict);
         self.plot_move = Some(PlotMove::Reset);
     }
 
-    /// Put the verdict's z and note into the text fields.
+    /// Show the recorded verdict (or the automatic answer when there is
+    /// none) and put its z and note into the text fields.
+    pub fn show_recorded(&mut self, verdict: Option<&Verdict>) {
+        let fit = self.listed_fit();
+        self.shown = match verdict {
+            Some(v) if v.class.is_some() => Shown::for_verdict(fit, v),
+            _ => fit.and_then(Shown::automatic),
+        };
+        self.sync_texts(verdict);
+    }
+
+    /// Put the verdict's note and the shown z into the text fields.
     pub fn sync_texts(&mut self, verdict: Option<&Verdict>) {
         self.note_text = verdict.map(|v| v.note.clone()).unwrap_or_default();
-        self.z_text = match (verdict.and_then(|v| v.z), &self.shown) {
-            (Some(z), _) => format!("{z:.5}"),
-            (None, Some(s)) => format!("{:.5}", s.z()),
+        self.z_text = match (&self.shown, verdict.and_then(|v| v.z)) {
+            (Some(s), _) => format!("{:.5}", s.z()),
+            (None, Some(z)) => format!("{z:.5}"),
             _ => String::new(),
         };
     }

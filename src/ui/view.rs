@@ -1,12 +1,14 @@
 /*!
-Plot-ready data for one object: the smoothed flux and its 1σ band, the model
-of the shown solution, runs of masked pixels, line and sky markers at the
-shown z, and the close-up windows. Computed once when the object, the shown
-solution or the view settings change, never per frame; this is the work the
-GUI benchmark measures after a switch.
+Plot-ready data for one object: the smoothed flux and its 1σ band (in
+segments broken at masked runs), the model of the shown solution smoothed the
+same way as the flux, runs of masked pixels, the shown class's own line
+markers at the shown z, sky markers, and the close-up windows. Computed once
+when the object, the shown solution or the view settings change, never per
+frame; this is the work the GUI benchmark measures after a switch.
 */
-use crate::lines::{self, LineKind};
-use crate::Spectrum;
+use crate::lines::{self, Line, LineKind};
+use crate::{ObjectClass, Spectrum};
+use std::ops::Range;
 
 use super::state::ViewSettings;
 
@@ -49,6 +51,9 @@ pub struct Prepared {
     pub lo: Vec<f64>,
     /// Upper edge of the 1σ band.
     pub hi: Vec<f64>,
+    /// Runs of consecutive good pixels (ranges into `x`, `flux`, `lo`, `hi`):
+    /// flux and band are drawn per run, never across a masked gap.
+    pub segments: Vec<Range<usize>>,
     /// Model points (x, flux), empty when no model.
     pub model: Vec<[f64; 2]>,
     /// Runs of masked pixels as (x from, x to).
@@ -72,9 +77,89 @@ pub const CLOSEUP_HALF_WIDTH_REST: f64 = 60.0;
 /// Most close-ups shown at once.
 pub const MAX_CLOSEUPS: usize = 8;
 
-/// Prepare `s` for drawing at redshift `z` (markers) with `model` (flux at
-/// `s.wave()`, NaN where undefined; may be empty).
-pub fn prepare(s: &Spectrum, z: Option<f64>, model: &[f64], view: &ViewSettings) -> Prepared {
+/// The kind a line is drawn as for `class`, or `None` when it is not one of
+/// that class's diagnostic features (common practice): galaxies show every
+/// line but the quasar-only high-ionisation ones; quasars their emission
+/// lines; stars their absorption lines, the hydrogen series drawn as
+/// absorption. Without a class, every line as listed.
+pub fn line_kind_for(l: &Line, class: Option<ObjectClass>) -> Option<LineKind> {
+    const QUASAR_ONLY: [&str; 6] = [
+        "O VI 1032",
+        "O VI 1038",
+        "N V 1239",
+        "N V 1243",
+        "Si IV+O IV]",
+        "[Ne V] 3427",
+    ];
+    let hydrogen =
+        |n: &str| n.starts_with('H') && !n.starts_with("He") && !n.starts_with("Hg") || n.starts_with("Pa");
+    match class {
+        None => Some(l.kind),
+        Some(ObjectClass::Galaxy) => (!QUASAR_ONLY.contains(&l.name)).then_some(l.kind),
+        Some(ObjectClass::Quasar) => (l.kind == LineKind::Emission).then_some(LineKind::Emission),
+        Some(ObjectClass::Star) => match l.kind {
+            LineKind::Absorption => Some(LineKind::Absorption),
+            LineKind::Emission if hydrogen(l.name) => Some(LineKind::Absorption),
+            _ => None,
+        },
+    }
+}
+
+/// Close-up lines of each class, blue to red (common practice: the features
+/// an inspector checks first for that class).
+pub fn closeup_lines(class: Option<ObjectClass>) -> Vec<&'static Line> {
+    let names: &[&str] = match class {
+        None => return lines::diagnostic().iter().collect(),
+        Some(ObjectClass::Galaxy) => &[
+            "Lyα",
+            "[O II] 3727",
+            "Ca II K",
+            "Ca II H",
+            "Hδ",
+            "G band",
+            "Hβ",
+            "[O III] 5008",
+            "Mg b 5174",
+            "Na D2",
+            "Hα",
+            "Ca II 8544",
+        ],
+        Some(ObjectClass::Quasar) => &[
+            "Lyα",
+            "C IV",
+            "C III]",
+            "Mg II",
+            "[Ne V] 3427",
+            "Hγ",
+            "Hβ",
+            "[O III] 5008",
+            "Hα",
+        ],
+        Some(ObjectClass::Star) => &[
+            "Ca II K",
+            "Ca II H",
+            "Hδ",
+            "G band",
+            "Hγ",
+            "Hβ",
+            "Mg b 5174",
+            "Na D2",
+            "Hα",
+            "Ca II 8544",
+        ],
+    };
+    names.iter().filter_map(|n| lines::find(n)).collect()
+}
+
+/// Prepare `s` for drawing at redshift `z` (markers of `class`) with `model`
+/// (flux at `s.wave()`, NaN where undefined; may be empty).
+pub fn prepare(
+    s: &Spectrum,
+    z: Option<f64>,
+    class: Option<ObjectClass>,
+    model: &[f64],
+    view: &ViewSettings,
+) -> Prepared {
     let wave = s.wave();
     let n = wave.len();
     let zf = match (view.rest_frame, z) {
@@ -82,6 +167,13 @@ pub fn prepare(s: &Spectrum, z: Option<f64>, model: &[f64], view: &ViewSettings)
         _ => 1.0,
     };
     let (flux_s, sigma_s) = smooth(s, view.smoothing.max(1));
+    // The model is smoothed exactly as the flux is, so that line depths compare.
+    let model_s = if model.len() == n {
+        smooth_values(s, model, view.smoothing.max(1))
+    } else {
+        Vec::new()
+    };
+    let model = model_s.as_slice();
     let mut p = Prepared {
         x_range: (wave[0] / zf, wave[n - 1] / zf),
         ..Default::default()
@@ -92,6 +184,11 @@ pub fn prepare(s: &Spectrum, z: Option<f64>, model: &[f64], view: &ViewSettings)
         if s.good()[i] {
             if let Some(r) = run.take() {
                 p.masked.push(r);
+            }
+            let k = p.x.len();
+            match p.segments.last_mut() {
+                Some(seg) if seg.end == k && i > 0 && s.good()[i - 1] => seg.end = k + 1,
+                _ => p.segments.push(k..k + 1),
             }
             p.x.push(x);
             p.flux.push(flux_s[i]);
@@ -120,16 +217,19 @@ pub fn prepare(s: &Spectrum, z: Option<f64>, model: &[f64], view: &ViewSettings)
     if let Some(z) = z {
         for l in lines::all() {
             let obs = l.wave * (1.0 + z);
+            let Some(kind) = line_kind_for(l, class) else {
+                continue;
+            };
             if obs >= lam_lo && obs <= lam_hi {
                 p.lines.push(Marker {
                     x: obs / zf,
                     label: l.name,
-                    kind: l.kind,
+                    kind,
                     strength: l.strength,
                 });
             }
         }
-        for l in lines::diagnostic() {
+        for l in closeup_lines(class) {
             if p.closeups.len() >= MAX_CLOSEUPS {
                 break;
             }
@@ -153,7 +253,7 @@ pub fn prepare(s: &Spectrum, z: Option<f64>, model: &[f64], view: &ViewSettings)
             };
             p.closeups.push(Closeup {
                 name: l.name,
-                kind: l.kind,
+                kind: line_kind_for(l, class).unwrap_or(l.kind),
                 centre: obs / zf,
                 flux,
                 model,
@@ -200,6 +300,48 @@ pub fn smooth(s: &Spectrum, width: usize) -> (Vec<f64>, Vec<f64>) {
     (out, err)
 }
 
+/// `values` (e.g. a model at the spectrum's pixels, NaN where undefined)
+/// smoothed with the same inverse-variance weighted boxcar as the flux in
+/// [`smooth`]; where a window holds no weighted pixel, the plain mean of its
+/// finite values; NaN where it holds none.
+pub fn smooth_values(s: &Spectrum, values: &[f64], width: usize) -> Vec<f64> {
+    let n = s.len().min(values.len());
+    if width <= 1 {
+        return values[..n].to_vec();
+    }
+    let (iv, g) = (s.ivar(), s.good());
+    let (mut sw, mut swf, mut cn, mut cf) = (
+        vec![0.0; n + 1],
+        vec![0.0; n + 1],
+        vec![0.0; n + 1],
+        vec![0.0; n + 1],
+    );
+    for i in 0..n {
+        let ok = values[i].is_finite();
+        let w = if ok && g[i] { iv[i] } else { 0.0 };
+        let v = if ok { values[i] } else { 0.0 };
+        sw[i + 1] = sw[i] + w;
+        swf[i + 1] = swf[i] + w * v;
+        cn[i + 1] = cn[i] + if ok { 1.0 } else { 0.0 };
+        cf[i + 1] = cf[i] + v;
+    }
+    let half = width / 2;
+    (0..n)
+        .map(|i| {
+            if !values[i].is_finite() {
+                return f64::NAN;
+            }
+            let (a, b) = (i.saturating_sub(half), (i + half + 1).min(n));
+            let w = sw[b] - sw[a];
+            if w > 0.0 {
+                (swf[b] - swf[a]) / w
+            } else {
+                (cf[b] - cf[a]) / (cn[b] - cn[a])
+            }
+        })
+        .collect()
+}
+
 /// 1st–99th percentile of `v`, padded by 15 % (robust against spikes).
 fn robust_range(v: &[f64]) -> (f64, f64) {
     let mut s: Vec<f64> = v.iter().copied().filter(|x| x.is_finite()).collect();
@@ -234,6 +376,43 @@ mod tests {
     }
 
     #[test]
+    fn the_model_is_smoothed_exactly_as_the_flux() {
+        // A model equal to the flux must stay equal to the smoothed flux at
+        // every width: the same weights, the same window.
+        let flux: Vec<f64> = (0..40).map(|i| if i == 20 { 10.0 } else { 1.0 }).collect();
+        let ivar: Vec<f64> = (0..40).map(|i| 1.0 + (i % 3) as f64).collect();
+        let mut good = vec![true; 40];
+        good[5] = false;
+        let s = spec(flux.clone(), ivar, good);
+        for w in [1, 3, 9] {
+            let (f, _) = smooth(&s, w);
+            let m = smooth_values(&s, &flux, w);
+            for i in (0..40).filter(|&i| i != 5) {
+                assert_relative_eq!(f[i], m[i], epsilon = 1e-12);
+            }
+        }
+        // At 9 px a one-pixel line of the model is as shallow as the data's.
+        let m9 = smooth_values(&s, &flux, 9);
+        assert!(m9[20] < 3.0, "{}", m9[20]);
+    }
+
+    #[test]
+    fn each_class_gets_its_own_features() {
+        let s = spec(vec![1.0; 6000], vec![1.0; 6000], vec![true; 6000]);
+        let view = ViewSettings::default();
+        let star = prepare(&s, Some(0.0), Some(ObjectClass::Star), &[], &view);
+        let names: Vec<&str> = star.lines.iter().map(|m| m.label).collect();
+        assert!(!names.iter().any(|n| n.starts_with("[O")), "{names:?}");
+        assert!(names.contains(&"Na D2") && names.contains(&"Hβ"), "{names:?}");
+        assert!(star.lines.iter().all(|m| m.kind == LineKind::Absorption));
+        assert!(star.closeups.iter().all(|c| !c.name.starts_with("[O")));
+        let gal = prepare(&s, Some(0.0), Some(ObjectClass::Galaxy), &[], &view);
+        assert!(gal.closeups.iter().any(|c| c.name == "[O III] 5008"));
+        let qso = prepare(&s, Some(0.0), Some(ObjectClass::Quasar), &[], &view);
+        assert!(qso.lines.iter().all(|m| m.kind == LineKind::Emission));
+    }
+
+    #[test]
     fn masked_runs_and_rest_axis() {
         let mut good = vec![true; 10];
         good[3] = false;
@@ -244,9 +423,11 @@ mod tests {
             smoothing: 1,
             ..Default::default()
         };
-        let p = prepare(&s, Some(1.0), &[], &view);
+        let p = prepare(&s, Some(1.0), None, &[], &view);
         assert_eq!(p.x.len(), 8);
         assert_eq!(p.masked.len(), 1);
+        // The flux and its band break at the masked run: two segments.
+        assert_eq!(p.segments, vec![0..3, 3..8]);
         // pixels 3 and 4 at 4003, 4004 Å observed → 2001.5, 2002 rest; ±0.25 edges.
         assert_relative_eq!(p.masked[0].0, 2001.25);
         assert_relative_eq!(p.masked[0].1, 2002.25);

@@ -111,7 +111,7 @@ fn report_numbers_match_the_logs_and_scikit_learn() {
         // (certain) where ana was less sure, else ana's.
         let i = s.ids.iter().position(|id| *id == o.id).unwrap();
         let za = s.z[i].unwrap();
-        let zv = if i < N_AGREED && s.conf[i] != Confidence::Certain {
+        let zv = if i < N_AGREED && s.conf[i] != Confidence::Secure {
             za + 0.0005 * (1.0 + za)
         } else {
             za
@@ -128,10 +128,10 @@ fn report_numbers_match_the_logs_and_scikit_learn() {
     assert_eq!(prog, BTreeMap::from([("ana", 200), ("ben", 40), ("judge", 10)]));
     // Confidence of consensus verdicts: ana's (the lower one where ben agreed),
     // certain for the adjudicated.
-    let mut want_conf = [0usize; 5];
+    let mut want_conf = [0usize; 4];
     for i in 0..200 {
         let level = if (N_AGREED..N_AGREED + N_CONFLICT).contains(&i) {
-            Confidence::Certain
+            Confidence::Secure
         } else {
             s.conf[i]
         };
@@ -187,7 +187,7 @@ fn export_of_the_campaign_applies_filters() {
     assert_eq!(r7.inspectors, vec!["ana", "ben"]);
 
     let opts = export::ExportOptions {
-        min_confidence: Some(Confidence::Solid),
+        min_confidence: Some(Confidence::Secure),
         exclude_flags: vec![Flag::LowSignal],
     };
     let out = c.exports_dir().join("solid.csv");
@@ -196,20 +196,20 @@ fn export_of_the_campaign_applies_filters() {
         .filter(|&i| {
             let adjudicated = (N_AGREED..N_AGREED + N_CONFLICT).contains(&i);
             let conf = if adjudicated {
-                Confidence::Certain
+                Confidence::Secure
             } else {
                 s.conf[i]
             };
             let low = !adjudicated && s.flags[i].contains(&Flag::LowSignal);
-            conf >= Confidence::Solid && !low
+            conf >= Confidence::Secure && !low
         })
         .count();
     assert_eq!(sum.rows, want);
     assert_eq!(sum.filtered, 200 - want);
     let (rows, prov) = export::read(&out).unwrap();
     assert_eq!(rows.len(), want);
-    assert_eq!(prov.min_confidence, Some(Confidence::Solid));
-    assert!(rows.iter().all(|r| r.confidence >= Some(Confidence::Solid)));
+    assert_eq!(prov.min_confidence, Some(Confidence::Secure));
+    assert!(rows.iter().all(|r| r.confidence >= Some(Confidence::Secure)));
 }
 
 #[test]
@@ -370,7 +370,7 @@ fn report_on_the_demo_survey() {
                 z,
                 z_err: None,
                 source: ZSource::Typed,
-                confidence: Confidence::Solid,
+                confidence: Confidence::Secure,
             };
             let seen = o.fit.as_ref().and_then(zvet::review::FitSeen::of);
             log.record(o.id(), seen, change).unwrap();

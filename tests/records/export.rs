@@ -34,7 +34,7 @@ pub fn sample_rows() -> Vec<ExportRow> {
         vetted_z: Some(0.3123456789),
         vetted_z_err: Some(1.2e-4),
         z_source: Some(ZSource::Automatic),
-        confidence: Some(Confidence::Certain),
+        confidence: Some(Confidence::Secure),
         flags: BTreeSet::new(),
         note: String::new(),
         inspectors: vec!["ana".into()],
@@ -52,7 +52,7 @@ pub fn sample_rows() -> Vec<ExportRow> {
     r2.vetted_class = zvet::review::VerdictClass::Quasar;
     r2.vetted_z = Some(2.2051);
     r2.z_source = Some(ZSource::Typed);
-    r2.confidence = Some(Confidence::Solid);
+    r2.confidence = Some(Confidence::Secure);
     r2.flags = [Flag::BroadAbsorption, Flag::SkyResidual].into_iter().collect();
     r2.note = "C IV, C III] and Mg II; Lyα forest, \"BAL\"\nsecond line, λ 1549 Å".into();
     r2.inspectors = vec!["ana".into(), "ben".into()];
@@ -84,7 +84,7 @@ pub fn sample_rows() -> Vec<ExportRow> {
     r4.vetted_class = zvet::review::VerdictClass::Star;
     r4.vetted_z = Some(-0.000123);
     r4.z_source = Some(ZSource::Refit);
-    r4.confidence = Some(Confidence::Doubtful);
+    r4.confidence = Some(Confidence::Guess);
     vec![r4.clone(), r2, r3, {
         r4.catalog.id = "obj-0000".into();
         r4
@@ -99,7 +99,7 @@ pub fn sample_provenance() -> Provenance {
         engine: EngineSettings::default(),
         date: chrono::Utc.with_ymd_and_hms(2026, 12, 2, 0, 30, 0).unwrap(),
         tolerance: 0.0015,
-        min_confidence: Some(Confidence::Doubtful),
+        min_confidence: Some(Confidence::Guess),
         exclude_flags: vec![Flag::WrongTarget, Flag::Artefact],
     }
 }
@@ -343,7 +343,7 @@ fn export_matches_astropy_view() {
     assert_eq!(h["ZVETVER"], p.zvet_version.as_str());
     assert_eq!(h["TEMPLSET"], p.template_set.as_str());
     assert_eq!(h["DATE"], "2026-12-02T00:30:00");
-    assert_eq!(h["MINCONF"], "doubtful");
+    assert_eq!(h["MINCONF"], "guess");
     assert_eq!(h["EXCLFLAG"], "wrong_target,artefact");
     assert_relative_eq!(h["ZTOL"].as_f64().unwrap(), p.tolerance);
     assert_relative_eq!(h["DLOGLAM"].as_f64().unwrap(), p.engine.dloglam);

@@ -54,7 +54,9 @@ pub fn build_campaign(name: &str) -> (Campaign, Scenario) {
     let n = truth.len();
     let ids: Vec<String> = (0..n).map(|i| format!("o{i:03}")).collect();
     let z: Vec<Option<f64>> = (0..n).map(|i| ana_z(i, truth[i])).collect();
-    let conf: Vec<Confidence> = (0..n).map(|i| Confidence::ALL[i % 4]).collect();
+    let conf: Vec<Confidence> = (0..n)
+        .map(|i| Confidence::ALL[i % Confidence::ALL.len()])
+        .collect();
     let flags: Vec<Vec<Flag>> = (0..n)
         .map(|i| {
             let mut f = Vec::new();
@@ -157,13 +159,13 @@ pub fn build_campaign(name: &str) -> (Campaign, Scenario) {
                 let o = other_class(truth[i]);
                 (o, ana_z(i, o))
             };
-            ben.record(&ids[i], None, verdict(cl, zz, Confidence::Certain))
+            ben.record(&ids[i], None, verdict(cl, zz, Confidence::Secure))
                 .unwrap();
         }
         let (mut judge, _) = c.open_review_log("judge").unwrap();
         for i in N_AGREED..N_AGREED + N_CONFLICT {
             judge
-                .record(&ids[i], None, verdict(truth[i], z[i], Confidence::Certain))
+                .record(&ids[i], None, verdict(truth[i], z[i], Confidence::Secure))
                 .unwrap();
         }
     }

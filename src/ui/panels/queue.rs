@@ -1,7 +1,10 @@
 /*!
 The queue on the left: filters (class, status, flag, disagreement, Δχ², S/N),
-the sort key, and the list of objects. Rows show review status, id, current
-class and z, and a mark when the photometric class disagrees with the fit.
+the sort key, and the list of objects. Rows show review status (● reviewed,
+◐ started but incomplete, ○ not yet), id, the current class and z — the
+vetted ones once a verdict records them, else the fit's — and a mark when the
+photometric class disagrees with the fit. The list never re-sorts by itself:
+when fits or verdicts arrive the "re-sort" button says the order is out of date.
 */
 use egui::{ComboBox, RichText};
 
@@ -44,9 +47,16 @@ pub fn ui(ui: &mut egui::Ui, state: &AppState, out: &mut Vec<Action>) {
                 if sort != state.sort {
                     out.push(Action::SetSort(sort));
                 }
+                let resort = if state.order_stale {
+                    egui::Button::new(RichText::new("re-sort (order out of date)").color(super::WARN))
+                } else {
+                    egui::Button::new("re-sort")
+                };
                 if ui
-                    .button("re-sort")
-                    .on_hover_text("apply the order to verdicts given since")
+                    .add(resort)
+                    .on_hover_text(
+                        "sort again (fits or verdicts arrived since; the list never moves by itself)",
+                    )
                     .clicked()
                 {
                     out.push(Action::Resort);
@@ -129,14 +139,28 @@ pub fn flag_words(f: Flag) -> String {
 }
 
 fn row_text(item: &QueueItem) -> RichText {
-    let mark = if item.is_reviewed() { "●" } else { "○" };
+    let mark = if item.is_reviewed() {
+        "●"
+    } else if item.started {
+        "◐"
+    } else {
+        "○"
+    };
     let class = item.current_class().map_or("?", |c| match c {
         VerdictClass::Galaxy => "G",
         VerdictClass::Quasar => "Q",
         VerdictClass::Star => "S",
         VerdictClass::Unclear => "U",
     });
-    let z = item.fit_z.map_or("   …  ".to_string(), |z| format!("{z:6.3}"));
+    let z = match (
+        item.current_z(),
+        item.verdict_class.is_some(),
+        item.fit_z.is_some(),
+    ) {
+        (Some(z), _, _) => format!("{z:6.3}"),
+        (None, true, _) => "   —  ".to_string(),
+        (None, false, _) => "   …  ".to_string(),
+    };
     let odd = if item.disagrees() { " ≠" } else { "" };
     let text = RichText::new(format!("{mark} {}  {class} {z}{odd}", item.id)).monospace();
     match item.current_class() {

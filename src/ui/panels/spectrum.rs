@@ -1,13 +1,14 @@
 /*!
 The spectrum: smoothed flux with its 1σ band, the model of the shown solution,
 masked pixels as shaded runs, emission (solid) and absorption (dashed) line
-markers labelled at the shown z, sky lines dotted; observed or rest-frame axis;
-mouse zoom/pan from the plot, key zoom/pan from [`PlotMove`].
+markers labelled at the shown z, sky lines dotted; observed or rest-frame axis.
+The mouse works in wavelength: the wheel zooms around the pointer, a drag
+pans, a right-button drag zooms to a box, a double click shows everything
+again; keys do the same through [`PlotMove`]. The legend is a row above the
+plot, so it never covers the spectrum.
 */
 use egui::{Align2, RichText};
-use egui_plot::{
-    FilledArea, Legend, Line, LineStyle, MarkerShape, Plot, PlotPoint, Points, Span, Text, VLine,
-};
+use egui_plot::{FilledArea, Line, LineStyle, MarkerShape, Plot, PlotPoint, Points, Span, Text, VLine};
 
 use crate::lines::LineKind;
 use crate::ui::action::Action;
@@ -46,6 +47,7 @@ pub fn ui(
         ui.checkbox(&mut state.view.show_model, "model");
         ui.checkbox(&mut state.view.show_sky, "sky lines");
     });
+    legend(ui, state);
     let Some(p) = prepared else {
         ui.allocate_space(egui::vec2(ui.available_width(), height));
         return;
@@ -60,7 +62,13 @@ pub fn ui(
     let (y0, y1) = p.y_range;
     let plot = Plot::new(("zvet-spectrum", state.selection_serial, rest))
         .height(height)
-        .legend(Legend::default())
+        // Wavelength only: the wheel is handled below (zoom about the
+        // pointer), a drag pans in λ, box zoom and double-click reset stay.
+        .allow_scroll(false)
+        .allow_zoom(false)
+        .allow_drag([true, false])
+        .allow_boxed_zoom(true)
+        .allow_double_click_reset(true)
         .x_axis_label(x_label)
         .y_axis_label("flux")
         .default_x_bounds(p.x_range.0, p.x_range.1)
@@ -72,7 +80,27 @@ pub fn ui(
             };
             Some(format!("λ = {:.1} Å\nflux = {:.3}", q.x, q.y))
         });
-    plot.show(ui, |pui| {
+    let shown = plot.show(ui, |pui| {
+        if pui.response().hovered() {
+            let (wheel, pinch) = pui
+                .ctx()
+                .input(|i| (i.smooth_scroll_delta.y + i.smooth_scroll_delta.x, i.zoom_delta()));
+            let factor = (wheel as f64 / 200.0).exp() * pinch as f64;
+            if (factor - 1.0).abs() > 1e-6 {
+                if let Some(at) = pui.pointer_coordinate() {
+                    let b = pui.plot_bounds();
+                    let (lo, hi) = (b.min()[0], b.max()[0]);
+                    let (a, c) = wheel_zoom(lo, hi, at.x, factor);
+                    pui.set_plot_bounds_x(a..=c);
+                }
+            }
+        }
+        // Double click: the whole spectrum, as the `0` key.
+        let plot_move = if pui.response().double_clicked() {
+            Some(PlotMove::Reset)
+        } else {
+            plot_move
+        };
         if let Some(m) = plot_move {
             let b = pui.plot_bounds();
             let (lo, hi) = (b.min()[0], b.max()[0]);
@@ -118,13 +146,29 @@ pub fn ui(
                     .color(super::SKY),
             );
         }
-        pui.add(FilledArea::new("1σ", &p.x, &p.lo, &p.hi).fill_color(super::FLUX.gamma_multiply(0.22)));
-        let pts: Vec<[f64; 2]> = p.x.iter().zip(&p.flux).map(|(x, y)| [*x, *y]).collect();
-        pui.line(Line::new("flux", pts).color(super::FLUX).width(1.0));
+        // Flux and band per run of good pixels: never drawn across a masked gap.
+        for seg in &p.segments {
+            let r = seg.clone();
+            if r.len() >= 2 {
+                pui.add(
+                    FilledArea::new("1σ", &p.x[r.clone()], &p.lo[r.clone()], &p.hi[r.clone()])
+                        .fill_color(super::FLUX.gamma_multiply(0.22)),
+                );
+            }
+            let pts: Vec<[f64; 2]> = p.x[r.clone()]
+                .iter()
+                .zip(&p.flux[r])
+                .map(|(x, y)| [*x, *y])
+                .collect();
+            pui.line(Line::new("flux", pts).color(super::FLUX).width(1.0));
+        }
         if !p.model.is_empty() {
             pui.line(Line::new("model", p.model.clone()).color(super::MODEL).width(1.6));
         }
         let top = y1 - 0.02 * (y1 - y0);
+        // Labels near the red edge hang to the left of their line, so none is cut off.
+        let vb = pui.plot_bounds();
+        let red_edge = vb.max()[0] - 0.1 * vb.width();
         let mut labelled = 0usize;
         let mut last_label = f64::NEG_INFINITY;
         for m in p.lines.iter().filter(|m| m.strength >= MARK_STRENGTH) {
@@ -146,9 +190,57 @@ pub fn ui(
                 pui.text(
                     Text::new(name, PlotPoint::new(m.x, y), RichText::new(m.label).size(11.0))
                         .color(colour)
-                        .anchor(Align2::LEFT_TOP),
+                        .anchor(if m.x > red_edge {
+                            Align2::RIGHT_TOP
+                        } else {
+                            Align2::LEFT_TOP
+                        }),
                 );
             }
         }
     });
+    let b = shown.transform.bounds();
+    state.spectrum_bounds = Some([b.min()[0], b.max()[0], b.min()[1], b.max()[1]]);
+}
+
+/// New x bounds after zooming `[lo, hi]` by `factor` (> 1 zooms in) about `at`.
+pub fn wheel_zoom(lo: f64, hi: f64, at: f64, factor: f64) -> (f64, f64) {
+    let f = factor.clamp(0.2, 5.0);
+    (at - (at - lo) / f, at + (hi - at) / f)
+}
+
+/// The legend: one row of coloured words above the plot.
+fn legend(ui: &mut egui::Ui, state: &AppState) {
+    ui.horizontal_wrapped(|ui| {
+        ui.spacing_mut().item_spacing.x = 10.0;
+        let item = |ui: &mut egui::Ui, c: egui::Color32, t: &str| {
+            ui.label(RichText::new(format!("— {t}")).color(c).small());
+        };
+        item(ui, super::FLUX, "flux ±1σ");
+        if state.view.show_model {
+            item(ui, super::MODEL, "model (smoothed alike)");
+        }
+        item(ui, super::EMISSION, "emission lines");
+        item(ui, super::ABSORPTION, "absorption lines (dashed)");
+        if state.view.show_sky {
+            item(ui, super::SKY, "sky lines (dotted)");
+        }
+        item(ui, egui::Color32::from_rgb(200, 60, 60), "masked");
+        ui.weak("wheel: zoom λ · drag: pan · right-drag: box · double-click: all");
+    });
+}
+
+#[cfg(test)]
+mod tests {
+    use super::wheel_zoom;
+    use approx::assert_relative_eq;
+
+    #[test]
+    fn the_wheel_zooms_about_the_pointer() {
+        let (a, b) = wheel_zoom(4000.0, 8000.0, 5000.0, 2.0);
+        assert_relative_eq!(a, 4500.0);
+        assert_relative_eq!(b, 6500.0);
+        // The wavelength under the pointer stays where it was.
+        assert_relative_eq!((5000.0 - a) / (b - a), (5000.0 - 4000.0) / 4000.0);
+    }
 }

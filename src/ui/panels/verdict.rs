@@ -1,7 +1,9 @@
 /*!
-The verdict panel: the shown solution and the button that accepts it, class,
-typed z and refit, confidence, flags, note, undo/redo, and the object's
-history (who did what, when).
+The verdict panel: the recorded verdict (class, z and its source, certainty,
+flags, note) in a box of its own, the shown solution and the button that
+accepts it, the question when an accept would replace a recorded verdict,
+class, typed z and refit, certainty, flags, note, undo/redo, and the
+object's history (who did what, when).
 */
 use egui::{Key, RichText, TextEdit};
 
@@ -42,25 +44,53 @@ pub fn ui(
         return;
     };
     ui.heading(format!("Verdict on {}", obj.id()));
-    let reviewed = verdict.is_some_and(|v| v.class.is_some());
-    ui.label(if reviewed {
-        RichText::new("reviewed").color(egui::Color32::from_rgb(120, 210, 120))
-    } else {
-        RichText::new("not reviewed yet").weak()
-    });
+    recorded_box(ui, verdict);
     ui.add_space(4.0);
+
+    if let Some(p) = &state.pending {
+        egui::Frame::group(ui.style())
+            .fill(super::WARN.gamma_multiply(0.18))
+            .show(ui, |ui| {
+                ui.label(RichText::new(&p.text).strong());
+                ui.horizontal(|ui| {
+                    if ui.button("replace  [Space / Enter]").clicked() {
+                        out.push(Action::Confirm);
+                    }
+                    if ui.button("keep  [Esc]").clicked() {
+                        out.push(Action::Escape);
+                    }
+                });
+            });
+        ui.add_space(4.0);
+    }
 
     match &state.shown {
         Some(s) => {
+            let recorded = verdict.is_some_and(|v| s.is_recorded_in(v));
             ui.label(format!(
                 "shown: {} at z = {:.5} ({})",
                 s.class(),
                 s.z(),
                 source_words(s.source)
             ));
+            let complete = verdict.is_some_and(Verdict::is_complete);
+            let (label, hover) = match (complete, recorded) {
+                (true, true) => (
+                    "Keep recorded  [Space]",
+                    "this is the recorded verdict: Space keeps it and records nothing",
+                ),
+                (true, false) => (
+                    "Replace with shown…  [Space]",
+                    "the shown solution differs from the recorded verdict: Space asks before replacing it",
+                ),
+                _ => (
+                    "Accept shown  [Space]",
+                    "record the shown class and z (certainty as set, else secure)",
+                ),
+            };
             let accept = ui
-                .add(egui::Button::new(RichText::new("Accept shown  [Space]").strong()))
-                .on_hover_text("record the shown class and z with the chosen (or solid) confidence");
+                .add(egui::Button::new(RichText::new(label).strong()))
+                .on_hover_text(hover);
             if accept.clicked() {
                 out.push(Action::AcceptShown);
             }
@@ -129,20 +159,13 @@ pub fn ui(
             ui.spinner();
         }
     });
-    if let Some(v) = verdict {
-        if let (Some(z), Some(src)) = (v.z, v.z_source) {
-            let err = v.z_err.map_or(String::new(), |e| format!(" ± {e:.5}"));
-            ui.weak(format!("recorded z = {z:.5}{err} ({})", source_words(src)));
-        }
-    }
-
-    ui.label("confidence");
+    ui.label("certainty");
     ui.horizontal(|ui| {
-        for (k, c) in Confidence::ALL.iter().enumerate() {
+        for c in Confidence::ALL.iter().rev() {
             let on = verdict.and_then(|v| v.confidence) == Some(*c);
             if ui
                 .selectable_label(on, c.as_str())
-                .on_hover_text(format!("key {}", k + 1))
+                .on_hover_text(format!("{}: {}", grade_key(*c), grade_words(*c)))
                 .clicked()
             {
                 out.push(Action::SetConfidence(*c));
@@ -211,6 +234,78 @@ pub fn ui(
         });
 }
 
+/// The key of a certainty grade.
+pub fn grade_key(c: Confidence) -> &'static str {
+    match c {
+        Confidence::Secure => "Shift+S",
+        Confidence::Probable => "Shift+P",
+        Confidence::Guess => "Shift+G",
+    }
+}
+
+/// What a certainty grade means.
+pub fn grade_words(c: Confidence) -> &'static str {
+    match c {
+        Confidence::Secure => "several features agree; beyond reasonable doubt",
+        Confidence::Probable => "probably right: one clear feature, or weak ones that agree",
+        Confidence::Guess => "a best guess; not for training",
+    }
+}
+
+/// The recorded verdict in a box of its own: status, class, z with its
+/// error and source, certainty, flags, note.
+fn recorded_box(ui: &mut egui::Ui, verdict: Option<&Verdict>) {
+    egui::Frame::group(ui.style()).show(ui, |ui| {
+        ui.set_width(ui.available_width());
+        let Some(v) = verdict.filter(|v| **v != Verdict::default()) else {
+            ui.label(RichText::new("not reviewed yet").weak());
+            return;
+        };
+        if v.is_complete() {
+            ui.label(
+                RichText::new("reviewed — recorded verdict").color(egui::Color32::from_rgb(120, 210, 120)),
+            );
+        } else {
+            ui.label(RichText::new("incomplete — needs a class, a z and a certainty").color(super::WARN));
+        }
+        egui::Grid::new("zvet-recorded").num_columns(2).show(ui, |ui| {
+            ui.weak("class");
+            match v.class {
+                Some(c) => ui.label(RichText::new(c.as_str()).strong().color(super::class_colour(c))),
+                None => ui.weak("—"),
+            };
+            ui.end_row();
+            ui.weak("z");
+            let z = match v.z {
+                Some(z) => {
+                    let err = v.z_err.map_or(String::new(), |e| format!(" ± {e:.5}"));
+                    format!("{z:.5}{err}")
+                }
+                None => "—".into(),
+            };
+            ui.label(RichText::new(z).strong());
+            ui.end_row();
+            ui.weak("source");
+            ui.label(v.z_source.map_or("—", source_words));
+            ui.end_row();
+            ui.weak("certainty");
+            ui.label(v.confidence.map_or("—", |c| c.as_str()));
+            ui.end_row();
+            ui.weak("flags");
+            let flags: Vec<String> = v.flags.iter().map(|f| flag_words(*f)).collect();
+            ui.label(if flags.is_empty() {
+                "—".into()
+            } else {
+                flags.join(", ")
+            });
+            ui.end_row();
+            ui.weak("note");
+            ui.label(if v.note.is_empty() { "—" } else { v.note.as_str() });
+            ui.end_row();
+        });
+    });
+}
+
 /// A short description of a change for the history list.
 pub fn change_words(c: &Change) -> String {
     match c {
@@ -229,7 +324,7 @@ pub fn change_words(c: &Change) -> String {
         ),
         Change::Class { class } => format!("class: {}", class.as_str()),
         Change::Redshift { z, source, .. } => format!("z: {z:.4} ({})", source_words(*source)),
-        Change::Confidence { confidence } => format!("confidence: {}", confidence.as_str()),
+        Change::Confidence { confidence } => format!("certainty: {}", confidence.as_str()),
         Change::Flag { flag, on } => {
             format!("{} {}", if *on { "flag" } else { "unflag" }, flag_words(*flag))
         }
