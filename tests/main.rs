@@ -10,3 +10,6 @@ mod records;
 mod review;
 mod smoke;
 mod templates;
+#[cfg(feature = "gui")]
+mod gui_tools;
+mod tools;

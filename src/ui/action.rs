@@ -113,4 +113,6 @@ pub enum Action {
     Open(OpenKind, Vec<PathBuf>),
     /// Open a file dialog for the given kind.
     Browse(OpenKind),
+    /// A request for one of the tools (adjudication, jump, overlays).
+    Tool(super::tools::ToolAction),
 }

@@ -17,12 +17,14 @@ pub mod action;
 pub mod app;
 mod apply;
 pub mod jobs;
+pub mod jump;
 pub mod keys;
 pub mod load;
 pub mod panels;
 mod readers;
 pub mod settings;
 pub mod state;
+pub mod tools;
 pub mod view;
 
 pub use app::{LogPlace, Session, ZvetApp};

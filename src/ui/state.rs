@@ -147,6 +147,8 @@ pub struct AppState {
     pub path_text: String,
     /// A refit is running for the selected object.
     pub refit_running: bool,
+    /// Adjudication, jump, overlays and automatic smoothing.
+    pub tools: super::tools::ToolsState,
 }
 
 impl AppState {
@@ -178,6 +180,7 @@ impl AppState {
             name_prompt: None,
             path_text: String::new(),
             refit_running: false,
+            tools: Default::default(),
         }
     }
 
@@ -191,6 +194,7 @@ impl AppState {
             .map(|(o, f)| QueueItem::new(o, f.as_ref(), verdict(o.id()).as_ref()))
             .collect();
         self.order = queue::arrange(&self.items, &self.filter, self.sort);
+        self.tools.restrict(&self.items, &mut self.order);
     }
 
     /// Refresh one object's summary (after a verdict or a fit) without

@@ -45,7 +45,9 @@ pub fn ui(
         }
         ui.checkbox(&mut state.view.show_model, "model");
         ui.checkbox(&mut state.view.show_sky, "sky lines");
+        super::overlay::controls(ui, state, out);
     });
+    super::overlay::notes(ui, state);
     let Some(p) = prepared else {
         ui.allocate_space(egui::vec2(ui.available_width(), height));
         return;
@@ -118,12 +120,14 @@ pub fn ui(
                     .color(super::SKY),
             );
         }
+        super::overlay::draw_under(pui, state, (y0, y1));
         pui.add(FilledArea::new("1σ", &p.x, &p.lo, &p.hi).fill_color(super::FLUX.gamma_multiply(0.22)));
         let pts: Vec<[f64; 2]> = p.x.iter().zip(&p.flux).map(|(x, y)| [*x, *y]).collect();
         pui.line(Line::new("flux", pts).color(super::FLUX).width(1.0));
         if !p.model.is_empty() {
             pui.line(Line::new("model", p.model.clone()).color(super::MODEL).width(1.6));
         }
+        super::overlay::draw_over(pui, state);
         let top = y1 - 0.02 * (y1 - y0);
         let mut labelled = 0usize;
         let mut last_label = f64::NEG_INFINITY;
