@@ -63,15 +63,18 @@ fn switch_and_draw(c: &mut Criterion) {
     app.apply(Action::Tool(zvet::ui::tools::ToolAction::SetOverlay(star)));
     app.state.tools.show_sky = true;
     app.state.tools.show_photometry = true;
-    c.bench_function("switch object, prepare and draw with overlay, photometry and sky", |b| {
-        b.iter(|| {
-            k = (k + 1) % n;
-            app.apply(Action::Select(k));
-            let out = ctx.run_ui(input(), |ui| app.show(ui));
-            let prims = ctx.tessellate(out.shapes, out.pixels_per_point);
-            black_box(prims.len())
-        })
-    });
+    c.bench_function(
+        "switch object, prepare and draw with overlay, photometry and sky",
+        |b| {
+            b.iter(|| {
+                k = (k + 1) % n;
+                app.apply(Action::Select(k));
+                let out = ctx.run_ui(input(), |ui| app.show(ui));
+                let prims = ctx.tessellate(out.shapes, out.pixels_per_point);
+                black_box(prims.len())
+            })
+        },
+    );
 }
 
 criterion_group!(benches, switch_and_draw);

@@ -83,9 +83,10 @@ pub fn flambda_unit_scale(unit: &str) -> Option<f64> {
     }
     // Split a leading number (possibly "10^-17" or "10**-17") from the unit.
     let (scale, rest) = leading_scale(t)?;
-    let mut u = rest.to_ascii_lowercase();
+    let mut u = rest.to_lowercase();
     for (from, to) in [
         ("å", "a"),
+        ("\u{212b}", "a"),
         ("angstroms", "a"),
         ("angstrom", "a"),
         ("aa", "a"),

@@ -137,7 +137,9 @@ fn jump_to_an_object_by_id_and_by_prefix() {
     // The J itself did not go into the field.
     assert_eq!(h.state().state.tools.jump.as_deref(), Some(""));
     h.get_by_label("Go to object");
-    h.input_mut().events.push(egui::Event::Text(target.to_lowercase()));
+    h.input_mut()
+        .events
+        .push(egui::Event::Text(target.to_lowercase()));
     h.run_steps(2);
     press(&mut h, Key::Enter);
     assert_eq!(selected_id(&h), target, "the exact id, typed in lower case");
@@ -149,7 +151,11 @@ fn jump_to_an_object_by_id_and_by_prefix() {
     sorted.sort();
     let common: String = {
         let (a, b) = (&sorted[0], &sorted[sorted.len() - 1]);
-        a.chars().zip(b.chars()).take_while(|(x, y)| x == y).map(|(x, _)| x).collect()
+        a.chars()
+            .zip(b.chars())
+            .take_while(|(x, y)| x == y)
+            .map(|(x, _)| x)
+            .collect()
     };
     assert!(!common.is_empty());
     press(&mut h, Key::Slash);
@@ -161,7 +167,9 @@ fn jump_to_an_object_by_id_and_by_prefix() {
 
     // No match: a plain message, the selection stays, nothing is recorded.
     press(&mut h, Key::J);
-    h.input_mut().events.push(egui::Event::Text("no-such-object".into()));
+    h.input_mut()
+        .events
+        .push(egui::Event::Text("no-such-object".into()));
     h.run_steps(2);
     h.get_by_label("no object id starts with 'no-such-object'");
     press(&mut h, Key::Enter);
@@ -182,7 +190,10 @@ fn template_overlay_is_drawn_and_leaves_the_verdict_alone() {
     // M lays the first template over the spectrum, Shift+M goes back.
     press(&mut h, Key::M);
     let first = h.state().state.tools.overlay.clone().expect("M chose a template");
-    assert!(!h.state().state.tools.prepared.overlay.is_empty(), "its model is drawn");
+    assert!(
+        !h.state().state.tools.prepared.overlay.is_empty(),
+        "its model is drawn"
+    );
     // Pick a star type by name, as from the list.
     let star = h
         .state()
@@ -223,7 +234,11 @@ fn photometry_and_sky_over_the_spectrum() {
         .state
         .objects
         .iter()
-        .position(|o| o.catalog.as_ref().is_some_and(|r| r.mag.iter().flatten().count() >= 3))
+        .position(|o| {
+            o.catalog
+                .as_ref()
+                .is_some_and(|r| r.mag.iter().flatten().count() >= 3)
+        })
         .expect("a demo object with photometry");
     h.state_mut().apply(Action::Select(i));
     h.run_steps(2);
@@ -278,22 +293,51 @@ fn two_inspectors(folder: &Path, ids: &[String]) {
         confidence: conf,
     };
     let (mut ana, _) = ReviewLog::open(&folder.join("ana.jsonl"), "ana").unwrap();
-    ana.record(&ids[0], None, opinion(VerdictClass::Galaxy, 0.5, Confidence::Solid))
-        .unwrap();
-    ana.record(&ids[0], None, Change::Note { text: "Hα and [N II]".into() })
-        .unwrap();
-    ana.record(&ids[1], None, opinion(VerdictClass::Quasar, 2.0, Confidence::Certain))
-        .unwrap();
+    ana.record(
+        &ids[0],
+        None,
+        opinion(VerdictClass::Galaxy, 0.5, Confidence::Solid),
+    )
+    .unwrap();
+    ana.record(
+        &ids[0],
+        None,
+        Change::Note {
+            text: "Hα and [N II]".into(),
+        },
+    )
+    .unwrap();
+    ana.record(
+        &ids[1],
+        None,
+        opinion(VerdictClass::Quasar, 2.0, Confidence::Certain),
+    )
+    .unwrap();
     ana.record(&ids[2], None, opinion(VerdictClass::Star, 0.0, Confidence::Solid))
         .unwrap();
     let (mut ben, _) = ReviewLog::open(&folder.join("ben.jsonl"), "ben").unwrap();
-    ben.record(&ids[0], None, opinion(VerdictClass::Star, 0.0001, Confidence::Tentative))
-        .unwrap();
-    ben.record(&ids[0], None, Change::Flag { flag: Flag::SingleLine, on: true })
-        .unwrap();
+    ben.record(
+        &ids[0],
+        None,
+        opinion(VerdictClass::Star, 0.0001, Confidence::Tentative),
+    )
+    .unwrap();
+    ben.record(
+        &ids[0],
+        None,
+        Change::Flag {
+            flag: Flag::SingleLine,
+            on: true,
+        },
+    )
+    .unwrap();
     // |Δz|/(1+z) = 0.02/3.01 > the merge's tolerance
-    ben.record(&ids[1], None, opinion(VerdictClass::Quasar, 2.02, Confidence::Solid))
-        .unwrap();
+    ben.record(
+        &ids[1],
+        None,
+        opinion(VerdictClass::Quasar, 2.02, Confidence::Solid),
+    )
+    .unwrap();
     ben.record(&ids[2], None, opinion(VerdictClass::Star, 0.0, Confidence::Solid))
         .unwrap();
 }
@@ -319,7 +363,13 @@ fn adjudication_shows_every_verdict_and_the_decision_is_an_ordinary_verdict() {
     h.get_by_label_contains("inspectors disagree (2)");
 
     // Side by side on the first object.
-    let i0 = h.state().state.objects.iter().position(|o| o.id() == ids[0]).unwrap();
+    let i0 = h
+        .state()
+        .state
+        .objects
+        .iter()
+        .position(|o| o.id() == ids[0])
+        .unwrap();
     h.state_mut().apply(Action::Select(i0));
     press(&mut h, Key::A);
     h.get_by_label("All inspectors");
@@ -361,7 +411,13 @@ fn adjudication_shows_every_verdict_and_the_decision_is_an_ordinary_verdict() {
     assert_eq!(events(&dir.path().join("ana.jsonl")).len(), 4);
     assert_eq!(events(&dir.path().join("ben.jsonl")).len(), 4);
     let a = h.state().state.tools.adjudication.clone().unwrap();
-    let judge = a.opinions(&ids[0]).into_iter().find(|(n, _)| *n == "judge").unwrap().1.clone();
+    let judge = a
+        .opinions(&ids[0])
+        .into_iter()
+        .find(|(n, _)| *n == "judge")
+        .unwrap()
+        .1
+        .clone();
     assert_eq!(judge.class, Some(VerdictClass::Galaxy));
     // The list does not move under the adjudicator's hand.
     let now: Vec<String> = {
@@ -387,7 +443,13 @@ fn adjudication_in_a_campaign_uses_its_adjudicator() {
     let reviews = dir.path().join("reviews");
     two_inspectors(&reviews, &ids);
     let mut h = harness_at(LogPlace::Folder(reviews.clone()), "judge");
-    let i0 = h.state().state.objects.iter().position(|o| o.id() == ids[0]).unwrap();
+    let i0 = h
+        .state()
+        .state
+        .objects
+        .iter()
+        .position(|o| o.id() == ids[0])
+        .unwrap();
     h.state_mut().apply(Action::Select(i0));
     press(&mut h, Key::A);
     h.get_by_label("You are the adjudicator: your verdict decides.");
@@ -401,5 +463,13 @@ fn adjudication_in_a_campaign_uses_its_adjudicator() {
     assert_eq!(o.state, zvet::review::merge::ConsensusState::Adjudicated);
     assert_eq!(o.verdict.as_ref().unwrap().class, Some(VerdictClass::Star));
     // Still listed as disputed among the regular inspectors.
-    assert!(h.state().state.tools.adjudication.as_ref().unwrap().conflicts.contains(&ids[0]));
+    assert!(h
+        .state()
+        .state
+        .tools
+        .adjudication
+        .as_ref()
+        .unwrap()
+        .conflicts
+        .contains(&ids[0]));
 }

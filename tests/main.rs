@@ -4,12 +4,12 @@ mod support;
 mod fit;
 #[cfg(feature = "gui")]
 mod gui;
+#[cfg(feature = "gui")]
+mod gui_tools;
 mod io;
 mod lines;
 mod records;
 mod review;
 mod smoke;
 mod templates;
-#[cfg(feature = "gui")]
-mod gui_tools;
 mod tools;

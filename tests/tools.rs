@@ -7,7 +7,9 @@ use zvet::io::{read_file, ReadOptions};
 use zvet::photometry::{ab_to_flambda, flambda_unit_scale, points, CATALOG_BANDS};
 
 fn data(rel: &str) -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("tests/data").join(rel)
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+        .join("tests/data")
+        .join(rel)
 }
 
 fn json(rel: &str) -> serde_json::Value {
@@ -41,7 +43,12 @@ fn band_table_matches_the_published_response_curves() {
     for (b, want) in CATALOG_BANDS.iter().zip(bands) {
         assert_eq!(b.name, want["band"].as_str().unwrap());
         let p = want["pivot_angstrom"].as_f64().unwrap();
-        assert!((b.pivot - p).abs() <= 0.05 + 1e-9, "{}: {} vs {p}", b.name, b.pivot);
+        assert!(
+            (b.pivot - p).abs() <= 0.05 + 1e-9,
+            "{}: {} vs {p}",
+            b.name,
+            b.pivot
+        );
     }
     // Blue to red, in the catalogue's band order.
     assert!(CATALOG_BANDS.windows(2).all(|w| w[0].pivot < w[1].pivot));
@@ -79,8 +86,18 @@ fn the_sky_column_is_kept_with_its_pixels() {
         .remove(0);
     let j = json("io/sky_table.json");
     let sky = s.sky().expect("the SKY column is kept");
-    let want: Vec<f64> = j["sky"].as_array().unwrap().iter().map(|v| v.as_f64().unwrap()).collect();
-    let wave: Vec<f64> = j["wave"].as_array().unwrap().iter().map(|v| v.as_f64().unwrap()).collect();
+    let want: Vec<f64> = j["sky"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_f64().unwrap())
+        .collect();
+    let wave: Vec<f64> = j["wave"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_f64().unwrap())
+        .collect();
     assert_eq!(sky.len(), want.len());
     for i in 0..sky.len() {
         assert_relative_eq!(s.wave()[i], wave[i], max_relative = 1e-12);

@@ -77,7 +77,9 @@ impl Engine {
     /// setting) and return its model at `s`'s pixels.
     pub fn overlay(&self, s: &Spectrum, t: &OverlayTemplate, z: f64) -> Result<Overlay, FitError> {
         if !(z > -1.0 && z.is_finite()) {
-            return Err(FitError::InvalidConfig(format!("cannot place a template at z = {z}")));
+            return Err(FitError::InvalidConfig(format!(
+                "cannot place a template at z = {z}"
+            )));
         }
         let base = self
             .units()
@@ -154,7 +156,9 @@ mod tests {
         let e = engine();
         let list = e.overlay_templates();
         let n_templates: usize = e.units().iter().map(|u| u.k()).sum();
-        let singles = list.iter().filter(|t| e.units()[t.unit].k() == 1 || t.member.is_some());
+        let singles = list
+            .iter()
+            .filter(|t| e.units()[t.unit].k() == 1 || t.member.is_some());
         assert_eq!(singles.count(), n_templates);
         assert!(list.iter().any(|t| t.class == ObjectClass::Star));
     }

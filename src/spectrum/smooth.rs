@@ -159,10 +159,16 @@ mod tests {
             let var = take.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (take.len() - 1) as f64;
             let measured = mean / var.sqrt();
             if w < AUTO_SMOOTH_MAX {
-                assert!(measured > 0.9 * AUTO_SMOOTH_TARGET_SNR, "S/N {snr}: w {w} gives {measured}");
+                assert!(
+                    measured > 0.9 * AUTO_SMOOTH_TARGET_SNR,
+                    "S/N {snr}: w {w} gives {measured}"
+                );
             } else {
                 let expect = snr * (w as f64).sqrt();
-                assert!((measured / expect - 1.0).abs() < 0.1, "S/N {snr}: {measured} vs {expect}");
+                assert!(
+                    (measured / expect - 1.0).abs() < 0.1,
+                    "S/N {snr}: {measured} vs {expect}"
+                );
             }
         }
     }

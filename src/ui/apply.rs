@@ -117,6 +117,7 @@ impl ZvetApp {
             Action::Escape => {
                 self.state.help_open = false;
                 self.state.flag_chord = false;
+                self.state.tools.jump = None;
                 if self.log.is_some() {
                     self.state.name_prompt = None;
                 }

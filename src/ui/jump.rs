@@ -33,7 +33,7 @@ pub fn find_ids(ids: &[&str], prefix: &str, limit: usize) -> Vec<usize> {
 
 /// The id of the jump field.
 pub fn field_id() -> egui::Id {
-    egui::Id::new("zvet-jump-field")
+    egui::Id::unique("zvet-jump-field")
 }
 
 /// Draw the jump window when it is open.
@@ -41,6 +41,10 @@ pub fn ui(ctx: &egui::Context, state: &mut AppState, out: &mut Vec<Action>) {
     let Some(mut text) = state.tools.jump.clone() else {
         return;
     };
+    if ctx.input(|i| i.key_pressed(Key::Escape)) {
+        out.push(Action::Tool(ToolAction::CloseJump));
+        return;
+    }
     let mut open = true;
     egui::Window::new("Go to object")
         .open(&mut open)
@@ -49,9 +53,10 @@ pub fn ui(ctx: &egui::Context, state: &mut AppState, out: &mut Vec<Action>) {
         .anchor(egui::Align2::CENTER_TOP, [0.0, 80.0])
         .show(ctx, |ui| {
             let id = field_id();
+            // Asked for until the field has it (a new window's first frame
+            // only measures its contents).
             if state.tools.jump_focus {
                 ui.memory_mut(|m| m.request_focus(id));
-                state.tools.jump_focus = false;
             }
             let r = ui.add(
                 TextEdit::singleline(&mut text)
@@ -59,13 +64,13 @@ pub fn ui(ctx: &egui::Context, state: &mut AppState, out: &mut Vec<Action>) {
                     .hint_text("object id or its beginning")
                     .desired_width(260.0),
             );
+            if r.has_focus() {
+                state.tools.jump_focus = false;
+            }
             let ids: Vec<&str> = state.objects.iter().map(|o| o.id()).collect();
             let hits = find_ids(&ids, &text, MAX_LISTED + 1);
             let enter = r.lost_focus() && ui.input(|i| i.key_pressed(Key::Enter));
-            let escape = ui.input(|i| i.key_pressed(Key::Escape));
-            if escape {
-                out.push(Action::Tool(ToolAction::CloseJump));
-            } else if enter {
+            if enter {
                 match hits.first() {
                     Some(&i) => out.push(Action::Tool(ToolAction::JumpTo(i))),
                     None => {
@@ -84,7 +89,9 @@ pub fn ui(ctx: &egui::Context, state: &mut AppState, out: &mut Vec<Action>) {
             } else {
                 for (k, &i) in hits.iter().take(MAX_LISTED).enumerate() {
                     let label = if k == 0 {
-                        RichText::new(format!("{}   ⏎", ids[i])).monospace().strong()
+                        RichText::new(format!("{}   (Enter)", ids[i]))
+                            .monospace()
+                            .strong()
                     } else {
                         RichText::new(ids[i]).monospace()
                     };

@@ -17,7 +17,7 @@ use egui::{Key, Modifiers};
 use crate::fit::OverlayTemplate;
 use crate::photometry::{self, PhotPoint};
 use crate::queue::QueueItem;
-use crate::review::merge::{merge, InspectorLog, Merged, MergeOptions, DEFAULT_TOLERANCE};
+use crate::review::merge::{merge, InspectorLog, MergeOptions, Merged, DEFAULT_TOLERANCE};
 use crate::review::{Change, Verdict, ZSource};
 
 use super::action::Action;
@@ -109,14 +109,23 @@ impl Adjudication {
 
     /// Replace the verdicts of the log stored at `path` (the window's own
     /// log, after a change) and merge again.
-    pub fn update_log(&mut self, path: &Path, inspector: &str, verdicts: impl Iterator<Item = (String, Verdict)>) {
+    pub fn update_log(
+        &mut self,
+        path: &Path,
+        inspector: &str,
+        verdicts: impl Iterator<Item = (String, Verdict)>,
+    ) {
         let stem = stem(path);
         let verdicts = verdicts.collect();
         match self.logs.iter_mut().find(|l| l.inspector == stem) {
             Some(l) => l.verdicts = verdicts,
             None => {
                 self.logs.push(InspectorLog {
-                    inspector: if stem.is_empty() { inspector.to_string() } else { stem },
+                    inspector: if stem.is_empty() {
+                        inspector.to_string()
+                    } else {
+                        stem
+                    },
                     verdicts,
                     problems: Vec::new(),
                 });
@@ -312,7 +321,9 @@ pub fn read_keys(ctx: &egui::Context, state: &AppState, out: &mut Vec<Action>) {
             out.push(Action::Tool(ToolAction::OpenJump));
         }
         if i.consume_key(Modifiers::SHIFT, Key::A) {
-            out.push(Action::Tool(ToolAction::ConflictsOnly(!state.tools.conflicts_only)));
+            out.push(Action::Tool(ToolAction::ConflictsOnly(
+                !state.tools.conflicts_only,
+            )));
         } else if i.consume_key(none, Key::A) {
             out.push(Action::Tool(ToolAction::ToggleAdjudicate));
         }
@@ -422,7 +433,9 @@ impl ZvetApp {
                 self.state.tools.adjudication = Some(a);
                 self.sync_own_log();
             }
-            Err(e) => self.state.say(format!("could not read the review logs: {e}"), true),
+            Err(e) => self
+                .state
+                .say(format!("could not read the review logs: {e}"), true),
         }
     }
 
@@ -474,7 +487,8 @@ impl ZvetApp {
     /// verdict, with one's own certainty (as Space would give it).
     fn adopt(&mut self, who: &str) {
         let Some(v) = self.opinion(who) else {
-            self.state.say(format!("{who} has no verdict on this object"), true);
+            self.state
+                .say(format!("{who} has no verdict on this object"), true);
             return;
         };
         let Some(class) = v.class else {
@@ -568,12 +582,21 @@ impl ZvetApp {
             }
         }
         if t.show_photometry {
-            match (&obj.catalog, s.meta.flux_unit.as_deref().and_then(photometry::flambda_unit_scale)) {
+            match (
+                &obj.catalog,
+                s.meta
+                    .flux_unit
+                    .as_deref()
+                    .and_then(photometry::flambda_unit_scale),
+            ) {
                 (None, _) => p.phot_note = Some("no catalogue row".into()),
                 (Some(_), None) => {
                     p.phot_note = Some(format!(
                         "flux unit {} is not an f_λ unit zvet knows: photometry not drawn",
-                        s.meta.flux_unit.as_deref().map_or("(none)".to_string(), |u| format!("'{u}'"))
+                        s.meta
+                            .flux_unit
+                            .as_deref()
+                            .map_or("(none)".to_string(), |u| format!("'{u}'"))
                     ))
                 }
                 (Some(row), Some(scale)) => {

@@ -26,7 +26,9 @@ pub fn queue_filter(ui: &mut egui::Ui, state: &AppState, out: &mut Vec<Action>) 
         .map_or(String::new(), |a| format!(" ({})", a.conflicts.len()));
     if ui
         .checkbox(&mut on, format!("inspectors disagree{n}  [Shift+A]"))
-        .on_hover_text("only objects on which the inspectors' verdicts conflict, decided by the adjudicator or not")
+        .on_hover_text(
+            "only objects on which the inspectors' verdicts conflict, decided by the adjudicator or not",
+        )
         .changed()
     {
         out.push(Action::Tool(ToolAction::ConflictsOnly(on)));
@@ -99,7 +101,7 @@ pub fn ui(ui: &mut egui::Ui, state: &AppState, me: Option<&str>, out: &mut Vec<A
                     for (who, _) in &opinions {
                         let mut t = RichText::new(*who).strong();
                         if a.adjudicator.as_deref() == Some(*who) {
-                            t = RichText::new(format!("{who} ⚖")).strong();
+                            t = RichText::new(format!("{who} (adjudicator)")).strong();
                         }
                         if me == Some(*who) {
                             t = t.underline();

@@ -30,14 +30,19 @@ pub fn controls(ui: &mut egui::Ui, state: &AppState, out: &mut Vec<Action>) {
         out.push(Action::Tool(ToolAction::AutoSmoothing(auto)));
     }
     let t = &state.tools;
-    let current = t.overlay.as_ref().map_or("no template".to_string(), |o| o.label.clone());
+    let current = t
+        .overlay
+        .as_ref()
+        .map_or("no template".to_string(), |o| o.label.clone());
     let mut chosen = t.overlay.clone();
     ComboBox::from_id_salt("zvet-overlay")
-        .selected_text(RichText::new(format!("overlay: {current}")).color(if t.overlay.is_some() {
-            OVERLAY
-        } else {
-            ui.visuals().text_color()
-        }))
+        .selected_text(
+            RichText::new(format!("overlay: {current}")).color(if t.overlay.is_some() {
+                OVERLAY
+            } else {
+                ui.visuals().text_color()
+            }),
+        )
         .show_ui(ui, |ui| {
             ui.selectable_value(&mut chosen, None, "no template");
             for o in &t.templates {
@@ -45,7 +50,9 @@ pub fn controls(ui: &mut egui::Ui, state: &AppState, out: &mut Vec<Action>) {
             }
         })
         .response
-        .on_hover_text("lay a template over the spectrum at the shown z (M / Shift+M); the verdict does not change");
+        .on_hover_text(
+            "lay a template over the spectrum at the shown z (M / Shift+M); the verdict does not change",
+        );
     if chosen != t.overlay {
         out.push(Action::Tool(ToolAction::SetOverlay(chosen)));
     }
@@ -90,7 +97,11 @@ pub fn draw_under(pui: &mut PlotUi, state: &AppState, y: (f64, f64)) {
         return;
     }
     let scale = 0.3 * (y.1 - y.0) / max;
-    let pts: Vec<[f64; 2]> = p.sky.iter().map(|q| [q[0], y.0 + q[1].max(0.0) * scale]).collect();
+    let pts: Vec<[f64; 2]> = p
+        .sky
+        .iter()
+        .map(|q| [q[0], y.0 + q[1].max(0.0) * scale])
+        .collect();
     pui.line(
         Line::new("sky (scaled to the lower third)", pts)
             .color(SKY_SPECTRUM)
@@ -125,9 +136,13 @@ pub fn draw_over(pui: &mut PlotUi, state: &AppState) {
                 );
             }
             pui.text(
-                Text::new("photometry", PlotPoint::new(q.wave, q.flux), RichText::new(format!("  {}", q.band)).size(12.0).strong())
-                    .color(PHOTOMETRY)
-                    .anchor(egui::Align2::LEFT_BOTTOM),
+                Text::new(
+                    "photometry",
+                    PlotPoint::new(q.wave, q.flux),
+                    RichText::new(format!("  {}", q.band)).size(12.0).strong(),
+                )
+                .color(PHOTOMETRY)
+                .anchor(egui::Align2::LEFT_BOTTOM),
             );
         }
         let pts: Vec<[f64; 2]> = p.phot.iter().map(|q| [q.wave, q.flux]).collect();

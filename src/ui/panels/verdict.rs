@@ -169,8 +169,7 @@ pub fn ui(
                         .changed()
                 })
                 .inner;
-            if changed
-            {
+            if changed {
                 out.push(Action::ToggleFlag(*f));
             }
         }
