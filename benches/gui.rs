@@ -51,6 +51,30 @@ fn switch_and_draw(c: &mut Criterion) {
             black_box(prims.len())
         })
     });
+    // The same with a template overlay fitted at the shown z, the catalogue
+    // photometry and the sky spectrum drawn.
+    let star = app
+        .state
+        .tools
+        .templates
+        .iter()
+        .find(|t| t.class == zvet::ObjectClass::Star)
+        .cloned();
+    app.apply(Action::Tool(zvet::ui::tools::ToolAction::SetOverlay(star)));
+    app.state.tools.show_sky = true;
+    app.state.tools.show_photometry = true;
+    c.bench_function(
+        "switch object, prepare and draw with overlay, photometry and sky",
+        |b| {
+            b.iter(|| {
+                k = (k + 1) % n;
+                app.apply(Action::Select(k));
+                let out = ctx.run_ui(input(), |ui| app.show(ui));
+                let prims = ctx.tessellate(out.shapes, out.pixels_per_point);
+                black_box(prims.len())
+            })
+        },
+    );
 }
 
 criterion_group!(benches, switch_and_draw);

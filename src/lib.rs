@@ -18,6 +18,7 @@ pub mod export;
 pub mod fit;
 pub mod io;
 pub mod lines;
+pub mod photometry;
 pub mod queue;
 pub mod report;
 pub mod review;

@@ -8,6 +8,7 @@ mod frames;
 mod gui;
 #[cfg(feature = "gui")]
 mod gui_review;
+mod gui_tools;
 mod io;
 mod lines;
 mod records;
@@ -15,3 +16,4 @@ mod review;
 mod robust;
 mod smoke;
 mod templates;
+mod tools;

@@ -277,6 +277,9 @@ pub fn object(
         ra: Some(ra),
         dec: Some(dec),
         flux_unit: Some("1e-17 erg/s/cm2/Angstrom".into()),
+        // The subtracted sky as the files carry it (invented scale: a faint
+        // continuum plus the lines of the noise model).
+        sky: Some(sky.iter().map(|k| 0.4 + 6.0 * k).collect()),
         ..Default::default()
     };
     // The grid is increasing and finite and most pixels are good, so this

@@ -1,8 +1,8 @@
 /*!
 `zvet demo --write DIR`: the demo survey as files, so the command line can be
 tried on it. Spectra go one FITS file per object (a binary table with columns
-WAVE, FLUX, IVAR, MASK — vacuum Å, the demo flux unit, inverse variance,
-nonzero = bad — and OBJID/RA/DEC in the header), the photometric catalogue
+WAVE, FLUX, IVAR, MASK, SKY — vacuum Å, the demo flux unit, inverse variance,
+nonzero = bad, the subtracted sky — and OBJID/RA/DEC in the header), the photometric catalogue
 to `catalog.csv`, and the generator's truth to `truth.csv`.
 */
 use fitsio::tables::{ColumnDataType, ColumnDescription};
@@ -97,13 +97,19 @@ fn write_spectrum(s: &crate::Spectrum, path: &Path) -> fitsio::errors::Result<()
     }
     let mut f = FitsFile::create(path).open()?;
     let col = |name: &str, t: ColumnDataType| ColumnDescription::new(name).with_type(t).create();
-    let cols = [
+    let mut cols = vec![
         col("WAVE", ColumnDataType::Double)?,
         col("FLUX", ColumnDataType::Double)?,
         col("IVAR", ColumnDataType::Double)?,
         col("MASK", ColumnDataType::Int)?,
     ];
+    if s.sky().is_some() {
+        cols.push(col("SKY", ColumnDataType::Double)?);
+    }
     let hdu = f.create_table("SPECTRUM", &cols)?;
+    if let Some(sky) = s.sky() {
+        hdu.write_col(&mut f, "SKY", sky)?;
+    }
     hdu.write_col(&mut f, "WAVE", s.wave())?;
     hdu.write_col(&mut f, "FLUX", s.flux())?;
     hdu.write_col(&mut f, "IVAR", s.ivar())?;

@@ -193,15 +193,20 @@ impl Engine {
     /// Model flux at `s.wave()` for candidate `c` (NaN where the template
     /// does not cover and outside [`Engine::fit_range`]).
     pub fn model(&self, s: &Spectrum, c: &Candidate) -> Vec<f64> {
-        let dll = self.config.dloglam;
-        let nanv = vec![f64::NAN; s.len()];
-        let Some(unit) = self
+        match self
             .units
             .iter()
             .find(|u| u.class == c.class && u.name == c.template)
-        else {
-            return nanv;
-        };
+        {
+            Some(unit) => self.model_of(unit, s, c),
+            None => vec![f64::NAN; s.len()],
+        }
+    }
+
+    /// [`Engine::model`] with the unit given (also a unit made for an overlay).
+    pub(crate) fn model_of(&self, unit: &Unit, s: &Spectrum, c: &Candidate) -> Vec<f64> {
+        let dll = self.config.dloglam;
+        let nanv = vec![f64::NAN; s.len()];
         let k = unit.k();
         let j = self.config.poly_terms;
         let g = if self.config.throughput_terms { 2 } else { 1 };

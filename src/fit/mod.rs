@@ -12,6 +12,7 @@ mod config;
 mod engine;
 mod fast;
 mod lines;
+mod overlay;
 mod prep;
 pub mod reference;
 mod refine;
@@ -29,6 +30,7 @@ pub use engine::{
 };
 pub use fast::CorrPlan;
 pub use lines::measure_list as measure_emission_lines;
+pub use overlay::{Overlay, OverlayTemplate};
 pub use prep::Prepared;
 pub use result::{Candidate, Chi2Curve, FitResult, LineMeasurement, Warnings};
 pub use units::Unit;

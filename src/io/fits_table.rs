@@ -56,6 +56,8 @@ pub(crate) struct TablePlan {
     pub flux: Col,
     pub err: Option<(Col, ErrKind)>,
     pub mask: Option<Col>,
+    /// A sky column of the flux's shape, if any (an unusable one is ignored).
+    pub sky: Option<Col>,
     pub id_col: Option<(Col, bool)>,
     pub ra_col: Option<Col>,
     pub dec_col: Option<Col>,
@@ -175,6 +177,12 @@ pub(crate) fn plan(
     if *nrows == 0 {
         return Err(LoadError::EmptyTable { at: loc });
     }
+    let sky = find_name(&ns, None, &[synonyms::SKY])
+        .filter(|&i| is_numeric(cols[i].data_type.typ) && cols[i].data_type.repeat == flux.repeat)
+        .map(|i| Col {
+            name: cols[i].name.clone(),
+            repeat: cols[i].data_type.repeat,
+        });
     // Vector shape: the flux holds several values per row.
     let vector = flux.repeat > 1;
     let per_row = if vector { flux.repeat } else { 1 };
@@ -287,6 +295,7 @@ pub(crate) fn plan(
         flux,
         err,
         mask,
+        sky,
         id_col,
         ra_col,
         dec_col,
@@ -363,6 +372,10 @@ fn assemble(
         Some((c, kind)) => Some(kind.to_ivar(&col_f64(f, fits, hdu, c, range.clone(), at)?)),
         None => None,
     };
+    let sky = match &p.sky {
+        Some(c) => Some(col_f64(f, fits, hdu, c, range.clone(), at)?),
+        None => None,
+    };
     let bad = match &p.mask {
         Some(c) => Some(
             col_f64(f, fits, hdu, c, range, at)?
@@ -387,6 +400,7 @@ fn assemble(
             dec: p.base.dec,
             flux_unit: p.base.flux_unit.clone(),
             warnings: p.base.warnings.clone(),
+            sky,
             ..Default::default()
         },
     })

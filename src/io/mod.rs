@@ -143,6 +143,8 @@ pub mod synonyms {
     ];
     /// Variance of the flux.
     pub const VAR: &[&str] = &["var", "variance", "flux_var", "var_flux"];
+    /// The subtracted sky spectrum (kept for display).
+    pub const SKY: &[&str] = &["sky", "sky_flux", "skyflux", "sky_spectrum", "skyspec"];
     /// Pixel mask or quality (non-zero = bad).
     pub const MASK: &[&str] = &[
         "mask",

@@ -209,6 +209,8 @@ pub(crate) fn read_text(path: &Path, opts: &ReadOptions) -> Result<Spectrum, Loa
         .iter()
         .find_map(|(syn, k)| find_name(&names, None, &[syn]).map(|i| (i, *k))),
     };
+    let sky_col = find_name(&names, None, &[synonyms::SKY]);
+    let mut sky = Vec::new();
     let mask = find_name(&names, opts.mask_col.as_deref(), &[synonyms::MASK]);
     if mask.is_none() && opts.mask_col.is_some() {
         return Err(LoadError::MissingColumn {
@@ -251,6 +253,9 @@ pub(crate) fn read_text(path: &Path, opts: &ReadOptions) -> Result<Spectrum, Loa
         if let Some((i, _)) = err {
             errv.push(num(i)?);
         }
+        if let Some(i) = sky_col {
+            sky.push(parse_num(&f[i]).unwrap_or(f64::NAN));
+        }
         if let Some(i) = mask {
             let m = num(i)?;
             bad.push(m != 0.0 && !m.is_nan());
@@ -263,6 +268,7 @@ pub(crate) fn read_text(path: &Path, opts: &ReadOptions) -> Result<Spectrum, Loa
         source: Some(path.to_path_buf()),
         flux_unit: units[fi].clone(),
         warnings,
+        sky: sky_col.map(|_| sky),
         ..Default::default()
     };
     RawSpectrum {

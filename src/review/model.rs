@@ -114,17 +114,23 @@ pub enum Flag {
     BroadAbsorption,
     /// The spectrum is not the catalogue's object.
     WrongTarget,
+    /// The redshift rests on one feature alone (its identity is assumed).
+    SingleLine,
+    /// No astrophysical signal at all (empty or dead spectrum).
+    NoSignal,
 }
 
 impl Flag {
     /// All flags in display order.
-    pub const ALL: [Flag; 6] = [
+    pub const ALL: [Flag; 8] = [
         Flag::LowSignal,
         Flag::SkyResidual,
         Flag::Blend,
         Flag::Artefact,
         Flag::BroadAbsorption,
         Flag::WrongTarget,
+        Flag::SingleLine,
+        Flag::NoSignal,
     ];
 
     /// snake_case name used in files.
@@ -136,6 +142,8 @@ impl Flag {
             Flag::Artefact => "artefact",
             Flag::BroadAbsorption => "broad_absorption",
             Flag::WrongTarget => "wrong_target",
+            Flag::SingleLine => "single_line",
+            Flag::NoSignal => "no_signal",
         }
     }
 }

@@ -14,7 +14,7 @@ mod smooth;
 
 pub use airvac::{air_to_vacuum, vacuum_to_air};
 pub use grid::{LogGrid, Resampled};
-pub use smooth::Smoothed;
+pub use smooth::{auto_boxcar_width, Smoothed, AUTO_SMOOTH_MAX, AUTO_SMOOTH_TARGET_SNR};
 
 use serde::{Deserialize, Serialize};
 use std::path::PathBuf;
@@ -54,6 +54,10 @@ pub struct SpectrumMeta {
     pub noise_estimated: bool,
     /// Things the reader noticed and the user should know.
     pub warnings: Vec<String>,
+    /// The sky spectrum subtracted from the flux, per pixel in the flux unit,
+    /// when the file carries one (display only; see [`Spectrum::sky`]).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub sky: Option<Vec<f64>>,
 }
 
 /// A violated spectrum invariant.
@@ -170,6 +174,11 @@ impl Spectrum {
             s.ivar.reverse();
             s.good.reverse();
         }
+        if s.meta.sky.as_ref().is_some_and(|k| k.len() != n) {
+            s.meta.sky = None;
+        } else if let (false, Some(k)) = (increasing, s.meta.sky.as_mut()) {
+            k.reverse();
+        }
         for i in 0..n {
             let ok = s.good[i] && s.flux[i].is_finite() && s.ivar[i].is_finite() && s.ivar[i] > 0.0;
             if !ok {
@@ -222,6 +231,13 @@ impl Spectrum {
     /// Fraction of pixels that are bad.
     pub fn masked_fraction(&self) -> f64 {
         1.0 - self.n_good() as f64 / self.len() as f64
+    }
+
+    /// The sky spectrum on this spectrum's pixels, when the file carried one
+    /// (`None` also when the metadata's array does not match the pixels, e.g.
+    /// after resampling).
+    pub fn sky(&self) -> Option<&[f64]> {
+        self.meta.sky.as_deref().filter(|k| k.len() == self.len())
     }
 
     /// Median over good pixels of |flux|·sqrt(ivar), the per-pixel S/N.

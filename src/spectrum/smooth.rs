@@ -12,6 +12,40 @@ correlated; the ivar is per pixel, not for sums over pixels.
 */
 use super::Spectrum;
 
+/// Per-pixel S/N the automatic display smoothing aims for: at about 5 the
+/// continuum shape and the strong features of a spectrum can be judged by eye
+/// (common practice).
+pub const AUTO_SMOOTH_TARGET_SNR: f64 = 5.0;
+
+/// Widest automatic boxcar (pixels): wider would wash out a line a few
+/// pixels wide, which is what the inspector looks for.
+pub const AUTO_SMOOTH_MAX: usize = 15;
+
+/// The display boxcar width for a spectrum of median per-pixel S/N
+/// `median_snr` (see [`Spectrum::median_snr`]).
+///
+/// Rule: a boxcar of w pixels over white noise raises the S/N by √w (the mean
+/// of w independent values has variance σ²/w), so w = ⌈(5 / S/N)²⌉ lifts the
+/// median pixel to S/N ≈ [`AUTO_SMOOTH_TARGET_SNR`]; w is rounded up to an
+/// odd number (a centred kernel) and kept within 1…[`AUTO_SMOOTH_MAX`].
+/// A spectrum at S/N ≥ 5 is shown unsmoothed; S/N 2 gives 7 pixels; no
+/// usable S/N (0, negative, NaN) gives the widest.
+pub fn auto_boxcar_width(median_snr: f64) -> usize {
+    if !(median_snr > 0.0 && median_snr.is_finite()) {
+        return AUTO_SMOOTH_MAX;
+    }
+    let w = (AUTO_SMOOTH_TARGET_SNR / median_snr).powi(2).ceil();
+    if w >= AUTO_SMOOTH_MAX as f64 {
+        return AUTO_SMOOTH_MAX;
+    }
+    let w = (w as usize).max(1);
+    if w % 2 == 0 {
+        w + 1
+    } else {
+        w
+    }
+}
+
 /// A smoothed flux with its inverse variance, on the spectrum's own pixels.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Smoothed {
@@ -88,6 +122,55 @@ mod tests {
     fn spec(flux: Vec<f64>, ivar: Vec<f64>) -> Spectrum {
         let wave = (0..flux.len()).map(|i| 5000.0 + i as f64).collect();
         Spectrum::new(wave, flux, Some(ivar), None, SpectrumMeta::default()).unwrap()
+    }
+
+    #[test]
+    fn auto_width_follows_the_rule() {
+        assert_eq!(auto_boxcar_width(10.0), 1);
+        assert_eq!(auto_boxcar_width(5.0), 1);
+        assert_eq!(auto_boxcar_width(4.0), 3); // (5/4)² = 1.56 → 2 → odd 3
+        assert_eq!(auto_boxcar_width(2.0), 7); // 6.25 → 7
+        assert_eq!(auto_boxcar_width(0.5), AUTO_SMOOTH_MAX);
+        assert_eq!(auto_boxcar_width(0.0), AUTO_SMOOTH_MAX);
+        assert_eq!(auto_boxcar_width(f64::NAN), AUTO_SMOOTH_MAX);
+    }
+
+    #[test]
+    fn auto_width_brings_white_noise_to_the_target_snr() {
+        // A constant under Gaussian white noise: after the chosen boxcar the
+        // scatter of the smoothed flux must have dropped by √w (variance of a
+        // mean of w independent values, common practice), so the per-pixel
+        // S/N, measured from the scatter itself, reaches the target unless
+        // the width was capped.
+        use rand::SeedableRng;
+        use rand_distr::{Distribution, Normal};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(7);
+        let n = 20_000;
+        for snr in [0.7, 1.5, 2.0, 3.0, 4.5, 8.0] {
+            let sigma = 1.0 / snr;
+            let noise = Normal::new(0.0, sigma).unwrap();
+            let flux: Vec<f64> = (0..n).map(|_| 1.0 + noise.sample(&mut rng)).collect();
+            let s = spec(flux, vec![1.0 / (sigma * sigma); n]);
+            let w = auto_boxcar_width(s.median_snr());
+            let f = s.smooth_boxcar(w).flux;
+            // every w-th pixel: independent samples of the smoothed flux
+            let take: Vec<f64> = f[w..n - w].iter().step_by(w).copied().collect();
+            let mean = take.iter().sum::<f64>() / take.len() as f64;
+            let var = take.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (take.len() - 1) as f64;
+            let measured = mean / var.sqrt();
+            if w < AUTO_SMOOTH_MAX {
+                assert!(
+                    measured > 0.9 * AUTO_SMOOTH_TARGET_SNR,
+                    "S/N {snr}: w {w} gives {measured}"
+                );
+            } else {
+                let expect = snr * (w as f64).sqrt();
+                assert!(
+                    (measured / expect - 1.0).abs() < 0.1,
+                    "S/N {snr}: {measured} vs {expect}"
+                );
+            }
+        }
     }
 
     #[test]

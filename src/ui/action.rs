@@ -118,4 +118,6 @@ pub enum Action {
     Browse(OpenKind),
     /// Close the window (everything is already in the log).
     Quit,
+    /// A request for one of the tools (adjudication, jump, overlays).
+    Tool(super::tools::ToolAction),
 }

@@ -242,8 +242,10 @@ impl ZvetApp {
         self.take_results();
         let mut actions = Vec::new();
         keys::read(&ctx, &self.state, &mut actions);
+        super::tools::read_keys(&ctx, &self.state, &mut actions);
         super::load::dropped_files(&ctx, &mut actions);
         self.ensure_prepared();
+        self.ensure_tools_prepared();
         let prepared = self.prepared.as_ref().map(|(_, p)| p);
         let log = self.log.as_ref();
         let verdict = self
@@ -265,6 +267,7 @@ impl ZvetApp {
             .default_size(330.0)
             .show(ui, |ui| {
                 egui::ScrollArea::vertical().show(ui, |ui| {
+                    panels::adjudicate::ui(ui, &self.state, self.inspector.as_deref(), &mut actions);
                     let history = match (self.state.current(), log) {
                         (Some(o), Some(l)) => l.history(o.id()),
                         _ => &[],
@@ -293,6 +296,7 @@ impl ZvetApp {
             panels::chi2::ui(ui, &self.state, h * 0.2, &mut actions);
         });
         panels::help::ui(&ctx, &mut self.state);
+        super::jump::ui(&ctx, &mut self.state, &mut actions);
         let has_log = self.log.is_some();
         panels::inspector::ui(&ctx, &mut self.state, has_log, &mut actions);
         for a in actions {
@@ -376,6 +380,7 @@ impl ZvetApp {
     pub(crate) fn select(&mut self, index: usize) {
         let v = self.verdict_of(index).cloned();
         self.state.select(index, v.as_ref());
+        self.auto_smooth();
         if self.state.fits.get(index).is_some_and(|f| f.is_none()) {
             self.jobs.prioritize(index);
         }

@@ -142,6 +142,7 @@ impl ZvetApp {
             Action::Move(m) => self.state.plot_move = Some(m),
             Action::ToggleRestFrame => self.state.view.rest_frame = !self.state.view.rest_frame,
             Action::Smooth(d) => {
+                self.state.tools.auto_smoothing = false;
                 let w = self.state.view.smoothing as isize + 2 * d;
                 self.state.view.smoothing = w.clamp(1, 51) as usize;
             }
@@ -149,6 +150,7 @@ impl ZvetApp {
             Action::Escape => {
                 self.state.help_open = false;
                 self.state.flag_chord = false;
+                self.state.tools.jump = None;
                 if self.state.name_prompt.take().is_some() && self.log.is_none() {
                     self.state.say(
                         "no inspector name: you can look, but recording asks for a name first",
@@ -163,11 +165,12 @@ impl ZvetApp {
             Action::AskInspector => self.state.name_prompt = Some(self.inspector.clone().unwrap_or_default()),
             Action::Open(kind, paths) => self.loads.open(kind, paths),
             Action::Browse(kind) => self.loads.browse(kind),
+            Action::Tool(t) => self.apply_tool(t),
         }
     }
 
     /// Record `change` on the selected object; errors go to the message strip.
-    fn record(&mut self, change: Change) {
+    pub(crate) fn record(&mut self, change: Change) {
         let Some(index) = self.state.selected else {
             self.state.say("select an object first", true);
             return;
@@ -188,6 +191,7 @@ impl ZvetApp {
             }
             Err(e) => self.state.say(format!("could not record: {e}"), true),
         }
+        self.after_record();
     }
 
     /// What the engine showed: the automatic best solution.

@@ -26,6 +26,14 @@ pub trait Fitter: Send + Sync {
     ) -> Result<FitResult, String>;
     /// Model flux at the spectrum's wavelengths (NaN where not covered).
     fn model(&self, s: &Spectrum, c: &Candidate) -> Vec<f64>;
+    /// The templates that can be laid over a spectrum (none by default).
+    fn overlay_templates(&self) -> Vec<crate::fit::OverlayTemplate> {
+        Vec::new()
+    }
+    /// Template `t` fitted at `z` (amplitude and continuum), as model flux.
+    fn overlay(&self, _s: &Spectrum, _t: &crate::fit::OverlayTemplate, _z: f64) -> Result<Vec<f64>, String> {
+        Err("this engine offers no template overlays".into())
+    }
 }
 
 impl Fitter for Engine {
@@ -43,6 +51,14 @@ impl Fitter for Engine {
     }
     fn model(&self, s: &Spectrum, c: &Candidate) -> Vec<f64> {
         Engine::model(self, s, c)
+    }
+    fn overlay_templates(&self) -> Vec<crate::fit::OverlayTemplate> {
+        Engine::overlay_templates(self)
+    }
+    fn overlay(&self, s: &Spectrum, t: &crate::fit::OverlayTemplate, z: f64) -> Result<Vec<f64>, String> {
+        Engine::overlay(self, s, t, z)
+            .map(|o| o.model)
+            .map_err(|e| e.to_string())
     }
 }
 

@@ -33,8 +33,8 @@ pub const KEYS: &[(&str, &str)] = &[
         "certainty: secure, probable, guess (on a new object: accept with it)",
     ),
     (
-        "F then 1–6",
-        "flag: low signal, sky residual, blend, artefact, broad absorption, wrong target",
+        "F then 1–8",
+        "flag: 1 low signal, 2 sky residual, 3 blend, 4 artefact, 5 broad absorption, 6 wrong target, 7 single line, 8 no signal",
     ),
     ("C  /  Shift+C", "show the next / previous candidate"),
     (",  /  .", "nudge the shown z down / up by 0.001·(1+z)"),
@@ -50,6 +50,13 @@ pub const KEYS: &[(&str, &str)] = &[
     ("←  →", "pan the spectrum in wavelength"),
     ("+  /  −", "zoom in / out in wavelength"),
     ("0", "whole spectrum again (or double-click the plot)"),
+    ("J  or  /", "go to an object by id (or the beginning of one)"),
+    ("A", "every inspector's verdict on this object, side by side"),
+    ("Shift+A", "list only objects the inspectors disagree on"),
+    ("M  /  Shift+M", "lay the next / previous template over the spectrum (or none)"),
+    ("I", "catalogue photometry over the spectrum"),
+    ("K", "sky spectrum under the flux (when the file has one)"),
+    ("\\", "automatic smoothing again (after [ or ])"),
     ("H  or  F1", "this help"),
     ("Esc", "close help or a dialog, leave a text field"),
     ("Ctrl+Q", "quit (every verdict is already in the log)"),
@@ -240,5 +247,19 @@ fn chord_key(key: Key, repeat: bool) -> Option<Action> {
         .map(|k| Action::ToggleFlag(Flag::ALL[k]))
 }
 
-/// Digit keys 1–6 in order.
-const DIGITS: [Key; 6] = [Key::Num1, Key::Num2, Key::Num3, Key::Num4, Key::Num5, Key::Num6];
+/// Digit keys 1–8 in order.
+const DIGITS: [Key; 8] = [
+    Key::Num1,
+    Key::Num2,
+    Key::Num3,
+    Key::Num4,
+    Key::Num5,
+    Key::Num6,
+    Key::Num7,
+    Key::Num8,
+];
+
+/// The digit that toggles `f` after `F` (1-based, its place in [`Flag::ALL`]).
+pub fn flag_digit(f: Flag) -> usize {
+    Flag::ALL.iter().position(|x| *x == f).map_or(0, |k| k + 1)
+}

@@ -17,6 +17,7 @@ pub mod action;
 pub mod app;
 mod apply;
 pub mod jobs;
+pub mod jump;
 pub mod keys;
 pub mod load;
 pub mod panels;
@@ -24,6 +25,7 @@ mod readers;
 pub mod resume;
 pub mod settings;
 pub mod state;
+pub mod tools;
 pub mod view;
 
 pub use app::{LogPlace, Session, ZvetApp};

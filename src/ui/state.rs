@@ -269,6 +269,8 @@ pub struct AppState {
     pub quit_asked: bool,
     /// The spectrum plot's bounds as last drawn: [λ from, λ to, flux from, flux to].
     pub spectrum_bounds: Option<[f64; 4]>,
+    /// Adjudication, jump, overlays and automatic smoothing.
+    pub tools: super::tools::ToolsState,
 }
 
 impl AppState {
@@ -305,6 +307,7 @@ impl AppState {
             order_stale: false,
             quit_asked: false,
             spectrum_bounds: None,
+            tools: Default::default(),
         }
     }
 
@@ -319,6 +322,7 @@ impl AppState {
             .collect();
         self.order = queue::arrange(&self.items, &self.filter, self.sort);
         self.order_stale = false;
+        self.tools.restrict(&self.items, &mut self.order);
     }
 
     /// Refresh one object's summary (after a verdict or a fit) without

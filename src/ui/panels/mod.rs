@@ -3,12 +3,14 @@ The panels of the review window, one file each. Every panel draws from the
 state it is given and pushes [`super::action::Action`]s; none changes data itself
 (text fields being typed into are the only state a panel edits).
 */
+pub mod adjudicate;
 pub mod chi2;
 pub mod closeups;
 pub mod facts;
 pub mod help;
 pub mod inspector;
 pub mod messages;
+pub mod overlay;
 pub mod queue;
 pub mod spectrum;
 pub mod topbar;

@@ -35,6 +35,7 @@ pub fn ui(ui: &mut egui::Ui, state: &AppState, out: &mut Vec<Action>) {
             if f != state.filter {
                 out.push(Action::SetFilter(f));
             }
+            super::adjudicate::queue_filter(ui, state, out);
             ui.horizontal(|ui| {
                 let mut sort = state.sort;
                 ComboBox::from_label("sort")

@@ -46,8 +46,10 @@ pub fn ui(
         }
         ui.checkbox(&mut state.view.show_model, "model");
         ui.checkbox(&mut state.view.show_sky, "sky lines");
+        super::overlay::controls(ui, state, out);
     });
     legend(ui, state);
+    super::overlay::notes(ui, state);
     let Some(p) = prepared else {
         ui.allocate_space(egui::vec2(ui.available_width(), height));
         return;
@@ -146,6 +148,7 @@ pub fn ui(
                     .color(super::SKY),
             );
         }
+        super::overlay::draw_under(pui, state, (y0, y1));
         // Flux and band per run of good pixels: never drawn across a masked gap.
         for seg in &p.segments {
             let r = seg.clone();
@@ -165,6 +168,7 @@ pub fn ui(
         if !p.model.is_empty() {
             pui.line(Line::new("model", p.model.clone()).color(super::MODEL).width(1.6));
         }
+        super::overlay::draw_over(pui, state);
         let top = y1 - 0.02 * (y1 - y0);
         // Labels near the red edge hang to the left of their line, so none is cut off.
         let vb = pui.plot_bounds();

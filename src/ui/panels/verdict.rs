@@ -173,15 +173,26 @@ pub fn ui(
         }
     });
 
-    ui.label("flags (F then 1–6)");
+    ui.label(if state.flag_chord {
+        RichText::new("flags: now press the number").color(super::WARN)
+    } else {
+        RichText::new("flags: press F, then the number")
+    });
     ui.horizontal_wrapped(|ui| {
-        for (k, f) in Flag::ALL.iter().enumerate() {
+        for f in Flag::ALL.iter() {
             let mut on = verdict.is_some_and(|v| v.flags.contains(f));
-            if ui
-                .checkbox(&mut on, flag_words(*f))
-                .on_hover_text(format!("F then {}", k + 1))
-                .changed()
-            {
+            let k = crate::ui::keys::flag_digit(*f);
+            let changed = ui
+                .horizontal(|ui| {
+                    ui.spacing_mut().item_spacing.x = 2.0;
+                    ui.label(RichText::new(format!("F→{k}")).monospace().weak())
+                        .on_hover_text(format!("press F, then {k}"));
+                    ui.checkbox(&mut on, flag_words(*f))
+                        .on_hover_text(format!("F then {k}"))
+                        .changed()
+                })
+                .inner;
+            if changed {
                 out.push(Action::ToggleFlag(*f));
             }
         }
