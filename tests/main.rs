@@ -9,4 +9,5 @@ mod lines;
 mod records;
 mod review;
 mod smoke;
+mod stars;
 mod templates;

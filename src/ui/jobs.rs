@@ -257,6 +257,7 @@ mod tests {
             warnings: Warnings::default(),
             curves: vec![],
             lines: vec![],
+            per_class: vec![],
         }
     }
 
