@@ -15,5 +15,6 @@ mod records;
 mod review;
 mod robust;
 mod smoke;
+mod stars;
 mod templates;
 mod tools;

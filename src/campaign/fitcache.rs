@@ -9,7 +9,7 @@ rest). The χ²(z) curves are not cached — they are large (one value per grid
 step and class) and the engine recomputes them in well under a second when an
 object is opened.
 */
-use crate::fit::{Candidate, FitResult, LineMeasurement, Warnings};
+use crate::fit::{Candidate, ClassSolution, FitResult, LineMeasurement, Warnings};
 use crate::ObjectClass;
 use serde::{Deserialize, Serialize};
 
@@ -39,6 +39,19 @@ pub struct CandidateRecord {
     pub chi2: Option<f64>,
     /// Coefficients.
     pub coeffs: Vec<Option<f64>>,
+}
+
+/// The best solution of one class in the cache.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ClassRecord {
+    /// Class.
+    pub class: ObjectClass,
+    /// Template name.
+    pub template: String,
+    /// Redshift.
+    pub z: Option<f64>,
+    /// χ².
+    pub chi2: Option<f64>,
 }
 
 /// One measured line in the cache.
@@ -90,6 +103,9 @@ pub struct FitRecord {
     /// Lines measured.
     #[serde(default)]
     pub lines: Vec<LineRecord>,
+    /// Best solution of every class (absent in older caches: empty).
+    #[serde(default)]
+    pub per_class: Vec<ClassRecord>,
 }
 
 impl From<&FitResult> for FitRecord {
@@ -128,6 +144,16 @@ impl From<&FitResult> for FitRecord {
                     ew_rest: fin(l.ew_rest),
                     snr: fin(l.snr),
                     width_fitted: l.width_fitted,
+                })
+                .collect(),
+            per_class: f
+                .per_class
+                .iter()
+                .map(|s| ClassRecord {
+                    class: s.class,
+                    template: s.template.clone(),
+                    z: fin(s.z),
+                    chi2: fin(s.chi2),
                 })
                 .collect(),
         }
@@ -169,6 +195,16 @@ impl From<FitRecord> for FitResult {
                     ew_rest: nan(l.ew_rest),
                     snr: nan(l.snr),
                     width_fitted: l.width_fitted,
+                })
+                .collect(),
+            per_class: r
+                .per_class
+                .into_iter()
+                .map(|s| ClassSolution {
+                    class: s.class,
+                    template: s.template,
+                    z: nan(s.z),
+                    chi2: nan(s.chi2),
                 })
                 .collect(),
         }
@@ -234,6 +270,7 @@ mod tests {
             warnings: Warnings(Warnings::AMBIGUOUS | Warnings::POOR_FIT),
             curves: vec![],
             lines: vec![],
+            per_class: vec![],
         };
         let text = to_text(&[&f]).unwrap();
         assert!(text.contains("\"warning_names\":\"ambiguous|poor_fit\""));

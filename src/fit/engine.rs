@@ -17,7 +17,7 @@ use super::fast::{self, CorrPlan, DataCache, FftCache};
 use super::prep::{legendre, Prepared};
 use super::reference::{sums_fit, thresholds};
 use super::refine::{grid_parabola, refine};
-use super::result::{Candidate, Chi2Curve, FitResult, Warnings};
+use super::result::{Candidate, Chi2Curve, ClassSolution, FitResult, Warnings};
 use super::units::{build_units, Unit};
 use crate::spectrum::Spectrum;
 use crate::templates::TemplateSet;
@@ -43,6 +43,23 @@ pub const REFINE_DCHI2: f64 = 50.0;
 pub const FEW_PIXELS: usize = 100;
 /// Reduced χ² above this sets [`Warnings::POOR_FIT`].
 pub const POOR_FIT_CHI2R: f64 = 2.0;
+/// Δχ² between the best star and the best solution of another class below
+/// which [`Warnings::CLASS_CLOSE`] is set (before the mismatch scaling of
+/// [`mismatch_scale`]). Calibrated on the recovery run (README, "Warnings").
+pub const CLASS_CLOSE_DCHI2: f64 = 25.0;
+
+/// Factor by which the Δχ² cuts grow with template mismatch: the reduced χ²
+/// of the best fit, at least 1. Where no template matches to the noise
+/// (χ²_r > 1) every χ² difference is inflated by roughly that factor, so a
+/// plain Δχ² cut would be overconfident (common practice: errors rescaled
+/// by √χ²_r).
+pub fn mismatch_scale(chi2_reduced: f64) -> f64 {
+    if chi2_reduced.is_finite() {
+        chi2_reduced.max(1.0)
+    } else {
+        1.0
+    }
+}
 
 /// The redshift engine. `Send + Sync`: share one engine across threads.
 #[derive(Debug)]
@@ -412,9 +429,15 @@ impl Engine {
         let n_good = prep.n_good();
         let n_par = prep.cols(self.units[best_min.unit].k()) + prep.j();
         let chi2_reduced = best.chi2 / prep.dof(n_par);
+        let per_class =
+            ClassSolution::from_candidates(&cands.iter().map(|(c, _, _)| c.clone()).collect::<Vec<_>>());
+        let scale = mismatch_scale(chi2_reduced);
         let mut warnings = Warnings::default();
-        if delta_chi2 < AMBIGUOUS_DCHI2 {
+        if delta_chi2 < AMBIGUOUS_DCHI2 * scale {
             warnings.set(Warnings::AMBIGUOUS);
+        }
+        if class_close(&per_class, scale) {
+            warnings.set(Warnings::CLASS_CLOSE);
         }
         if best_min.edge {
             warnings.set(Warnings::AT_GRID_EDGE);
@@ -462,6 +485,7 @@ impl Engine {
             warnings,
             curves,
             lines,
+            per_class,
         })
     }
 
@@ -527,6 +551,18 @@ fn star_window_allowance(prep: &Prepared, galaxy_k: usize, star_k: usize) -> f64
     let extra = prep.cols(galaxy_k).saturating_sub(prep.cols(star_k)) as f64;
     let n = (prep.n_good() as f64 / prep.oversampling).max(2.0);
     extra * n.ln()
+}
+
+/// The best star against the best solution of a non-star class: true when
+/// their χ² differ by less than [`CLASS_CLOSE_DCHI2`] × `scale`, whichever
+/// of them is the better. `per_class` is best class first.
+fn class_close(per_class: &[ClassSolution], scale: f64) -> bool {
+    let star = per_class.iter().find(|s| s.class == ObjectClass::Star);
+    let other = per_class.iter().find(|s| s.class != ObjectClass::Star);
+    match (star, other) {
+        (Some(s), Some(o)) => (s.chi2 - o.chi2).abs() < CLASS_CLOSE_DCHI2 * scale,
+        _ => false,
+    }
 }
 
 /// |Δv| between two redshifts in km/s (relativistic-free, c·|Δln(1+z)|).

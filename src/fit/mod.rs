@@ -26,11 +26,12 @@ pub mod xcorr;
 
 pub use config::{FitConfig, FitError, Method};
 pub use engine::{
-    velocity_sep_kms, Engine, AMBIGUOUS_DCHI2, C_KMS, FEW_PIXELS, POOR_FIT_CHI2R, STAR_VMAX_KMS,
+    mismatch_scale, velocity_sep_kms, Engine, AMBIGUOUS_DCHI2, CLASS_CLOSE_DCHI2, C_KMS, FEW_PIXELS,
+    POOR_FIT_CHI2R, STAR_VMAX_KMS,
 };
 pub use fast::CorrPlan;
 pub use lines::measure_list as measure_emission_lines;
 pub use overlay::{Overlay, OverlayTemplate};
 pub use prep::Prepared;
-pub use result::{Candidate, Chi2Curve, FitResult, LineMeasurement, Warnings};
+pub use result::{Candidate, Chi2Curve, ClassSolution, FitResult, LineMeasurement, Warnings};
 pub use units::Unit;

@@ -22,14 +22,18 @@ impl Warnings {
     pub const POOR_FIT: u32 = 1 << 4;
     /// The file had no error array; the noise was estimated.
     pub const NOISE_ESTIMATED: u32 = 1 << 5;
+    /// The best star and the best non-star solution are close in χ²
+    /// (see `CLASS_CLOSE_DCHI2` in the engine): the class is uncertain.
+    pub const CLASS_CLOSE: u32 = 1 << 6;
     /// Names of the bits, in bit order.
-    pub const NAMES: [(u32, &'static str); 6] = [
+    pub const NAMES: [(u32, &'static str); 7] = [
         (Self::AMBIGUOUS, "ambiguous"),
         (Self::AT_GRID_EDGE, "at_grid_edge"),
         (Self::NEGATIVE_TEMPLATE, "negative_template"),
         (Self::FEW_PIXELS, "few_pixels"),
         (Self::POOR_FIT, "poor_fit"),
         (Self::NOISE_ESTIMATED, "noise_estimated"),
+        (Self::CLASS_CLOSE, "class_close"),
     ];
 
     /// True when bit `b` is set.
@@ -113,6 +117,48 @@ fn width_fitted_default() -> bool {
     true
 }
 
+/// The best solution of one class for one spectrum: how close that class
+/// came, whether or not it won.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ClassSolution {
+    /// The class.
+    pub class: ObjectClass,
+    /// Template that gave it (stars: the stellar type; bases: the basis name).
+    pub template: String,
+    /// Redshift of the class's best solution.
+    pub z: f64,
+    /// χ² of the class's best solution (same pixels as every other class).
+    pub chi2: f64,
+}
+
+impl ClassSolution {
+    /// The first (best) candidate of each class, in the candidates' order.
+    pub fn from_candidates(candidates: &[Candidate]) -> Vec<ClassSolution> {
+        let mut out: Vec<ClassSolution> = Vec::new();
+        for c in candidates {
+            if out.iter().all(|s| s.class != c.class) {
+                out.push(ClassSolution {
+                    class: c.class,
+                    template: c.template.clone(),
+                    z: c.z,
+                    chi2: c.chi2,
+                });
+            }
+        }
+        out
+    }
+
+    /// Compact text form `class:template:z:χ²`, solutions joined by `;`
+    /// (the `per_class` column of the result table).
+    pub fn join(solutions: &[ClassSolution]) -> String {
+        solutions
+            .iter()
+            .map(|s| format!("{}:{}:{:.6}:{:.2}", s.class, s.template, s.z, s.chi2))
+            .collect::<Vec<_>>()
+            .join(";")
+    }
+}
+
 /// Everything the engine found for one spectrum.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct FitResult {
@@ -134,11 +180,20 @@ pub struct FitResult {
     pub curves: Vec<Chi2Curve>,
     /// Emission lines measured at the best redshift.
     pub lines: Vec<LineMeasurement>,
+    /// The best solution of every fitted class, best class first (empty in
+    /// results read from files written before it existed).
+    #[serde(default)]
+    pub per_class: Vec<ClassSolution>,
 }
 
 impl FitResult {
     /// The best candidate, if any.
     pub fn best(&self) -> Option<&Candidate> {
         self.candidates.first()
+    }
+
+    /// The best solution of `class`, if that class was fitted.
+    pub fn class_best(&self, class: ObjectClass) -> Option<&ClassSolution> {
+        self.per_class.iter().find(|s| s.class == class)
     }
 }

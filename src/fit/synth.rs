@@ -27,6 +27,9 @@ pub struct SimSpec {
     pub max_tilt: f64,
     /// Mask up to this many random chunks of 5–60 pixels.
     pub max_masks: usize,
+    /// For a class whose templates are fitted each alone (stars): the
+    /// template to use; `None` draws one at random.
+    pub template: Option<String>,
 }
 
 impl Default for SimSpec {
@@ -39,6 +42,7 @@ impl Default for SimSpec {
             lam: (3600.0, 9800.0),
             max_tilt: 0.4,
             max_masks: 3,
+            template: None,
         }
     }
 }
@@ -54,7 +58,10 @@ pub fn simulate(set: &TemplateSet, spec: &SimSpec, rng: &mut impl Rng) -> Option
     let (templates, name): (Vec<&Template>, String) = match group.mode {
         FitMode::Basis => (group.templates.iter().collect(), format!("{}-basis", spec.class)),
         FitMode::EachAlone => {
-            let t = &group.templates[rng.random_range(0..group.templates.len())];
+            let t = match &spec.template {
+                Some(name) => group.templates.iter().find(|t| &t.name == name)?,
+                None => &group.templates[rng.random_range(0..group.templates.len())],
+            };
             (vec![t], t.name.clone())
         }
     };

@@ -115,6 +115,11 @@ pub struct FitRow {
     pub method: String,
     /// Why this object could not be fitted (empty when it was).
     pub error: String,
+    /// Best solution of every class, `class:template:z:χ²` joined by `;`
+    /// (see [`ClassSolution::join`](super::result::ClassSolution::join);
+    /// empty in tables written before it existed).
+    #[serde(default)]
+    pub per_class: String,
 }
 
 fn finite(v: f64) -> Option<f64> {
@@ -149,6 +154,7 @@ impl FitRow {
             chi2_3: c(2).and_then(|b| finite(b.chi2)),
             method: method.to_string(),
             error: String::new(),
+            per_class: super::result::ClassSolution::join(&r.per_class),
         }
     }
 

@@ -23,7 +23,7 @@ type Getter<T> = fn(&FitRow) -> T;
 /// Reads one text column's value from a row.
 type TextGetter = fn(&FitRow) -> &str;
 
-const TEXT: [(&str, TextGetter); 8] = [
+const TEXT: [(&str, TextGetter); 9] = [
     ("object_id", |r| &r.object_id),
     ("source", |r| &r.source),
     ("class", |r| &r.class),
@@ -32,6 +32,7 @@ const TEXT: [(&str, TextGetter); 8] = [
     ("class_2", |r| &r.class_2),
     ("class_3", |r| &r.class_3),
     ("method", |r| &r.method),
+    ("per_class", |r| &r.per_class),
 ];
 
 const NUM: [(&str, Getter<Option<f64>>); 11] = [
@@ -172,6 +173,12 @@ pub fn read(path: &Path) -> Result<Vec<FitRow>, TableError> {
         r.class_3 = cols[5][i].clone();
         r.method = cols[6][i].clone();
         r.error = cols[7][i].clone();
+    }
+    // absent in tables written before the column existed
+    if let Ok(v) = text("per_class") {
+        for (r, s) in rows.iter_mut().zip(v) {
+            r.per_class = s;
+        }
     }
     let mut num = |name: &str| -> Result<Vec<Option<f64>>, TableError> {
         let v: Vec<f64> = hdu.read_col(&mut f, name).map_err(|e| err(path, e))?;

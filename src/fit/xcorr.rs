@@ -21,7 +21,7 @@ use super::config::FitError;
 use super::engine::{shift_range, velocity_sep_kms, Engine};
 use super::prep::Prepared;
 use super::reference::{direct_fit, thresholds};
-use super::result::{Candidate, FitResult, Warnings};
+use super::result::{Candidate, ClassSolution, FitResult, Warnings};
 use crate::spectrum::Spectrum;
 use crate::templates::TemplateKind;
 use crate::ObjectClass;
@@ -337,6 +337,7 @@ pub fn fit(e: &Engine, s: &Spectrum) -> Result<FitResult, FitError> {
     let lines = super::lines::measure(s, &prep, e, &best);
     Ok(FitResult {
         object_id: s.meta.id.clone(),
+        per_class: ClassSolution::from_candidates(&cands),
         candidates: cands,
         delta_chi2,
         chi2_reduced,

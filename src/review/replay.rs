@@ -310,6 +310,7 @@ mod tests {
             warnings: Default::default(),
             curves: vec![],
             lines: vec![],
+            per_class: vec![],
         };
         assert_eq!(FitSeen::of(&f), None);
         f.candidates.push(Candidate {

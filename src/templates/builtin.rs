@@ -6,7 +6,10 @@ Values are rounded to single precision so that the set read back from the
 committed FITS files (stored as 32-bit floats) equals this one exactly.
 */
 use super::profiles::Grid;
-use super::{galaxies, quasars, stars, ClassTemplates, FitMode, Template, TemplateKind, TemplateSet};
+use super::{
+    galaxies, quasars, stars, stars_cool, stars_hot, ClassTemplates, FitMode, Template, TemplateKind,
+    TemplateSet,
+};
 use crate::ObjectClass;
 use serde::Serialize;
 use std::sync::OnceLock;
@@ -106,18 +109,7 @@ pub fn generate() -> TemplateSet {
     let star = ClassTemplates {
         class: Star,
         mode: FitMode::EachAlone,
-        templates: stars::SEQUENCE
-            .iter()
-            .map(|st| {
-                template(
-                    st.name,
-                    Star,
-                    Absorption,
-                    &sg,
-                    stars::star(st, &sg, stars::INSTRUMENT_SIGMA_KMS),
-                )
-            })
-            .collect(),
+        templates: star_templates(&sg),
     };
 
     TemplateSet {
@@ -125,6 +117,42 @@ pub fn generate() -> TemplateSet {
         provenance: provenance(),
         classes: vec![galaxy, quasar, star],
     }
+}
+
+/// The star class: the main sequence O–K and the DA white dwarf
+/// ([`stars::SEQUENCE`], whose M0 and M4 serve the galaxy populations and
+/// are replaced here by the calibrated M dwarfs), the cool stars
+/// ([`stars_cool::COOL`]) and the hot and peculiar stars ([`stars_hot::HOT`]).
+fn star_templates(sg: &Grid) -> Vec<Template> {
+    use ObjectClass::Star;
+    use TemplateKind::{Absorption, Emission};
+    let cool_names: Vec<&str> = stars_cool::COOL.iter().map(|c| c.name).collect();
+    let inst = stars::INSTRUMENT_SIGMA_KMS;
+    let mut out: Vec<Template> = stars::SEQUENCE
+        .iter()
+        .filter(|st| !cool_names.contains(&st.name))
+        .map(|st| template(st.name, Star, Absorption, sg, stars::star(st, sg, inst)))
+        .collect();
+    out.extend(stars_cool::COOL.iter().map(|st| {
+        let kind = if st.family == stars_cool::Family::EmissionDwarf {
+            Emission
+        } else {
+            Absorption
+        };
+        template(st.name, Star, kind, sg, stars_cool::cool_star(st, sg, inst))
+    }));
+    out.extend(stars_hot::HOT.iter().map(|st| {
+        let kind = if matches!(
+            st.kind,
+            stars_hot::HotKind::WolfRayetN | stars_hot::HotKind::WolfRayetC
+        ) {
+            Emission
+        } else {
+            Absorption
+        };
+        template(st.name, Star, kind, sg, stars_hot::hot_star(st, sg, inst))
+    }));
+    out
 }
 
 /// Free-text provenance of the built-in set.
@@ -151,6 +179,8 @@ pub struct Parameters {
     star_sigma_kms: f64,
     instrument_sigma_kms: f64,
     stars: &'static [stars::StarType],
+    cool_stars: &'static [stars_cool::CoolType],
+    hot_stars: &'static [stars_hot::HotType],
     galaxies: galaxies::Parameters,
     quasars: quasars::Parameters,
 }
@@ -165,6 +195,8 @@ pub fn parameters() -> Parameters {
         star_sigma_kms: stars::STAR_SIGMA_KMS,
         instrument_sigma_kms: stars::INSTRUMENT_SIGMA_KMS,
         stars: stars::SEQUENCE,
+        cool_stars: stars_cool::COOL,
+        hot_stars: stars_hot::HOT,
         galaxies: galaxies::parameters(),
         quasars: quasars::parameters(),
     }

@@ -16,6 +16,8 @@ pub mod galaxies;
 pub mod profiles;
 pub mod quasars;
 pub mod stars;
+pub mod stars_cool;
+pub mod stars_hot;
 
 pub use builtin::{builtin, generate as generate_builtin, write_builtin, DEFAULT_DIR};
 pub use fits_io::{

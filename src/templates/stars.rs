@@ -206,7 +206,7 @@ const TIO: &[(f64, f64, f64)] = &[
 pub const N_MERGE: u32 = 16;
 
 /// Hydrogen lines: lower level 2 (Balmer) and 3 (Paschen), upper level ≤ [`N_MERGE`].
-fn hydrogen_lines() -> Vec<(u32, u32, f64)> {
+pub(crate) fn hydrogen_lines() -> Vec<(u32, u32, f64)> {
     let named = [
         (2, 3, "Hα"),
         (2, 4, "Hβ"),
@@ -313,9 +313,30 @@ pub fn star(st: &StarType, grid: &Grid, instrument_kms: f64) -> Vec<f64> {
 /// One star on `grid` at full resolution, metal lines of dispersion
 /// `sigma_kms`, normalised to a median of 1 over 5400–5600 Å.
 pub fn star_intrinsic(st: &StarType, grid: &Grid, sigma_kms: f64) -> Vec<f64> {
+    let (mut flux, mut tau) = atmosphere(st, grid, sigma_kms);
+    let tio = if st.white_dwarf {
+        0.0
+    } else {
+        tio_strength(st.teff)
+    };
+    for &(head, t0, len) in TIO {
+        add_band(&mut tau, grid, head, t0 * tio, len);
+    }
+    apply_tau(&mut flux, &tau);
+    let norm = median_in(&flux, grid, 5_400.0, 5_600.0);
+    for f in &mut flux {
+        *f /= norm;
+    }
+    flux
+}
+
+/// The continuum of `st` and the optical depth of its atomic lines, the
+/// line blanketing and the G band, on `grid` (metal lines of dispersion
+/// `sigma_kms`); molecular bands other than CH are left to the caller.
+pub(crate) fn atmosphere(st: &StarType, grid: &Grid, sigma_kms: f64) -> (Vec<f64>, Vec<f64>) {
     let t = st.teff;
     let waves = grid.waves();
-    let mut flux = continuum(&waves, t, grey_opacity(st));
+    let flux = continuum(&waves, t, grey_opacity(st));
     let mut tau = vec![0.0; grid.n];
 
     let h = if st.white_dwarf { 1.0 } else { hydrogen_strength(t) };
@@ -428,15 +449,5 @@ pub fn star_intrinsic(st: &StarType, grid: &Grid, sigma_kms: f64) -> Vec<f64> {
         wing: 1.0,
     }
     .add_to(&mut tau, grid);
-
-    for &(head, t0, len) in TIO {
-        add_band(&mut tau, grid, head, t0 * tio, len);
-    }
-
-    apply_tau(&mut flux, &tau);
-    let norm = median_in(&flux, grid, 5_400.0, 5_600.0);
-    for f in &mut flux {
-        *f /= norm;
-    }
-    flux
+    (flux, tau)
 }

@@ -273,6 +273,7 @@ mod tests {
             warnings: Warnings::default(),
             curves: vec![],
             lines: vec![],
+            per_class: vec![],
         }
     }
 

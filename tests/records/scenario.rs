@@ -129,6 +129,7 @@ pub fn build_campaign(name: &str) -> (Campaign, Scenario) {
                 warnings: Warnings::default(),
                 curves: vec![],
                 lines: vec![],
+                per_class: vec![],
             }
         })
         .collect();

@@ -192,3 +192,34 @@ pub fn run_reference_script(script: &str, args: &[&Path]) -> serde_json::Value {
         )
     })
 }
+
+/// First file in folder `rel_dir` of the wheel for `spec` whose name ends with `suffix`.
+pub fn reference_file_with_suffix(spec: &str, rel_dir: &str, suffix: &str) -> PathBuf {
+    let d = reference_wheel(spec).join(rel_dir);
+    let mut hits: Vec<PathBuf> = std::fs::read_dir(&d)
+        .unwrap_or_else(|e| panic!("{rel_dir} missing in the {spec} wheel: {e}"))
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .filter(|p| {
+            p.file_name()
+                .and_then(|f| f.to_str())
+                .is_some_and(|f| f.ends_with(suffix))
+        })
+        .collect();
+    hits.sort();
+    hits.into_iter()
+        .next()
+        .unwrap_or_else(|| panic!("no file ending {suffix} in {rel_dir} of the {spec} wheel"))
+}
+
+/// The reference solar spectrum (WAVELENGTH, FLUX, STATERROR; vacuum Å).
+pub fn solar_spectrum() -> PathBuf {
+    reference_file("pyphot==2.1.1", "pyphot/libs/sun_reference_stis_001.fits")
+}
+
+/// A hydrogen (DA) white-dwarf flux standard (WAVELENGTH, FLUX, STATERROR; vacuum Å).
+pub fn da_white_dwarf() -> PathBuf {
+    reference_file(
+        "synphot==1.8.0",
+        "synphot/tests/data/grw_70d5824_stisnic_005.fits",
+    )
+}
