@@ -484,6 +484,7 @@ pub fn seeds() -> Vec<(Target, Vec<u8>)> {
             warnings: zvet::fit::Warnings(0),
             curves: vec![],
             lines: vec![],
+            per_class: vec![],
         })
         .collect();
     let refs: Vec<&zvet::fit::FitResult> = fits_results.iter().collect();

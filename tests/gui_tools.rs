@@ -296,7 +296,7 @@ fn two_inspectors(folder: &Path, ids: &[String]) {
     ana.record(
         &ids[0],
         None,
-        opinion(VerdictClass::Galaxy, 0.5, Confidence::Solid),
+        opinion(VerdictClass::Galaxy, 0.5, Confidence::Secure),
     )
     .unwrap();
     ana.record(
@@ -310,16 +310,16 @@ fn two_inspectors(folder: &Path, ids: &[String]) {
     ana.record(
         &ids[1],
         None,
-        opinion(VerdictClass::Quasar, 2.0, Confidence::Certain),
+        opinion(VerdictClass::Quasar, 2.0, Confidence::Secure),
     )
     .unwrap();
-    ana.record(&ids[2], None, opinion(VerdictClass::Star, 0.0, Confidence::Solid))
+    ana.record(&ids[2], None, opinion(VerdictClass::Star, 0.0, Confidence::Secure))
         .unwrap();
     let (mut ben, _) = ReviewLog::open(&folder.join("ben.jsonl"), "ben").unwrap();
     ben.record(
         &ids[0],
         None,
-        opinion(VerdictClass::Star, 0.0001, Confidence::Tentative),
+        opinion(VerdictClass::Star, 0.0001, Confidence::Probable),
     )
     .unwrap();
     ben.record(
@@ -335,10 +335,10 @@ fn two_inspectors(folder: &Path, ids: &[String]) {
     ben.record(
         &ids[1],
         None,
-        opinion(VerdictClass::Quasar, 2.02, Confidence::Solid),
+        opinion(VerdictClass::Quasar, 2.02, Confidence::Secure),
     )
     .unwrap();
-    ben.record(&ids[2], None, opinion(VerdictClass::Star, 0.0, Confidence::Solid))
+    ben.record(&ids[2], None, opinion(VerdictClass::Star, 0.0, Confidence::Secure))
         .unwrap();
 }
 
@@ -381,7 +381,7 @@ fn adjudication_shows_every_verdict_and_the_decision_is_an_ordinary_verdict() {
     h.get_by_label("Hα and [N II]");
     // ben's flag and certainty (the verdict panel has a widget of each name too)
     assert_eq!(h.query_all_by_label("single line").count(), 2);
-    assert!(h.query_all_by_label(Confidence::Tentative.as_str()).count() >= 2);
+    assert!(h.query_all_by_label(Confidence::Probable.as_str()).count() >= 2);
 
     // "show" draws ben's star without recording anything.
     let judge_log = dir.path().join("judge.jsonl");

@@ -51,6 +51,7 @@ impl Adjudication {
         let folder = match place {
             LogPlace::Folder(d) => d.clone(),
             LogPlace::File(p) => p.parent().map(Path::to_path_buf).unwrap_or_default(),
+            LogPlace::Pending => return Err("the spectra are still loading: no review log yet".into()),
         };
         let campaign_dir = folder.parent().filter(|p| p.join("campaign.toml").is_file());
         let (logs, problems, adjudicator, tolerance) = match campaign_dir {
@@ -120,14 +121,18 @@ impl Adjudication {
         match self.logs.iter_mut().find(|l| l.inspector == stem) {
             Some(l) => l.verdicts = verdicts,
             None => {
+                let name = if stem.is_empty() {
+                    inspector.to_string()
+                } else {
+                    stem
+                };
                 self.logs.push(InspectorLog {
-                    inspector: if stem.is_empty() {
-                        inspector.to_string()
-                    } else {
-                        stem
-                    },
+                    file_name: name.clone(),
+                    inspector: name,
                     verdicts,
                     problems: Vec::new(),
+                    // Not read from a file: no digest to compare with copies.
+                    fingerprint: 0,
                 });
                 self.logs.sort_by(|a, b| a.inspector.cmp(&b.inspector));
             }
