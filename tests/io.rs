@@ -198,8 +198,8 @@ fn folders_expand_to_all_spectrum_files_in_stable_order() {
         .iter()
         .map(|p| p.strip_prefix(data_dir()).unwrap().display().to_string())
         .collect();
-    // 15 good fixtures + 7 bad; the JSON files are not spectra
-    assert_eq!(names.len(), 22, "{names:?}");
+    // 15 good fixtures + 3 multi-object frames + 8 bad; the JSON files are not spectra
+    assert_eq!(names.len(), 26, "{names:?}");
     let mut sorted = names.clone();
     sorted.sort();
     assert_eq!(names, sorted);

@@ -8,8 +8,8 @@ object per line instead.
 A multi-object frame (2-D image with one spectrum per row and a row table)
 is explained first: where the flux, row table, wavelengths and noise were
 found and how many sky and unused rows were skipped. Every file ends with
-the time its reading took (in `--json` mode each object carries `read_ms`,
-and the per-file line goes to stderr).
+the time its reading took (in `--json` mode each object carries `read_ms`
+instead).
 
 A bad file (or a bad object in a multi-object file) gives one line on
 stderr; the other files are still read, and the exit code is 1 when anything
@@ -190,9 +190,7 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
             t.objects,
             ms(t.elapsed)
         );
-        if args.json {
-            eprintln!("zvet: {line}");
-        } else {
+        if !args.json {
             writeln!(out, "{line}")?;
         }
     }
