@@ -6,6 +6,7 @@ mod fit;
 mod gui;
 mod io;
 mod lines;
+mod pipeline;
 mod records;
 mod review;
 mod smoke;

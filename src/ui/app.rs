@@ -75,6 +75,8 @@ pub struct ZvetApp {
     /// Actions to apply once the next spectra or campaign load is in
     /// (e.g. a catalogue given on the command line with the spectra).
     pub(crate) after_load: Vec<super::action::Action>,
+    /// Where automatic fits made here are written back (a campaign's cache).
+    pub(crate) write_back: super::jobs::WriteBack,
     prepared: Option<(PrepKey, Prepared)>,
 }
 
@@ -103,6 +105,7 @@ impl ZvetApp {
             inspector: None,
             name_file,
             after_load: Vec::new(),
+            write_back: Default::default(),
             prepared: None,
         };
         app.restart_fits();
@@ -224,6 +227,7 @@ impl ZvetApp {
             let i = done.index;
             match (done.kind, done.result) {
                 (JobKind::Fit, Ok(fit)) => {
+                    self.write_back(i, &fit);
                     if let Some(slot) = self.state.fits.get_mut(i) {
                         *slot = Some(fit);
                         any_fit = true;
@@ -241,6 +245,8 @@ impl ZvetApp {
                         *slot = Some(e);
                     }
                 }
+                (JobKind::Curves, Ok(fit)) => self.absorb_curves(i, fit),
+                (JobKind::Curves, Err(_)) => {}
                 (JobKind::RefitNear { .. }, result) => {
                     if self.state.selected != Some(i) {
                         continue;
@@ -292,6 +298,7 @@ impl ZvetApp {
         if self.state.fits.get(index).is_some_and(|f| f.is_none()) {
             self.jobs.prioritize(index);
         }
+        self.want_curves_from(index);
     }
 
     /// Compute the plot data if the object, solution or view changed.
