@@ -517,9 +517,10 @@ fn result_tables_round_trip_in_every_format_and_merge_keeps_first_rows() {
         // resume: ids already present are skipped, the rest appended
         let partial = dir.join(format!("resume.{ext}"));
         let mut w = RowWriter::create(&partial, false).unwrap();
+        let first_two: Vec<zvet::pipeline::Item> = items.iter().take(2).cloned().collect();
         fit_items(
             &engine,
-            items[..2].to_vec().into_iter(),
+            first_two.into_iter(),
             &mut w,
             &Default::default(),
             None,

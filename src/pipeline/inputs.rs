@@ -337,9 +337,13 @@ mod tests {
         let dir = tempfile::tempdir().unwrap();
         let x = dir.path().join("x.csv");
         std::fs::write(&x, "wave,flux\n1,2\n").unwrap();
-        assert!(check_output(&[x.clone()], &x).is_err());
-        assert!(check_output(&[x.clone()], &dir.path().join("out.csv")).is_ok());
-        let found = find(&[dir.path().to_path_buf()], &[x.clone()], &ReadOptions::default());
+        assert!(check_output(std::slice::from_ref(&x), &x).is_err());
+        assert!(check_output(std::slice::from_ref(&x), &dir.path().join("out.csv")).is_ok());
+        let found = find(
+            &[dir.path().to_path_buf()],
+            std::slice::from_ref(&x),
+            &ReadOptions::default(),
+        );
         assert!(found.files.is_empty(), "{found:?}");
     }
 }

@@ -333,51 +333,6 @@ impl WriteBack {
     }
 }
 
-impl super::app::ZvetApp {
-    /// Ask for the χ²(z) curves of object `index` and of the next few in the
-    /// list, where their fit came without them.
-    pub(crate) fn want_curves_from(&mut self, index: usize) {
-        let lacks = |i: usize| {
-            self.state
-                .fits
-                .get(i)
-                .is_some_and(|f| f.as_ref().is_some_and(|f| f.curves.is_empty()))
-        };
-        let shown = lacks(index).then_some(index);
-        let next: Vec<usize> = match self.state.order.iter().position(|&i| i == index) {
-            Some(pos) => self.state.order[pos + 1..]
-                .iter()
-                .copied()
-                .filter(|&i| lacks(i))
-                .take(CURVE_PREFETCH)
-                .collect(),
-            None => Vec::new(),
-        };
-        self.jobs.want_curves(shown, &next);
-    }
-
-    /// Put the curves of a whole fit onto the cached fit of `index`.
-    pub(crate) fn absorb_curves(&mut self, index: usize, fit: FitResult) {
-        if let Some(Some(cached)) = self.state.fits.get_mut(index) {
-            if cached.curves.is_empty() {
-                cached.curves = fit.curves;
-            }
-        }
-    }
-
-    /// An automatic fit made here: keep it for the campaign's cache.
-    pub(crate) fn write_back(&mut self, index: usize, fit: &FitResult) {
-        if let Some(o) = self.state.objects.get(index) {
-            self.write_back.add(&o.spectrum, fit);
-        }
-        let all = !self.jobs.busy();
-        self.write_back.flush(all);
-        for e in self.write_back.take_errors() {
-            self.state.say(e, true);
-        }
-    }
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;

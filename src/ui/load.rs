@@ -55,7 +55,7 @@ pub enum Loaded {
         /// The engine on the campaign's templates and settings (None: keep the current one).
         fitter: Option<Arc<dyn Fitter>>,
         /// The campaign whose cache takes the fits made in the window.
-        write_back: Option<crate::campaign::Campaign>,
+        write_back: Option<Box<crate::campaign::Campaign>>,
     },
     /// Something went wrong; the text says what.
     Failed(String),

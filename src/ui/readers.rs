@@ -120,7 +120,7 @@ pub fn read_campaign(path: &Path) -> Loaded {
         problems,
         // automatic fits made here go back to the campaign's cache only when
         // they come from the campaign's own engine
-        write_back: fitter.is_some().then(|| campaign.clone()),
+        write_back: fitter.is_some().then(|| Box::new(campaign.clone())),
         fitter,
     }
 }
@@ -152,7 +152,7 @@ impl ZvetApp {
                 write_back,
             } => {
                 self.report(&problems);
-                self.write_back.set(write_back);
+                self.write_back.set(write_back.map(|c| *c));
                 if let Some(fitter) = fitter {
                     self.fitter = fitter;
                 }
@@ -229,6 +229,52 @@ impl ZvetApp {
         }
         for a in std::mem::take(&mut self.after_load) {
             self.apply(a);
+        }
+    }
+}
+
+/// χ²(z) curves on demand and fits written back (see [`super::jobs`]).
+impl ZvetApp {
+    /// Ask for the χ²(z) curves of object `index` and of the next few in the
+    /// list, where their fit came without them.
+    pub(crate) fn want_curves_from(&mut self, index: usize) {
+        let lacks = |i: usize| {
+            self.state
+                .fits
+                .get(i)
+                .is_some_and(|f| f.as_ref().is_some_and(|f| f.curves.is_empty()))
+        };
+        let shown = lacks(index).then_some(index);
+        let next: Vec<usize> = match self.state.order.iter().position(|&i| i == index) {
+            Some(pos) => self.state.order[pos + 1..]
+                .iter()
+                .copied()
+                .filter(|&i| lacks(i))
+                .take(super::jobs::CURVE_PREFETCH)
+                .collect(),
+            None => Vec::new(),
+        };
+        self.jobs.want_curves(shown, &next);
+    }
+
+    /// Put the curves of a whole fit onto the cached fit of `index`.
+    pub(crate) fn absorb_curves(&mut self, index: usize, fit: crate::fit::FitResult) {
+        if let Some(Some(cached)) = self.state.fits.get_mut(index) {
+            if cached.curves.is_empty() {
+                cached.curves = fit.curves;
+            }
+        }
+    }
+
+    /// An automatic fit made here: keep it for the campaign's cache.
+    pub(crate) fn write_back(&mut self, index: usize, fit: &crate::fit::FitResult) {
+        if let Some(o) = self.state.objects.get(index) {
+            self.write_back.add(&o.spectrum, fit);
+        }
+        let all = !self.jobs.busy();
+        self.write_back.flush(all);
+        for e in self.write_back.take_errors() {
+            self.state.say(e, true);
         }
     }
 }
