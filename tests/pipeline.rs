@@ -166,13 +166,13 @@ fn concurrent_shards_collect_to_the_single_process_fit_object_for_object() {
     bytes.extend_from_slice(b"{\"object_id\": \"\xff\"}\n{\"v\":2,\"object_id\":\"x\",\"cand");
     std::fs::write(&cache, bytes).unwrap();
     let (fits, problems) = single.load_fits().unwrap();
-    assert_eq!(fits.len(), 6);
+    assert_eq!(fits.len(), 4);
     assert_eq!(problems.len(), 2, "{problems:?}");
     assert!(
-        problems[0].contains("line 7") && problems[0].contains("UTF-8"),
+        problems[0].contains("line 5") && problems[0].contains("UTF-8"),
         "{problems:?}"
     );
-    assert!(problems[1].contains("line 8"), "{problems:?}");
+    assert!(problems[1].contains("line 6"), "{problems:?}");
     let o = run(&["campaign".as_ref(), "status".as_ref(), single.dir().as_os_str()]);
     assert!(o.status.success(), "{}", text(&o));
     assert!(text(&o).contains("line 5"), "{}", text(&o));
