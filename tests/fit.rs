@@ -544,8 +544,21 @@ fn cross_correlation_finds_the_redshift_of_test_galaxies() {
 
 #[test]
 fn result_tables_round_trip_in_every_format_and_merge_keeps_first_rows() {
-    use zvet::cli::fit::{fit_items, merge, ReadFailure};
-    use zvet::fit::table::{read_rows, RowWriter};
+    use zvet::pipeline::{fit_stream, merge_tables as merge, read_rows, ReadFailure, RowWriter, RunOptions};
+    // the pipeline's run with the sink writing to `w`
+    let fit_items = |engine: &Engine,
+                     items: std::vec::IntoIter<zvet::pipeline::Item>,
+                     w: &mut RowWriter,
+                     skip: &std::collections::HashSet<String>,
+                     shard: Option<(usize, usize)>,
+                     _progress: Option<()>| {
+        let opts = RunOptions {
+            skip: skip.clone(),
+            shard,
+            unique_ids: false,
+        };
+        fit_stream(engine, items, &opts, |r| w.write(&r), &|_| {}, None)
+    };
     let set = synthetic_set();
     let engine = Engine::new(
         &set,
@@ -556,7 +569,7 @@ fn result_tables_round_trip_in_every_format_and_merge_keeps_first_rows() {
     )
     .unwrap();
     let mut rng = ChaCha8Rng::seed_from_u64(9);
-    let mut items: Vec<zvet::cli::fit::Item> = (0..5)
+    let mut items: Vec<zvet::pipeline::Item> = (0..5)
         .map(|i| {
             let mut s = mock(
                 &set,
@@ -633,9 +646,10 @@ fn result_tables_round_trip_in_every_format_and_merge_keeps_first_rows() {
         // resume: ids already present are skipped, the rest appended
         let partial = dir.join(format!("resume.{ext}"));
         let mut w = RowWriter::create(&partial, false).unwrap();
+        let first_two: Vec<zvet::pipeline::Item> = items.iter().take(2).cloned().collect();
         fit_items(
             &engine,
-            items[..2].iter().cloned(),
+            first_two.into_iter(),
             &mut w,
             &Default::default(),
             None,
@@ -753,7 +767,7 @@ fn zvet_fit_writes_an_error_row_for_a_file_without_good_pixels_and_goes_on() {
         "{}",
         String::from_utf8_lossy(&st.stderr)
     );
-    let rows = zvet::fit::table::read_rows(&out).unwrap();
+    let rows = zvet::pipeline::read_rows(&out).unwrap();
     assert_eq!(rows.len(), 2);
     assert_eq!(rows[0].object_id, "bad");
     assert!(!rows[0].error.is_empty() && rows[0].z.is_none(), "{:?}", rows[0]);
@@ -765,7 +779,8 @@ fn zvet_fit_writes_an_error_row_for_a_file_without_good_pixels_and_goes_on() {
 
 #[test]
 fn refinement_sums_equal_the_direct_fit_at_fractional_shifts() {
-    use zvet::fit::reference::{direct_fit, sums_fit, thresholds};
+    use zvet::fit::reference::{direct_fit, thresholds};
+    use zvet::fit::sums::sums_fit;
     use zvet::fit::Prepared;
     let set = synthetic_set();
     let engine = Engine::new(&set, FitConfig::default()).unwrap();

@@ -333,8 +333,7 @@ pub fn run_one(target: Target, bytes: &[u8], dir: &Path) -> Result<(), String> {
             }
         }
         Target::FitCache => {
-            let text = String::from_utf8_lossy(bytes);
-            let (fits, _problems) = zvet::campaign::fitcache::parse(&text);
+            let (fits, _problems) = zvet::campaign::fitcache::parse(bytes);
             let _ = zvet::campaign::fitcache::to_text(&fits.iter().collect::<Vec<_>>());
         }
         Target::Manifest => {
@@ -487,7 +486,11 @@ pub fn seeds() -> Vec<(Target, Vec<u8>)> {
             per_class: vec![],
         })
         .collect();
-    let refs: Vec<&zvet::fit::FitResult> = fits_results.iter().collect();
+    let records: Vec<zvet::pipeline::FitRecord> = fits_results
+        .into_iter()
+        .map(|f| zvet::pipeline::FitRecord::fitted(f, "seed.fits", "chi2"))
+        .collect();
+    let refs: Vec<&zvet::pipeline::FitRecord> = records.iter().collect();
     out.push((
         Target::FitCache,
         zvet::campaign::fitcache::to_text(&refs).unwrap().into_bytes(),

@@ -11,6 +11,7 @@ mod gui_review;
 mod gui_tools;
 mod io;
 mod lines;
+mod pipeline;
 mod records;
 mod review;
 mod robust;

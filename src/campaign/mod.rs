@@ -4,7 +4,8 @@ A review campaign: the objects under review and, on disk, a campaign folder.
 ```text
 DIR/
   campaign.toml        manifest (inputs, catalogue + columns, templates, engine, inspectors)
-  fits.jsonl           cached automatic fits, one object per line
+  fits.jsonl           cached automatic fits, one record per line and object
+  parts/               shard outputs of `zvet campaign fit --shard K/N` until collected
   reviews/NAME.jsonl   one append-only review log per inspector (+ NAME.jsonl.lock)
   exports/             catalogues and reports written by `zvet export` / `zvet report`
 ```
@@ -14,12 +15,15 @@ mod atomic;
 pub mod fitcache;
 pub mod manifest;
 mod objects;
+mod shards;
 
 pub use atomic::{atomic_create, atomic_dir, atomic_write, close_fits, sync_dir};
 pub use manifest::{CatalogSettings, EngineSettings, Manifest, ReadSettings, MANIFEST_FORMAT};
+pub use shards::{CollectSummary, ImportSummary, PARTS_DIR};
 
 use crate::catalog::CatalogRow;
 use crate::fit::FitResult;
+use crate::pipeline::FitRecord;
 use crate::review::merge::{merge, InspectorLog, MergeOptions, Merged, DEFAULT_TOLERANCE};
 use crate::review::{LogProblem, ReviewError, ReviewLog};
 use crate::Spectrum;
@@ -45,7 +49,7 @@ impl SurveyObject {
 }
 
 /// File name of the manifest.
-pub const MANIFEST_FILE: &str = "campaign.toml";
+pub const MANIFEST_FILE: &str = crate::pipeline::CAMPAIGN_MANIFEST;
 /// File name of the fit cache.
 pub const FITS_FILE: &str = "fits.jsonl";
 /// Folder of the review logs.
@@ -97,6 +101,12 @@ pub enum CampaignError {
     /// The engine could not be set up.
     #[error("redshift engine: {0}")]
     Fit(#[from] crate::fit::FitError),
+    /// The template set or engine of the pipeline.
+    #[error(transparent)]
+    Pipeline(#[from] crate::pipeline::PipelineError),
+    /// A result table (shard part, imported output) could not be read or written.
+    #[error(transparent)]
+    Table(#[from] crate::pipeline::TableError),
     /// Something else, explained.
     #[error("{0}")]
     Other(String),
@@ -302,7 +312,12 @@ impl Campaign {
 
     /// Path of an inspector's review log: `reviews/<inspector>.jsonl`.
     pub fn review_log_path(&self, inspector: &str) -> PathBuf {
-        self.dir.join(REVIEWS_DIR).join(format!("{inspector}.jsonl"))
+        self.reviews_dir().join(format!("{inspector}.jsonl"))
+    }
+
+    /// The folder of the review logs.
+    pub fn reviews_dir(&self) -> PathBuf {
+        self.dir.join(REVIEWS_DIR)
     }
 
     /// The exports folder.
@@ -386,28 +401,57 @@ impl Campaign {
     /// The cached automatic fits by object id (empty when none were
     /// computed); unreadable lines come back as problems.
     pub fn load_fits(&self) -> Result<(BTreeMap<String, FitResult>, Vec<String>), CampaignError> {
-        let path = self.dir.join(FITS_FILE);
-        let text = match std::fs::read_to_string(&path) {
-            Ok(t) => t,
-            Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(Default::default()),
-            Err(e) => return Err(io_err(&path)(e)),
-        };
-        let (fits, problems) = fitcache::parse(&text);
+        let (records, problems) = self.load_records()?;
         Ok((
-            fits.into_iter().map(|f| (f.object_id.clone(), f)).collect(),
+            records
+                .into_iter()
+                .filter_map(|(id, r)| r.fit.map(|f| (id, f)))
+                .collect(),
             problems,
         ))
     }
 
-    /// Store fits in the cache: objects already there are replaced, others
-    /// kept; the file is rewritten atomically.
+    /// The records of the fit cache by object id; unreadable lines (not
+    /// UTF-8, not a record) are skipped and come back as problems naming
+    /// their line.
+    pub fn load_records(&self) -> Result<(BTreeMap<String, FitRecord>, Vec<String>), CampaignError> {
+        let path = self.dir.join(FITS_FILE);
+        let bytes = match std::fs::read(&path) {
+            Ok(t) => t,
+            Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(Default::default()),
+            Err(e) => return Err(io_err(&path)(e)),
+        };
+        let (records, problems) = fitcache::parse(&bytes);
+        Ok((
+            records.into_iter().map(|r| (r.object_id.clone(), r)).collect(),
+            problems,
+        ))
+    }
+
+    /// Store fits in the cache (see [`Campaign::save_records`]); their
+    /// records carry the manifest's method and no source.
     pub fn save_fits(&self, fits: &[FitResult]) -> Result<(), CampaignError> {
-        let (mut all, _) = self.load_fits()?;
-        for f in fits {
-            all.insert(f.object_id.clone(), f.clone());
+        let method = match self.manifest.engine.method {
+            crate::fit::Method::Chi2 => "chi2",
+            crate::fit::Method::XCorr => "xcorr",
+        };
+        let records: Vec<FitRecord> = fits
+            .iter()
+            .map(|f| FitRecord::fitted(f.clone(), "", method))
+            .collect();
+        self.save_records(&records)
+    }
+
+    /// Store records with a fit in the cache: objects already there are
+    /// replaced, others kept (records without a fit are not cached); the
+    /// file is rewritten atomically.
+    pub fn save_records(&self, records: &[FitRecord]) -> Result<(), CampaignError> {
+        let (mut all, _) = self.load_records()?;
+        for r in records.iter().filter(|r| r.fit.is_some()) {
+            all.insert(r.object_id.clone(), r.clone());
         }
         let path = self.dir.join(FITS_FILE);
-        let refs: Vec<&FitResult> = all.values().collect();
+        let refs: Vec<&FitRecord> = all.values().collect();
         let text = fitcache::to_text(&refs).map_err(|e| CampaignError::Other(e.to_string()))?;
         atomic_write(&path, |w| w.write_all(text.as_bytes())).map_err(io_err(&path))
     }

@@ -5,9 +5,8 @@ and the redshift engine that fills the fit cache.
 */
 use super::{manifest, Campaign, CampaignError, SurveyObject};
 use crate::catalog::{CatalogRow, ColumnMap};
-use crate::fit::{Engine, FitResult};
+use crate::fit::Engine;
 use crate::templates::TemplateSet;
-use crate::Spectrum;
 use std::collections::BTreeMap;
 use std::path::Path;
 
@@ -45,40 +44,28 @@ impl Campaign {
         self.manifest.read.clone()
     }
 
+    /// The spectrum files of the campaign's inputs (through the pipeline's
+    /// input search: safe folder walks, the campaign's own files never read
+    /// back, tables that are not spectra skipped). Notes and problems come
+    /// back as text.
+    pub fn input_files(&self) -> (Vec<std::path::PathBuf>, Vec<String>) {
+        let exclude = [
+            self.dir.join(super::FITS_FILE),
+            self.dir.join(super::MANIFEST_FILE),
+        ];
+        let found = crate::pipeline::find(&self.spectra_paths(), &exclude, &self.read_options());
+        let mut problems = found.problems;
+        problems.extend(found.notes.into_iter().map(|n| format!("note: {n}")));
+        (found.files, problems)
+    }
+
     /// Every object: the spectra of all inputs, joined with the catalogue by
     /// id, with their cached fits. A file that cannot be read, a repeated id
     /// or a catalogue/fit-cache problem is reported and the rest loads.
     pub fn load_objects(&self) -> Result<(Vec<SurveyObject>, Vec<String>), CampaignError> {
-        let opts = self.read_options();
-        let mut problems = Vec::new();
-        let mut spectra: Vec<Spectrum> = Vec::new();
-        let inputs = self.spectra_paths();
-        for p in &inputs {
-            if !p.exists() {
-                problems.push(format!("{}: input not found", p.display()));
-            }
-        }
-        for file in crate::io::expand_inputs(&inputs) {
-            match crate::io::read_file(&file, &opts) {
-                Ok(mut v) => spectra.append(&mut v),
-                Err(e) => problems.push(e.to_string()),
-            }
-        }
-        let mut seen = std::collections::HashSet::new();
-        spectra.retain(|s| {
-            let fresh = seen.insert(s.meta.id.clone());
-            if !fresh {
-                problems.push(format!(
-                    "object id '{}' appears more than once ({}); the first spectrum is used",
-                    s.meta.id,
-                    s.meta
-                        .source
-                        .as_ref()
-                        .map_or("?".into(), |p| p.display().to_string())
-                ));
-            }
-            fresh
-        });
+        let (files, mut problems) = self.input_files();
+        let (spectra, read_problems) = crate::pipeline::read_all(files, &self.read_options());
+        problems.extend(read_problems);
         let (mut catalog, cat_problems) = self.load_catalog()?;
         problems.extend(cat_problems);
         if self.manifest.catalog.is_some() {
@@ -99,24 +86,25 @@ impl Campaign {
         Ok((objects, problems))
     }
 
+    /// The template-set path of the manifest (`None`: the built-in set).
+    pub fn templates_path(&self) -> Option<std::path::PathBuf> {
+        match self.manifest.templates.as_str() {
+            "builtin" | "" => None,
+            p => Some(manifest::resolve_path(&self.dir, Path::new(p))),
+        }
+    }
+
     /// The template set of the manifest.
     pub fn templates(&self) -> Result<TemplateSet, CampaignError> {
-        match self.manifest.templates.as_str() {
-            "builtin" | "" => Ok(crate::templates::builtin().clone()),
-            p => Ok(crate::templates::read_set(&manifest::resolve_path(
-                &self.dir,
-                Path::new(p),
-            ))?),
-        }
+        Ok(crate::pipeline::load_templates(self.templates_path().as_deref())?.into_owned())
     }
 
     /// The redshift engine with the manifest's templates and settings.
     pub fn engine(&self) -> Result<Engine, CampaignError> {
-        let config = self.manifest.engine.clone();
-        match self.manifest.templates.as_str() {
-            "builtin" | "" => Ok(Engine::new(crate::templates::builtin(), config)?),
-            _ => Ok(Engine::new(&self.templates()?, config)?),
-        }
+        Ok(crate::pipeline::build_engine(
+            self.templates_path().as_deref(),
+            self.manifest.engine.clone(),
+        )?)
     }
 
     /// Fit every object that has no cached fit (all when `refit`), in
@@ -127,26 +115,29 @@ impl Campaign {
         objects: &mut [SurveyObject],
         refit: bool,
     ) -> Result<(usize, Vec<String>), CampaignError> {
-        use rayon::prelude::*;
         let engine = self.engine()?;
-        let results: Vec<(usize, Result<FitResult, String>)> = objects
-            .par_iter()
-            .enumerate()
-            .filter(|(_, o)| refit || o.fit.is_none())
-            .map(|(i, o)| (i, engine.fit(&o.spectrum).map_err(|e| format!("{}: {e}", o.id()))))
+        let todo: Vec<usize> = (0..objects.len())
+            .filter(|&i| refit || objects[i].fit.is_none())
             .collect();
-        let mut fitted = Vec::new();
+        let spectra: Vec<&crate::Spectrum> = todo.iter().map(|&i| &objects[i].spectrum).collect();
+        let results = crate::pipeline::fit_all(&engine, &spectra);
+        let method = crate::pipeline::method_name(&engine);
+        let mut records = Vec::new();
         let mut failed = Vec::new();
-        for (i, r) in results {
+        for (i, r) in todo.into_iter().zip(results) {
             match r {
                 Ok(f) => {
                     objects[i].fit = Some(f.clone());
-                    fitted.push(f);
+                    records.push(crate::pipeline::FitRecord::fitted(
+                        f,
+                        &crate::pipeline::source_of(&objects[i].spectrum),
+                        method,
+                    ));
                 }
-                Err(e) => failed.push(e),
+                Err(e) => failed.push(format!("{}: {e}", objects[i].id())),
             }
         }
-        self.save_fits(&fitted)?;
-        Ok((fitted.len(), failed))
+        self.save_records(&records)?;
+        Ok((records.len(), failed))
     }
 }

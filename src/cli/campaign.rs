@@ -73,6 +73,38 @@ pub struct FitArgs {
     /// Fit every object again, not only those without a cached fit.
     #[arg(long)]
     pub refit: bool,
+    /// Fit only shard K of N (every N-th object) into the campaign's own part
+    /// file parts/fits.K-of-N.jsonl; safe for N concurrent array tasks. Given
+    /// without a value, or left out inside a job-array task, K and N come from
+    /// the scheduler (SLURM_ARRAY_TASK_ID, _MIN, _COUNT).
+    #[arg(long, value_name = "K/N", num_args = 0..=1, default_missing_value = "env",
+          value_parser = parse_shard_arg, conflicts_with_all = ["collect", "import"])]
+    pub shard: Option<ShardArg>,
+    /// Join the shards' part files into fits.jsonl (and remove them).
+    #[arg(long, conflicts_with_all = ["import", "refit"])]
+    pub collect: bool,
+    /// Take the fits of these `zvet fit` outputs (.jsonl, .csv, .fits) into the cache.
+    #[arg(long, num_args = 1.., value_name = "FILE", conflicts_with = "refit")]
+    pub import: Vec<PathBuf>,
+    /// Worker threads (default: all cores).
+    #[arg(long)]
+    pub threads: Option<usize>,
+}
+
+/// `--shard` as given.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ShardArg {
+    /// From the scheduler's environment.
+    Env,
+    /// K of N.
+    Given(usize, usize),
+}
+
+fn parse_shard_arg(s: &str) -> Result<ShardArg, String> {
+    if s == "env" {
+        return Ok(ShardArg::Env);
+    }
+    crate::pipeline::parse_shard(s).map(|(k, n)| ShardArg::Given(k, n))
 }
 
 /// Arguments of `zvet campaign status`.
@@ -86,10 +118,7 @@ pub struct StatusArgs {
 pub fn run(args: Args) -> anyhow::Result<ExitCode> {
     match args.action {
         Action::Init(a) => init(*a),
-        Action::Fit(a) => {
-            let c = Campaign::open(&a.dir)?;
-            fit(&c, a.refit)
-        }
+        Action::Fit(a) => fit_action(a),
         Action::Status(a) => status(a),
     }
 }
@@ -127,27 +156,107 @@ fn init(a: InitArgs) -> anyhow::Result<ExitCode> {
         cat.len()
     );
     if a.fit {
-        return fit(&c, false);
+        return fit(&c, None, false, None);
     }
     Ok(ExitCode::SUCCESS)
 }
 
-fn fit(c: &Campaign, refit: bool) -> anyhow::Result<ExitCode> {
-    let (mut objects, problems) = c.load_objects()?;
-    for p in &problems {
-        eprintln!("zvet: warning: {p}");
+fn fit_action(a: FitArgs) -> anyhow::Result<ExitCode> {
+    let c = Campaign::open(&a.dir)?;
+    if a.collect {
+        let s = c.collect_parts()?;
+        for p in &s.problems {
+            eprintln!("zvet: warning: {p}");
+        }
+        println!(
+            "collected {} part file(s): {} fits into {}, {} objects could not be fitted",
+            s.parts,
+            s.fitted,
+            c.dir().join(crate::campaign::FITS_FILE).display(),
+            s.failed
+        );
+        return Ok(if s.problems.is_empty() {
+            ExitCode::SUCCESS
+        } else {
+            ExitCode::from(1)
+        });
     }
-    let (n, failed) = c.fit_objects(&mut objects, refit)?;
-    for f in &failed {
+    if !a.import.is_empty() {
+        let s = c.import_tables(&a.import)?;
+        println!(
+            "imported {} fits into {}; {} records without a fit, {} of objects not in the campaign",
+            s.imported,
+            c.dir().join(crate::campaign::FITS_FILE).display(),
+            s.failed,
+            s.unknown
+        );
+        return Ok(ExitCode::SUCCESS);
+    }
+    let shard = match a.shard {
+        Some(ShardArg::Given(k, n)) => Some((k, n)),
+        Some(ShardArg::Env) => Some(
+            crate::pipeline::shard_from_env()
+                .map_err(anyhow::Error::msg)?
+                .context(
+                "--shard without K/N needs a job-array task (SLURM_ARRAY_TASK_ID and SLURM_ARRAY_TASK_COUNT)",
+            )?,
+        ),
+        // inside an array task the shard is the task's, so that N tasks never
+        // rewrite the one cache at once
+        None => crate::pipeline::shard_from_env().map_err(anyhow::Error::msg)?,
+    };
+    fit(&c, shard, a.refit, a.threads)
+}
+
+fn fit(
+    c: &Campaign,
+    shard: Option<(usize, usize)>,
+    refit: bool,
+    threads: Option<usize>,
+) -> anyhow::Result<ExitCode> {
+    let (summary, problems, failures) = c.fit_run(shard, refit, threads, &|_| {}, None)?;
+    for f in &failures {
         eprintln!("zvet: could not fit {f}");
     }
+    let mut failed_inputs = 0;
+    for p in &problems {
+        if p.starts_with("note: ") {
+            eprintln!("zvet: {p}");
+        } else {
+            failed_inputs += 1;
+            eprintln!("zvet: error: {p}");
+        }
+    }
+    let into = match shard {
+        Some((k, n)) => c.part_path(k, n),
+        None => c.dir().join(crate::campaign::FITS_FILE),
+    };
     println!(
-        "{n} objects fitted, {} failed, {} objects in the campaign; fits in {}",
-        failed.len(),
-        objects.len(),
-        c.dir().join(crate::campaign::FITS_FILE).display()
+        "{} objects fitted, {} failed, {} already cached{}{}; fits in {}",
+        summary.fitted,
+        summary.failed,
+        summary.skipped,
+        if summary.repeated > 0 {
+            format!(", {} repeated ids passed over", summary.repeated)
+        } else {
+            String::new()
+        },
+        match shard {
+            Some((k, n)) => format!(
+                " (shard {k} of {n}; {} left to other shards)",
+                summary.other_shards
+            ),
+            None => String::new(),
+        },
+        into.display()
     );
-    Ok(if failed.is_empty() {
+    if shard.is_some() {
+        println!(
+            "when every shard is done: zvet campaign fit {} --collect",
+            c.dir().display()
+        );
+    }
+    Ok(if summary.failed == 0 && failed_inputs == 0 {
         ExitCode::SUCCESS
     } else {
         ExitCode::from(1)

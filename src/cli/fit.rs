@@ -1,28 +1,22 @@
 /*!
-`zvet fit`: fit every object of the inputs and write one row per object.
+`zvet fit`: fit every object of the inputs and write one record per object.
 
-Inputs are files or folders (expanded and read by the `io` module, one or
-many objects per file, streamed with bounded memory). Objects are fitted in
-parallel with rayon in chunks, rows written in input order as they come, so
+A thin caller of [`crate::pipeline`]: inputs are found and streamed, fitted
+in parallel in chunks, and records written in input order as they come, so
 an interrupted run can be continued with `--resume`. `--shard K/N` keeps
 every N-th object (the K-th of each N, K from 1), so that the tasks of a
-cluster job array split one list of inputs; `--merge` joins their outputs.
-An object that cannot be read or fitted gets a row with `error` filled.
-The time spent reading the inputs is printed at the end (total and slowest
-file; every file with `--read-times`).
+cluster job array split one list of inputs; `--merge` joins their outputs,
+and `zvet campaign fit DIR --import` takes them into a campaign. An object
+that cannot be read or fitted gets a record with `error` filled.
 */
 use super::read_opts::ReadArgs;
-use crate::fit::table::{read_rows, write_rows, FitRow, RowWriter};
-use crate::fit::{Engine, FitConfig, Method};
-use crate::io::{FileReadTime, ReadOptions};
-use crate::spectrum::Spectrum;
-use crate::templates::TemplateSet;
+use crate::fit::{FitConfig, Method};
+use crate::pipeline::{self, RowWriter, RunOptions};
 use crate::ObjectClass;
 use anyhow::Context;
-use rayon::prelude::*;
 use std::collections::HashSet;
 use std::io::IsTerminal;
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 use std::process::ExitCode;
 
 /// Arguments of `zvet fit`.
@@ -73,162 +67,17 @@ pub struct Args {
 
 /// Parse `K/N` with 1 ≤ K ≤ N.
 pub fn parse_shard(s: &str) -> Result<(usize, usize), String> {
-    let (k, n) = s
-        .split_once('/')
-        .ok_or_else(|| format!("shard '{s}' must look like K/N, e.g. 3/10"))?;
-    let k: usize = k
-        .trim()
-        .parse()
-        .map_err(|_| format!("shard '{s}': K is not a number"))?;
-    let n: usize = n
-        .trim()
-        .parse()
-        .map_err(|_| format!("shard '{s}': N is not a number"))?;
-    if n == 0 || k == 0 || k > n {
-        return Err(format!("shard '{s}': need 1 ≤ K ≤ N"));
-    }
-    Ok((k, n))
-}
-
-/// One object as read: a spectrum, or why it could not be read.
-pub type Item = Result<Spectrum, ReadFailure>;
-
-/// An object (or file) that could not be read.
-#[derive(Debug, Clone)]
-pub struct ReadFailure {
-    /// Id to report (the file stem when nothing better is known).
-    pub object_id: String,
-    /// The file.
-    pub source: String,
-    /// The reader's message.
-    pub message: String,
-}
-
-/// Counts of a run.
-#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
-pub struct Summary {
-    /// Rows written with a fit.
-    pub fitted: usize,
-    /// Rows written with an error.
-    pub failed: usize,
-    /// Objects skipped because their id was already in the output.
-    pub skipped: usize,
-    /// Objects left to other shards.
-    pub other_shards: usize,
-}
-
-/// `file[hdu=2,row=5]`-style source of a spectrum.
-pub fn source_of(s: &Spectrum) -> String {
-    let mut out = s
-        .meta
-        .source
-        .as_ref()
-        .map(|p| p.display().to_string())
-        .unwrap_or_default();
-    let mut parts = Vec::new();
-    if let Some(h) = s.meta.hdu {
-        parts.push(format!("hdu={h}"));
-    }
-    if let Some(r) = s.meta.row {
-        parts.push(format!("row={r}"));
-    }
-    if !parts.is_empty() {
-        out.push_str(&format!("[{}]", parts.join(",")));
-    }
-    out
-}
-
-/// How many objects are fitted in parallel before their rows are written.
-const CHUNK: usize = 256;
-
-/// Fit `items` with `engine` and write a row for each to `writer`.
-/// Objects whose id is in `skip` are passed over; with `shard = (k, n)` only
-/// objects whose running index i (from 0) has i mod n == k − 1 are kept.
-pub fn fit_items(
-    engine: &Engine,
-    items: impl Iterator<Item = Item>,
-    writer: &mut RowWriter,
-    skip: &HashSet<String>,
-    shard: Option<(usize, usize)>,
-    progress: Option<&indicatif::ProgressBar>,
-) -> anyhow::Result<Summary> {
-    let method = match engine.config().method {
-        Method::Chi2 => "chi2",
-        Method::XCorr => "xcorr",
-    };
-    let mut summary = Summary::default();
-    let mut chunk: Vec<Item> = Vec::with_capacity(CHUNK);
-    let mut flush = |chunk: &mut Vec<Item>, summary: &mut Summary| -> anyhow::Result<()> {
-        let rows: Vec<FitRow> = chunk
-            .par_drain(..)
-            .map(|item| match item {
-                Err(f) => FitRow::failed(&f.object_id, &f.source, &f.message),
-                Ok(s) => match engine.fit(&s) {
-                    Ok(r) => FitRow::from_result(&r, &source_of(&s), method),
-                    Err(e) => FitRow::failed(&s.meta.id, &source_of(&s), &e.to_string()),
-                },
-            })
-            .collect();
-        for r in &rows {
-            if r.error.is_empty() {
-                summary.fitted += 1;
-            } else {
-                summary.failed += 1;
-            }
-            writer.write(r)?;
-        }
-        if let Some(p) = progress {
-            p.inc(rows.len() as u64);
-        }
-        Ok(())
-    };
-    for (i, item) in items.enumerate() {
-        if let Some((k, n)) = shard {
-            if i % n != k - 1 {
-                summary.other_shards += 1;
-                continue;
-            }
-        }
-        let id = match &item {
-            Ok(s) => &s.meta.id,
-            Err(f) => &f.object_id,
-        };
-        if skip.contains(id) {
-            summary.skipped += 1;
-            continue;
-        }
-        chunk.push(item);
-        if chunk.len() >= CHUNK {
-            flush(&mut chunk, &mut summary)?;
-        }
-    }
-    flush(&mut chunk, &mut summary)?;
-    Ok(summary)
-}
-
-/// Join shard outputs: rows in the order given, the first row of each id kept.
-pub fn merge(inputs: &[PathBuf], out: &Path) -> anyhow::Result<usize> {
-    let mut seen = HashSet::new();
-    let mut rows = Vec::new();
-    for p in inputs {
-        for r in read_rows(p).with_context(|| format!("reading shard output {}", p.display()))? {
-            if seen.insert(r.object_id.clone()) {
-                rows.push(r);
-            }
-        }
-    }
-    write_rows(out, &rows)?;
-    Ok(rows.len())
+    pipeline::parse_shard(s)
 }
 
 /// Run `zvet fit`.
 pub fn run(args: Args) -> anyhow::Result<ExitCode> {
     if !args.merge.is_empty() {
-        let n = merge(&args.merge, &args.out)?;
+        let n = pipeline::merge_tables(&args.merge, &args.out)?;
         eprintln!("zvet fit: merged {n} objects into {}", args.out.display());
         return Ok(ExitCode::SUCCESS);
     }
-    let set = load_templates(args.templates.as_deref())?;
+    pipeline::check_output(&args.inputs, &args.out).map_err(anyhow::Error::msg)?;
     let config = FitConfig {
         classes: args.classes.clone(),
         method: args.method,
@@ -236,9 +85,9 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
         throughput_terms: args.tilt_terms,
         ..FitConfig::default()
     };
-    let engine = Engine::new(&set, config).context("preparing the templates")?;
+    let engine = pipeline::build_engine(args.templates.as_deref(), config)?;
     let skip: HashSet<String> = if args.resume && args.out.exists() {
-        read_rows(&args.out)
+        pipeline::read_records(&args.out)
             .with_context(|| format!("reading {} to resume", args.out.display()))?
             .into_iter()
             .map(|r| r.object_id)
@@ -246,9 +95,16 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
     } else {
         HashSet::new()
     };
+    let opts = args.read.to_options();
+    // the output is never read back as a spectrum, even inside an input folder
+    let found = pipeline::find(&args.inputs, std::slice::from_ref(&args.out), &opts);
+    for n in &found.notes {
+        eprintln!("zvet fit: note: {n}");
+    }
+    for p in &found.problems {
+        eprintln!("zvet fit: error: {p}");
+    }
     let mut writer = RowWriter::create(&args.out, args.resume)?;
-    let (times_tx, times_rx) = std::sync::mpsc::channel();
-    let items = open_inputs_timed(&args.inputs, args.read.to_options(), Some(times_tx));
     let progress = std::io::stderr().is_terminal().then(|| {
         let p = indicatif::ProgressBar::new_spinner();
         if let Ok(style) =
@@ -262,8 +118,20 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
         .num_threads(args.threads.unwrap_or(0))
         .build()
         .context("starting the worker threads")?;
+    let run = RunOptions {
+        skip,
+        shard: args.shard,
+        unique_ids: false,
+    };
+    let tick = |done: usize| {
+        if let Some(p) = &progress {
+            p.set_position(done as u64);
+        }
+    };
+    let (times_tx, times_rx) = std::sync::mpsc::channel();
+    let items = pipeline::stream_timed(found.files, opts, Some(times_tx));
     let summary =
-        pool.install(|| fit_items(&engine, items, &mut writer, &skip, args.shard, progress.as_ref()))?;
+        pool.install(|| pipeline::fit_stream(&engine, items, &run, |r| writer.write(&r), &tick, None))?;
     writer.finish()?;
     if let Some(p) = progress {
         p.finish_and_clear();
@@ -282,8 +150,8 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
         args.out.display()
     );
     // Like `zvet inspect`: the rows are all written, but a script must be able
-    // to tell that some objects failed.
-    Ok(if summary.failed > 0 {
+    // to tell that some objects (or inputs) failed.
+    Ok(if summary.failed > 0 || !found.problems.is_empty() {
         ExitCode::from(1)
     } else {
         ExitCode::SUCCESS
@@ -291,8 +159,8 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
 }
 
 /// Total reading time, the slowest file, and with `each` one line per file (stderr).
-fn report_read_times(times: &[FileReadTime], each: bool) {
-    let ms = |t: &FileReadTime| t.elapsed.as_secs_f64() * 1e3;
+fn report_read_times(times: &[crate::io::FileReadTime], each: bool) {
+    let ms = |t: &crate::io::FileReadTime| t.elapsed.as_secs_f64() * 1e3;
     if each {
         for t in times {
             eprintln!(
@@ -317,76 +185,5 @@ fn report_read_times(times: &[FileReadTime], each: bool) {
                 "; --read-times lists every file"
             }
         );
-    }
-}
-
-/// The template set: a user folder or the built-in set.
-fn load_templates(path: Option<&Path>) -> anyhow::Result<TemplateSet> {
-    match path {
-        Some(p) => {
-            crate::templates::read_set(p).with_context(|| format!("reading the template set {}", p.display()))
-        }
-        None => Ok(crate::templates::builtin().clone()),
-    }
-}
-
-/// Every object of the inputs, streamed file by file; a file that cannot be
-/// opened becomes one failed item (id = file stem) and the run goes on.
-pub fn open_inputs(paths: &[PathBuf], opts: ReadOptions) -> impl Iterator<Item = Item> + Send {
-    open_inputs_timed(paths, opts, None)
-}
-
-/// [`open_inputs`], sending each file's reading time to `times` when its
-/// objects have all been taken.
-pub fn open_inputs_timed(
-    paths: &[PathBuf],
-    opts: ReadOptions,
-    times: Option<std::sync::mpsc::Sender<FileReadTime>>,
-) -> impl Iterator<Item = Item> + Send {
-    crate::io::expand_inputs(paths).into_iter().flat_map(move |path| {
-        let sink = times.clone();
-        let done = move |t: FileReadTime| {
-            if let Some(s) = sink {
-                let _ = s.send(t);
-            }
-        };
-        let source = path.display().to_string();
-        let stem = path
-            .file_name()
-            .map(|n| n.to_string_lossy().into_owned())
-            .unwrap_or_else(|| source.clone());
-        let stem = stem.split('.').next().unwrap_or(&stem).to_string();
-        let items: Box<dyn Iterator<Item = Item> + Send> =
-            match crate::io::stream_file_timed(&path, &opts, done) {
-                Ok(it) => {
-                    let (source, stem) = (source.clone(), stem.clone());
-                    Box::new(it.map(move |r| {
-                        r.map_err(|e| ReadFailure {
-                            object_id: stem.clone(),
-                            source: source.clone(),
-                            message: e.to_string(),
-                        })
-                    }))
-                }
-                Err(e) => Box::new(std::iter::once(Err(ReadFailure {
-                    object_id: stem,
-                    source,
-                    message: e.to_string(),
-                }))),
-            };
-        items
-    })
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn shards_parse_and_reject_nonsense() {
-        assert_eq!(parse_shard("3/10"), Ok((3, 10)));
-        assert!(parse_shard("0/10").is_err());
-        assert!(parse_shard("11/10").is_err());
-        assert!(parse_shard("x").is_err());
     }
 }

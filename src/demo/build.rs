@@ -11,8 +11,9 @@ use rand_distr::{Distribution, Normal};
 
 use super::photometry;
 use super::plan::DemoKind;
-use super::synth::{self, Component, Model, ARM_JOIN, C_KMS, NOISE_FLOOR};
+use super::synth::{self, Component, Model, ARM_JOIN, NOISE_FLOOR};
 use super::DemoTruth;
+use crate::constants::C_KMS;
 
 /// Centre of the invented field (RA, Dec in degrees) and its radius.
 const FIELD: (f64, f64, f64) = (213.4, 21.8, 0.75);

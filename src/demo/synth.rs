@@ -22,8 +22,7 @@ pub const N_PIX: usize = 4000;
 pub const NOISE_FLOOR: f64 = 0.25;
 /// Where the blue and red arms of the invented spectrograph meet (Å).
 pub const ARM_JOIN: f64 = 6100.0;
-/// Speed of light, km/s.
-pub const C_KMS: f64 = 299_792.458;
+use crate::constants::C_KMS;
 
 /// The observed-frame wavelength grid.
 pub fn wave_grid() -> Vec<f64> {

@@ -14,52 +14,25 @@ polynomial is left to fit and χ² grows).
 #![allow(clippy::needless_range_loop)]
 use super::config::{FitConfig, FitError, Method};
 use super::fast::{self, CorrPlan, DataCache, FftCache};
+use super::method::{
+    finish, shift_range, too_fast_star, velocity_sep_kms, FitMethod, Setup, Solution, STAR_VMAX_KMS,
+};
 use super::prep::{legendre, Prepared};
-use super::reference::{sums_fit, thresholds};
 use super::refine::{grid_parabola, refine};
-use super::result::{Candidate, Chi2Curve, ClassSolution, FitResult, Warnings};
+use super::result::{Candidate, Chi2Curve, FitResult};
+use super::sums::{sums_fit, thresholds};
 use super::units::{build_units, Unit};
+use super::xcorr::{XCorr, XCorrPeak};
+use crate::constants::C_KMS;
 use crate::spectrum::Spectrum;
-use crate::templates::TemplateSet;
+use crate::templates::{TemplateKind, TemplateSet};
 use crate::ObjectClass;
 
-/// Speed of light in km/s (CODATA exact value).
-pub const C_KMS: f64 = 299_792.458;
-/// Δχ² below which the answer is called ambiguous: 9 is Δχ² for 3σ with one
-/// free parameter (common practice for a redshift-confusion cut).
-pub const AMBIGUOUS_DCHI2: f64 = 9.0;
-/// Fastest heliocentric velocity (km/s) accepted for a star as the best
-/// solution: the Galaxy's escape speed near the Sun (≈ 550 km/s) plus the
-/// Sun's own orbital speed (≈ 250 km/s), both from memory. A star solution
-/// beyond it stays among the candidates but ranks after every other class
-/// (a passive galaxy at cz ≈ 1200 km/s otherwise can look like a G star).
-pub const STAR_VMAX_KMS: f64 = 800.0;
 /// Minima whose grid χ² is more than this above the lowest are not refined
 /// by Brent's method (except each class's best); their sub-pixel z and σ_z
 /// come from a parabola through the grid χ² (saves time, changes nothing
 /// that could reorder the leading solutions).
 pub const REFINE_DCHI2: f64 = 50.0;
-/// Fewer good grid pixels than this set [`Warnings::FEW_PIXELS`].
-pub const FEW_PIXELS: usize = 100;
-/// Reduced χ² above this sets [`Warnings::POOR_FIT`].
-pub const POOR_FIT_CHI2R: f64 = 2.0;
-/// Δχ² between the best star and the best solution of another class below
-/// which [`Warnings::CLASS_CLOSE`] is set (before the mismatch scaling of
-/// [`mismatch_scale`]). Calibrated on the recovery run (README, "Warnings").
-pub const CLASS_CLOSE_DCHI2: f64 = 25.0;
-
-/// Factor by which the Δχ² cuts grow with template mismatch: the reduced χ²
-/// of the best fit, at least 1. Where no template matches to the noise
-/// (χ²_r > 1) every χ² difference is inflated by roughly that factor, so a
-/// plain Δχ² cut would be overconfident (common practice: errors rescaled
-/// by √χ²_r).
-pub fn mismatch_scale(chi2_reduced: f64) -> f64 {
-    if chi2_reduced.is_finite() {
-        chi2_reduced.max(1.0)
-    } else {
-        1.0
-    }
-}
 
 /// The redshift engine. `Send + Sync`: share one engine across threads.
 #[derive(Debug)]
@@ -77,13 +50,6 @@ struct Minimum {
     shift: i64,
     chi2: f64,
     edge: bool,
-}
-
-/// Whole-shift range for a redshift interval.
-pub(crate) fn shift_range(z: (f64, f64), dll: f64) -> (i64, i64) {
-    let lo = ((1.0 + z.0).max(1e-6).log10() / dll).ceil() as i64;
-    let hi = ((1.0 + z.1).max(1e-6).log10() / dll).floor() as i64;
-    (lo, hi.max(lo))
 }
 
 impl Engine {
@@ -149,9 +115,15 @@ impl Engine {
 
     /// Classes that have templates in this engine.
     pub fn classes(&self) -> Vec<ObjectClass> {
-        let mut v: Vec<ObjectClass> = self.units.iter().map(|u| u.class).collect();
-        v.dedup();
-        v
+        self.setup().classes()
+    }
+
+    /// Every configured class with its whole redshift range in grid shifts.
+    fn full_ranges(&self) -> Vec<(ObjectClass, (i64, i64))> {
+        self.classes()
+            .into_iter()
+            .map(|c| (c, shift_range(self.config.z_range(c), self.config.dloglam)))
+            .collect()
     }
 
     /// The prepared fit units (used by the oracle tests and the benches).
@@ -161,15 +133,11 @@ impl Engine {
 
     /// Fit every configured class over its whole redshift range.
     pub fn fit(&self, s: &Spectrum) -> Result<FitResult, FitError> {
-        if self.config.method == Method::XCorr {
-            return super::xcorr::fit(self, s);
+        let ranges = self.full_ranges();
+        match self.config.method {
+            Method::Chi2 => self.run(&Chi2, s, &ranges),
+            Method::XCorr => self.run(&XCorr, s, &ranges),
         }
-        let ranges: Vec<(ObjectClass, (i64, i64))> = self
-            .classes()
-            .into_iter()
-            .map(|c| (c, shift_range(self.config.z_range(c), self.config.dloglam)))
-            .collect();
-        self.fit_ranges(s, &ranges)
     }
 
     /// The engine restricted to |Δv| ≤ `half_width_kms` around `z` (one class or all).
@@ -204,7 +172,9 @@ impl Engine {
         if ranges.is_empty() {
             return Err(FitError::NoCoverage);
         }
-        self.fit_ranges(s, &ranges)
+        // a refit near a hand-placed z is always the χ² fit (a cross-correlation
+        // peak needs the whole range to judge its height against)
+        self.run(&Chi2, s, &ranges)
     }
 
     /// Model flux at `s.wave()` for candidate `c` (NaN where the template
@@ -321,16 +291,61 @@ impl Engine {
             .collect())
     }
 
-    fn fit_ranges(&self, s: &Spectrum, ranges: &[(ObjectClass, (i64, i64))]) -> Result<FitResult, FitError> {
-        let dll = self.config.dloglam;
+    /// What the methods see of the engine.
+    fn setup(&self) -> Setup<'_> {
+        Setup {
+            config: &self.config,
+            units: &self.units,
+            cache: &self.cache,
+        }
+    }
+
+    /// Prepare `s`, let `method` find its candidates over `ranges`, and
+    /// assemble the result.
+    fn run(
+        &self,
+        method: &dyn FitMethod,
+        s: &Spectrum,
+        ranges: &[(ObjectClass, (i64, i64))],
+    ) -> Result<FitResult, FitError> {
         let prep = self.prepare(s)?;
+        let solution = method.solve(self.setup(), &prep, ranges)?;
+        finish(s, &prep, &self.config, solution)
+    }
+
+    /// Cross-correlate `s` with every template of the configured classes
+    /// (only those of `kind` when given); peaks sorted by r, best first, up
+    /// to `n_candidates` per class separated by the minimum velocity.
+    pub fn xcorr(&self, s: &Spectrum, kind: Option<TemplateKind>) -> Result<Vec<XCorrPeak>, FitError> {
+        let prep = self.prepare(s)?;
+        Ok(super::xcorr::peaks(
+            self.setup(),
+            &prep,
+            kind,
+            &self.full_ranges(),
+        ))
+    }
+}
+
+/// The χ² template fit: χ²(z) of every unit by the fast path, the deepest
+/// separated minima of each class, refinement, and the ranking rules.
+pub(crate) struct Chi2;
+
+impl FitMethod for Chi2 {
+    fn solve(
+        &self,
+        setup: Setup<'_>,
+        prep: &Prepared,
+        ranges: &[(ObjectClass, (i64, i64))],
+    ) -> Result<Solution, FitError> {
+        let dll = setup.config.dloglam;
         let mut data = DataCache::default();
-        let mut curves_by_unit: Vec<Option<Vec<f64>>> = vec![None; self.units.len()];
+        let mut curves_by_unit: Vec<Option<Vec<f64>>> = vec![None; setup.units.len()];
         let mut minima_by_class: Vec<(ObjectClass, Vec<Minimum>)> = Vec::new();
         for &(class, (lo, hi)) in ranges {
             let mut minima = Vec::new();
-            for (ui, u) in self.units.iter().enumerate().filter(|(_, u)| u.class == class) {
-                let chi2 = fast::chi2_curve(&self.cache, &mut data, &prep, ui, u, lo, hi, CorrPlan::Auto);
+            for (ui, u) in setup.units.iter().enumerate().filter(|(_, u)| u.class == class) {
+                let chi2 = fast::chi2_curve(setup.cache, &mut data, prep, ui, u, lo, hi, CorrPlan::Auto);
                 minima.extend(local_minima(&chi2).into_iter().map(|i| Minimum {
                     unit: ui,
                     shift: lo + i as i64,
@@ -339,15 +354,15 @@ impl Engine {
                 }));
                 curves_by_unit[ui] = Some(chi2);
             }
-            let min_sep = self.min_sep_pixels();
-            let n_cand = self.config.n_candidates;
+            let min_sep = setup.min_sep_pixels();
+            let n_cand = setup.config.n_candidates;
             let mut kept = separated(minima, min_sep, 3 * n_cand);
             for m in kept.iter_mut() {
-                let u = &self.units[m.unit];
-                if prep.nonneg && !fast::curve_constrained(&prep, u) {
+                let u = &setup.units[m.unit];
+                if prep.nonneg && !fast::curve_constrained(prep, u) {
                     // an unconstrained curve: rank its deepest minima again
                     // with non-negative template amplitudes
-                    m.chi2 = sums_fit(&prep, u, m.shift as f64, &thresholds(&prep, u), true).chi2;
+                    m.chi2 = sums_fit(prep, u, m.shift as f64, &thresholds(prep, u), true).chi2;
                 }
             }
             minima_by_class.push((class, separated(kept, min_sep, n_cand)));
@@ -361,14 +376,14 @@ impl Engine {
         let mut cands: Vec<(Candidate, Minimum, f64)> = Vec::new();
         for (_, kept) in &minima_by_class {
             for (rank, m) in kept.iter().enumerate() {
-                let u = &self.units[m.unit];
-                let thr = thresholds(&prep, u);
+                let u = &setup.units[m.unit];
+                let thr = thresholds(prep, u);
                 let r = if rank == 0 || m.chi2 - lowest < REFINE_DCHI2 {
-                    refine(&prep, u, &thr, m.shift)
+                    refine(prep, u, &thr, m.shift)
                 } else {
                     let curve = curves_by_unit[m.unit].as_deref().unwrap_or(&[]);
                     let lo = ranges.iter().find(|r| r.0 == u.class).map_or(m.shift, |r| r.1 .0);
-                    grid_parabola(&prep, u, &thr, m.shift, curve, lo)
+                    grid_parabola(prep, u, &thr, m.shift, curve, lo)
                 };
                 let z = 10f64.powf(r.shift * dll) - 1.0;
                 let dzdx = std::f64::consts::LN_10 * dll * (1.0 + z);
@@ -391,8 +406,7 @@ impl Engine {
         }
         // rank by χ², except that a star faster than STAR_VMAX_KMS is not
         // allowed to win over a solution of another class
-        let implausible =
-            |c: &Candidate| c.class == ObjectClass::Star && velocity_sep_kms(c.z, 0.0) > STAR_VMAX_KMS;
+        let implausible = |c: &Candidate| too_fast_star(c.class, c.z);
         let any_other = cands.iter().any(|(c, _, _)| !implausible(c));
         cands.sort_by(|a, b| {
             let ka = any_other && implausible(&a.0);
@@ -403,57 +417,24 @@ impl Engine {
         // χ² is higher by less than the galaxy basis's extra freedom is worth
         // (see FitConfig::star_window_prefers_stars); the inverted order leaves
         // Δχ² < 0, so the answer is flagged ambiguous for the inspector
-        if self.config.star_window_prefers_stars
+        if setup.config.star_window_prefers_stars
             && cands[0].0.class == ObjectClass::Galaxy
             && velocity_sep_kms(cands[0].0.z, 0.0) <= STAR_VMAX_KMS
         {
-            let galaxy_k = self.units[cands[0].1.unit].k();
+            let galaxy_k = setup.units[cands[0].1.unit].k();
             if let Some(i) = cands.iter().position(|(c, m, _)| {
                 c.class == ObjectClass::Star
                     && !implausible(c)
                     && c.chi2 - cands[0].0.chi2
-                        <= star_window_allowance(&prep, galaxy_k, self.units[m.unit].k())
+                        <= star_window_allowance(prep, galaxy_k, setup.units[m.unit].k())
             }) {
                 let star = cands.remove(i);
                 cands.insert(0, star);
             }
         }
         let (best, best_min, best_shift) = cands[0].clone();
-        let min_sep_v = self.config.min_separation_kms;
-        let runner = cands
-            .iter()
-            .skip(1)
-            .find(|(c, _, _)| c.class != best.class || velocity_sep_kms(c.z, best.z) >= min_sep_v);
-        // negative when a lower-χ² star was set aside as too fast (then also ambiguous)
-        let delta_chi2 = runner.map_or(f64::MAX, |(c, _, _)| c.chi2 - best.chi2);
-        let n_good = prep.n_good();
-        let n_par = prep.cols(self.units[best_min.unit].k()) + prep.j();
-        let chi2_reduced = best.chi2 / prep.dof(n_par);
-        let per_class =
-            ClassSolution::from_candidates(&cands.iter().map(|(c, _, _)| c.clone()).collect::<Vec<_>>());
-        let scale = mismatch_scale(chi2_reduced);
-        let mut warnings = Warnings::default();
-        if delta_chi2 < AMBIGUOUS_DCHI2 * scale {
-            warnings.set(Warnings::AMBIGUOUS);
-        }
-        if class_close(&per_class, scale) {
-            warnings.set(Warnings::CLASS_CLOSE);
-        }
-        if best_min.edge {
-            warnings.set(Warnings::AT_GRID_EDGE);
-        }
-        if template_part_mean(&prep, &self.units[best_min.unit], best_shift, &best.coeffs) < 0.0 {
-            warnings.set(Warnings::NEGATIVE_TEMPLATE);
-        }
-        if n_good < FEW_PIXELS {
-            warnings.set(Warnings::FEW_PIXELS);
-        }
-        if chi2_reduced > POOR_FIT_CHI2R {
-            warnings.set(Warnings::POOR_FIT);
-        }
-        if s.meta.noise_estimated {
-            warnings.set(Warnings::NOISE_ESTIMATED);
-        }
+        let ordered: Vec<Candidate> = cands.iter().map(|(c, _, _)| c.clone()).collect();
+        let best_unit = &setup.units[best_min.unit];
         // curves: one per class (stars: the unit of the class's best candidate)
         let mut curves = Vec::new();
         for &(class, (lo, _)) in ranges {
@@ -465,7 +446,7 @@ impl Engine {
                 if let Some(chi2) = &curves_by_unit[ui] {
                     curves.push(Chi2Curve {
                         class,
-                        template: self.units[ui].name.clone(),
+                        template: setup.units[ui].name.clone(),
                         z: (0..chi2.len())
                             .map(|i| 10f64.powf((lo + i as i64) as f64 * dll) - 1.0)
                             .collect(),
@@ -474,27 +455,15 @@ impl Engine {
                 }
             }
         }
-        let lines = super::lines::measure(s, &prep, self, &best);
-        Ok(FitResult {
-            object_id: s.meta.id.clone(),
-            candidates: cands.into_iter().map(|(c, _, _)| c).collect(),
-            delta_chi2,
-            chi2_reduced,
-            n_good,
-            snr_median: s.median_snr(),
-            warnings,
+        Ok(Solution {
+            ambiguous: false,
+            dchi2_cut: true,
+            candidates: ordered,
+            n_par: prep.cols(best_unit.k()) + prep.j(),
+            at_edge: best_min.edge,
+            negative_template: template_part_mean(prep, best_unit, best_shift, &best.coeffs) < 0.0,
             curves,
-            lines,
-            per_class,
         })
-    }
-
-    fn min_sep_pixels(&self) -> f64 {
-        (self.config.min_separation_kms / C_KMS).ln_1p() / std::f64::consts::LN_10 / self.config.dloglam
-    }
-
-    pub(crate) fn cache(&self) -> &FftCache {
-        &self.cache
     }
 }
 
@@ -553,23 +522,6 @@ fn star_window_allowance(prep: &Prepared, galaxy_k: usize, star_k: usize) -> f64
     extra * n.ln()
 }
 
-/// The best star against the best solution of a non-star class: true when
-/// their χ² differ by less than [`CLASS_CLOSE_DCHI2`] × `scale`, whichever
-/// of them is the better. `per_class` is best class first.
-fn class_close(per_class: &[ClassSolution], scale: f64) -> bool {
-    let star = per_class.iter().find(|s| s.class == ObjectClass::Star);
-    let other = per_class.iter().find(|s| s.class != ObjectClass::Star);
-    match (star, other) {
-        (Some(s), Some(o)) => (s.chi2 - o.chi2).abs() < CLASS_CLOSE_DCHI2 * scale,
-        _ => false,
-    }
-}
-
-/// |Δv| between two redshifts in km/s (relativistic-free, c·|Δln(1+z)|).
-pub fn velocity_sep_kms(z1: f64, z2: f64) -> f64 {
-    C_KMS * ((1.0 + z1) / (1.0 + z2)).ln().abs()
-}
-
 /// The lowest minima, at most `n`, each at least `min_sep` pixels from
 /// every lower one.
 fn separated(mut minima: Vec<Minimum>, min_sep: f64, n: usize) -> Vec<Minimum> {
@@ -600,7 +552,7 @@ fn local_minima(v: &[f64]) -> Vec<usize> {
 
 /// Mean over good pixels of the template part Σ a_k T_k of the model.
 fn template_part_mean(prep: &Prepared, u: &Unit, shift: f64, coeffs: &[f64]) -> f64 {
-    let x0 = super::reference::offset(prep, u, shift);
+    let x0 = super::sums::offset(prep, u, shift);
     let mut sum = 0.0;
     let k = u.k();
     for &i in &prep.good {

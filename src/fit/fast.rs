@@ -35,10 +35,8 @@ inverse FFT (real and imaginary part).
 */
 // Index loops here mirror the sums of the normal equations term by term.
 #![allow(clippy::needless_range_loop)]
-use super::prep::{
-    amplitudes_feasible, n_legendre, solve_constrained, solve_normal_into, Prepared, MAX_COLUMNS,
-};
-use super::reference::{active_columns_into, dot, thresholds};
+use super::prep::{amplitudes_feasible, solve_constrained, solve_normal_into, Prepared, MAX_COLUMNS};
+use super::sums::{active_columns_into, assemble_polynomials, assemble_templates, dot, n_corr, thresholds};
 use super::units::Unit;
 use rustfft::num_complex::Complex;
 use rustfft::{Fft, FftPlanner};
@@ -232,14 +230,6 @@ pub enum CorrPlan {
     Fft,
     /// Direct sums at each needed lag.
     Direct,
-}
-
-/// Number of template sums (correlations) of a unit with `k` templates, `j`
-/// polynomials and `g` columns per template. Their order, at one shift:
-/// Σ w P_q T_a T_b for a ≤ b and q < 2g − 1; Σ w P_q T_a for each a and
-/// q < [`n_legendre`]; Σ w f x^u T_a for each a and u < g.
-pub(crate) fn n_corr(k: usize, j: usize, g: usize) -> usize {
-    k * (k + 1) / 2 * (2 * g - 1) + k * n_legendre(j, g) + k * g
 }
 
 /// The template pixels some trial shift reaches, and the transform length.
@@ -447,85 +437,6 @@ fn sums_direct(prep: &Prepared, unit: &Unit, s_lo: i64, ns: usize) -> Vec<f64> {
         }
     }
     out
-}
-
-/// Fill the normal equations `a` (row-major, dim × dim with dim = k·g + j)
-/// and `b` of a unit of `k` templates from one shift's template sums `row`
-/// (in the order of [`n_corr`]) and the polynomial sums of `prep`.
-/// Column u·k + a is T_a·x^u; then the polynomials.
-pub(crate) fn assemble(prep: &Prepared, k: usize, row: &[f64], a: &mut [f64], b: &mut [f64]) {
-    assemble_templates(prep, k, row, a, b);
-    assemble_polynomials(prep, k, a, b);
-}
-
-/// The polynomial block of the normal equations (the same at every shift).
-fn assemble_polynomials(prep: &Prepared, k: usize, a: &mut [f64], b: &mut [f64]) {
-    let j = prep.j();
-    let kc = k * prep.groups();
-    let dim = kc + j;
-    for p in 0..j {
-        b[kc + p] = prep.pf[p];
-        for q in 0..j {
-            a[(kc + p) * dim + kc + q] = prep.pp[p * j + q];
-        }
-    }
-}
-
-/// The rows and columns of the template terms (see [`assemble`]).
-fn assemble_templates(prep: &Prepared, k: usize, row: &[f64], a: &mut [f64], b: &mut [f64]) {
-    let (j, g) = (prep.j(), prep.groups());
-    let nq = n_legendre(j, g);
-    let kc = k * g;
-    let dim = kc + j;
-    // Σ w x^u P_jj T from the sums against w·P_q (Legendre recursion for x·P_jj)
-    let xp = |sums: &[f64], u: usize, jj: usize| -> f64 {
-        if u == 0 {
-            sums[jj]
-        } else if jj == 0 {
-            sums[1]
-        } else {
-            let jf = jj as f64;
-            ((jf + 1.0) * sums[jj + 1] + jf * sums[jj - 1]) / (2.0 * jf + 1.0)
-        }
-    };
-    let mut ci = 0;
-    for p in 0..k {
-        for q in p..k {
-            // Σ w x^e T_p T_q (e = u + v) from the sums against P_0, P_1, P_2
-            let s = &row[ci..ci + 2 * g - 1];
-            ci += 2 * g - 1;
-            for u in 0..g {
-                for v in 0..g {
-                    let val = match u + v {
-                        0 => s[0],
-                        1 => s[1],
-                        _ => (s[0] + 2.0 * s[2]) / 3.0,
-                    };
-                    let (r, cc) = (u * k + p, v * k + q);
-                    a[r * dim + cc] = val;
-                    a[cc * dim + r] = val;
-                }
-            }
-        }
-    }
-    for p in 0..k {
-        let sums = &row[ci..ci + nq];
-        ci += nq;
-        for u in 0..g {
-            for q in 0..j {
-                let v = xp(sums, u, q);
-                let r = u * k + p;
-                a[r * dim + kc + q] = v;
-                a[(kc + q) * dim + r] = v;
-            }
-        }
-    }
-    for p in 0..k {
-        for u in 0..g {
-            b[u * k + p] = row[ci];
-            ci += 1;
-        }
-    }
 }
 
 /// Whether the χ² curve of `unit` has its template amplitudes constrained to

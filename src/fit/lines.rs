@@ -16,9 +16,9 @@ flux / (continuum at the centre · (1+z)) (positive for emission).
 */
 // Index loops here mirror the sums of the normal equations term by term.
 #![allow(clippy::needless_range_loop)]
-use super::engine::{Engine, C_KMS};
-use super::prep::{solve_normal, Prepared};
+use super::prep::solve_normal;
 use super::result::{Candidate, LineMeasurement};
+use crate::constants::C_KMS;
 use crate::spectrum::Spectrum;
 use crate::ObjectClass;
 use argmin::core::{CostFunction, Error, Executor};
@@ -249,7 +249,7 @@ pub fn measure_list(s: &Spectrum, z: f64, class: ObjectClass, list: &[(&str, f64
 }
 
 /// Measure the emission lines of the line list in coverage at the candidate's redshift.
-pub fn measure(s: &Spectrum, _p: &Prepared, _e: &Engine, c: &Candidate) -> Vec<LineMeasurement> {
+pub fn measure(s: &Spectrum, c: &Candidate) -> Vec<LineMeasurement> {
     let list = emission_list();
     measure_list(s, c.z, c.class, &list)
 }

@@ -12,25 +12,27 @@ mod config;
 mod engine;
 mod fast;
 mod lines;
+mod method;
 mod overlay;
 mod prep;
 pub mod reference;
 mod refine;
 mod result;
 mod sky;
+pub mod sums;
 pub mod synth;
-pub mod table;
-mod table_fits;
 mod units;
 pub mod xcorr;
 
+pub use crate::constants::C_KMS;
 pub use config::{FitConfig, FitError, Method};
-pub use engine::{
-    mismatch_scale, velocity_sep_kms, Engine, AMBIGUOUS_DCHI2, CLASS_CLOSE_DCHI2, C_KMS, FEW_PIXELS,
-    POOR_FIT_CHI2R, STAR_VMAX_KMS,
-};
+pub use engine::Engine;
 pub use fast::CorrPlan;
 pub use lines::measure_list as measure_emission_lines;
+pub use method::{
+    mismatch_scale, velocity_sep_kms, AMBIGUOUS_DCHI2, CLASS_CLOSE_DCHI2, FEW_PIXELS, POOR_FIT_CHI2R,
+    STAR_VMAX_KMS,
+};
 pub use overlay::{Overlay, OverlayTemplate};
 pub use prep::Prepared;
 pub use result::{Candidate, Chi2Curve, ClassSolution, FitResult, LineMeasurement, Warnings};

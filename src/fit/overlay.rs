@@ -2,13 +2,13 @@
 Template overlays: any template of the engine's set (one star type, one
 member of a class basis, or the whole basis) fitted to a spectrum at a fixed
 redshift — least-squares amplitudes plus the engine's continuum polynomial,
-by the same sums and solver as the refinement ([`super::reference::sums_fit`])
+by the same sums and solver as the refinement ([`super::sums::sums_fit`])
 — and its model flux at the spectrum's pixels. The inspector compares it with
 the data; nothing here touches a fit result or a verdict.
 */
 use super::config::FitError;
 use super::engine::Engine;
-use super::reference::{sums_fit, thresholds};
+use super::sums::{sums_fit, thresholds};
 use super::result::Candidate;
 use super::units::Unit;
 use crate::spectrum::Spectrum;

@@ -1,13 +1,13 @@
 /*!
 Refinement of a grid minimum on a continuous redshift: Brent's method (argmin)
 on χ² with the templates interpolated in log λ (cubic convolution;
-[`super::reference::sums_fit`], the same χ² as the direct path), and σ_z from
+[`super::sums::sums_fit`], the same χ² as the direct oracle), and σ_z from
 the curvature of χ² at the minimum (Δχ² = 1).
 */
 // Index loops here mirror the sums of the normal equations term by term.
 #![allow(clippy::needless_range_loop)]
 use super::prep::Prepared;
-use super::reference::{sums_fit as direct_fit, DirectFit};
+use super::sums::{sums_fit, DirectFit};
 use super::units::Unit;
 use argmin::core::{CostFunction, Error, Executor};
 use argmin::solver::brent::BrentOpt;
@@ -27,7 +27,7 @@ impl CostFunction for Cost<'_> {
     type Param = f64;
     type Output = f64;
     fn cost(&self, shift: &f64) -> Result<f64, Error> {
-        Ok(direct_fit(self.prep, self.unit, *shift, self.thr, self.prep.nonneg).chi2)
+        Ok(sums_fit(self.prep, self.unit, *shift, self.thr, self.prep.nonneg).chi2)
     }
 }
 
@@ -45,7 +45,7 @@ pub struct Refined {
 /// Refine the grid minimum at whole shift `s0` within ±1 pixel.
 pub fn refine(prep: &Prepared, unit: &Unit, thr: &[f64], s0: i64) -> Refined {
     let cost = Cost { prep, unit, thr };
-    let grid = direct_fit(prep, unit, s0 as f64, thr, prep.nonneg);
+    let grid = sums_fit(prep, unit, s0 as f64, thr, prep.nonneg);
     let lo = s0 as f64 - 1.0;
     let hi = s0 as f64 + 1.0;
     let solver = BrentOpt::new(lo, hi).set_tolerance(1e-10, SHIFT_TOL);
@@ -56,7 +56,7 @@ pub fn refine(prep: &Prepared, unit: &Unit, thr: &[f64], s0: i64) -> Refined {
         .and_then(|r| r.state.best_param);
     let (shift, fit) = match best {
         Some(x) if x.is_finite() => {
-            let f = direct_fit(prep, unit, x, thr, prep.nonneg);
+            let f = sums_fit(prep, unit, x, thr, prep.nonneg);
             if f.chi2 < grid.chi2 {
                 (x, f)
             } else {
@@ -65,8 +65,8 @@ pub fn refine(prep: &Prepared, unit: &Unit, thr: &[f64], s0: i64) -> Refined {
         }
         _ => (s0 as f64, grid),
     };
-    let fp = direct_fit(prep, unit, shift + CURV_STEP, thr, prep.nonneg).chi2;
-    let fm = direct_fit(prep, unit, shift - CURV_STEP, thr, prep.nonneg).chi2;
+    let fp = sums_fit(prep, unit, shift + CURV_STEP, thr, prep.nonneg).chi2;
+    let fm = sums_fit(prep, unit, shift - CURV_STEP, thr, prep.nonneg).chi2;
     let d2 = (fp + fm - 2.0 * fit.chi2) / (CURV_STEP * CURV_STEP);
     // χ² ≈ χ²_min + ½ d2 (x − x0)²; Δχ² = 1 at |x − x0| = sqrt(2 / d2)
     let sigma_shift = if d2 > 0.0 && d2.is_finite() {
@@ -85,7 +85,7 @@ pub fn refine(prep: &Prepared, unit: &Unit, thr: &[f64], s0: i64) -> Refined {
 /// `s0 − 1, s0, s0 + 1` (`curve[i]` is χ² at shift `lo + i`); the fit itself
 /// (χ², coefficients) is the one at the whole shift `s0`.
 pub fn grid_parabola(prep: &Prepared, unit: &Unit, thr: &[f64], s0: i64, curve: &[f64], lo: i64) -> Refined {
-    let fit = direct_fit(prep, unit, s0 as f64, thr, prep.nonneg);
+    let fit = sums_fit(prep, unit, s0 as f64, thr, prep.nonneg);
     let at = |s: i64| usize::try_from(s - lo).ok().and_then(|i| curve.get(i).copied());
     let (shift, sigma_shift) = match (at(s0 - 1), at(s0), at(s0 + 1)) {
         (Some(a), Some(b), Some(c)) if a + c - 2.0 * b > 0.0 => {

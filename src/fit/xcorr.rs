@@ -18,11 +18,10 @@ memory), converted to redshift with dz = ln 10 · Δ · (1+z).
 // Index loops here mirror the sums of the normal equations term by term.
 #![allow(clippy::needless_range_loop)]
 use super::config::FitError;
-use super::engine::{shift_range, velocity_sep_kms, Engine};
+use super::method::{too_fast_star, FitMethod, Setup, Solution};
 use super::prep::Prepared;
-use super::reference::{direct_fit, thresholds};
-use super::result::{Candidate, ClassSolution, FitResult, Warnings};
-use crate::spectrum::Spectrum;
+use super::result::Candidate;
+use super::sums::{sums_fit, thresholds};
 use crate::templates::TemplateKind;
 use crate::ObjectClass;
 use rustfft::num_complex::Complex;
@@ -141,34 +140,32 @@ fn parabola(a: f64, b: f64, c: f64) -> (f64, f64) {
     (d, b - 0.25 * (a - c) * d)
 }
 
-impl Engine {
-    /// Cross-correlate `s` with every template of the configured classes
-    /// (only those of `kind` when given); peaks sorted by r, best first, up
-    /// to `n_candidates` per class separated by the minimum velocity.
-    pub fn xcorr(&self, s: &Spectrum, kind: Option<TemplateKind>) -> Result<Vec<XCorrPeak>, FitError> {
-        let prep = self.prepare(s)?;
-        Ok(xcorr_prepared(self, &prep, kind))
-    }
-}
-
-fn xcorr_prepared(e: &Engine, prep: &Prepared, kind: Option<TemplateKind>) -> Vec<XCorrPeak> {
-    let cfg = e.config();
+/// The correlation peaks of `prep` against every template of the classes of
+/// `ranges` (only those of `kind` when given), each class searched over its
+/// range of shifts; sorted by r, best first, up to `n_candidates` per class
+/// separated by the minimum velocity.
+pub(crate) fn peaks(
+    setup: Setup<'_>,
+    prep: &Prepared,
+    kind: Option<TemplateKind>,
+    ranges: &[(ObjectClass, (i64, i64))],
+) -> Vec<XCorrPeak> {
+    let cfg = setup.config;
     let dll = cfg.dloglam;
     let n = prep.grid.n;
     let use_px: Vec<bool> = prep.w.iter().map(|w| *w > 0.0).collect();
     let g = flatten(&prep.flux, &use_px);
     let n_good = prep.n_good().max(1) as f64;
     let sg = (g.iter().map(|v| v * v).sum::<f64>() / n_good).sqrt();
-    let min_sep = (cfg.min_separation_kms / super::C_KMS).ln_1p() / std::f64::consts::LN_10 / dll;
+    let min_sep = setup.min_sep_pixels();
     let mut out = Vec::new();
-    for class in e.classes() {
-        let (lo, hi) = shift_range(cfg.z_range(class), dll);
+    for &(class, (lo, hi)) in ranges {
         let mut peaks: Vec<XCorrPeak> = Vec::new();
-        for u in e.units().iter().filter(|u| u.class == class) {
+        for u in setup.units.iter().filter(|u| u.class == class) {
             let m = u.m();
             let len = super::fast::nice_len(n + m - 1);
-            let gh: Vec<Complex<f64>> = e
-                .cache()
+            let gh: Vec<Complex<f64>> = setup
+                .cache
                 .forward_real(&g, len)
                 .into_iter()
                 .map(|c| c.conj())
@@ -182,9 +179,9 @@ fn xcorr_prepared(e: &Engine, prep: &Prepared, kind: Option<TemplateKind>) -> Ve
                 if !(sg > 0.0 && st > 0.0) {
                     continue;
                 }
-                let th = e.cache().forward_real(&t, len);
+                let th = setup.cache.forward_real(&t, len);
                 let mut buf: Vec<Complex<f64>> = gh.iter().zip(&th).map(|(x, y)| x * y).collect();
-                e.cache().plan(len, false).process(&mut buf);
+                setup.cache.plan(len, false).process(&mut buf);
                 let norm = 1.0 / (len as f64 * n_good * sg * st);
                 // correlation as a function of shift s (lag c = g0 − t0 − s)
                 let corr = |s: i64| -> f64 {
@@ -268,8 +265,7 @@ fn xcorr_prepared(e: &Engine, prep: &Prepared, kind: Option<TemplateKind>) -> Ve
     }
     // best r first, except that a star faster than STAR_VMAX_KMS ranks after
     // every other class (as in the χ² decision)
-    let too_fast =
-        |p: &XCorrPeak| p.class == ObjectClass::Star && velocity_sep_kms(p.z, 0.0) > super::STAR_VMAX_KMS;
+    let too_fast = |p: &XCorrPeak| too_fast_star(p.class, p.z);
     let any_other = out.iter().any(|p| !too_fast(p));
     out.sort_by(|x, y| {
         (any_other && too_fast(x))
@@ -279,74 +275,57 @@ fn xcorr_prepared(e: &Engine, prep: &Prepared, kind: Option<TemplateKind>) -> Ve
     out
 }
 
-/// `Engine::fit` with `Method::XCorr`: candidates are the correlation peaks
-/// ordered by r (best first; too-fast stars last, see [`super::STAR_VMAX_KMS`]); each carries the χ² of its class's templates
+/// The cross-correlation method (`Method::XCorr`): candidates are the
+/// correlation peaks ordered by r (best first; too-fast stars last, see
+/// [`super::STAR_VMAX_KMS`]); each carries the χ² of its class's templates
 /// fitted at the peak redshift (same definition as the χ² method) so that
-/// reduced χ² and Δχ² mean the same thing for both methods.
-pub fn fit(e: &Engine, s: &Spectrum) -> Result<FitResult, FitError> {
-    let prep = e.prepare(s)?;
-    let peaks = xcorr_prepared(e, &prep, None);
-    let dll = e.config().dloglam;
-    let mut cands = Vec::new();
-    let mut k_best = 0;
-    for p in &peaks {
-        let Some(u) = e
-            .units()
-            .iter()
-            .find(|u| u.class == p.class && u.names.contains(&p.template))
-        else {
-            continue;
-        };
-        let thr = thresholds(&prep, u);
-        let f = direct_fit(&prep, u, (1.0 + p.z).log10() / dll, &thr, prep.nonneg);
-        if cands.is_empty() {
-            k_best = prep.cols(u.k());
+/// reduced χ² and Δχ² mean the same thing for both methods. The answer is
+/// ambiguous when the best peak's r is below [`R_AMBIGUOUS`].
+pub(crate) struct XCorr;
+
+impl FitMethod for XCorr {
+    fn solve(
+        &self,
+        setup: Setup<'_>,
+        prep: &Prepared,
+        ranges: &[(ObjectClass, (i64, i64))],
+    ) -> Result<Solution, FitError> {
+        let peaks = peaks(setup, prep, None, ranges);
+        let dll = setup.config.dloglam;
+        let mut cands = Vec::new();
+        let mut k_best = 0;
+        for p in &peaks {
+            let Some(u) = setup
+                .units
+                .iter()
+                .find(|u| u.class == p.class && u.names.contains(&p.template))
+            else {
+                continue;
+            };
+            let thr = thresholds(prep, u);
+            let f = sums_fit(prep, u, (1.0 + p.z).log10() / dll, &thr, prep.nonneg);
+            if cands.is_empty() {
+                k_best = prep.cols(u.k());
+            }
+            cands.push(Candidate {
+                class: p.class,
+                template: u.name.clone(),
+                z: p.z,
+                z_err: p.z_err,
+                chi2: f.chi2,
+                coeffs: f.coeffs,
+            });
         }
-        cands.push(Candidate {
-            class: p.class,
-            template: u.name.clone(),
-            z: p.z,
-            z_err: p.z_err,
-            chi2: f.chi2,
-            coeffs: f.coeffs,
-        });
+        Ok(Solution {
+            candidates: cands,
+            n_par: k_best + prep.j(),
+            ambiguous: peaks.first().is_none_or(|p| p.r < R_AMBIGUOUS),
+            dchi2_cut: false,
+            at_edge: false,
+            negative_template: false,
+            curves: Vec::new(),
+        })
     }
-    let Some(best) = cands.first().cloned() else {
-        return Err(FitError::NoCoverage);
-    };
-    let runner = cands
-        .iter()
-        .skip(1)
-        .find(|c| c.class != best.class || velocity_sep_kms(c.z, best.z) >= e.config().min_separation_kms);
-    let delta_chi2 = runner.map_or(f64::MAX, |c| c.chi2 - best.chi2);
-    let n_good = prep.n_good();
-    let chi2_reduced = best.chi2 / prep.dof(k_best + prep.j());
-    let mut warnings = Warnings::default();
-    if peaks.first().is_none_or(|p| p.r < R_AMBIGUOUS) {
-        warnings.set(Warnings::AMBIGUOUS);
-    }
-    if n_good < super::FEW_PIXELS {
-        warnings.set(Warnings::FEW_PIXELS);
-    }
-    if chi2_reduced > super::POOR_FIT_CHI2R {
-        warnings.set(Warnings::POOR_FIT);
-    }
-    if s.meta.noise_estimated {
-        warnings.set(Warnings::NOISE_ESTIMATED);
-    }
-    let lines = super::lines::measure(s, &prep, e, &best);
-    Ok(FitResult {
-        object_id: s.meta.id.clone(),
-        per_class: ClassSolution::from_candidates(&cands),
-        candidates: cands,
-        delta_chi2,
-        chi2_reduced,
-        n_good,
-        snr_median: s.median_snr(),
-        warnings,
-        curves: Vec::new(),
-        lines,
-    })
 }
 
 #[cfg(test)]

@@ -8,8 +8,7 @@ so the sum of flux density × pixel width over a line is exactly its flux — th
 line ratios the generator asks for are the ratios found in the templates.
 */
 
-/// Speed of light in km/s (exact, SI definition).
-pub const C_KMS: f64 = 299_792.458;
+use crate::constants::C_KMS;
 
 /// A rest-frame grid uniform in log10 λ.
 #[derive(Debug, Clone, Copy, PartialEq)]

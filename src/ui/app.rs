@@ -79,6 +79,8 @@ pub struct ZvetApp {
     /// Actions to apply once the next spectra or campaign load is in
     /// (e.g. a catalogue given on the command line with the spectra).
     pub(crate) after_load: Vec<super::action::Action>,
+    /// Where automatic fits made here are written back (a campaign's cache).
+    pub(crate) write_back: super::jobs::WriteBack,
     prepared: Option<(PrepKey, Prepared)>,
     /// The resume file of the open log, and what it last held.
     pub(crate) resume: Option<(PathBuf, Option<super::resume::Resume>)>,
@@ -111,6 +113,7 @@ impl ZvetApp {
             inspector: None,
             name_file,
             after_load: Vec::new(),
+            write_back: Default::default(),
             prepared: None,
             resume: None,
             resume_target: None,
@@ -315,6 +318,7 @@ impl ZvetApp {
             let i = done.index;
             match (done.kind, done.result) {
                 (JobKind::Fit, Ok(fit)) => {
+                    self.write_back(i, &fit);
                     if let Some(slot) = self.state.fits.get_mut(i) {
                         *slot = Some(fit);
                         any_fit = true;
@@ -331,6 +335,8 @@ impl ZvetApp {
                         *slot = Some(e);
                     }
                 }
+                (JobKind::Curves, Ok(fit)) => self.absorb_curves(i, fit),
+                (JobKind::Curves, Err(_)) => {}
                 (JobKind::RefitNear { .. }, result) => {
                     if self.state.selected != Some(i) {
                         continue;
@@ -384,6 +390,7 @@ impl ZvetApp {
         if self.state.fits.get(index).is_some_and(|f| f.is_none()) {
             self.jobs.prioritize(index);
         }
+        self.want_curves_from(index);
     }
 
     /// Compute the plot data if the object, solution or view changed.

@@ -3,11 +3,18 @@ Fits in the background. A few worker threads take jobs from a shared queue
 (the selected object jumps to the front), run the engine, and send results
 back over a channel; each result asks the window to repaint, so the window
 never waits on a fit. Dropping [`Jobs`] stops the workers after their current job.
+
+Cached fits (a campaign's `fits.jsonl`) come without χ²(z) curves: the
+window asks for the curves of the object it shows and of the next few in the
+list ([`CURVE_PREFETCH`]) only, so opening a fitted campaign costs no refit.
+Automatic fits made here for a campaign are written back to its cache
+([`WriteBack`]), in batches and off the window's thread.
 */
-use crate::campaign::SurveyObject;
+use crate::campaign::{Campaign, SurveyObject};
 use crate::fit::{Candidate, Engine, FitResult};
+use crate::pipeline::FitRecord;
 use crate::{ObjectClass, Spectrum};
-use std::collections::VecDeque;
+use std::collections::{HashSet, VecDeque};
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 use std::sync::mpsc::{channel, Receiver, Sender};
 use std::sync::{Arc, Condvar, Mutex, OnceLock};
@@ -67,6 +74,9 @@ impl Fitter for Engine {
 pub enum JobKind {
     /// The automatic fit.
     Fit,
+    /// The χ²(z) curves of an object whose fit came from the cache (the
+    /// whole automatic fit, of which the window keeps the curves).
+    Curves,
     /// A refit near `z`.
     RefitNear {
         /// Centre.
@@ -91,8 +101,16 @@ pub struct JobDone {
 /// z = 0: wide enough for a hand-placed z, narrow enough to stay on one feature.
 pub const REFIT_HALF_WIDTH_KMS: f64 = 2000.0;
 
+/// How many objects after the shown one get their χ²(z) curves ahead of time.
+pub const CURVE_PREFETCH: usize = 3;
+
+/// Automatic fits written back per batch (a batch is also written when the
+/// background fits are done).
+pub const WRITE_BACK_BATCH: usize = 64;
+
 struct Shared {
     queue: Mutex<VecDeque<(usize, JobKind)>>,
+    curves_asked: Mutex<HashSet<usize>>,
     wake: Condvar,
     stop: AtomicBool,
     done: AtomicUsize,
@@ -111,6 +129,7 @@ impl Jobs {
     pub fn start(fitter: Arc<dyn Fitter>, objects: Arc<Vec<SurveyObject>>, todo: Vec<usize>) -> Jobs {
         let shared = Arc::new(Shared {
             queue: Mutex::new(todo.iter().map(|&i| (i, JobKind::Fit)).collect()),
+            curves_asked: Mutex::new(HashSet::new()),
             wake: Condvar::new(),
             stop: AtomicBool::new(false),
             done: AtomicUsize::new(0),
@@ -164,6 +183,24 @@ impl Jobs {
                 q.push_front(job);
             }
         }
+    }
+
+    /// Ask for the χ²(z) curves of `shown` ahead of everything waiting, and
+    /// of `next` after the automatic fits; an object asked for before is not
+    /// asked for again.
+    pub fn want_curves(&self, shown: Option<usize>, next: &[usize]) {
+        let mut asked = lock(&self.shared.curves_asked);
+        let mut q = lock(&self.shared.queue);
+        if let Some(i) = shown.filter(|&i| asked.insert(i)) {
+            q.push_front((i, JobKind::Curves));
+        }
+        for &i in next {
+            if asked.insert(i) {
+                q.push_back((i, JobKind::Curves));
+            }
+        }
+        drop(q);
+        self.shared.wake.notify_all();
     }
 
     /// Ask for a refit of `index` near `z` (first in line).
@@ -228,7 +265,7 @@ fn worker(
         };
         // A panic inside the engine must not take the window down: report it.
         let result = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| match kind {
-            JobKind::Fit => fitter.fit(&obj.spectrum),
+            JobKind::Fit | JobKind::Curves => fitter.fit(&obj.spectrum),
             JobKind::RefitNear { z, class } => {
                 fitter.refit_near(&obj.spectrum, z, class, REFIT_HALF_WIDTH_KMS)
             }
@@ -243,6 +280,72 @@ fn worker(
         if let Some(ctx) = repaint.get() {
             ctx.request_repaint();
         }
+    }
+}
+
+/// Where automatic fits made in the window go: the open campaign's cache.
+#[derive(Default)]
+pub struct WriteBack {
+    campaign: Option<Campaign>,
+    method: String,
+    pending: Vec<FitRecord>,
+    writing: Arc<Mutex<()>>,
+    errors: Arc<Mutex<Vec<String>>>,
+}
+
+impl WriteBack {
+    /// Write fits to `campaign`'s cache from now on (`None`: nowhere, e.g.
+    /// loose files, or an engine other than the campaign's).
+    pub fn set(&mut self, campaign: Option<Campaign>) {
+        self.method = campaign
+            .as_ref()
+            .map(|c| match c.manifest().engine.method {
+                crate::fit::Method::Chi2 => "chi2".to_string(),
+                crate::fit::Method::XCorr => "xcorr".to_string(),
+            })
+            .unwrap_or_default();
+        self.campaign = campaign;
+        self.pending.clear();
+    }
+
+    /// Keep `fit` of `spectrum` for the next write.
+    pub fn add(&mut self, spectrum: &Spectrum, fit: &FitResult) {
+        if self.campaign.is_some() {
+            let source = crate::pipeline::source_of(spectrum);
+            self.pending
+                .push(FitRecord::fitted(fit.clone(), &source, &self.method));
+        }
+    }
+
+    /// Write what is kept when there is a batch, or anything when `all`, on
+    /// a thread of its own (one write at a time).
+    pub fn flush(&mut self, all: bool) {
+        if self.pending.is_empty() || !(all || self.pending.len() >= WRITE_BACK_BATCH) {
+            return;
+        }
+        let Some(campaign) = self.campaign.clone() else {
+            return;
+        };
+        let records = std::mem::take(&mut self.pending);
+        let (writing, errors) = (self.writing.clone(), self.errors.clone());
+        let _ = std::thread::Builder::new()
+            .name("zvet-fit-cache".into())
+            .spawn(move || {
+                let _one = lock(&writing);
+                if let Err(e) = campaign.save_records(&records) {
+                    lock(&errors).push(format!("writing fits to the campaign cache: {e}"));
+                }
+            });
+    }
+
+    /// Errors of earlier writes (taken).
+    pub fn take_errors(&self) -> Vec<String> {
+        std::mem::take(&mut *lock(&self.errors))
+    }
+
+    /// Wait for the write in progress, if any (tests).
+    pub fn wait(&self) {
+        drop(lock(&self.writing));
     }
 }
 

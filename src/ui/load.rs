@@ -13,6 +13,7 @@ use std::sync::{Arc, OnceLock};
 
 use super::action::{Action, OpenKind};
 use super::jobs::Fitter;
+use crate::pipeline::kind::{self, PathKind};
 
 /// What a background load produced.
 pub enum Loaded {
@@ -55,6 +56,8 @@ pub enum Loaded {
         problems: Vec<String>,
         /// The engine on the campaign's templates and settings (None: keep the current one).
         fitter: Option<Arc<dyn Fitter>>,
+        /// The campaign whose cache takes the fits made in the window.
+        write_back: Option<Box<crate::campaign::Campaign>>,
     },
     /// Something went wrong; the text says what.
     Failed(String),
@@ -129,11 +132,11 @@ impl Loads {
             let dialog = rfd::FileDialog::new();
             let picked: Vec<PathBuf> = match kind {
                 OpenKind::Spectra => dialog
-                    .add_filter("spectra", &["fits", "fit", "fz", "gz", "txt", "dat", "csv"])
+                    .add_filter("spectra", &kind::spectrum_dialog_extensions())
                     .pick_files()
                     .unwrap_or_default(),
                 OpenKind::Catalog => dialog
-                    .add_filter("catalogue", &["csv", "txt"])
+                    .add_filter("catalogue", kind::CATALOGUE_EXTENSIONS)
                     .pick_file()
                     .into_iter()
                     .collect(),
@@ -164,34 +167,17 @@ impl Loads {
     }
 }
 
-/// Guess what a dropped path is: a folder with `campaign.toml` is a campaign,
-/// a folder with a template-set descriptor is a template set, a CSV whose
-/// header names `ra` and `dec` is a catalogue, anything else is spectra.
+/// What a dropped path is, as the library judges it from the content
+/// ([`crate::pipeline::kind_of`]): a campaign folder, a template set (a folder
+/// of set files whatever its name), a catalogue (a table with ra/dec and no
+/// wavelength), or spectra.
 pub fn guess_kind(path: &Path) -> OpenKind {
-    if path.is_dir() {
-        if path.join("campaign.toml").is_file() {
-            return OpenKind::Campaign;
-        }
-        let descriptor = ["templates.json", "templates.toml", "set.json", "set.toml"];
-        if descriptor.iter().any(|d| path.join(d).is_file()) {
-            return OpenKind::Templates;
-        }
-        return OpenKind::Spectra;
+    match kind::kind_of(path) {
+        PathKind::Campaign => OpenKind::Campaign,
+        PathKind::TemplateSet => OpenKind::Templates,
+        PathKind::Catalogue => OpenKind::Catalog,
+        PathKind::Spectra => OpenKind::Spectra,
     }
-    let is_csv = path
-        .extension()
-        .and_then(|e| e.to_str())
-        .is_some_and(|e| e.eq_ignore_ascii_case("csv"));
-    if is_csv {
-        if let Ok(text) = std::fs::read_to_string(path) {
-            let header = text.lines().next().unwrap_or("").to_ascii_lowercase();
-            let cols: Vec<&str> = header.split(',').map(|c| c.trim()).collect();
-            if cols.contains(&"ra") && cols.contains(&"dec") {
-                return OpenKind::Catalog;
-            }
-        }
-    }
-    OpenKind::Spectra
 }
 
 /// Turn files dropped on the window this frame into open actions.
@@ -233,5 +219,11 @@ mod tests {
         assert_eq!(guess_kind(&cat), OpenKind::Catalog);
         assert_eq!(guess_kind(&spec), OpenKind::Spectra);
         assert_eq!(guess_kind(dir.path()), OpenKind::Spectra);
+        // a copy of the shipped template set under another name
+        let tpl = dir.path().join("my-templates");
+        std::fs::create_dir(&tpl).unwrap();
+        let shipped = Path::new(env!("CARGO_MANIFEST_DIR")).join("templates-spectra/builtin.fits");
+        std::fs::copy(shipped, tpl.join("set.fits")).unwrap();
+        assert_eq!(guess_kind(&tpl), OpenKind::Templates);
     }
 }

@@ -6,7 +6,8 @@ set that replaces the engine, a campaign folder with its review logs.
 use super::jobs::Fitter;
 use crate::campaign::SurveyObject;
 use crate::fit::{Engine, FitConfig};
-use crate::io::{self, ReadOptions};
+use crate::io::ReadOptions;
+use crate::pipeline;
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
@@ -15,9 +16,12 @@ use super::load::Loaded;
 use super::settings;
 use super::state::AppState;
 
-/// Read spectrum files and folders.
+/// Read spectrum files and folders (through the pipeline's input search and
+/// reader, as `zvet fit` does).
 pub fn read_spectra(paths: &[PathBuf]) -> Loaded {
-    let files = io::expand_inputs(paths);
+    let opts = ReadOptions::default();
+    let found = pipeline::find(paths, &[], &opts);
+    let files = found.files;
     if files.is_empty() {
         return Loaded::Failed(format!(
             "no readable spectrum file in {}",
@@ -28,18 +32,19 @@ pub fn read_spectra(paths: &[PathBuf]) -> Loaded {
                 .join(", ")
         ));
     }
-    let mut objects = Vec::new();
-    let mut problems = Vec::new();
-    for f in &files {
-        match io::read_file(f, &ReadOptions::default()) {
-            Ok(spectra) => objects.extend(spectra.into_iter().map(|spectrum| SurveyObject {
-                spectrum,
-                catalog: None,
-                fit: None,
-            })),
-            Err(e) => problems.push(e.to_string()),
-        }
-    }
+    let n_files = files.len();
+    let mut problems = found.problems;
+    problems.extend(found.notes);
+    let (spectra, read_problems) = pipeline::read_all(files, &opts);
+    problems.extend(read_problems);
+    let objects: Vec<SurveyObject> = spectra
+        .into_iter()
+        .map(|spectrum| SurveyObject {
+            spectrum,
+            catalog: None,
+            fit: None,
+        })
+        .collect();
     if objects.is_empty() {
         return Loaded::Failed(format!(
             "no spectrum could be read: {}",
@@ -48,7 +53,7 @@ pub fn read_spectra(paths: &[PathBuf]) -> Loaded {
     }
     let title = match paths {
         [one] => one.display().to_string(),
-        _ => format!("{} files", files.len()),
+        _ => format!("{n_files} files"),
     };
     Loaded::Spectra {
         title,
@@ -70,9 +75,9 @@ pub fn read_catalog(path: &Path) -> Loaded {
 
 /// Read a template set and build an engine on it.
 pub fn read_templates(path: &Path) -> Loaded {
-    let set = match crate::templates::read_set(path) {
+    let set = match pipeline::load_templates(Some(path)) {
         Ok(s) => s,
-        Err(e) => return Loaded::Failed(format!("{}: {e}", path.display())),
+        Err(e) => return Loaded::Failed(e.to_string()),
     };
     match Engine::new(&set, FitConfig::default()) {
         Ok(engine) => Loaded::Templates {
@@ -87,23 +92,17 @@ pub fn read_templates(path: &Path) -> Loaded {
 /// spectra with the manifest's reader options, its catalogue joined by id,
 /// its cached fits) and build the engine the manifest names, so that objects
 /// without a cached fit are fitted with the campaign's own templates and
-/// settings.
+/// settings. Cached fits are used as they are; their χ²(z) curves are
+/// computed when an object is shown (see [`super::jobs`]).
 pub fn read_campaign(path: &Path) -> Loaded {
     let campaign = match crate::campaign::Campaign::open(path) {
         Ok(c) => c,
         Err(e) => return Loaded::Failed(format!("{}: {e}", path.display())),
     };
-    let (mut objects, mut problems) = match campaign.load_objects() {
+    let (objects, mut problems) = match campaign.load_objects() {
         Ok(loaded) => loaded,
         Err(e) => return Loaded::Failed(format!("{}: {e}", path.display())),
     };
-    // The fit cache keeps candidates but not the χ²(z) curves the window
-    // draws; such objects are fitted again in the background for display.
-    for o in &mut objects {
-        if o.fit.as_ref().is_some_and(|f| f.curves.is_empty()) {
-            o.fit = None;
-        }
-    }
     let fitter: Option<Arc<dyn Fitter>> = match campaign.engine() {
         Ok(engine) => Some(Arc::new(engine)),
         Err(e) => {
@@ -113,11 +112,7 @@ pub fn read_campaign(path: &Path) -> Loaded {
             None
         }
     };
-    let log = campaign.review_log_path("x");
-    let log_folder = log
-        .parent()
-        .map(Path::to_path_buf)
-        .unwrap_or_else(|| path.join("reviews"));
+    let log_folder = campaign.reviews_dir();
     let inspectors = known_inspectors(&campaign.manifest().inspectors, &log_folder);
     Loaded::Campaign {
         title: campaign.manifest().name.clone(),
@@ -125,6 +120,9 @@ pub fn read_campaign(path: &Path) -> Loaded {
         log_folder,
         inspectors,
         problems,
+        // automatic fits made here go back to the campaign's cache only when
+        // they come from the campaign's own engine
+        write_back: fitter.is_some().then(|| Box::new(campaign.clone())),
         fitter,
     }
 }
@@ -163,6 +161,7 @@ impl ZvetApp {
                 problems,
             } => {
                 self.report(&problems);
+                self.write_back.set(None);
                 let place = settings::loose_log_folder()
                     .map(LogPlace::Folder)
                     .unwrap_or_else(|| LogPlace::Folder(std::env::temp_dir().join("zvet-reviews")));
@@ -175,8 +174,10 @@ impl ZvetApp {
                 inspectors,
                 problems,
                 fitter,
+                write_back,
             } => {
                 self.report(&problems);
+                self.write_back.set(write_back.map(|c| *c));
                 if let Some(fitter) = fitter {
                     self.fitter = fitter;
                 }
@@ -206,6 +207,8 @@ impl ZvetApp {
                 self.rebuild_queue();
             }
             Loaded::Templates { name, fitter } => {
+                // fits on another template set are not the campaign's
+                self.write_back.set(None);
                 self.fitter = fitter;
                 for f in &mut self.state.fits {
                     *f = None;
@@ -253,6 +256,52 @@ impl ZvetApp {
         }
         for a in std::mem::take(&mut self.after_load) {
             self.apply(a);
+        }
+    }
+}
+
+/// χ²(z) curves on demand and fits written back (see [`super::jobs`]).
+impl ZvetApp {
+    /// Ask for the χ²(z) curves of object `index` and of the next few in the
+    /// list, where their fit came without them.
+    pub(crate) fn want_curves_from(&mut self, index: usize) {
+        let lacks = |i: usize| {
+            self.state
+                .fits
+                .get(i)
+                .is_some_and(|f| f.as_ref().is_some_and(|f| f.curves.is_empty()))
+        };
+        let shown = lacks(index).then_some(index);
+        let next: Vec<usize> = match self.state.order.iter().position(|&i| i == index) {
+            Some(pos) => self.state.order[pos + 1..]
+                .iter()
+                .copied()
+                .filter(|&i| lacks(i))
+                .take(super::jobs::CURVE_PREFETCH)
+                .collect(),
+            None => Vec::new(),
+        };
+        self.jobs.want_curves(shown, &next);
+    }
+
+    /// Put the curves of a whole fit onto the cached fit of `index`.
+    pub(crate) fn absorb_curves(&mut self, index: usize, fit: crate::fit::FitResult) {
+        if let Some(Some(cached)) = self.state.fits.get_mut(index) {
+            if cached.curves.is_empty() {
+                cached.curves = fit.curves;
+            }
+        }
+    }
+
+    /// An automatic fit made here: keep it for the campaign's cache.
+    pub(crate) fn write_back(&mut self, index: usize, fit: &crate::fit::FitResult) {
+        if let Some(o) = self.state.objects.get(index) {
+            self.write_back.add(&o.spectrum, fit);
+        }
+        let all = !self.jobs.busy();
+        self.write_back.flush(all);
+        for e in self.write_back.take_errors() {
+            self.state.say(e, true);
         }
     }
 }

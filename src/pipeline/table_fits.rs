@@ -3,7 +3,7 @@ The FITS binary-table form of the result table (extension `FITS_RESULTS`):
 text columns as fixed-width strings, numbers as doubles with NaN for
 missing, the warning bits and pixel counts as 64-bit integers.
 */
-use super::table::{FitRow, TableError};
+use super::record::{FitRow, TableError};
 use fitsio::tables::{ColumnDataType, ColumnDescription};
 use fitsio::FitsFile;
 use std::path::Path;

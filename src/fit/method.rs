@@ -1,0 +1,201 @@
+/*!
+The engine's methods behind one small trait, and what they share.
+
+A [`FitMethod`] turns a prepared spectrum into ranked candidates (the χ²
+template fit in [`super::engine`], the classic cross-correlation in
+[`super::xcorr`]); [`finish`] then assembles the one [`FitResult`] both hand
+on: Δχ² to the runner-up, reduced χ², the warning bits and the emission
+lines. A method sees the engine only through [`Setup`] (settings, prepared
+templates, transform cache), so no method calls back into the engine.
+*/
+use super::config::{FitConfig, FitError};
+use super::fast::FftCache;
+use super::prep::Prepared;
+use super::result::{Candidate, Chi2Curve, ClassSolution, FitResult, Warnings};
+use super::units::Unit;
+use crate::constants::C_KMS;
+use crate::spectrum::Spectrum;
+use crate::ObjectClass;
+
+/// Δχ² below which the answer is called ambiguous: 9 is Δχ² for 3σ with one
+/// free parameter (common practice for a redshift-confusion cut).
+pub const AMBIGUOUS_DCHI2: f64 = 9.0;
+/// Fastest heliocentric velocity (km/s) accepted for a star as the best
+/// solution: the Galaxy's escape speed near the Sun (≈ 550 km/s) plus the
+/// Sun's own orbital speed (≈ 250 km/s), both from memory. A star solution
+/// beyond it stays among the candidates but ranks after every other class
+/// (a passive galaxy at cz ≈ 1200 km/s otherwise can look like a G star).
+pub const STAR_VMAX_KMS: f64 = 800.0;
+/// Fewer good grid pixels than this set [`Warnings::FEW_PIXELS`].
+pub const FEW_PIXELS: usize = 100;
+/// Reduced χ² above this sets [`Warnings::POOR_FIT`].
+pub const POOR_FIT_CHI2R: f64 = 2.0;
+/// Δχ² between the best star and the best solution of another class below
+/// which [`Warnings::CLASS_CLOSE`] is set (before the mismatch scaling of
+/// [`mismatch_scale`]). Calibrated on the recovery run (README, "Warnings").
+pub const CLASS_CLOSE_DCHI2: f64 = 25.0;
+
+/// Factor by which the Δχ² cuts grow with template mismatch: the reduced χ²
+/// of the best fit, at least 1. Where no template matches to the noise
+/// (χ²_r > 1) every χ² difference is inflated by roughly that factor, so a
+/// plain Δχ² cut would be overconfident (common practice: errors rescaled
+/// by √χ²_r).
+pub fn mismatch_scale(chi2_reduced: f64) -> f64 {
+    if chi2_reduced.is_finite() {
+        chi2_reduced.max(1.0)
+    } else {
+        1.0
+    }
+}
+
+/// The best star against the best solution of a non-star class: true when
+/// their χ² differ by less than [`CLASS_CLOSE_DCHI2`] × `scale`, whichever
+/// of them is the better. `per_class` is best class first.
+fn class_close(per_class: &[ClassSolution], scale: f64) -> bool {
+    let star = per_class.iter().find(|s| s.class == ObjectClass::Star);
+    let other = per_class.iter().find(|s| s.class != ObjectClass::Star);
+    match (star, other) {
+        (Some(s), Some(o)) => (s.chi2 - o.chi2).abs() < CLASS_CLOSE_DCHI2 * scale,
+        _ => false,
+    }
+}
+
+/// What a method may use of the engine.
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct Setup<'a> {
+    /// The settings.
+    pub config: &'a FitConfig,
+    /// The prepared templates.
+    pub units: &'a [Unit],
+    /// Cached template transforms.
+    pub cache: &'a FftCache,
+}
+
+impl Setup<'_> {
+    /// Classes that have templates, in unit order.
+    pub fn classes(&self) -> Vec<ObjectClass> {
+        let mut v: Vec<ObjectClass> = self.units.iter().map(|u| u.class).collect();
+        v.dedup();
+        v
+    }
+
+    /// The minimum separation of distinct solutions, in grid pixels.
+    pub fn min_sep_pixels(&self) -> f64 {
+        (self.config.min_separation_kms / C_KMS).ln_1p() / std::f64::consts::LN_10 / self.config.dloglam
+    }
+}
+
+/// A method's answer before the shared assembly.
+#[derive(Debug, Clone)]
+pub(crate) struct Solution {
+    /// Candidates, best first.
+    pub candidates: Vec<Candidate>,
+    /// Fitted columns of the best candidate (templates and polynomials), for
+    /// the degrees of freedom.
+    pub n_par: usize,
+    /// The method's own judgement that the answer is not clear-cut.
+    pub ambiguous: bool,
+    /// Also call the answer ambiguous when Δχ² to the runner-up is below
+    /// [`AMBIGUOUS_DCHI2`] scaled by [`mismatch_scale`] (the χ² method).
+    pub dchi2_cut: bool,
+    /// The best minimum sits at an edge of the redshift grid.
+    pub at_edge: bool,
+    /// The best fit's template part is negative.
+    pub negative_template: bool,
+    /// χ²(z) curves (none for methods without them).
+    pub curves: Vec<Chi2Curve>,
+}
+
+/// A way of finding candidates for a prepared spectrum.
+pub(crate) trait FitMethod {
+    /// Candidates over `ranges` (whole shifts per class).
+    fn solve(
+        &self,
+        setup: Setup<'_>,
+        prep: &Prepared,
+        ranges: &[(ObjectClass, (i64, i64))],
+    ) -> Result<Solution, FitError>;
+}
+
+/// Whole-shift range for a redshift interval.
+pub(crate) fn shift_range(z: (f64, f64), dll: f64) -> (i64, i64) {
+    let lo = ((1.0 + z.0).max(1e-6).log10() / dll).ceil() as i64;
+    let hi = ((1.0 + z.1).max(1e-6).log10() / dll).floor() as i64;
+    (lo, hi.max(lo))
+}
+
+/// |Δv| between two redshifts in km/s (relativistic-free, c·|Δln(1+z)|).
+pub fn velocity_sep_kms(z1: f64, z2: f64) -> f64 {
+    C_KMS * ((1.0 + z1) / (1.0 + z2)).ln().abs()
+}
+
+/// A star solution too fast to be a star of the Galaxy ([`STAR_VMAX_KMS`]).
+pub(crate) fn too_fast_star(class: ObjectClass, z: f64) -> bool {
+    class == ObjectClass::Star && velocity_sep_kms(z, 0.0) > STAR_VMAX_KMS
+}
+
+/// χ² of the runner-up distinct solution (another class, or at least the
+/// minimum separation away) minus the best; `f64::MAX` when there is none.
+/// Negative when a lower-χ² solution was ranked after the best.
+pub(crate) fn delta_chi2(cands: &[Candidate], min_separation_kms: f64) -> f64 {
+    let Some(best) = cands.first() else {
+        return f64::MAX;
+    };
+    cands
+        .iter()
+        .skip(1)
+        .find(|c| c.class != best.class || velocity_sep_kms(c.z, best.z) >= min_separation_kms)
+        .map_or(f64::MAX, |c| c.chi2 - best.chi2)
+}
+
+/// The shared assembly: Δχ², reduced χ², warnings and line measurements.
+pub(crate) fn finish(
+    s: &Spectrum,
+    prep: &Prepared,
+    config: &FitConfig,
+    sol: Solution,
+) -> Result<FitResult, FitError> {
+    let Some(best) = sol.candidates.first().cloned() else {
+        return Err(FitError::NoCoverage);
+    };
+    let delta_chi2 = delta_chi2(&sol.candidates, config.min_separation_kms);
+    let n_good = prep.n_good();
+    let chi2_reduced = best.chi2 / prep.dof(sol.n_par);
+    let per_class = ClassSolution::from_candidates(&sol.candidates);
+    let scale = mismatch_scale(chi2_reduced);
+    let mut warnings = Warnings::default();
+    if sol.ambiguous || (sol.dchi2_cut && delta_chi2 < AMBIGUOUS_DCHI2 * scale) {
+        warnings.set(Warnings::AMBIGUOUS);
+    }
+    if class_close(&per_class, scale) {
+        warnings.set(Warnings::CLASS_CLOSE);
+    }
+    if sol.at_edge {
+        warnings.set(Warnings::AT_GRID_EDGE);
+    }
+    if sol.negative_template {
+        warnings.set(Warnings::NEGATIVE_TEMPLATE);
+    }
+    if n_good < FEW_PIXELS {
+        warnings.set(Warnings::FEW_PIXELS);
+    }
+    if chi2_reduced > POOR_FIT_CHI2R {
+        warnings.set(Warnings::POOR_FIT);
+    }
+    if s.meta.noise_estimated {
+        warnings.set(Warnings::NOISE_ESTIMATED);
+    }
+    let lines = super::lines::measure(s, &best);
+    Ok(FitResult {
+        object_id: s.meta.id.clone(),
+        candidates: sol.candidates,
+        delta_chi2,
+        chi2_reduced,
+        n_good,
+        snr_median: s.median_snr(),
+        warnings,
+        curves: sol.curves,
+        lines,
+        per_class,
+    })
+}
