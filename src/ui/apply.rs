@@ -80,8 +80,17 @@ impl ZvetApp {
                 Ok(z) => {
                     self.show_z(z, ZSource::Typed);
                     let Some(class) = self.state.shown.as_ref().map(|s| s.class()) else {
-                        self.state
-                            .say("no class to go with the z yet: press G, Q or S first", true);
+                        // No fit on screen yet: keep the typed z (nothing typed is
+                        // lost); the verdict is complete once a class goes with it.
+                        self.record(Change::Redshift {
+                            z,
+                            z_err: None,
+                            source: ZSource::Typed,
+                        });
+                        self.state.say(
+                            format!("z = {z} recorded; press G, Q or S (or Space once the fit is in) for the class"),
+                            false,
+                        );
                         return;
                     };
                     self.record_verdict(class.into(), Some(z), None, ZSource::Typed, None);

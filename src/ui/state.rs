@@ -8,7 +8,7 @@ checked in tests without a window.
 use crate::campaign::SurveyObject;
 use crate::fit::{Candidate, FitResult};
 use crate::queue::{self, Filter, QueueItem, SortKey};
-use crate::review::{Change, Verdict, VerdictClass, ZSource};
+use crate::review::{Change, Verdict, ZSource};
 use crate::ObjectClass;
 use std::sync::Arc;
 
@@ -110,10 +110,15 @@ impl Shown {
         }
     }
 
-    /// What to show for a recorded verdict: its class at its redshift (the
+    /// What to show for a recorded verdict: its class at its redshift (a
+    /// typed z without a class yet: the fit's best class at that z; the
     /// automatic answer when it has no redshift, e.g. `unclear`).
     pub fn for_verdict(fit: Option<&FitResult>, v: &Verdict) -> Option<Shown> {
-        match (v.class.and_then(VerdictClass::object_class), v.z) {
+        let class = match v.class {
+            Some(c) => c.object_class(),
+            None => fit.and_then(|f| f.best()).map(|b| b.class),
+        };
+        match (class, v.z) {
             (Some(class), Some(z)) if z.is_finite() => {
                 let mut s = Shown::class_at(fit, class, z, v.z_source.unwrap_or(ZSource::Typed));
                 if let Some(e) = v.z_err {
@@ -378,7 +383,7 @@ impl AppState {
     pub fn show_recorded(&mut self, verdict: Option<&Verdict>) {
         let fit = self.listed_fit();
         self.shown = match verdict {
-            Some(v) if v.class.is_some() => Shown::for_verdict(fit, v),
+            Some(v) if v.class.is_some() || v.z.is_some() => Shown::for_verdict(fit, v),
             _ => fit.and_then(Shown::automatic),
         };
         self.sync_texts(verdict);
