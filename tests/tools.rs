@@ -99,9 +99,9 @@ fn the_sky_column_is_kept_with_its_pixels() {
         .map(|v| v.as_f64().unwrap())
         .collect();
     assert_eq!(sky.len(), want.len());
-    for i in 0..sky.len() {
-        assert_relative_eq!(s.wave()[i], wave[i], max_relative = 1e-12);
-        assert_relative_eq!(sky[i], want[i], max_relative = 1e-12);
+    for (((got_w, got), w), k) in s.wave().iter().zip(sky).zip(&wave).zip(&want) {
+        assert_relative_eq!(*got_w, *w, max_relative = 1e-12);
+        assert_relative_eq!(*got, *k, max_relative = 1e-12);
     }
 }
 

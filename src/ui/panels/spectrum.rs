@@ -45,8 +45,8 @@ pub fn ui(
         }
         ui.checkbox(&mut state.view.show_model, "model");
         ui.checkbox(&mut state.view.show_sky, "sky lines");
-        super::overlay::controls(ui, state, out);
     });
+    ui.horizontal(|ui| super::overlay::controls(ui, state, out));
     super::overlay::notes(ui, state);
     let Some(p) = prepared else {
         ui.allocate_space(egui::vec2(ui.available_width(), height));
