@@ -1,6 +1,7 @@
-"""Two inspectors' review logs for the screenshot campaign: both accept the
+"""Two invented inspectors' review logs for the screenshot campaign: both accept the
 automatic answer on the first 16 objects of the fit cache, except that ben
-disagrees on four (another class, or another z)."""
+disagrees on four (another class, or another z).
+Run: python3 assets/screenshot_logs.py CAMPAIGN_DIR (after `zvet campaign init … --fit`)."""
 import json, sys, datetime
 camp = sys.argv[1]
 fits = [json.loads(l) for l in open(f"{camp}/fits.jsonl") if l.strip()]
