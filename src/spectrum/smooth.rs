@@ -38,12 +38,8 @@ pub fn auto_boxcar_width(median_snr: f64) -> usize {
     if w >= AUTO_SMOOTH_MAX as f64 {
         return AUTO_SMOOTH_MAX;
     }
-    let w = (w as usize).max(1);
-    if w % 2 == 0 {
-        w + 1
-    } else {
-        w
-    }
+    // `| 1` rounds an even width up to the next odd one.
+    (w as usize).max(1) | 1
 }
 
 /// A smoothed flux with its inverse variance, on the spectrum's own pixels.

@@ -633,9 +633,9 @@ fn smoothed_points(wave: &[f64], v: &[f64], width: usize, zf: f64) -> Vec<[f64; 
     let n = v.len().min(wave.len());
     let mut s = vec![0.0; n + 1];
     let mut c = vec![0usize; n + 1];
-    for i in 0..n {
-        let ok = v[i].is_finite();
-        s[i + 1] = s[i] + if ok { v[i] } else { 0.0 };
+    for (i, &x) in v.iter().enumerate().take(n) {
+        let ok = x.is_finite();
+        s[i + 1] = s[i] + if ok { x } else { 0.0 };
         c[i + 1] = c[i] + usize::from(ok);
     }
     let half = width / 2;

@@ -1,8 +1,8 @@
 #!/usr/bin/env python3
-"""Write tests/data/io/sky_table.fits with astropy: a one-pixel-per-row
+"""Write tests/data/tools/sky_table.fits with astropy: a one-pixel-per-row
 binary table (WAVELENGTH in Angstrom, stored red to blue; FLUX, IVAR, SKY)
 whose SKY column must be kept with the spectrum, reversed with it, and
-tests/data/io/sky_table.json with what astropy reads back (blue to red).
+tests/data/tools/sky_table.json with what astropy reads back (blue to red).
 
 Run from the repository root:  python3 tests/scripts/write_sky_fixture.py
 """
@@ -14,7 +14,7 @@ import numpy as np
 from astropy.io import fits
 
 ROOT = os.path.abspath(os.path.join(os.path.dirname(__file__), "..", ".."))
-DIR = os.path.join(ROOT, "tests", "data", "io")
+DIR = os.path.join(ROOT, "tests", "data", "tools")
 
 
 def main():

@@ -46,9 +46,9 @@ pub fn ui(
         }
         ui.checkbox(&mut state.view.show_model, "model");
         ui.checkbox(&mut state.view.show_sky, "sky lines");
-        super::overlay::controls(ui, state, out);
     });
     legend(ui, state);
+    ui.horizontal(|ui| super::overlay::controls(ui, state, out));
     super::overlay::notes(ui, state);
     let Some(p) = prepared else {
         ui.allocate_space(egui::vec2(ui.available_width(), height));

@@ -178,22 +178,21 @@ pub fn ui(
     } else {
         RichText::new("flags: press F, then the number")
     });
-    ui.horizontal_wrapped(|ui| {
-        for f in Flag::ALL.iter() {
+    egui::Grid::new("zvet-flags").num_columns(4).show(ui, |ui| {
+        for (n, f) in Flag::ALL.iter().enumerate() {
             let mut on = verdict.is_some_and(|v| v.flags.contains(f));
             let k = crate::ui::keys::flag_digit(*f);
-            let changed = ui
-                .horizontal(|ui| {
-                    ui.spacing_mut().item_spacing.x = 2.0;
-                    ui.label(RichText::new(format!("F→{k}")).monospace().weak())
-                        .on_hover_text(format!("press F, then {k}"));
-                    ui.checkbox(&mut on, flag_words(*f))
-                        .on_hover_text(format!("F then {k}"))
-                        .changed()
-                })
-                .inner;
-            if changed {
+            ui.label(RichText::new(format!("F→{k}")).monospace().weak())
+                .on_hover_text(format!("press F, then {k}"));
+            if ui
+                .checkbox(&mut on, flag_words(*f))
+                .on_hover_text(format!("F then {k}"))
+                .changed()
+            {
                 out.push(Action::ToggleFlag(*f));
+            }
+            if n % 2 == 1 {
+                ui.end_row();
             }
         }
     });
