@@ -283,4 +283,43 @@ mod tests {
         assert_eq!(b.candidates[0].z.to_bits(), f.candidates[0].z.to_bits());
         assert_eq!(b.warnings, f.warnings);
     }
+
+    #[test]
+    fn per_class_solutions_round_trip_and_old_lines_still_load() {
+        let f = FitResult {
+            object_id: "o".into(),
+            candidates: vec![],
+            delta_chi2: 3.0,
+            chi2_reduced: 1.0,
+            n_good: 10,
+            snr_median: 5.0,
+            warnings: Warnings(Warnings::CLASS_CLOSE),
+            curves: vec![],
+            lines: vec![],
+            per_class: vec![
+                ClassSolution {
+                    class: ObjectClass::Star,
+                    template: "star-M3".into(),
+                    z: 1e-4,
+                    chi2: 100.0,
+                },
+                ClassSolution {
+                    class: ObjectClass::Galaxy,
+                    template: "galaxy-basis".into(),
+                    z: 0.8,
+                    chi2: f64::INFINITY,
+                },
+            ],
+        };
+        let (back, problems) = parse(&to_text(&[&f]).unwrap());
+        assert!(problems.is_empty());
+        assert_eq!(back[0].per_class.len(), 2);
+        assert_eq!(back[0].per_class[0], f.per_class[0]);
+        assert!(back[0].per_class[1].chi2.is_nan()); // ∞ is written as null
+                                                     // a line written before the field existed
+        let old = r#"{"v":1,"id":"x","candidates":[],"delta_chi2":null,"chi2_reduced":1.0,"n_good":5,"snr_median":2.0,"warnings":0}"#;
+        let (back, problems) = parse(old);
+        assert!(problems.is_empty(), "{problems:?}");
+        assert!(back[0].per_class.is_empty());
+    }
 }
