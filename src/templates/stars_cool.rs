@@ -28,6 +28,8 @@ band-strength indices equal the published relation between index and
 subtype (see [`tio5_target`], [`cah2_target`]); the third index, CaH3, is left
 free and checked against its own published relation by the tests.
 */
+// Index loops here add several per-pixel arrays term by term.
+#![allow(clippy::needless_range_loop)]
 use super::profiles::{apply_tau, convolve_velocity, median_in, Absorber, Grid};
 use super::stars::{atmosphere, StarType, STAR_SIGMA_KMS};
 use serde::Serialize;
