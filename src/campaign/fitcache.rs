@@ -63,6 +63,12 @@ pub struct LineRecord {
     /// Offset and width were fitted (absent in older caches: fitted).
     #[serde(default = "fitted_default")]
     pub width_fitted: bool,
+    /// Continuum under the line (absent in older caches).
+    #[serde(default)]
+    pub continuum: Option<f64>,
+    /// Balmer lines: stellar absorption rest equivalent width (Å).
+    #[serde(default)]
+    pub abs_ew_rest: Option<f64>,
 }
 
 /// One line of `fits.jsonl`.
@@ -128,6 +134,8 @@ impl From<&FitResult> for FitRecord {
                     ew_rest: fin(l.ew_rest),
                     snr: fin(l.snr),
                     width_fitted: l.width_fitted,
+                    continuum: fin(l.continuum),
+                    abs_ew_rest: l.abs_ew_rest.and_then(fin),
                 })
                 .collect(),
         }
@@ -169,6 +177,8 @@ impl From<FitRecord> for FitResult {
                     ew_rest: nan(l.ew_rest),
                     snr: nan(l.snr),
                     width_fitted: l.width_fitted,
+                    continuum: nan(l.continuum),
+                    abs_ew_rest: l.abs_ew_rest,
                 })
                 .collect(),
         }

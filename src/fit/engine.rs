@@ -446,7 +446,7 @@ impl Engine {
                 }
             }
         }
-        let lines = super::lines::measure(s, &prep, self, &best);
+        let lines = super::lines::measure(s, &best);
         Ok(FitResult {
             object_id: s.meta.id.clone(),
             candidates: cands.into_iter().map(|(c, _, _)| c).collect(),

@@ -334,7 +334,7 @@ pub fn fit(e: &Engine, s: &Spectrum) -> Result<FitResult, FitError> {
     if s.meta.noise_estimated {
         warnings.set(Warnings::NOISE_ESTIMATED);
     }
-    let lines = super::lines::measure(s, &prep, e, &best);
+    let lines = super::lines::measure(s, &best);
     Ok(FitResult {
         object_id: s.meta.id.clone(),
         candidates: cands,
