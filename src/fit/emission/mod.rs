@@ -162,8 +162,9 @@ pub fn measure(s: &Spectrum, z: f64, class: ObjectClass) -> Vec<LineMeasurement>
         let Some((kin, fitted)) = fit_kinematics(&set, class) else {
             continue;
         };
-        for w in set {
-            out.extend(report(w, &kin, fitted, specs));
+        let extra = kinematic_variance(&set, &kin, fitted, class);
+        for (w, ex) in set.iter().zip(&extra) {
+            out.extend(report(w, &kin, fitted, specs, ex));
         }
     }
     out.sort_by_key(|(k, _)| *k);
@@ -297,6 +298,87 @@ fn fit_kinematics(wins: &[&Window], class: ObjectClass) -> Option<([Kin; 2], [bo
     Some((prof.kin(&p).0, free))
 }
 
+/// Where each kind's kinematics come from: its own parameters when fitted,
+/// the other kind's when it follows them (galaxies), none when fixed.
+fn kin_sources(fitted: [bool; 2], class: ObjectClass) -> [Option<usize>; 2] {
+    let mut src = [None; 2];
+    for i in 0..2 {
+        src[i] = if fitted[i] {
+            Some(i)
+        } else if fitted[1 - i] && class != ObjectClass::Quasar {
+            Some(1 - i)
+        } else {
+            None
+        };
+    }
+    src
+}
+
+/// Extra variance of each line column's flux from the uncertainty of the
+/// fitted kinematics (shared by the windows of `set`): the Schur complement
+/// of the linearised χ² Hessian, var += xᵀ S⁻¹ x with x = A⁻¹B's row and
+/// S = D − Σ Bᵀ A⁻¹ B over the fitted parameters. Without it the errors
+/// are those at fixed kinematics, too small for lines that set the width.
+fn kinematic_variance(
+    set: &[&Window],
+    kin: &[Kin; 2],
+    fitted: [bool; 2],
+    class: ObjectClass,
+) -> Vec<Vec<f64>> {
+    let zeros = || set.iter().map(|w| vec![0.0; w.cols.len()]).collect::<Vec<_>>();
+    let src = kin_sources(fitted, class);
+    let free: Vec<usize> = (0..4).filter(|&a| fitted[a / 2]).collect();
+    if free.is_empty() {
+        return zeros();
+    }
+    let nf = free.len();
+    let mut s = nalgebra::DMatrix::<f64>::zeros(nf, nf);
+    let mut xs = Vec::new();
+    for w in set {
+        let Some(sol) = w.solve(kin) else {
+            xs.push(None);
+            continue;
+        };
+        let (b, d) = w.kin_blocks(&sol, kin, src);
+        let x = w.inverse_times(&sol, &b);
+        let dim = sol.coef.len();
+        for (r, &a) in free.iter().enumerate() {
+            for (c, &e) in free.iter().enumerate() {
+                let btx: f64 = (0..dim).map(|p| b[p * 4 + a] * x[p * 4 + e]).sum();
+                s[(r, c)] += d[a * 4 + e] - btx;
+            }
+        }
+        xs.push(Some((x, w.m())));
+    }
+    let Some(sinv) = s.try_inverse() else {
+        return zeros();
+    };
+    set.iter()
+        .zip(xs)
+        .map(|(w, x)| {
+            let Some((x, m)) = x else {
+                return vec![0.0; w.cols.len()];
+            };
+            (0..w.cols.len())
+                .map(|j| {
+                    let row: Vec<f64> = free.iter().map(|&a| x[(m + j) * 4 + a]).collect();
+                    let mut v = 0.0;
+                    for r in 0..nf {
+                        for c in 0..nf {
+                            v += row[r] * sinv[(r, c)] * row[c];
+                        }
+                    }
+                    if v.is_finite() && v > 0.0 {
+                        v
+                    } else {
+                        0.0
+                    }
+                })
+                .collect()
+        })
+        .collect()
+}
+
 /// The measurements of one window at its final kinematics, keyed by their
 /// index in the measured list.
 fn report(
@@ -304,6 +386,7 @@ fn report(
     kin: &[Kin; 2],
     fitted: [bool; 2],
     specs: &[LineSpec],
+    extra: &[f64],
 ) -> Vec<(usize, LineMeasurement)> {
     let Some(sol) = w.solve(kin) else {
         return Vec::new();
@@ -311,7 +394,7 @@ fn report(
     let z = w.z();
     let mut out = Vec::new();
     for (j, col) in w.cols.iter().enumerate() {
-        let var = w.variance(&sol, j);
+        let var = w.variance(&sol, j) + extra.get(j).copied().unwrap_or(0.0);
         if !(var > 0.0 && var.is_finite()) {
             continue;
         }

@@ -266,6 +266,87 @@ impl Window {
         })
     }
 
+    /// Cross terms of the kinematic parameters with the linear ones at
+    /// `sol`: with θ = (v, ln σ) of each kind (4 values, kind-major) and
+    /// `src[kind]` the kind whose θ a kind's lines follow (`None`: fixed),
+    /// returns B = Σ w · column · ∂model/∂θ (`dim × 4`, row-major) and
+    /// D = Σ w · ∂model/∂θ ∂model/∂θ (4 × 4).
+    pub fn kin_blocks(
+        &self,
+        sol: &Solution,
+        kin: &[Kin; 2],
+        src: [Option<usize>; 2],
+    ) -> (Vec<f64>, [f64; 16]) {
+        let m = self.m();
+        let l = self.cols.len();
+        let dim = m + l;
+        let n = self.lam.len();
+        let mut b = vec![0.0; dim * 4];
+        let mut d = [0.0; 16];
+        let mut g = vec![0.0; l * n];
+        let mut dt = vec![0.0; 4 * n];
+        let (mut lo, mut hi) = (n, 0);
+        for (j, col) in self.cols.iter().enumerate() {
+            let k = kin[col.kind.index()];
+            let s = src[col.kind.index()];
+            let c = sol.coef[m + j];
+            for comp in &col.comps {
+                let (mu, sl) = self.centre_sigma(comp.rest, k);
+                let a = self.lam.partition_point(|&x| x < mu - 8.0 * sl);
+                let e = self.lam.partition_point(|&x| x <= mu + 8.0 * sl);
+                lo = lo.min(a);
+                hi = hi.max(e);
+                let norm = comp.weight / ((2.0 * std::f64::consts::PI).sqrt() * sl);
+                let dmu_dv = comp.rest * (1.0 + self.z) / C_KMS;
+                for i in a..e {
+                    let u = (self.lam[i] - mu) / sl;
+                    let gi = norm * (-0.5 * u * u).exp();
+                    g[j * n + i] += gi;
+                    if let Some(q) = s {
+                        dt[4 * i + 2 * q] += c * gi * u / sl * dmu_dv;
+                        dt[4 * i + 2 * q + 1] += c * gi * (u * u - 1.0);
+                    }
+                }
+            }
+        }
+        for i in lo..hi.max(lo) {
+            let t = &dt[4 * i..4 * i + 4];
+            if t.iter().all(|&x| x == 0.0) {
+                continue;
+            }
+            let wi = self.w[i];
+            let row = &self.base[i * m..(i + 1) * m];
+            for a in 0..4 {
+                for p in 0..m {
+                    b[p * 4 + a] += wi * row[p] * t[a];
+                }
+                for j in 0..l {
+                    b[(m + j) * 4 + a] += wi * g[j * n + i] * t[a];
+                }
+                for c in 0..4 {
+                    d[a * 4 + c] += wi * t[a] * t[c];
+                }
+            }
+        }
+        (b, d)
+    }
+
+    /// (AᵀWA)⁻¹ B for the active columns of `sol` (`dim × 4`, row-major).
+    pub fn inverse_times(&self, sol: &Solution, b: &[f64]) -> Vec<f64> {
+        let dim = sol.coef.len();
+        let mut x = vec![0.0; dim * 4];
+        for a in 0..4 {
+            let rhs: Vec<f64> = (0..dim)
+                .map(|p| if sol.active[p] { b[p * 4 + a] } else { 0.0 })
+                .collect();
+            let col = solve_normal(&sol.ata, &rhs, &sol.active);
+            for p in 0..dim {
+                x[p * 4 + a] = col[p];
+            }
+        }
+        x
+    }
+
     /// Variance of line column `j`'s coefficient in `sol`.
     pub fn variance(&self, sol: &Solution, j: usize) -> f64 {
         let dim = sol.coef.len();
