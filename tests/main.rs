@@ -1,6 +1,7 @@
 //! The integration tests: one binary, one module per area.
 mod support;
 
+mod emission;
 mod fit;
 mod fuzz;
 mod frames;

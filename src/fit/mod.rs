@@ -9,6 +9,7 @@ log(1+z), candidate minima, refinement, class decision and line measurement.
   holds the direct oracle with the same definition of χ².
 */
 mod config;
+pub mod emission;
 mod engine;
 mod fast;
 mod lines;
@@ -28,7 +29,7 @@ pub use crate::constants::C_KMS;
 pub use config::{FitConfig, FitError, Method};
 pub use engine::Engine;
 pub use fast::CorrPlan;
-pub use lines::measure_list as measure_emission_lines;
+pub use lines::measure_at as measure_emission_lines;
 pub use method::{
     mismatch_scale, velocity_sep_kms, AMBIGUOUS_DCHI2, CLASS_CLOSE_DCHI2, FEW_PIXELS, POOR_FIT_CHI2R,
     STAR_VMAX_KMS,

@@ -106,15 +106,38 @@ pub struct LineMeasurement {
     pub ew_rest: f64,
     /// flux / flux_err.
     pub snr: f64,
-    /// Offset and width were fitted; `false` for an undetected line, whose
-    /// flux is forced at the rest centre and the start width (see
-    /// [`measure_list`](super::lines::measure_list)).
+    /// Offset and width were fitted; `false` when no line of its kind was
+    /// detected and they were fixed (see [`crate::fit::emission`]).
     #[serde(default = "width_fitted_default")]
     pub width_fitted: bool,
+    /// Continuum under the line centre (flux unit; stellar absorption included).
+    #[serde(default = "nan_default")]
+    pub continuum: f64,
+    /// Balmer lines: rest-frame equivalent width (Å, positive for absorption)
+    /// of the stellar absorption under the line, where measured.
+    #[serde(default)]
+    pub abs_ew_rest: Option<f64>,
+}
+
+impl LineMeasurement {
+    /// Detected: S/N at or above [`crate::fit::emission::DETECT_SNR`].
+    pub fn detected(&self) -> bool {
+        self.snr >= crate::fit::emission::DETECT_SNR
+    }
+
+    /// 3σ upper limit on the flux (3 × `flux_err`, common practice) of a
+    /// line that is not detected; `None` for a detected line.
+    pub fn upper_limit(&self) -> Option<f64> {
+        (!self.detected() && self.flux_err.is_finite()).then_some(3.0 * self.flux_err)
+    }
 }
 
 fn width_fitted_default() -> bool {
     true
+}
+
+fn nan_default() -> f64 {
+    f64::NAN
 }
 
 /// The best solution of one class for one spectrum: how close that class

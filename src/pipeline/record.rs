@@ -502,6 +502,8 @@ mod tests {
                 ew_rest: 20.0,
                 snr: 8.0,
                 width_fitted: true,
+                continuum: 1.5,
+                abs_ew_rest: None,
             }],
             per_class: vec![],
         }

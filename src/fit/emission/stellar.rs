@@ -1,0 +1,70 @@
+/*!
+The stellar absorption basis under the emission lines: the three stellar
+populations of the built-in galaxy templates **without** their nebular lines
+(passive, post-starburst and young, made by our own generator in
+[`crate::templates::galaxies`]) and two single hot-star populations (A and
+late-B stars). Their Balmer absorption ranges from weak
+(passive) to strong (A-star dominated), so a non-negative combination plus a
+low-order polynomial reproduces the absorption trough under each Balmer
+emission line.
+*/
+use crate::templates::galaxies;
+use crate::templates::profiles::Grid;
+use std::sync::OnceLock;
+
+/// Rest-frame grid of the basis (the built-in galaxy grid, 891–12023 Å).
+const GRID: (f64, f64, f64) = (2.95, 4.08, 1e-4);
+
+/// The basis: log10 λ of the first pixel, step, and one flux array per population.
+pub struct Basis {
+    grid: Grid,
+    /// Flux of each population on the grid (normalised at 5400–5600 Å).
+    pub flux: Vec<Vec<f64>>,
+}
+
+impl Basis {
+    /// Number of populations.
+    pub fn len(&self) -> usize {
+        self.flux.len()
+    }
+
+    /// Rest wavelength range covered (Å).
+    pub fn range(&self) -> (f64, f64) {
+        (self.grid.wave(0.0), self.grid.wave((self.grid.n - 1) as f64))
+    }
+
+    /// Values of every population at rest wavelength `lam` (linear
+    /// interpolation in log λ) into `out`; `false` outside the grid.
+    pub fn at(&self, lam: f64, out: &mut [f64]) -> bool {
+        let x = self.grid.pixel(lam);
+        if !(x >= 0.0 && x <= (self.grid.n - 1) as f64) {
+            return false;
+        }
+        let i = (x.floor() as usize).min(self.grid.n - 2);
+        let t = x - i as f64;
+        for (o, f) in out.iter_mut().zip(&self.flux) {
+            *o = f[i] * (1.0 - t) + f[i + 1] * t;
+        }
+        true
+    }
+}
+
+/// The shared basis (generated once).
+pub fn basis() -> &'static Basis {
+    static B: OnceLock<Basis> = OnceLock::new();
+    B.get_or_init(|| {
+        let grid = Grid::new(GRID.0, GRID.1, GRID.2);
+        Basis {
+            grid,
+            flux: vec![
+                galaxies::old(&grid),
+                galaxies::intermediate(&grid),
+                galaxies::young_continuum(&grid),
+                // single hot-star populations at the young population's
+                // dispersion: the deepest and the broadest Balmer troughs
+                galaxies::population(&grid, &[("star-A", 1.0)], galaxies::YOUNG_SIGMA_KMS),
+                galaxies::population(&grid, &[("star-B8", 1.0)], galaxies::YOUNG_SIGMA_KMS),
+            ],
+        }
+    })
+}

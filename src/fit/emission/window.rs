@@ -1,0 +1,381 @@
+/*!
+One fitting window: the good pixels around a group of lines that share
+pixels, the continuum columns (stellar populations at the redshift and
+Legendre polynomials, fixed whatever the line kinematics) and one Gaussian
+column per free line (a tied line adds into its parent's column with its
+fixed ratio). At fixed kinematics the model is linear; the continuum block
+of the normal equations is computed once, the line columns at each call.
+*/
+// Index loops mirror the sums of the normal equations term by term.
+#![allow(clippy::needless_range_loop)]
+use super::stellar::Basis;
+use super::table::LineKind;
+use crate::fit::prep::{solve_normal, MAX_COLUMNS};
+use crate::fit::C_KMS;
+
+/// Velocity offset and Gaussian σ (both km/s) of one kind.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Kin {
+    /// Offset from the redshift (km/s).
+    pub v: f64,
+    /// Observed Gaussian σ (km/s).
+    pub sigma: f64,
+}
+
+/// One Gaussian of a column.
+#[derive(Debug, Clone, Copy)]
+pub struct Comp {
+    /// Rest vacuum wavelength (Å).
+    pub rest: f64,
+    /// Flux of this component per unit of the column's coefficient.
+    pub weight: f64,
+}
+
+/// One linear line column (a free line and the lines tied to it).
+#[derive(Debug, Clone)]
+pub struct Column {
+    /// Kinematic kind.
+    pub kind: LineKind,
+    /// Components, the free line first.
+    pub comps: Vec<Comp>,
+    /// Index of each component's line in the measured list.
+    pub lines: Vec<usize>,
+}
+
+/// The pixels and continuum columns of one window.
+pub struct Window {
+    z: f64,
+    lam: Vec<f64>,
+    f: Vec<f64>,
+    w: Vec<f64>,
+    /// Continuum design rows, `n × m` row-major.
+    base: Vec<f64>,
+    nt: usize,
+    np: usize,
+    /// Broad Gaussians (observed centre, σ in Å) of the stellar Balmer
+    /// troughs, continuum columns after the polynomial.
+    broad: Vec<(f64, f64)>,
+    base_ata: Vec<f64>,
+    base_atb: Vec<f64>,
+    fww: f64,
+    lam_mid: f64,
+    half: f64,
+    /// Line columns.
+    pub cols: Vec<Column>,
+    basis: Option<&'static Basis>,
+}
+
+/// A linear solution at given kinematics.
+pub struct Solution {
+    /// χ² of the window.
+    pub chi2: f64,
+    /// Coefficients: continuum columns, then line columns (fluxes).
+    pub coef: Vec<f64>,
+    active: Vec<bool>,
+    ata: Vec<f64>,
+}
+
+fn legendre_into(x: f64, out: &mut [f64]) {
+    let mut p0 = 1.0;
+    let mut p1 = x;
+    for (q, o) in out.iter_mut().enumerate() {
+        *o = match q {
+            0 => 1.0,
+            1 => x,
+            _ => {
+                let k = q as f64;
+                let p2 = ((2.0 * k - 1.0) * x * p1 - (k - 1.0) * p0) / k;
+                p0 = p1;
+                p1 = p2;
+                p2
+            }
+        };
+    }
+}
+
+impl Window {
+    /// A window over observed `[lo, hi]` Å at redshift `z`; `None` when too
+    /// few good pixels remain for its columns or the basis does not cover.
+    #[allow(clippy::too_many_arguments)]
+    pub fn new(
+        wave: &[f64],
+        flux: &[f64],
+        ivar: &[f64],
+        good: &[bool],
+        z: f64,
+        (lo, hi): (f64, f64),
+        np: usize,
+        basis: Option<&'static Basis>,
+        broad: Vec<(f64, f64)>,
+        cols: Vec<Column>,
+    ) -> Option<Window> {
+        let nt = basis.map_or(0, |b| b.len());
+        let m = nt + np + broad.len();
+        if m + cols.len() > MAX_COLUMNS || cols.is_empty() {
+            return None;
+        }
+        if let Some(b) = basis {
+            let (r0, r1) = b.range();
+            if lo / (1.0 + z) < r0 || hi / (1.0 + z) > r1 {
+                return None;
+            }
+        }
+        let a = wave.partition_point(|&l| l < lo);
+        let b = wave.partition_point(|&l| l <= hi);
+        let idx: Vec<usize> = (a..b)
+            .filter(|&i| good[i] && ivar[i] > 0.0 && ivar[i].is_finite() && flux[i].is_finite())
+            .collect();
+        if idx.len() < m + cols.len() + 5 {
+            return None;
+        }
+        let mut win = Window {
+            z,
+            lam: idx.iter().map(|&i| wave[i]).collect(),
+            f: idx.iter().map(|&i| flux[i]).collect(),
+            w: idx.iter().map(|&i| ivar[i]).collect(),
+            base: vec![0.0; idx.len() * m],
+            nt,
+            np,
+            broad,
+            base_ata: vec![0.0; m * m],
+            base_atb: vec![0.0; m],
+            fww: 0.0,
+            lam_mid: 0.5 * (lo + hi),
+            half: 0.5 * (hi - lo),
+            cols,
+            basis,
+        };
+        let mut row = vec![0.0; m];
+        for i in 0..win.lam.len() {
+            if !win.base_row(win.lam[i], &mut row) {
+                return None;
+            }
+            win.base[i * m..(i + 1) * m].copy_from_slice(&row);
+            let (wi, fi) = (win.w[i], win.f[i]);
+            win.fww += wi * fi * fi;
+            for p in 0..m {
+                win.base_atb[p] += wi * row[p] * fi;
+                for q in 0..m {
+                    win.base_ata[p * m + q] += wi * row[p] * row[q];
+                }
+            }
+        }
+        win.fww.is_finite().then_some(win)
+    }
+
+    /// Continuum design row at observed `lam`.
+    fn base_row(&self, lam: f64, row: &mut [f64]) -> bool {
+        if let Some(b) = self.basis {
+            if !b.at(lam / (1.0 + self.z), &mut row[..self.nt]) {
+                return false;
+            }
+        }
+        legendre_into(
+            (lam - self.lam_mid) / self.half,
+            &mut row[self.nt..self.nt + self.np],
+        );
+        for (k, &(c, s)) in self.broad.iter().enumerate() {
+            let u = (lam - c) / s;
+            row[self.nt + self.np + k] = if u.abs() < 8.0 { (-0.5 * u * u).exp() } else { 0.0 };
+        }
+        true
+    }
+
+    /// Continuum columns.
+    pub fn m(&self) -> usize {
+        self.nt + self.np + self.broad.len()
+    }
+
+    /// Observed centre and σ (Å) of a component at kinematics `k`.
+    pub fn centre_sigma(&self, rest: f64, k: Kin) -> (f64, f64) {
+        let mu = rest * (1.0 + self.z) * (1.0 + k.v / C_KMS);
+        (mu, mu * k.sigma / C_KMS)
+    }
+
+    /// The weighted least-squares solution at kinematics `kin` (indexed by
+    /// [`LineKind::index`]), with non-negative stellar amplitudes (a
+    /// negative population would turn absorption into false emission: the
+    /// most negative is dropped and the fit repeated).
+    pub fn solve(&self, kin: &[Kin; 2]) -> Option<Solution> {
+        let m = self.m();
+        let l = self.cols.len();
+        let dim = m + l;
+        let n = self.lam.len();
+        let mut ata = vec![0.0; dim * dim];
+        let mut atb = vec![0.0; dim];
+        for p in 0..m {
+            atb[p] = self.base_atb[p];
+            ata[p * dim..p * dim + m].copy_from_slice(&self.base_ata[p * m..(p + 1) * m]);
+        }
+        // line columns on the pixels they reach (8σ)
+        let mut g = vec![0.0; l * n];
+        let mut span = vec![(n, 0usize); l];
+        for (j, col) in self.cols.iter().enumerate() {
+            let k = kin[col.kind.index()];
+            for c in &col.comps {
+                let (mu, sl) = self.centre_sigma(c.rest, k);
+                if !(sl > 0.0 && sl.is_finite()) {
+                    return None;
+                }
+                let a = self.lam.partition_point(|&x| x < mu - 8.0 * sl);
+                let b = self.lam.partition_point(|&x| x <= mu + 8.0 * sl);
+                let norm = c.weight / ((2.0 * std::f64::consts::PI).sqrt() * sl);
+                for i in a..b {
+                    let u = (self.lam[i] - mu) / sl;
+                    g[j * n + i] += norm * (-0.5 * u * u).exp();
+                }
+                span[j] = (span[j].0.min(a), span[j].1.max(b));
+            }
+        }
+        for j in 0..l {
+            let (a, b) = span[j];
+            for i in a..b.max(a) {
+                let wg = self.w[i] * g[j * n + i];
+                if wg == 0.0 {
+                    continue;
+                }
+                atb[m + j] += wg * self.f[i];
+                let row = &self.base[i * m..(i + 1) * m];
+                for p in 0..m {
+                    ata[(m + j) * dim + p] += wg * row[p];
+                }
+                for j2 in 0..l {
+                    ata[(m + j) * dim + m + j2] += wg * g[j2 * n + i];
+                }
+            }
+            for p in 0..m {
+                ata[p * dim + m + j] = ata[(m + j) * dim + p];
+            }
+        }
+        let mut active = vec![true; dim];
+        let mut coef = solve_normal(&ata, &atb, &active);
+        for _ in 0..self.nt {
+            let worst = (0..self.nt)
+                .filter(|&p| active[p] && coef[p] < 0.0)
+                .min_by(|&a, &b| coef[a].total_cmp(&coef[b]));
+            let Some(p) = worst else { break };
+            active[p] = false;
+            coef = solve_normal(&ata, &atb, &active);
+        }
+        let chi2 = self.fww - coef.iter().zip(&atb).map(|(c, b)| c * b).sum::<f64>();
+        (chi2.is_finite() && coef.iter().all(|c| c.is_finite())).then_some(Solution {
+            chi2,
+            coef,
+            active,
+            ata,
+        })
+    }
+
+    /// Cross terms of the kinematic parameters with the linear ones at
+    /// `sol`: with θ = (v, ln σ) of each kind (4 values, kind-major) and
+    /// `src[kind]` the kind whose θ a kind's lines follow (`None`: fixed),
+    /// returns B = Σ w · column · ∂model/∂θ (`dim × 4`, row-major) and
+    /// D = Σ w · ∂model/∂θ ∂model/∂θ (4 × 4).
+    pub fn kin_blocks(
+        &self,
+        sol: &Solution,
+        kin: &[Kin; 2],
+        src: [Option<usize>; 2],
+    ) -> (Vec<f64>, [f64; 16]) {
+        let m = self.m();
+        let l = self.cols.len();
+        let dim = m + l;
+        let n = self.lam.len();
+        let mut b = vec![0.0; dim * 4];
+        let mut d = [0.0; 16];
+        let mut g = vec![0.0; l * n];
+        let mut dt = vec![0.0; 4 * n];
+        let (mut lo, mut hi) = (n, 0);
+        for (j, col) in self.cols.iter().enumerate() {
+            let k = kin[col.kind.index()];
+            let s = src[col.kind.index()];
+            let c = sol.coef[m + j];
+            for comp in &col.comps {
+                let (mu, sl) = self.centre_sigma(comp.rest, k);
+                let a = self.lam.partition_point(|&x| x < mu - 8.0 * sl);
+                let e = self.lam.partition_point(|&x| x <= mu + 8.0 * sl);
+                lo = lo.min(a);
+                hi = hi.max(e);
+                let norm = comp.weight / ((2.0 * std::f64::consts::PI).sqrt() * sl);
+                let dmu_dv = comp.rest * (1.0 + self.z) / C_KMS;
+                for i in a..e {
+                    let u = (self.lam[i] - mu) / sl;
+                    let gi = norm * (-0.5 * u * u).exp();
+                    g[j * n + i] += gi;
+                    if let Some(q) = s {
+                        dt[4 * i + 2 * q] += c * gi * u / sl * dmu_dv;
+                        dt[4 * i + 2 * q + 1] += c * gi * (u * u - 1.0);
+                    }
+                }
+            }
+        }
+        for i in lo..hi.max(lo) {
+            let t = &dt[4 * i..4 * i + 4];
+            if t.iter().all(|&x| x == 0.0) {
+                continue;
+            }
+            let wi = self.w[i];
+            let row = &self.base[i * m..(i + 1) * m];
+            for a in 0..4 {
+                for p in 0..m {
+                    b[p * 4 + a] += wi * row[p] * t[a];
+                }
+                for j in 0..l {
+                    b[(m + j) * 4 + a] += wi * g[j * n + i] * t[a];
+                }
+                for c in 0..4 {
+                    d[a * 4 + c] += wi * t[a] * t[c];
+                }
+            }
+        }
+        (b, d)
+    }
+
+    /// (AᵀWA)⁻¹ B for the active columns of `sol` (`dim × 4`, row-major).
+    pub fn inverse_times(&self, sol: &Solution, b: &[f64]) -> Vec<f64> {
+        let dim = sol.coef.len();
+        let mut x = vec![0.0; dim * 4];
+        for a in 0..4 {
+            let rhs: Vec<f64> = (0..dim)
+                .map(|p| if sol.active[p] { b[p * 4 + a] } else { 0.0 })
+                .collect();
+            let col = solve_normal(&sol.ata, &rhs, &sol.active);
+            for p in 0..dim {
+                x[p * 4 + a] = col[p];
+            }
+        }
+        x
+    }
+
+    /// Variance of line column `j`'s coefficient in `sol`.
+    pub fn variance(&self, sol: &Solution, j: usize) -> f64 {
+        let dim = sol.coef.len();
+        let mut e = vec![0.0; dim];
+        e[self.m() + j] = 1.0;
+        solve_normal(&sol.ata, &e, &sol.active)[self.m() + j]
+    }
+
+    /// The continuum model (stellar populations + polynomial) at observed `lam`.
+    pub fn continuum(&self, sol: &Solution, lam: f64) -> f64 {
+        let mut row = vec![0.0; self.m()];
+        if !self.base_row(lam, &mut row) {
+            return f64::NAN;
+        }
+        row.iter().zip(&sol.coef).map(|(r, c)| r * c).sum()
+    }
+
+    /// Whether observed `[a, b]` lies inside the window.
+    pub fn covers(&self, a: f64, b: f64) -> bool {
+        a >= self.lam_mid - self.half && b <= self.lam_mid + self.half
+    }
+
+    /// Whether the window has a stellar basis.
+    pub fn has_stars(&self) -> bool {
+        self.basis.is_some()
+    }
+
+    /// Redshift.
+    pub fn z(&self) -> f64 {
+        self.z
+    }
+}
