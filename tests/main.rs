@@ -10,3 +10,4 @@ mod records;
 mod review;
 mod smoke;
 mod templates;
+mod train;
