@@ -560,7 +560,7 @@ pub fn empca_clipped(
         };
         let dev: Vec<f64> = kept_red.iter().map(|r| (r - med).abs()).collect();
         let sigma = 1.4826 * median(&dev).unwrap_or(0.0);
-        if !(sigma > 0.0) {
+        if sigma.is_nan() || sigma <= 0.0 {
             return Ok((pca, kept));
         }
         let cut = (med + clip.kappa * sigma).max(clip.min_ratio * med);
