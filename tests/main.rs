@@ -20,3 +20,4 @@ mod smoke;
 mod stars;
 mod templates;
 mod tools;
+mod train;

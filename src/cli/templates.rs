@@ -1,8 +1,13 @@
 /*!
-`zvet templates`: write the built-in template set to FITS (`build`) and show
-what a template set holds (`list`).
+`zvet templates`: write the built-in template set to FITS (`build`), show
+what a template set holds (`list`), and train a set from vetted spectra
+(`train`, see [`crate::templates::train`]).
 */
+use super::read_opts::ReadArgs;
+use crate::review::{Confidence, Flag};
+use crate::templates::train::{self, Selection, StarMode, TrainOptions};
 use crate::templates::{self, TemplateSet};
+use crate::ObjectClass;
 use anyhow::Context;
 use clap::Subcommand;
 use std::io::Write;
@@ -31,6 +36,156 @@ pub enum Action {
         /// Template set file or folder.
         path: Option<PathBuf>,
     },
+    /// Train a template set from vetted spectra: a campaign folder (its merged
+    /// verdicts) or a CSV table with columns path, class, z [, id, type].
+    Train(TrainArgs),
+}
+
+/// Arguments of `zvet templates train`.
+#[derive(Debug, clap::Args)]
+pub struct TrainArgs {
+    /// A campaign folder, or a CSV table of spectra with class and z.
+    pub source: PathBuf,
+    /// Output folder of the new template set.
+    #[arg(long)]
+    pub out: PathBuf,
+    /// Train only these classes (comma-separated; default: every class vetted).
+    #[arg(long, value_delimiter = ',')]
+    pub class: Vec<ObjectClass>,
+    /// Eigen-spectra per class (1–16).
+    #[arg(long, default_value_t = 4)]
+    pub components: usize,
+    /// Lowest verdict certainty trained on (doubtful, tentative, solid, certain).
+    #[arg(long, value_name = "LEVEL", value_parser = parse_certainty, default_value = "solid")]
+    pub min_certainty: Confidence,
+    /// Also train on objects that carry an inspector's flag.
+    #[arg(long)]
+    pub keep_flagged: bool,
+    /// Stars: one template per type (`per-type`) or an eigen-basis (`basis`).
+    #[arg(long, value_parser = parse_star_mode, default_value = "per-type")]
+    pub stars: StarMode,
+    /// Name of the set (file names NAME.fits and NAME.json).
+    #[arg(long, default_value = "trained")]
+    pub name: String,
+    /// Step of the template grid in log10 λ.
+    #[arg(long, default_value_t = 1e-4)]
+    pub dloglam: f64,
+    /// Outlier rejection: set aside spectra whose reduced χ² exceeds the median by KAPPA robust σ (0 = none).
+    #[arg(long, value_name = "KAPPA", default_value_t = 3.0)]
+    pub clip: f64,
+    /// Write only the trained classes (default: classes not trained come from the built-in set).
+    #[arg(long)]
+    pub trained_only: bool,
+    /// How to read the spectrum files of a table (a campaign uses its own settings).
+    #[command(flatten)]
+    pub read: ReadArgs,
+}
+
+fn parse_certainty(s: &str) -> Result<Confidence, String> {
+    let all: Vec<&str> = Confidence::ALL.iter().map(|c| c.as_str()).collect();
+    serde_json::from_str(&format!("\"{}\"", s.trim().to_ascii_lowercase()))
+        .map_err(|_| format!("unknown certainty '{s}' (expected one of: {})", all.join(", ")))
+}
+
+fn parse_star_mode(s: &str) -> Result<StarMode, String> {
+    match s.trim().to_ascii_lowercase().as_str() {
+        "per-type" | "per_type" | "type" => Ok(StarMode::PerType),
+        "basis" => Ok(StarMode::Basis),
+        o => Err(format!("unknown star mode '{o}' (expected per-type or basis)")),
+    }
+}
+
+/// Run `zvet templates train`.
+fn run_train(a: TrainArgs) -> anyhow::Result<ExitCode> {
+    let sel = Selection {
+        classes: a.class.clone(),
+        min_certainty: a.min_certainty,
+        exclude_flags: if a.keep_flagged {
+            vec![]
+        } else {
+            Flag::ALL.to_vec()
+        },
+    };
+    let (spectra, problems, source) = if a.source.is_dir() {
+        let c = crate::campaign::Campaign::open(&a.source)?;
+        let (s, p) = train::from_campaign(&c, &sel)?;
+        let src = format!(
+            "the vetted verdicts of campaign '{}' (certainty >= {}{})",
+            c.manifest().name,
+            a.min_certainty.as_str(),
+            if a.keep_flagged { "" } else { ", unflagged" }
+        );
+        (s, p, src)
+    } else {
+        let (s, p) = train::from_table(&a.source, &a.read.to_options(), &sel)?;
+        let name = a
+            .source
+            .file_name()
+            .map_or(String::new(), |n| n.to_string_lossy().into_owned());
+        (s, p, format!("the table {name}"))
+    };
+    for p in &problems {
+        eprintln!("zvet: warning: {p}");
+    }
+    let opts = TrainOptions {
+        name: a.name.clone(),
+        components: a.components,
+        dloglam: a.dloglam,
+        star_mode: a.stars,
+        clip: templates::pca::ClipOptions {
+            kappa: a.clip,
+            ..Default::default()
+        },
+        fill_from_builtin: !a.trained_only,
+        source,
+        ..TrainOptions::default()
+    };
+    let t = train::train(&spectra, &opts)?;
+    for p in &t.problems {
+        eprintln!("zvet: warning: {p}");
+    }
+    train::write_trained(&t, &a.out)
+        .with_context(|| format!("writing the trained set to {}", a.out.display()))?;
+    let mut out = std::io::stdout().lock();
+    writeln!(
+        out,
+        "trained on {} of {} vetted spectra",
+        t.provenance.spectra_used, t.provenance.spectra_in
+    )?;
+    writeln!(
+        out,
+        "  {:<8} {:<16} {:>5} {:>8} {:>5} {:>15} {:>17}",
+        "class", "group", "used", "rejected", "K", "power explained", "rest λ (Å)"
+    )?;
+    for g in &t.provenance.groups {
+        writeln!(
+            out,
+            "  {:<8} {:<16} {:>5} {:>8} {:>5} {:>15} {:>8.0}–{:<8.0}",
+            g.class.as_str(),
+            g.group.as_deref().unwrap_or("-"),
+            g.spectra_used,
+            g.rejected.len(),
+            g.components,
+            g.power_explained
+                .iter()
+                .map(|v| format!("{v:.4}"))
+                .collect::<Vec<_>>()
+                .join(" "),
+            g.rest_range.0,
+            g.rest_range.1
+        )?;
+    }
+    if !t.provenance.from_builtin.is_empty() {
+        let names: Vec<&str> = t.provenance.from_builtin.iter().map(|c| c.as_str()).collect();
+        writeln!(out, "built-in templates kept for: {}", names.join(", "))?;
+    }
+    writeln!(
+        out,
+        "wrote {} and {}",
+        a.out.join(format!("{}.fits", t.set.name)).display(),
+        a.out.join(format!("{}.json", t.set.name)).display()
+    )?;
+    Ok(ExitCode::SUCCESS)
 }
 
 /// Run `zvet templates`.
@@ -70,6 +225,7 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
             }
             Ok(ExitCode::SUCCESS)
         }
+        Action::Train(a) => run_train(a),
     }
 }
 

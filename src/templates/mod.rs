@@ -13,11 +13,13 @@ use serde::{Deserialize, Serialize};
 mod builtin;
 mod fits_io;
 pub mod galaxies;
+pub mod pca;
 pub mod profiles;
 pub mod quasars;
 pub mod stars;
 pub mod stars_cool;
 pub mod stars_hot;
+pub mod train;
 
 pub use builtin::{builtin, generate as generate_builtin, write_builtin, DEFAULT_DIR};
 pub use fits_io::{
