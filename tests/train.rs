@@ -365,9 +365,9 @@ fn demo_campaign_round_trip() {
             let class = t.class.map_or(VerdictClass::Unclear, VerdictClass::from);
             let confidence = if k % 10 == 3 {
                 tentative.push(t.id.clone());
-                Confidence::Tentative
+                Confidence::Probable
             } else {
-                Confidence::Certain
+                Confidence::Secure
             };
             let change = Change::Verdict {
                 class,
@@ -412,7 +412,7 @@ fn demo_campaign_round_trip() {
     assert_eq!(set.class(ObjectClass::Star).unwrap().mode, FitMode::EachAlone);
     let d = templates::read_descriptor(&out.join("trained.json")).unwrap();
     let gen = d.generator.unwrap();
-    assert!(gen["source"].as_str().unwrap().contains("certainty >= solid"));
+    assert!(gen["source"].as_str().unwrap().contains("certainty >= secure"));
     assert_eq!(gen["from_builtin"], serde_json::json!(["quasar"]));
 
     // A campaign that fits with the trained set.

@@ -55,8 +55,9 @@ pub struct TrainArgs {
     /// Eigen-spectra per class (1–16).
     #[arg(long, default_value_t = 4)]
     pub components: usize,
-    /// Lowest verdict certainty trained on (doubtful, tentative, solid, certain).
-    #[arg(long, value_name = "LEVEL", value_parser = parse_certainty, default_value = "solid")]
+    /// Lowest verdict certainty trained on (guess, probable, secure; the
+    /// older words doubtful, tentative, solid and certain are read too).
+    #[arg(long, value_name = "LEVEL", value_parser = parse_certainty, default_value = "secure")]
     pub min_certainty: Confidence,
     /// Also train on objects that carry an inspector's flag.
     #[arg(long)]

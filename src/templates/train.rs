@@ -803,7 +803,7 @@ pub fn write_trained(t: &Trained, dir: &Path) -> Result<(), TemplateError> {
 // Sources: a campaign's vetted verdicts, or a table.
 
 /// The confidence level below which verdicts are not trained on by default.
-pub const DEFAULT_MIN_CERTAINTY: Confidence = Confidence::Solid;
+pub const DEFAULT_MIN_CERTAINTY: Confidence = Confidence::Secure;
 
 /// Whether a verdict's certainty is good enough to train on: the one place
 /// that maps the review scale onto the training filter.
@@ -1082,10 +1082,11 @@ mod tests {
 
     #[test]
     fn certainty_filter_orders_the_scale() {
-        assert!(meets_certainty(Some(Confidence::Certain), Confidence::Solid));
-        assert!(meets_certainty(Some(Confidence::Solid), Confidence::Solid));
-        assert!(!meets_certainty(Some(Confidence::Tentative), Confidence::Solid));
-        assert!(!meets_certainty(None, Confidence::Doubtful));
+        assert!(meets_certainty(Some(Confidence::Secure), Confidence::Secure));
+        assert!(meets_certainty(Some(Confidence::Secure), Confidence::Probable));
+        assert!(!meets_certainty(Some(Confidence::Probable), Confidence::Secure));
+        assert!(!meets_certainty(Some(Confidence::Guess), Confidence::Probable));
+        assert!(!meets_certainty(None, Confidence::Guess));
     }
 
     #[test]
