@@ -315,7 +315,7 @@ pub fn read_csv(path: &Path, map: &ColumnMap) -> Result<Vec<CatalogRow>, Catalog
     // A UTF-8 byte-order mark (spreadsheet exports) is not part of the first name.
     let bytes = bytes.strip_prefix("\u{feff}".as_bytes()).unwrap_or(&bytes);
     // Tab-separated when the first non-comment line has tabs and no commas.
-    let first = String::from_utf8_lossy(&bytes)
+    let first = String::from_utf8_lossy(bytes)
         .lines()
         .find(|l| !l.trim().is_empty() && !l.trim_start().starts_with('#'))
         .unwrap_or_default()
@@ -438,7 +438,7 @@ pub fn read_csv(path: &Path, map: &ColumnMap) -> Result<Vec<CatalogRow>, Catalog
         let within = |col: Option<usize>, lo: f64, hi: f64, hi_open: bool, range: &'static str| {
             let v = num(col)?;
             match v {
-                Some(x) if x < lo || x > hi || (hi_open && x == hi) => Err(CatalogError::OutOfRange {
+                Some(x) if x < lo || x > hi || (hi_open && x >= hi) => Err(CatalogError::OutOfRange {
                     path: path.to_path_buf(),
                     line,
                     column: header[col.unwrap_or(0)].clone(),

@@ -71,10 +71,10 @@ pub fn ab_to_flambda(m: f64, wave: f64) -> f64 {
 }
 
 /// What one f_λ unit of a spectrum is worth in erg s⁻¹ cm⁻² Å⁻¹, read from
-/// its unit string: a scale (`1e-17`, `10^-17`, `10**-17`, `1E-17`, none =
-/// 1) then erg/s/cm²/Å written in any of the usual ways (`erg/s/cm2/Angstrom`,
-/// `erg s-1 cm-2 A-1`, `erg/(s cm^2 Å)`, …), or W m⁻² nm⁻¹ / W m⁻² µm⁻¹ /
-/// W m⁻² m⁻¹ (SI). `None` for anything else (f_ν units, counts, no unit):
+/// its unit string: a scale (`1e-17`, `10^-17`, `10**-17`, `1E-17`; none
+/// means 1) then erg/s/cm²/Å written in any of the usual ways
+/// (`erg/s/cm2/Angstrom`, `erg s-1 cm-2 A-1`, `erg/(s cm^2 Å)`, …), or
+/// W m⁻² nm⁻¹, W m⁻² µm⁻¹, W m⁻² m⁻¹ (SI). `None` for anything else (f_ν units, counts, no unit):
 /// then photometry cannot be put on the spectrum's scale.
 pub fn flambda_unit_scale(unit: &str) -> Option<f64> {
     let t = unit.trim();

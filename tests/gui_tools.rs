@@ -313,8 +313,12 @@ fn two_inspectors(folder: &Path, ids: &[String]) {
         opinion(VerdictClass::Quasar, 2.0, Confidence::Secure),
     )
     .unwrap();
-    ana.record(&ids[2], None, opinion(VerdictClass::Star, 0.0, Confidence::Secure))
-        .unwrap();
+    ana.record(
+        &ids[2],
+        None,
+        opinion(VerdictClass::Star, 0.0, Confidence::Secure),
+    )
+    .unwrap();
     let (mut ben, _) = ReviewLog::open(&folder.join("ben.jsonl"), "ben").unwrap();
     ben.record(
         &ids[0],
@@ -338,8 +342,12 @@ fn two_inspectors(folder: &Path, ids: &[String]) {
         opinion(VerdictClass::Quasar, 2.02, Confidence::Secure),
     )
     .unwrap();
-    ben.record(&ids[2], None, opinion(VerdictClass::Star, 0.0, Confidence::Secure))
-        .unwrap();
+    ben.record(
+        &ids[2],
+        None,
+        opinion(VerdictClass::Star, 0.0, Confidence::Secure),
+    )
+    .unwrap();
 }
 
 #[test]

@@ -3,8 +3,8 @@ mod support;
 
 mod emission;
 mod fit;
-mod fuzz;
 mod frames;
+mod fuzz;
 #[cfg(feature = "gui")]
 mod gui;
 #[cfg(feature = "gui")]

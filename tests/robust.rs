@@ -5,8 +5,8 @@ a folder or a disk used to make zvet abort, lie or lose data.
 use crate::support::scratch;
 use std::path::{Path, PathBuf};
 use std::process::Command;
-use zvet::pipeline::{read_rows, write_records, FitRecord, FitRow, RowWriter, TableError};
 use zvet::io::{read_file, LoadError, ReadOptions};
+use zvet::pipeline::{read_rows, write_records, FitRecord, FitRow, RowWriter, TableError};
 
 // ---------------------------------------------------------------- helpers
 
@@ -365,7 +365,10 @@ fn resume_cuts_a_torn_csv_row_and_carries_on() {
     let back = read_rows(&out).unwrap();
     assert_eq!(back.len(), 5);
     let want = &rows(5)[4];
-    assert_eq!((&back[4].object_id, back[4].z, back[4].chi2), (&want.object_id, want.z, want.chi2));
+    assert_eq!(
+        (&back[4].object_id, back[4].z, back[4].chi2),
+        (&want.object_id, want.z, want.chi2)
+    );
 }
 
 // ------------------------------------------------------- 3. the readers

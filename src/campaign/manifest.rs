@@ -96,11 +96,9 @@ fn unknown_keys(given: &toml::Table, known: &toml::Table, prefix: &str, out: &mu
         };
         match (v, known.get(k)) {
             (_, None) => out.push(path),
-            (toml::Value::Table(g), Some(toml::Value::Table(kn))) => {
-                // Free-form maps (the catalogue's column mapping) take any key.
-                if path != "catalog.columns" {
-                    unknown_keys(g, kn, &path, out);
-                }
+            // Free-form maps (the catalogue's column mapping) take any key.
+            (toml::Value::Table(g), Some(toml::Value::Table(kn))) if path != "catalog.columns" => {
+                unknown_keys(g, kn, &path, out);
             }
             _ => {}
         }

@@ -24,6 +24,7 @@ pub struct Args {
 
 /// The `templates` actions.
 #[derive(Debug, Subcommand)]
+#[allow(clippy::large_enum_variant)] // parsed once per run: size does not matter
 pub enum Action {
     /// Generate the built-in templates and write them as FITS plus a JSON descriptor.
     Build {

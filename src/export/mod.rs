@@ -8,6 +8,7 @@ automatic fit and the merged verdict, with provenance. Written as
 - ECSV (astropy's Enhanced CSV, ECSV 1.0): units, types, descriptions and
   provenance in its YAML header;
 - a FITS binary table (provenance as header keywords, units in TUNITn).
+
 All are read back by this module (columns found by name, see [`COLUMNS`]).
 */
 mod columns;

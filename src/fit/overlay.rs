@@ -8,8 +8,8 @@ the data; nothing here touches a fit result or a verdict.
 */
 use super::config::FitError;
 use super::engine::Engine;
-use super::sums::{sums_fit, thresholds};
 use super::result::Candidate;
+use super::sums::{sums_fit, thresholds};
 use super::units::Unit;
 use crate::spectrum::Spectrum;
 use crate::ObjectClass;
@@ -148,7 +148,7 @@ mod tests {
     use rand::SeedableRng;
 
     fn engine() -> Engine {
-        Engine::new(&crate::templates::builtin(), FitConfig::default()).unwrap()
+        Engine::new(crate::templates::builtin(), FitConfig::default()).unwrap()
     }
 
     #[test]
@@ -175,7 +175,7 @@ mod tests {
             z: 0.0003,
             ..SimSpec::default()
         };
-        let (s, truth) = simulate(&set, &spec, &mut rng).expect("a simulated star");
+        let (s, truth) = simulate(set, &spec, &mut rng).expect("a simulated star");
         let fit = e.fit(&s).unwrap();
         let best = fit.best().unwrap();
         let t = e
@@ -215,7 +215,7 @@ mod tests {
         let e = engine();
         let set = crate::templates::builtin();
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(1);
-        let (s, _) = simulate(&set, &SimSpec::default(), &mut rng).unwrap();
+        let (s, _) = simulate(set, &SimSpec::default(), &mut rng).unwrap();
         let t = e.overlay_templates().remove(0);
         assert!(e.overlay(&s, &t, f64::NAN).is_err());
         assert!(e.overlay(&s, &t, -1.5).is_err());

@@ -514,7 +514,7 @@ fn plan(f: &mut FitsFile, opts: &ReadOptions) -> Result<Option<Plan>, LoadError>
             "per-row WCS in table columns {}, {}{} (axis {} in {} Å)",
             cv.name,
             st.name,
-            if crpix.iter().all(|&p| p == 1.0) {
+            if crpix.iter().all(|&p| (p - 1.0).abs() < 1e-12) {
                 ""
             } else {
                 ", CRPIX1"
@@ -585,6 +585,18 @@ fn usable_name(path: &Path) -> bool {
 
 fn open(path: &Path, opts: &ReadOptions) -> Result<Option<(FitsFile, Plan)>, LoadError> {
     if !usable_name(path) {
+        return Ok(None);
+    }
+    // Only a file whose checked layout holds a 2-D image can be a frame; any
+    // other file (or one whose declared sizes are wrong, or whose columns the
+    // FITS library cannot describe) goes to the ordinary reader, which says why.
+    let Ok(layout) = super::fits_scan::fits_layout(path) else {
+        return Ok(None);
+    };
+    let image_2d = layout.iter().any(|h| {
+        matches!(h.xtension.as_deref(), None | Some("IMAGE")) && h.naxis.len() == 2 && h.naxis[1] > 1
+    });
+    if !image_2d {
         return Ok(None);
     }
     guard(|| {

@@ -71,23 +71,24 @@ pub fn stream_timed(
             .map(|n| n.to_string_lossy().into_owned())
             .unwrap_or_else(|| source.clone());
         let stem = stem.split('.').next().unwrap_or(&stem).to_string();
-        let items: Box<dyn Iterator<Item = Item> + Send> = match crate::io::stream_file_timed(&path, &opts, done) {
-            Ok(it) => {
-                let (source, stem) = (source.clone(), stem.clone());
-                Box::new(it.map(move |r| {
-                    r.map_err(|e| ReadFailure {
-                        object_id: stem.clone(),
-                        source: source.clone(),
-                        message: e.to_string(),
-                    })
-                }))
-            }
-            Err(e) => Box::new(std::iter::once(Err(ReadFailure {
-                object_id: stem,
-                source,
-                message: e.to_string(),
-            }))),
-        };
+        let items: Box<dyn Iterator<Item = Item> + Send> =
+            match crate::io::stream_file_timed(&path, &opts, done) {
+                Ok(it) => {
+                    let (source, stem) = (source.clone(), stem.clone());
+                    Box::new(it.map(move |r| {
+                        r.map_err(|e| ReadFailure {
+                            object_id: stem.clone(),
+                            source: source.clone(),
+                            message: e.to_string(),
+                        })
+                    }))
+                }
+                Err(e) => Box::new(std::iter::once(Err(ReadFailure {
+                    object_id: stem,
+                    source,
+                    message: e.to_string(),
+                }))),
+            };
         items
     })
 }

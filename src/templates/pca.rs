@@ -16,6 +16,7 @@ alternates
   redshift) the one-at-a-time update crawls (tests: 400 iterations still
   left a simulated basis 4–8° off), the joint one does not; then the
   vectors are orthonormalised (Gram–Schmidt).
+
 After convergence the vectors are rotated within their span onto the
 principal axes of the coefficients (eigenvectors of Σ_n c_n c_nᵀ, largest
 first), so that they come in order of the power they carry.

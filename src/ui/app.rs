@@ -154,6 +154,7 @@ impl ZvetApp {
             sort: self.state.sort,
             filter: self.state.filter.clone(),
             smoothing: v.smoothing,
+            auto_smoothing: self.state.tools.auto_smoothing,
             rest_frame: v.rest_frame,
             show_model: v.show_model,
             show_sky: v.show_sky,
@@ -191,6 +192,7 @@ impl ZvetApp {
                 self.state.sort = r.sort;
                 self.state.filter = r.filter.clone();
                 self.state.view = r.view();
+                self.state.tools.auto_smoothing = r.auto_smoothing;
                 self.resume_target = r.object.clone();
                 Some(r)
             }

@@ -29,6 +29,10 @@ pub struct Resume {
     pub filter: Filter,
     /// Boxcar smoothing width (px).
     pub smoothing: usize,
+    /// The width follows each object's median S/N (automatic smoothing);
+    /// false once the inspector set it by hand. Files without it: automatic.
+    #[serde(default = "automatic")]
+    pub auto_smoothing: bool,
     /// Rest-frame axis.
     pub rest_frame: bool,
     /// Model drawn.
@@ -47,6 +51,10 @@ impl Resume {
             show_sky: self.show_sky,
         }
     }
+}
+
+fn automatic() -> bool {
+    true
 }
 
 /// The resume file that goes with the review log at `log`.
@@ -107,6 +115,7 @@ mod tests {
                 ..Default::default()
             },
             smoothing: 9,
+            auto_smoothing: false,
             rest_frame: true,
             show_model: false,
             show_sky: true,

@@ -28,6 +28,11 @@ impl Basis {
         self.flux.len()
     }
 
+    /// True when the basis holds no population.
+    pub fn is_empty(&self) -> bool {
+        self.flux.is_empty()
+    }
+
     /// Rest wavelength range covered (Å).
     pub fn range(&self) -> (f64, f64) {
         (self.grid.wave(0.0), self.grid.wave((self.grid.n - 1) as f64))

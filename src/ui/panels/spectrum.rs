@@ -229,6 +229,13 @@ fn legend(ui: &mut egui::Ui, state: &AppState) {
         if state.view.show_sky {
             item(ui, super::SKY, "sky lines (dotted)");
         }
+        if let Some(o) = &state.tools.overlay {
+            item(
+                ui,
+                super::overlay::OVERLAY,
+                &format!("overlay: {} (dashed)", o.label),
+            );
+        }
         item(ui, egui::Color32::from_rgb(200, 60, 60), "masked");
         ui.weak("wheel: zoom λ · drag: pan · right-drag: box · double-click: all");
     });
