@@ -213,11 +213,14 @@ fn simulated_galaxy(
     (s, z, truth)
 }
 
+/// One line's results over a run: (name, relative flux errors, pulls, fitted widths).
+type LineRun = (&'static str, Vec<f64>, Vec<f64>, Vec<f64>);
+
 /// Per line: relative flux errors, pulls and fitted widths over `n` simulated galaxies.
-fn simulation_run(n: usize, seed: u64) -> Vec<(&'static str, Vec<f64>, Vec<f64>, Vec<f64>)> {
+fn simulation_run(n: usize, seed: u64) -> Vec<LineRun> {
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
     let names = ["Hα", "Hβ", "[O III] 5008", "[N II] 6585"];
-    let mut out: Vec<(&str, Vec<f64>, Vec<f64>, Vec<f64>)> = names
+    let mut out: Vec<LineRun> = names
         .iter()
         .map(|&n| (n, Vec::new(), Vec::new(), Vec::new()))
         .collect();
