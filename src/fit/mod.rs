@@ -16,6 +16,7 @@ mod lines;
 mod method;
 mod overlay;
 mod prep;
+pub(crate) use prep::{running_mean, SYS_FLOOR_WINDOW};
 pub mod reference;
 mod refine;
 mod result;

@@ -231,7 +231,7 @@ impl Prepared {
 
 /// Mean of `f` over the pixels with `w > 0` in a window of `width` pixels
 /// centred on each pixel (0 where the window holds no good pixel).
-fn running_mean(f: &[f64], w: &[f64], width: usize) -> Vec<f64> {
+pub(crate) fn running_mean(f: &[f64], w: &[f64], width: usize) -> Vec<f64> {
     let n = f.len();
     let half = width / 2;
     let mut cs = vec![0.0; n + 1];

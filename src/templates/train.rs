@@ -363,7 +363,8 @@ fn prepare(
         let x: Vec<f64> = x.iter().map(|v| v / med).collect();
         let mut w: Vec<f64> = w.iter().map(|v| v * med * med).collect();
         if sys_floor > 0.0 {
-            let fbar = running_mean(&x, &w, SYS_FLOOR_WINDOW);
+            // the engine's own systematic floor: the same window, the same mean
+            let fbar = crate::fit::running_mean(&x, &w, crate::fit::SYS_FLOOR_WINDOW);
             for (wj, f) in w.iter_mut().zip(&fbar) {
                 if *wj > 0.0 {
                     *wj = 1.0 / (1.0 / *wj + (sys_floor * f).powi(2));
@@ -373,35 +374,6 @@ fn prepare(
         out.push(Row { id: r.id, x, w });
     }
     Ok((grid, out))
-}
-
-/// Pixels over which the flux is averaged for the systematic floor (as the
-/// engine does).
-const SYS_FLOOR_WINDOW: usize = 51;
-
-/// Mean of `f` over the pixels with `w > 0` in a window of `width` pixels
-/// centred on each pixel (0 where the window holds no good pixel).
-fn running_mean(f: &[f64], w: &[f64], width: usize) -> Vec<f64> {
-    let n = f.len();
-    let half = width / 2;
-    let mut cs = vec![0.0; n + 1];
-    let mut cn = vec![0.0; n + 1];
-    for i in 0..n {
-        let g = w[i] > 0.0;
-        cs[i + 1] = cs[i] + if g { f[i] } else { 0.0 };
-        cn[i + 1] = cn[i] + if g { 1.0 } else { 0.0 };
-    }
-    (0..n)
-        .map(|i| {
-            let (a, b) = (i.saturating_sub(half), (i + half + 1).min(n));
-            let m = cn[b] - cn[a];
-            if m > 0.0 {
-                (cs[b] - cs[a]) / m
-            } else {
-                0.0
-            }
-        })
-        .collect()
 }
 
 /// Fill pixels no kept spectrum covers by linear interpolation between the

@@ -98,22 +98,26 @@ pub fn reference_file(spec: &str, rel: &str) -> PathBuf {
     p
 }
 
-/// First file in folder `rel_dir` of the wheel for `spec` whose name starts with `prefix`.
-pub fn reference_file_with_prefix(spec: &str, rel_dir: &str, prefix: &str) -> PathBuf {
+/// First file (sorted by name) in folder `rel_dir` of the wheel for `spec`
+/// whose name passes `keep`; `what` describes the wanted name in the panic.
+fn reference_file_where(spec: &str, rel_dir: &str, what: &str, keep: impl Fn(&str) -> bool) -> PathBuf {
     let d = reference_wheel(spec).join(rel_dir);
     let mut hits: Vec<PathBuf> = std::fs::read_dir(&d)
         .unwrap_or_else(|e| panic!("{rel_dir} missing in the {spec} wheel: {e}"))
         .filter_map(|e| e.ok().map(|e| e.path()))
-        .filter(|p| {
-            p.file_name()
-                .and_then(|f| f.to_str())
-                .is_some_and(|f| f.starts_with(prefix))
-        })
+        .filter(|p| p.file_name().and_then(|f| f.to_str()).is_some_and(&keep))
         .collect();
     hits.sort();
     hits.into_iter()
         .next()
-        .unwrap_or_else(|| panic!("no file starting {prefix} in {rel_dir} of the {spec} wheel"))
+        .unwrap_or_else(|| panic!("no file {what} in {rel_dir} of the {spec} wheel"))
+}
+
+/// First file in folder `rel_dir` of the wheel for `spec` whose name starts with `prefix`.
+pub fn reference_file_with_prefix(spec: &str, rel_dir: &str, prefix: &str) -> PathBuf {
+    reference_file_where(spec, rel_dir, &format!("starting {prefix}"), |f| {
+        f.starts_with(prefix)
+    })
 }
 
 /// The nearby passive galaxy's spectrum table (log10 λ, flux, ivar).
@@ -195,20 +199,9 @@ pub fn run_reference_script(script: &str, args: &[&Path]) -> serde_json::Value {
 
 /// First file in folder `rel_dir` of the wheel for `spec` whose name ends with `suffix`.
 pub fn reference_file_with_suffix(spec: &str, rel_dir: &str, suffix: &str) -> PathBuf {
-    let d = reference_wheel(spec).join(rel_dir);
-    let mut hits: Vec<PathBuf> = std::fs::read_dir(&d)
-        .unwrap_or_else(|e| panic!("{rel_dir} missing in the {spec} wheel: {e}"))
-        .filter_map(|e| e.ok().map(|e| e.path()))
-        .filter(|p| {
-            p.file_name()
-                .and_then(|f| f.to_str())
-                .is_some_and(|f| f.ends_with(suffix))
-        })
-        .collect();
-    hits.sort();
-    hits.into_iter()
-        .next()
-        .unwrap_or_else(|| panic!("no file ending {suffix} in {rel_dir} of the {spec} wheel"))
+    reference_file_where(spec, rel_dir, &format!("ending {suffix}"), |f| {
+        f.ends_with(suffix)
+    })
 }
 
 /// The reference solar spectrum (WAVELENGTH, FLUX, STATERROR; vacuum Å).
