@@ -295,17 +295,7 @@ fn wcs_wave(
     let ctype = key_string(f, hdu, "CTYPE1")
         .unwrap_or_default()
         .to_ascii_uppercase();
-    let (air, log_wcs) = match ctype.as_str() {
-        "" | "WAVE" | "LINEAR" | "WAVELENGTH" | "LAMBDA" => (false, false),
-        "AWAV" => (true, false),
-        "WAVE-LOG" => (false, true),
-        "AWAV-LOG" => (true, true),
-        other => {
-            return Err(bad(format!(
-                "CTYPE1 = '{other}' is not a wavelength axis (expected WAVE, AWAV, WAVE-LOG or AWAV-LOG)"
-            )))
-        }
-    };
+    let (air, log_wcs) = wavelength_axis(&ctype).map_err(bad)?;
     let Some(crval) = key_f64(f, hdu, "CRVAL1") else {
         return Err(bad("no CRVAL1 (and no wavelength HDU)".into()));
     };
@@ -440,4 +430,19 @@ pub(crate) fn read(
         meta,
     }
     .finish(p.loc.clone())
+}
+
+/// What a spectral CTYPE1 says: (air wavelengths, logarithmic axis). An
+/// empty CTYPE1 is a linear vacuum axis; anything not a wavelength axis is
+/// the reason it cannot be used.
+pub(crate) fn wavelength_axis(ctype: &str) -> Result<(bool, bool), String> {
+    match ctype {
+        "" | "WAVE" | "LINEAR" | "WAVELENGTH" | "LAMBDA" => Ok((false, false)),
+        "AWAV" => Ok((true, false)),
+        "WAVE-LOG" => Ok((false, true)),
+        "AWAV-LOG" => Ok((true, true)),
+        other => Err(format!(
+            "CTYPE1 = '{other}' is not a wavelength axis (expected WAVE, AWAV, WAVE-LOG or AWAV-LOG)"
+        )),
+    }
 }

@@ -303,17 +303,7 @@ fn header_wcs(
     let ctype = key_string(f, hdu, "CTYPE1")
         .unwrap_or_default()
         .to_ascii_uppercase();
-    let (air, log) = match ctype.as_str() {
-        "" | "WAVE" | "LINEAR" | "WAVELENGTH" | "LAMBDA" => (false, false),
-        "AWAV" => (true, false),
-        "WAVE-LOG" => (false, true),
-        "AWAV-LOG" => (true, true),
-        other => {
-            return Err(bad(format!(
-                "CTYPE1 = '{other}' is not a wavelength axis (expected WAVE, AWAV, WAVE-LOG or AWAV-LOG)"
-            )))
-        }
-    };
+    let (air, log) = super::fits_image::wavelength_axis(&ctype).map_err(bad)?;
     let unit = key_string(f, hdu, "CUNIT1").unwrap_or_default();
     let Some(to_aa) = unit_to_angstrom(&unit) else {
         return Err(LoadError::UnknownUnit {
