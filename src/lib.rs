@@ -9,6 +9,7 @@ desktop GUI in `ui`). The numerical core — [`spectrum`], [`io`], [`catalog`],
 */
 #![warn(missing_docs)]
 
+pub mod audit;
 pub mod campaign;
 pub mod catalog;
 pub mod class;

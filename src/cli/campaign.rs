@@ -26,6 +26,10 @@ pub enum Action {
     Fit(FitArgs),
     /// Print the campaign's inputs, fits and review progress.
     Status(StatusArgs),
+    /// Draw a stratified random audit sample (audit-sample.json).
+    Sample(super::audit::SampleArgs),
+    /// List the objects to vet next, with the reasons.
+    Next(super::audit::NextArgs),
 }
 
 /// Arguments of `zvet campaign init`.
@@ -120,6 +124,8 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
         Action::Init(a) => init(*a),
         Action::Fit(a) => fit_action(a),
         Action::Status(a) => status(a),
+        Action::Sample(a) => super::audit::sample(a),
+        Action::Next(a) => super::audit::next_action(a),
     }
 }
 

@@ -9,6 +9,7 @@ use clap::{Parser, Subcommand};
 use std::path::PathBuf;
 use std::process::ExitCode;
 
+pub mod audit;
 pub mod campaign;
 pub mod demo;
 pub mod export;
