@@ -278,6 +278,7 @@ fn recording_keys_record_complete_verdicts_and_window_export_report_agree() {
         fits: Default::default(),
         n_objects: Some(N),
         problems: vec![],
+        audit_sample: None,
     });
     assert_eq!(n.inspectors[0].reviewed, 3);
     let graded: usize = n.confidence.iter().map(|(_, v)| v).sum();

@@ -53,14 +53,14 @@ pub fn view(campaign: &Campaign) -> Result<CampaignView, CampaignError> {
     problems.extend(cat_problems);
     let (merged, merge_problems) = campaign.merge(None)?;
     problems.extend(merge_problems);
-    Ok(view_of(&fits, &catalog, &merged, problems))
+    Ok(view_of(&fits, &catalog, Some(&merged), problems))
 }
 
 /// The same from parts already read.
 pub fn view_of(
     fits: &BTreeMap<String, FitResult>,
     catalog: &BTreeMap<String, crate::catalog::CatalogRow>,
-    merged: &Merged,
+    merged: Option<&Merged>,
     problems: Vec<String>,
 ) -> CampaignView {
     let mut units = Vec::with_capacity(fits.len());
@@ -70,8 +70,7 @@ pub fn view_of(
         let row = catalog.get(id);
         let best = f.best();
         let verdict = merged
-            .objects
-            .get(id)
+            .and_then(|m| m.objects.get(id))
             .and_then(|c| c.verdict.as_ref())
             .filter(|v| v.is_complete());
         let mag = row.map(|r| r.mag).unwrap_or_default();

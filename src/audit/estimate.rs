@@ -104,19 +104,24 @@ struct StratumSums {
     sx: f64,
 }
 
-/// The within-stratum variance of the residuals d = y − r·x with two
-/// pseudo-objects added, one with y = 1 and one with y = 0 (d = 1 − r and
-/// d = −r), each of weight (z²/2)·x̄_h — the Agresti–Coull idea (Agresti &
-/// Coull 1998, *Am. Stat.* 52, 119) applied per stratum. It is used only for
+/// The within-stratum variance of the residuals d = y − r·x with z²·x̄_h
+/// pseudo-objects added, a share r of them with y = 1 (d = 1 − r) and the
+/// rest with y = 0 (d = −r) — the Agresti–Coull idea (Agresti & Coull 1998,
+/// *Am. Stat.* 52, 119) of adding z² pseudo-trials, centred here on the
+/// pooled estimate instead of 1/2 so that a rare error does not get an
+/// error rate of several per cent in every stratum. It is used only for
 /// strata whose domain drew no y = 1 or no y = 0 (where the plain variance
 /// is zero and would claim certainty), and only for the effective sample
 /// size; the reported standard error is the plain linearised one.
 fn smoothed_s2(obs: &[Obs], h: usize, r: f64, s: &StratumSums) -> f64 {
-    let c = Z95 * Z95 / 2.0 * (s.sx / s.n as f64);
-    let w = s.n as f64 + 2.0 * c;
-    let sum_d: f64 = s.sy - r * s.sx + c * (1.0 - 2.0 * r);
+    // z² pseudo-objects of the stratum's domain share, split as the pooled
+    // estimate r: z²·r with y = 1, z²·(1 − r) with y = 0.
+    let c = Z95 * Z95 * (s.sx / s.n as f64);
+    let (c1, c0) = (c * r, c * (1.0 - r));
+    let w = s.n as f64 + c;
+    let sum_d: f64 = s.sy - r * s.sx + c1 * (1.0 - r) - c0 * r;
     let m = sum_d / w;
-    let mut ss = c * ((1.0 - r - m).powi(2) + (-r - m).powi(2));
+    let mut ss = c1 * (1.0 - r - m).powi(2) + c0 * (-r - m).powi(2);
     for o in obs.iter().filter(|o| o.stratum == h) {
         ss += (o.y - r * o.x - m).powi(2);
     }

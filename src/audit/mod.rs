@@ -43,7 +43,8 @@ pub const SAMPLE_FILE: &str = "audit-sample.json";
 
 /// The method, in one sentence for reports.
 pub const METHOD: &str = "stratified combined-ratio (Horvitz–Thompson) estimates; 95 % Wilson score \
-intervals at the Korn–Graubard (1998) effective sample size from the linearised stratified variance";
+intervals at the effective sample size (after Korn & Graubard 1998) from the linearised stratified \
+variance, strata that drew no error (or no success) smoothed with z² pseudo-objects at the pooled rate";
 
 /// What the audit knows about one object.
 #[derive(Debug, Clone, Default, PartialEq)]

@@ -78,10 +78,18 @@ pub fn render(n: &ReportNumbers, svgs: &[(String, String)]) -> String {
         let _ = write!(o, "<tr><th>{}</th><td>{v}</td></tr>", esc(k));
     }
     o.push_str("</table>\n");
+    match &n.audit {
+        Some(a) => o.push_str(&super::audit::html(a, svgs, plot)),
+        None => o.push_str(
+            "<p>No audit sample: the counts below are over whatever was vetted, which the queue \
+             chose for being doubtful, so they do not describe the catalogue. Draw one with \
+             <code>zvet campaign sample DIR --size N</code>.</p>",
+        ),
+    }
 
     let _ = write!(
         o,
-        "<h2>Photometric class vs vetted class</h2><p>{} objects with a photometric class; \
+        "<h2>Photometric class vs vetted class (raw counts)</h2><p>{} objects with a photometric class; \
          overall agreement {}. Accuracy per row = fraction of the objects vetted as that class \
          that the photometric classifier put there.</p>",
         n.photometric.n,
@@ -97,7 +105,7 @@ pub fn render(n: &ReportNumbers, svgs: &[(String, String)]) -> String {
     o.push_str(&plot(svgs, "confusion_photometric.svg"));
     let _ = write!(
         o,
-        "<h2>Automatic class vs vetted class</h2><p>{} objects with an automatic fit; overall agreement {}.</p>",
+        "<h2>Automatic class vs vetted class (raw counts)</h2><p>{} objects with an automatic fit; overall agreement {}.</p>",
         n.automatic.n,
         pct(n.automatic.overall)
     );

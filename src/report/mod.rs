@@ -16,6 +16,7 @@ What is counted (also in the README):
 - progress per inspector from each inspector's own log; confidence and flag
   counts over the consensus verdicts; conflicts are listed.
 */
+pub mod audit;
 mod html;
 pub mod plots;
 
@@ -75,6 +76,8 @@ pub struct ReportInput {
     pub n_objects: Option<usize>,
     /// Problems met while reading (shown in the report).
     pub problems: Vec<String>,
+    /// The campaign's audit sample, if one was drawn.
+    pub audit_sample: Option<crate::audit::sample::AuditSample>,
 }
 
 /// An automatic redshift far from the vetted one.
@@ -172,6 +175,8 @@ pub struct ReportNumbers {
     pub agreement: Option<AgreementStats>,
     /// Problems met while reading.
     pub problems: Vec<String>,
+    /// Estimates over the whole catalogue from the audit sample (None without one).
+    pub audit: Option<crate::audit::AuditNumbers>,
 }
 
 fn compare(pairs: &[(VerdictClass, VerdictClass)]) -> ClassComparison {
@@ -268,6 +273,11 @@ pub fn numbers(input: &ReportInput) -> ReportNumbers {
         })
         .collect();
     let ids: BTreeSet<&String> = objects.keys().collect();
+    let audit = input.audit_sample.as_ref().map(|s| {
+        let view =
+            crate::audit::campaign::view_of(&input.fits, &input.catalog, input.merged.as_ref(), Vec::new());
+        crate::audit::analyse(s, &view.observed)
+    });
     ReportNumbers {
         campaign: input.campaign.clone(),
         generated: Utc::now(),
@@ -297,6 +307,7 @@ pub fn numbers(input: &ReportInput) -> ReportNumbers {
         conflicts,
         agreement: input.merged.as_ref().map(|m| m.stats.clone()),
         problems: input.problems.clone(),
+        audit,
     }
 }
 
@@ -366,7 +377,9 @@ pub fn input_from_campaign(campaign: &Campaign) -> Result<ReportInput, ReportErr
         let cat_ids: Vec<&String> = catalog.keys().collect();
         problems.extend(crate::catalog::match_summary(&ids, &cat_ids));
     }
+    let audit_sample = crate::audit::campaign::load_sample(campaign)?;
     Ok(ReportInput {
+        audit_sample,
         campaign: campaign.manifest().name.clone(),
         n_objects,
         merged: Some(merged),

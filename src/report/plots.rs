@@ -35,6 +35,20 @@ fn e<E: std::fmt::Display>(x: E) -> String {
     x.to_string()
 }
 
+/// [`svg`] for the report's other plot modules.
+pub(super) fn svg_plot(
+    name: &str,
+    size: (u32, u32),
+    draw: impl FnOnce(&Area) -> Result<(), String>,
+) -> Result<String, ReportError> {
+    svg(name, size, draw)
+}
+
+/// A drawing error as text.
+pub(super) fn text_err<E: std::fmt::Display>(x: E) -> String {
+    e(x)
+}
+
 /// A confusion matrix as a grid of shaded cells with counts; rows labelled
 /// by `row_title`, columns by `col_title`.
 pub fn confusion(
@@ -245,5 +259,8 @@ pub fn all(n: &ReportNumbers) -> Result<Vec<(String, String)>, ReportError> {
         "flags.svg".to_string(),
         bars("flags", "consensus verdicts per flag", &fl, &fv)?,
     ));
+    if let Some(a) = &n.audit {
+        out.extend(super::audit::plots(a)?);
+    }
     Ok(out)
 }
