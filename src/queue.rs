@@ -65,6 +65,11 @@ pub struct QueueItem {
     pub started: bool,
     /// Flags of the current verdict.
     pub flags: Vec<Flag>,
+    /// Position in the audit sample's random review order (None: not drawn).
+    pub audit_order: Option<usize>,
+    /// Width of the photometric accuracy interval of the object's audit
+    /// stratum (1 when unknown).
+    pub stratum_width: f64,
 }
 
 impl QueueItem {
@@ -89,6 +94,8 @@ impl QueueItem {
             flags: verdict
                 .map(|v| v.flags.iter().copied().collect())
                 .unwrap_or_default(),
+            audit_order: None,
+            stratum_width: 1.0,
         }
     }
 
@@ -165,16 +172,24 @@ pub enum SortKey {
     DeltaChi2,
     /// By S/N, faintest first.
     Snr,
+    /// The audit sample in its random review order, then the other objects by id.
+    AuditSample,
+    /// The rule of [`crate::audit::next`]: unvetted audit-sample objects in
+    /// their random order, then the other unvetted objects by disagreement,
+    /// doubtful fit and stratum interval width; vetted objects last.
+    VetNext,
 }
 
 impl SortKey {
     /// All keys in menu order.
-    pub const ALL: [SortKey; 5] = [
+    pub const ALL: [SortKey; 7] = [
         SortKey::Attention,
         SortKey::Id,
         SortKey::Redshift,
         SortKey::DeltaChi2,
         SortKey::Snr,
+        SortKey::AuditSample,
+        SortKey::VetNext,
     ];
 
     /// Label for menus.
@@ -185,6 +200,8 @@ impl SortKey {
             SortKey::Redshift => "z",
             SortKey::DeltaChi2 => "Δχ²",
             SortKey::Snr => "S/N",
+            SortKey::AuditSample => "audit sample",
+            SortKey::VetNext => "vet next",
         }
     }
 }
@@ -281,8 +298,53 @@ pub fn arrange(items: &[QueueItem], filter: &Filter, key: SortKey) -> Vec<usize>
             idx.sort_by(|&a, &b| nan_last(items[a].delta_chi2).total_cmp(&nan_last(items[b].delta_chi2)))
         }
         SortKey::Snr => idx.sort_by(|&a, &b| items[a].snr.total_cmp(&items[b].snr)),
+        SortKey::AuditSample => idx.sort_by(|&a, &b| {
+            let key = |i: usize| (items[i].audit_order.unwrap_or(usize::MAX), &items[i].id);
+            key(a).cmp(&key(b))
+        }),
+        SortKey::VetNext => {
+            let cands: Vec<crate::audit::next::Candidate> =
+                idx.iter().map(|&i| items[i].vet_next_candidate()).collect();
+            let pos: std::collections::HashMap<String, usize> = crate::audit::next::order(&cands)
+                .into_iter()
+                .enumerate()
+                .map(|(k, n)| (n.id, k))
+                .collect();
+            // vetted objects (not listed by the rule) keep their input order after the rest
+            idx.sort_by_key(|&i| pos.get(&items[i].id).copied().unwrap_or(usize::MAX));
+        }
     }
     idx
+}
+
+impl QueueItem {
+    /// What the vet-next rule needs to know about this object.
+    pub fn vet_next_candidate(&self) -> crate::audit::next::Candidate {
+        crate::audit::next::Candidate {
+            id: self.id.clone(),
+            sample_order: self.audit_order,
+            vetted: self.is_reviewed(),
+            disagrees: self.disagrees(),
+            doubtful: self.delta_chi2.is_some_and(|d| d < SMALL_DELTA_CHI2)
+                || self.warnings.has(Warnings::AMBIGUOUS)
+                || self.warnings.has(Warnings::CLASS_CLOSE),
+            delta_chi2: self.delta_chi2,
+            stratum_width: self.stratum_width,
+        }
+    }
+}
+
+/// Mark the items of an audit sample: each member's position in the random
+/// review order and the accuracy-interval width of every object's stratum.
+pub fn apply_audit(
+    items: &mut [QueueItem],
+    order: &BTreeMap<String, usize>,
+    width_of: impl Fn(&str) -> Option<f64>,
+) {
+    for it in items {
+        it.audit_order = order.get(&it.id).copied();
+        it.stratum_width = width_of(&it.id).unwrap_or(1.0);
+    }
 }
 
 /// The default queue: every object, unreviewed first, then by need of attention.
@@ -313,6 +375,8 @@ mod tests {
             complete: false,
             started: false,
             flags: vec![],
+            audit_order: None,
+            stratum_width: 1.0,
         }
     }
 
@@ -466,5 +530,19 @@ mod tests {
         assert_eq!(arrange(&items, &all, SortKey::Id), vec![1, 0, 2]);
         assert_eq!(arrange(&items, &all, SortKey::Redshift), vec![2, 0, 1]);
         assert_eq!(arrange(&items, &all, SortKey::Snr), vec![2, 0, 1]);
+    }
+
+    #[test]
+    fn audit_sample_and_vet_next_orders() {
+        let mut items: Vec<QueueItem> = ["a", "b", "c", "d", "e"].iter().map(|s| item(s)).collect();
+        let order: BTreeMap<String, usize> = [("d".to_string(), 0), ("b".to_string(), 1)].into();
+        apply_audit(&mut items, &order, |_| None);
+        let all = Filter::default();
+        // members in their random order, then the rest by id
+        assert_eq!(arrange(&items, &all, SortKey::AuditSample), vec![3, 1, 0, 2, 4]);
+        // vet next: unvetted members first; then disagreement; vetted last
+        items[4].phot_class = Some(ObjectClass::Star);
+        items[3] = reviewed(items[3].clone(), VerdictClass::Galaxy, Some(0.3));
+        assert_eq!(arrange(&items, &all, SortKey::VetNext), vec![1, 4, 0, 2, 3]);
     }
 }
