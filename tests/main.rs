@@ -10,6 +10,7 @@ mod fuzz;
 mod gui;
 #[cfg(feature = "gui")]
 mod gui_review;
+#[cfg(feature = "gui")]
 mod gui_tools;
 mod io;
 mod lines;
