@@ -10,6 +10,7 @@ use crate::fit::{Candidate, FitResult};
 use crate::queue::{self, Filter, QueueItem, SortKey};
 use crate::review::{Change, Verdict, ZSource};
 use crate::ObjectClass;
+use std::collections::{BTreeMap, HashMap};
 use std::sync::Arc;
 
 /// The solution currently drawn over the spectrum (before or after it is accepted).
@@ -276,6 +277,48 @@ pub struct AppState {
     pub spectrum_bounds: Option<[f64; 4]>,
     /// Adjudication, jump, overlays and automatic smoothing.
     pub tools: super::tools::ToolsState,
+    /// The open campaign's audit sample, for the "audit sample" and "vet
+    /// next" orders (None: no campaign or no sample).
+    pub audit: Option<AuditQueue>,
+}
+
+/// What the queue needs of an audit sample.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct AuditQueue {
+    /// Each member's position in the sample's random review order.
+    pub order: BTreeMap<String, usize>,
+    /// Width of the photometric accuracy interval of each object's stratum.
+    pub width: HashMap<String, f64>,
+}
+
+impl AuditQueue {
+    /// From a sample and the widths its analysis gave per stratum;
+    /// `stratum_of` names each object's stratum.
+    pub fn new(
+        sample: &crate::audit::sample::AuditSample,
+        widths: &BTreeMap<String, f64>,
+        stratum_of: impl Fn(&str) -> Option<String>,
+        ids: impl Iterator<Item = String>,
+    ) -> Self {
+        let order = sample
+            .members
+            .iter()
+            .enumerate()
+            .map(|(i, m)| (m.id.clone(), i))
+            .collect();
+        let width = ids
+            .filter_map(|id| {
+                let w = widths.get(&stratum_of(&id)?).copied()?;
+                Some((id, w))
+            })
+            .collect();
+        AuditQueue { order, width }
+    }
+
+    /// Members drawn.
+    pub fn sampled(&self) -> usize {
+        self.order.len()
+    }
 }
 
 impl AppState {
@@ -313,6 +356,7 @@ impl AppState {
             quit_asked: false,
             spectrum_bounds: None,
             tools: Default::default(),
+            audit: None,
         }
     }
 
@@ -325,6 +369,9 @@ impl AppState {
             .zip(&self.fits)
             .map(|(o, f)| QueueItem::new(o, f.as_ref(), verdict(o.id()).as_ref()))
             .collect();
+        if let Some(a) = &self.audit {
+            queue::apply_audit(&mut self.items, &a.order, |id| a.width.get(id).copied());
+        }
         self.order = queue::arrange(&self.items, &self.filter, self.sort);
         self.order_stale = false;
         self.tools.restrict(&self.items, &mut self.order);
@@ -335,7 +382,13 @@ impl AppState {
     pub fn refresh_item(&mut self, index: usize, verdict: Option<&Verdict>) {
         if let Some(o) = self.objects.get(index) {
             let fit = self.fits.get(index).and_then(|f| f.as_ref());
-            self.items[index] = QueueItem::new(o, fit, verdict);
+            let mut item = QueueItem::new(o, fit, verdict);
+            if let Some(a) = &self.audit {
+                queue::apply_audit(std::slice::from_mut(&mut item), &a.order, |id| {
+                    a.width.get(id).copied()
+                });
+            }
+            self.items[index] = item;
         }
     }
 
