@@ -8,6 +8,8 @@ mod fuzz;
 #[cfg(feature = "gui")]
 mod gui;
 #[cfg(feature = "gui")]
+mod gui_cache;
+#[cfg(feature = "gui")]
 mod gui_review;
 mod gui_tools;
 mod io;

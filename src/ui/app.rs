@@ -239,6 +239,12 @@ impl ZvetApp {
         self.jobs.progress()
     }
 
+    /// True when no background fit, χ²(z) curve or refit waits or runs
+    /// (results may still wait to be taken by the next frame).
+    pub fn background_idle(&self) -> bool {
+        self.jobs.idle()
+    }
+
     /// Draw one frame and apply what the inspector asked for.
     pub fn show(&mut self, ui: &mut egui::Ui) {
         let ctx = ui.ctx().clone();

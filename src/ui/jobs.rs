@@ -114,6 +114,8 @@ struct Shared {
     wake: Condvar,
     stop: AtomicBool,
     done: AtomicUsize,
+    /// Jobs taken by a worker and not yet sent back.
+    active: AtomicUsize,
 }
 
 /// The worker pool and its result channel.
@@ -133,6 +135,7 @@ impl Jobs {
             wake: Condvar::new(),
             stop: AtomicBool::new(false),
             done: AtomicUsize::new(0),
+            active: AtomicUsize::new(0),
         });
         let (tx, rx) = channel();
         let repaint: Arc<OnceLock<egui::Context>> = Arc::new(OnceLock::new());
@@ -224,6 +227,12 @@ impl Jobs {
         let (d, t) = self.progress();
         d < t
     }
+
+    /// True when no job of any kind (fit, curves, refit) waits or runs.
+    pub fn idle(&self) -> bool {
+        let q = lock(&self.shared.queue);
+        q.is_empty() && self.shared.active.load(Ordering::SeqCst) == 0
+    }
 }
 
 impl Drop for Jobs {
@@ -254,6 +263,9 @@ fn worker(
                     return;
                 }
                 if let Some(j) = q.pop_front() {
+                    // counted while the queue is locked, so `idle` never
+                    // sees a job that is neither queued nor active
+                    shared.active.fetch_add(1, Ordering::SeqCst);
                     break j;
                 }
                 q = shared.wake.wait(q).unwrap_or_else(|e| e.into_inner());
@@ -261,6 +273,7 @@ fn worker(
         };
         let (index, kind) = job;
         let Some(obj) = objects.get(index) else {
+            shared.active.fetch_sub(1, Ordering::SeqCst);
             continue;
         };
         // A panic inside the engine must not take the window down: report it.
@@ -274,7 +287,9 @@ fn worker(
         if matches!(kind, JobKind::Fit) {
             shared.done.fetch_add(1, Ordering::Relaxed);
         }
-        if tx.send(JobDone { index, kind, result }).is_err() {
+        let sent = tx.send(JobDone { index, kind, result });
+        shared.active.fetch_sub(1, Ordering::SeqCst);
+        if sent.is_err() {
             return;
         }
         if let Some(ctx) = repaint.get() {
