@@ -488,8 +488,11 @@ impl ZvetApp {
         }
     }
 
-    /// Record `who`'s class and z (with its error and source) as one's own
-    /// verdict, with one's own certainty (as Space would give it).
+    /// Record `who`'s verdict as one's own: class and z (with its error and
+    /// source), then their flags and note — one's own flags that they did
+    /// not raise are cleared, and the note becomes theirs — with one's own
+    /// certainty (as Space would give it). Each part is an ordinary event of
+    /// one's own log (the verdict, one per flag changed, the note).
     fn adopt(&mut self, who: &str) {
         let Some(v) = self.opinion(who) else {
             self.state
@@ -512,8 +515,27 @@ impl ZvetApp {
             source: v.z_source.unwrap_or(ZSource::Typed),
             confidence,
         });
+        let Some(mine) = self.current_verdict().cloned() else {
+            // not recorded (no log yet): the reason is already on screen
+            return;
+        };
+        for flag in crate::review::Flag::ALL {
+            let on = v.flags.contains(&flag);
+            if mine.flags.contains(&flag) != on {
+                self.record(Change::Flag { flag, on });
+            }
+        }
+        if mine.note != v.note {
+            self.record(Change::Note { text: v.note.clone() });
+        }
         let mine = self.current_verdict().cloned();
         self.state.sync_texts(mine.as_ref());
+        if let Some(m) = &mine {
+            self.state.say(
+                format!("adopted {who}'s verdict: {}", super::apply::verdict_words(m)),
+                false,
+            );
+        }
     }
 
     /// After a change of one's own log: keep the merge current.
