@@ -421,7 +421,7 @@ fn the_model_is_smoothed_like_the_flux() {
     let app = h.state();
     let obj = app.state.current().unwrap();
     let raw = engine.model(&obj.spectrum, &app.state.shown.as_ref().unwrap().candidate);
-    let want = zvet::ui::view::smooth_values(&obj.spectrum, &raw, w);
+    let want = obj.spectrum.smooth_values_boxcar(&raw, w);
     let p = app.prepare_current().unwrap();
     assert!(!p.model.is_empty());
     let wave = obj.spectrum.wave();

@@ -11,6 +11,8 @@ mod gui;
 mod gui_cache;
 #[cfg(feature = "gui")]
 mod gui_review;
+#[cfg(feature = "gui")]
+mod gui_seams;
 mod gui_tools;
 mod io;
 mod lines;

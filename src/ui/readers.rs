@@ -112,12 +112,11 @@ pub fn read_campaign(path: &Path) -> Loaded {
             None
         }
     };
-    let log_folder = campaign.reviews_dir();
-    let inspectors = known_inspectors(&campaign.manifest().inspectors, &log_folder);
+    let inspectors = known_inspectors(&campaign);
     Loaded::Campaign {
         title: campaign.manifest().name.clone(),
         objects,
-        log_folder,
+        dir: campaign.dir().to_path_buf(),
         inspectors,
         problems,
         // automatic fits made here go back to the campaign's cache only when
@@ -127,21 +126,11 @@ pub fn read_campaign(path: &Path) -> Loaded {
     }
 }
 
-/// The campaign's registered inspectors, then those with a log in `folder`
-/// (file stems of `*.jsonl`), each once.
-pub fn known_inspectors(registered: &[String], folder: &Path) -> Vec<String> {
-    let mut names: Vec<String> = registered.to_vec();
-    let mut logs: Vec<String> = std::fs::read_dir(folder)
-        .map(|rd| {
-            rd.filter_map(|e| e.ok())
-                .map(|e| e.path())
-                .filter(|p| p.extension().is_some_and(|x| x == "jsonl"))
-                .filter_map(|p| p.file_stem().map(|s| s.to_string_lossy().into_owned()))
-                .collect()
-        })
-        .unwrap_or_default();
-    logs.sort();
-    for n in logs {
+/// The campaign's registered inspectors, then those with a log (as the
+/// campaign lists them), each once.
+pub fn known_inspectors(campaign: &crate::campaign::Campaign) -> Vec<String> {
+    let mut names: Vec<String> = campaign.manifest().inspectors.clone();
+    for n in campaign.log_inspectors().unwrap_or_default() {
         if !names.contains(&n) {
             names.push(n);
         }
@@ -170,7 +159,7 @@ impl ZvetApp {
             Loaded::Campaign {
                 title,
                 objects,
-                log_folder,
+                dir,
                 inspectors,
                 problems,
                 fitter,
@@ -181,7 +170,7 @@ impl ZvetApp {
                 if let Some(fitter) = fitter {
                     self.fitter = fitter;
                 }
-                self.replace_objects(title, objects, LogPlace::Folder(log_folder));
+                self.replace_objects(title, objects, LogPlace::Campaign(dir));
                 self.state.known_inspectors = inspectors;
             }
             Loaded::Catalog { path, rows } => {
