@@ -159,3 +159,108 @@ fn a_cached_campaign_opens_without_refitting_and_new_fits_go_back_to_its_cache()
             .is_some_and(|f| !f.curves.is_empty())
     });
 }
+
+/// A quick stand-in engine: every fit is a galaxy at z = 0.1 with one χ²(z)
+/// curve of 2000 points (the window's memory rule, not the fit, is tested).
+struct Quick;
+
+impl zvet::ui::jobs::Fitter for Quick {
+    fn fit(&self, s: &zvet::Spectrum) -> Result<zvet::fit::FitResult, String> {
+        let z: Vec<f64> = (0..2000).map(|k| k as f64 * 1e-3).collect();
+        Ok(zvet::fit::FitResult {
+            object_id: s.meta.id.clone(),
+            candidates: vec![zvet::fit::Candidate {
+                class: zvet::ObjectClass::Galaxy,
+                template: "quick".into(),
+                z: 0.1,
+                z_err: 1e-4,
+                chi2: 1.0,
+                coeffs: vec![],
+            }],
+            delta_chi2: 100.0,
+            chi2_reduced: 1.0,
+            n_good: s.n_good(),
+            snr_median: 5.0,
+            warnings: Default::default(),
+            curves: vec![zvet::fit::Chi2Curve {
+                class: zvet::ObjectClass::Galaxy,
+                template: "quick".into(),
+                chi2: z.iter().map(|z| (z - 0.1).powi(2)).collect(),
+                z,
+            }],
+            lines: vec![],
+            per_class: vec![],
+        })
+    }
+    fn refit_near(
+        &self,
+        s: &zvet::Spectrum,
+        _z: f64,
+        _class: Option<zvet::ObjectClass>,
+        _hw: f64,
+    ) -> Result<zvet::fit::FitResult, String> {
+        self.fit(s)
+    }
+    fn model(&self, s: &zvet::Spectrum, _c: &zvet::fit::Candidate) -> Vec<f64> {
+        vec![f64::NAN; s.len()]
+    }
+}
+
+#[test]
+fn only_a_bounded_number_of_objects_keep_their_curves() {
+    use zvet::ui::jobs::{Fitter, CURVE_CACHE};
+    let n = CURVE_CACHE + 14;
+    let objects: Vec<_> = demo::generate_n(demo::DEFAULT_SEED, n)
+        .objects
+        .into_iter()
+        .map(|mut o| {
+            // as from a campaign's cache: a fit without curves
+            let mut f = Quick.fit(&o.spectrum).unwrap();
+            f.curves.clear();
+            o.fit = Some(f);
+            o
+        })
+        .collect();
+    let (_d, log) = log_path("lru");
+    let app = ZvetApp::new(zvet::ui::Session {
+        title: "lru".into(),
+        objects,
+        fitter: std::sync::Arc::new(Quick),
+        log_place: zvet::ui::LogPlace::File(log),
+        inspector: Some("tester".into()),
+        name_file: None,
+    });
+    let mut h = Harness::builder()
+        .with_size(egui::vec2(1500.0, 950.0))
+        .build_ui_state(|ui, app: &mut ZvetApp| app.show(ui), app);
+    h.run_steps(3);
+    let holding = |a: &ZvetApp| {
+        (0..a.state.objects.len())
+            .filter(|&i| a.state.fits[i].as_ref().is_some_and(|f| !f.curves.is_empty()))
+            .count()
+    };
+    let shown_has_curves = |a: &ZvetApp| {
+        let s = &a.state;
+        s.fits[s.selected.unwrap()]
+            .as_ref()
+            .is_some_and(|f| !f.curves.is_empty())
+    };
+    let first = h.state().state.selected.unwrap();
+    for step in 0..n - 1 {
+        settle(&mut h, "the shown object's curves", |a| {
+            a.background_idle() && shown_has_curves(a)
+        });
+        h.run_steps(1);
+        let kept = holding(h.state());
+        assert!(kept <= CURVE_CACHE, "step {step}: {kept} objects hold curves");
+        press(&mut h, egui::Key::N);
+    }
+    settle(&mut h, "the background work", ZvetApp::background_idle);
+    h.run_steps(1);
+    assert_eq!(holding(h.state()), CURVE_CACHE, "the cache is full, not more");
+    // The first object's curves were dropped long ago; shown again, they come back.
+    assert!(h.state().state.fits[first].as_ref().unwrap().curves.is_empty());
+    h.state_mut().apply(Action::Select(first));
+    settle(&mut h, "the first object's curves again", shown_has_curves);
+    assert!(holding(h.state()) <= CURVE_CACHE);
+}

@@ -139,6 +139,9 @@ pub struct ZvetApp {
     pub(crate) resume: Option<(PathBuf, Option<super::resume::Resume>)>,
     /// Object id to open on (from the resume file).
     pub(crate) resume_target: Option<String>,
+    /// Objects whose fits hold χ²(z) curves, least recently used first
+    /// (at most [`super::jobs::CURVE_CACHE`]).
+    pub(crate) curves_kept: std::collections::VecDeque<usize>,
 }
 
 impl ZvetApp {
@@ -170,6 +173,7 @@ impl ZvetApp {
             prepared: None,
             resume: None,
             resume_target: None,
+            curves_kept: Default::default(),
         };
         app.restart_fits();
         match inspector {
@@ -380,9 +384,16 @@ impl ZvetApp {
             match (done.kind, done.result) {
                 (JobKind::Fit, Ok(fit)) => {
                     self.write_back(i, &fit);
+                    // A background fit far from the shown object keeps no
+                    // curves (they come again when it is shown).
+                    let mut fit = fit;
+                    if !self.near_selection(i) {
+                        fit.curves = Vec::new();
+                    }
                     if let Some(slot) = self.state.fits.get_mut(i) {
                         *slot = Some(fit);
                         any_fit = true;
+                        self.keep_curves(i);
                     }
                     let v = self.verdict_of(i).cloned();
                     self.state.refresh_item(i, v.as_ref());
@@ -430,6 +441,7 @@ impl ZvetApp {
 
     /// Restart the background fits for every object that has none.
     pub(crate) fn restart_fits(&mut self) {
+        self.curves_kept.clear();
         let todo: Vec<usize> = (0..self.state.objects.len())
             .filter(|&i| self.state.fits[i].is_none())
             .collect();
@@ -445,6 +457,7 @@ impl ZvetApp {
 
     /// Select object `index`, asking for its fit first if it is not done.
     pub(crate) fn select(&mut self, index: usize) {
+        self.touch_curves(index);
         let v = self.verdict_of(index).cloned();
         self.state.select(index, v.as_ref());
         self.auto_smooth();

@@ -104,6 +104,12 @@ pub const REFIT_HALF_WIDTH_KMS: f64 = 2000.0;
 /// How many objects after the shown one get their χ²(z) curves ahead of time.
 pub const CURVE_PREFETCH: usize = 3;
 
+/// At most this many objects keep their χ²(z) curves in memory (the most
+/// recently shown or prefetched; a curve set of the built-in templates is
+/// of the order of a megabyte). An object whose curves were dropped gets
+/// them again when it is shown.
+pub const CURVE_CACHE: usize = 16;
+
 /// Automatic fits written back per batch (a batch is also written when the
 /// background fits are done).
 pub const WRITE_BACK_BATCH: usize = 64;
@@ -204,6 +210,11 @@ impl Jobs {
         }
         drop(q);
         self.shared.wake.notify_all();
+    }
+
+    /// Let the curves of `index` be asked for again (they were dropped).
+    pub fn forget_curves(&self, index: usize) {
+        lock(&self.shared.curves_asked).remove(&index);
     }
 
     /// Ask for a refit of `index` near `z` (first in line).

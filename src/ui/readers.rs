@@ -280,6 +280,59 @@ impl ZvetApp {
                 cached.curves = fit.curves;
             }
         }
+        self.keep_curves(index);
+    }
+
+    /// The fit of `index` now holds curves: count it as the most recently
+    /// used, and drop the curves of the least recently used beyond
+    /// [`super::jobs::CURVE_CACHE`] (never the shown object's).
+    pub(crate) fn keep_curves(&mut self, index: usize) {
+        let holds = |s: &super::state::AppState, i: usize| {
+            s.fits
+                .get(i)
+                .is_some_and(|f| f.as_ref().is_some_and(|f| !f.curves.is_empty()))
+        };
+        if !holds(&self.state, index) {
+            return;
+        }
+        self.curves_kept.retain(|&i| i != index);
+        self.curves_kept.push_back(index);
+        while self.curves_kept.len() > super::jobs::CURVE_CACHE {
+            let Some(pos) = self
+                .curves_kept
+                .iter()
+                .position(|&i| Some(i) != self.state.selected)
+            else {
+                break;
+            };
+            let Some(old) = self.curves_kept.remove(pos) else {
+                break;
+            };
+            if let Some(Some(f)) = self.state.fits.get_mut(old) {
+                f.curves = Vec::new();
+            }
+            self.jobs.forget_curves(old);
+        }
+    }
+
+    /// True for the shown object and the next few of the list (those whose
+    /// curves are prefetched).
+    pub(crate) fn near_selection(&self, index: usize) -> bool {
+        let Some(pos) = self.state.position() else {
+            return self.state.selected == Some(index);
+        };
+        self.state.order[pos..]
+            .iter()
+            .take(1 + super::jobs::CURVE_PREFETCH)
+            .any(|&i| i == index)
+    }
+
+    /// Object `index` is being shown: its curves are the most recently used.
+    pub(crate) fn touch_curves(&mut self, index: usize) {
+        if let Some(pos) = self.curves_kept.iter().position(|&i| i == index) {
+            self.curves_kept.remove(pos);
+            self.curves_kept.push_back(index);
+        }
     }
 
     /// An automatic fit made here: keep it for the campaign's cache.
