@@ -422,7 +422,7 @@ fn the_model_is_smoothed_like_the_flux() {
     let app = h.state();
     let obj = app.state.current().unwrap();
     let raw = engine.model(&obj.spectrum, &app.state.shown.as_ref().unwrap().candidate);
-    let want = zvet::ui::view::smooth_values(&obj.spectrum, &raw, w);
+    let want = obj.spectrum.smooth_values_boxcar(&raw, w);
     let p = app.prepare_current().unwrap();
     assert!(!p.model.is_empty());
     let wave = obj.spectrum.wave();
@@ -521,6 +521,93 @@ fn the_wheel_zooms_in_wavelength_only() {
     press(&mut h, Key::Num0);
     let b2 = h.state().state.spectrum_bounds.unwrap();
     assert!(b2[1] - b2[0] > 0.99 * (b0[1] - b0[0]), "{b2:?}");
+}
+
+/// A double click at `at`: press, release, press, release, a frame each.
+fn double_click_at(h: &mut Harness<'_, ZvetApp>, at: egui::Pos2) {
+    for pressed in [true, false, true, false] {
+        h.event(egui::Event::PointerButton {
+            pos: at,
+            button: egui::PointerButton::Primary,
+            pressed,
+            modifiers: Modifiers::NONE,
+        });
+        h.step();
+    }
+}
+
+#[test]
+fn wheel_and_drag_move_in_wavelength_and_a_double_click_shows_everything() {
+    let (_d, log) = log_path("dblclick");
+    // Frames of 1/60 s (the default quarter second is longer than a double
+    // click may take).
+    let mut h = Harness::builder()
+        .with_size(egui::vec2(1500.0, 950.0))
+        .with_step_dt(1.0 / 60.0)
+        .build_ui_state(|ui, app: &mut ZvetApp| app.show(ui), super::gui::new_app(&log));
+    h.run_steps(3);
+    let b0 = h.state().state.spectrum_bounds.unwrap();
+    let header = h.get_by_label("rest frame (O)").rect();
+    let at = egui::pos2(header.center().x, header.bottom() + 120.0);
+    h.hover_at(at);
+    h.run_steps(2);
+    h.event(egui::Event::MouseWheel {
+        unit: egui::MouseWheelUnit::Point,
+        delta: egui::vec2(0.0, 240.0),
+        phase: egui::TouchPhase::Move,
+        source: egui::MouseWheelSource::Unknown,
+        modifiers: Modifiers::NONE,
+    });
+    h.run_steps(20);
+    let b1 = h.state().state.spectrum_bounds.unwrap();
+    let width = |b: &[f64; 4]| b[1] - b[0];
+    assert!(
+        width(&b1) < 0.8 * width(&b0),
+        "wheel zoomed in λ: {b0:?} → {b1:?}"
+    );
+    // A drag to the left pans towards the red, at the same zoom and flux range.
+    h.event(egui::Event::PointerButton {
+        pos: at,
+        button: egui::PointerButton::Primary,
+        pressed: true,
+        modifiers: Modifiers::NONE,
+    });
+    h.step();
+    for k in 1..=10 {
+        h.event(egui::Event::PointerMoved(at - egui::vec2(20.0 * k as f32, 0.0)));
+        h.step();
+    }
+    h.event(egui::Event::PointerButton {
+        pos: at - egui::vec2(200.0, 0.0),
+        button: egui::PointerButton::Primary,
+        pressed: false,
+        modifiers: Modifiers::NONE,
+    });
+    h.run_steps(3);
+    let b2 = h.state().state.spectrum_bounds.unwrap();
+    assert!(
+        b2[0] > b1[0] + 0.05 * width(&b1),
+        "dragged towards the red: {b1:?} → {b2:?}"
+    );
+    assert!((width(&b2) / width(&b1) - 1.0).abs() < 1e-6, "same zoom");
+    assert!(
+        ((b2[3] - b2[2]) / (b1[3] - b1[2]) - 1.0).abs() < 1e-6,
+        "flux axis kept"
+    );
+    // A double click: the whole spectrum again.
+    h.hover_at(at);
+    h.step();
+    double_click_at(&mut h, at);
+    h.run_steps(3);
+    let b3 = h.state().state.spectrum_bounds.unwrap();
+    for k in 0..2 {
+        assert!(
+            (b3[k] - b0[k]).abs() < 1e-6 * width(&b0),
+            "double click: back to the whole spectrum {b0:?}, got {b3:?}"
+        );
+    }
+    // Nothing of this is a verdict.
+    assert!(events(&log).is_empty());
 }
 
 #[test]

@@ -399,12 +399,11 @@ fn adjudication_shows_every_verdict_and_the_decision_is_an_ordinary_verdict() {
     assert!((shown.z() - 0.0001).abs() < 1e-12);
     assert!(events(&judge_log).is_empty());
 
-    // "adopt" records ana's class and z in the judge's own log.
+    // "adopt" records ana's class and z, and her note, in the judge's own log.
     act(&mut h, ToolAction::AdoptOpinion("ana".into()));
     let ev = events(&judge_log);
-    assert_eq!(ev.len(), 1);
-    assert_eq!(ev[0].inspector, "judge");
-    assert_eq!(ev[0].object_id, ids[0]);
+    assert_eq!(ev.len(), 2);
+    assert!(ev.iter().all(|e| e.inspector == "judge" && e.object_id == ids[0]));
     assert_eq!(
         ev[0].change,
         Change::Verdict {
@@ -415,6 +414,56 @@ fn adjudication_shows_every_verdict_and_the_decision_is_an_ordinary_verdict() {
             confidence: zvet::ui::DEFAULT_CONFIDENCE,
         }
     );
+    assert_eq!(
+        ev[1].change,
+        Change::Note {
+            text: "Hα and [N II]".into()
+        }
+    );
+    // What the judge's log now says is ana's verdict, with the judge's grade.
+    let opinion = |h: &Harness<'_, ZvetApp>, who: &str| {
+        let a = h.state().state.tools.adjudication.clone().unwrap();
+        a.opinions(&ids[0])
+            .into_iter()
+            .find(|(n, _)| *n == who)
+            .unwrap()
+            .1
+            .clone()
+    };
+    let replayed = |log: &Path| zvet::review::replay(&events(log)).remove(&ids[0]).unwrap();
+    let meant = zvet::review::Verdict {
+        confidence: Some(zvet::ui::DEFAULT_CONFIDENCE),
+        ..opinion(&h, "ana")
+    };
+    assert_eq!(replayed(&judge_log), meant);
+    h.get_by_label_contains("adopted ana's verdict");
+    // Adopting ben's instead raises his flag and clears ana's note: the
+    // judge's verdict is then ben's (class, z, flags, note), not a mixture.
+    act(&mut h, ToolAction::AdoptOpinion("ben".into()));
+    let ev = events(&judge_log);
+    assert_eq!(ev.len(), 5, "{ev:?}");
+    assert_eq!(
+        ev[3].change,
+        Change::Flag {
+            flag: Flag::SingleLine,
+            on: true
+        }
+    );
+    assert_eq!(ev[4].change, Change::Note { text: String::new() });
+    let meant = zvet::review::Verdict {
+        confidence: Some(zvet::ui::DEFAULT_CONFIDENCE),
+        ..opinion(&h, "ben")
+    };
+    assert_eq!(replayed(&judge_log), meant);
+    assert_eq!(h.state().state.note_text, "", "the note field follows");
+    // Back to ana's: the flag is cleared again, her note comes back.
+    act(&mut h, ToolAction::AdoptOpinion("ana".into()));
+    let meant = zvet::review::Verdict {
+        confidence: Some(zvet::ui::DEFAULT_CONFIDENCE),
+        ..opinion(&h, "ana")
+    };
+    assert_eq!(replayed(&judge_log), meant);
+    assert_eq!(events(&judge_log).len(), 8);
     // The other logs are untouched, and the window's merge knows the new verdict.
     assert_eq!(events(&dir.path().join("ana.jsonl")).len(), 4);
     assert_eq!(events(&dir.path().join("ben.jsonl")).len(), 4);

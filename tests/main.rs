@@ -9,8 +9,11 @@ mod fuzz;
 #[cfg(feature = "gui")]
 mod gui;
 #[cfg(feature = "gui")]
+mod gui_cache;
+#[cfg(feature = "gui")]
 mod gui_review;
 #[cfg(feature = "gui")]
+mod gui_seams;
 mod gui_tools;
 mod io;
 mod lines;

@@ -77,36 +77,65 @@ impl Spectrum {
         self.convolve_weighted(&kernel)
     }
 
+    /// `values` given at this spectrum's pixels (a model, an overlaid
+    /// template, a sky spectrum) smoothed exactly as [`Spectrum::smooth_boxcar`]
+    /// smooths the flux: the same kernel and the same weights (the flux's
+    /// inverse variance over its good pixels), so a model that equals the
+    /// flux stays equal to the smoothed flux and line depths compare. Pixels
+    /// where `values` is not finite are left out, and stay NaN; where the
+    /// kernel holds no usable pixel the result is NaN too (nothing to draw).
+    /// `width ≤ 1` returns the values as given.
+    pub fn smooth_values_boxcar(&self, values: &[f64], width: usize) -> Vec<f64> {
+        let n = self.len().min(values.len());
+        if width <= 1 {
+            return values[..n].to_vec();
+        }
+        let half = width.saturating_sub(1).div_ceil(2);
+        let kernel = vec![1.0; 2 * half + 1];
+        let good = self.good();
+        let usable: Vec<bool> = (0..n).map(|k| good[k] && values[k].is_finite()).collect();
+        let (out, ivar) = convolve_weighted(&values[..n], &self.ivar()[..n], &usable, &kernel);
+        out.into_iter()
+            .zip(ivar)
+            .zip(values)
+            .map(|((v, iv), x)| if iv > 0.0 && x.is_finite() { v } else { f64::NAN })
+            .collect()
+    }
+
     /// Ivar-weighted convolution with an odd-length kernel centred on each pixel.
     fn convolve_weighted(&self, kernel: &[f64]) -> Smoothed {
-        let n = self.len();
-        let half = kernel.len() / 2;
-        let (flux, ivar, good) = (self.flux(), self.ivar(), self.good());
-        let mut out_f = vec![0.0; n];
-        let mut out_iv = vec![0.0; n];
-        for i in 0..n {
-            let (mut swi, mut swif, mut sw2i) = (0.0, 0.0, 0.0);
-            let lo = i.saturating_sub(half);
-            let hi = (i + half).min(n - 1);
-            for k in lo..=hi {
-                if !good[k] {
-                    continue;
-                }
-                let w = kernel[k + half - i];
-                swi += w * ivar[k];
-                swif += w * ivar[k] * flux[k];
-                sw2i += w * w * ivar[k];
+        let (flux, ivar) = convolve_weighted(self.flux(), self.ivar(), self.good(), kernel);
+        Smoothed { flux, ivar }
+    }
+}
+
+/// Σ wₖ ivarₖ vₖ / Σ wₖ ivarₖ over the `good` pixels k in reach of an
+/// odd-length `kernel` centred on each pixel, and its inverse variance
+/// (Σ wₖ ivarₖ)² / Σ wₖ² ivarₖ; (0, 0) where no good pixel is in reach.
+fn convolve_weighted(values: &[f64], ivar: &[f64], good: &[bool], kernel: &[f64]) -> (Vec<f64>, Vec<f64>) {
+    let n = values.len();
+    let half = kernel.len() / 2;
+    let mut out_f = vec![0.0; n];
+    let mut out_iv = vec![0.0; n];
+    for i in 0..n {
+        let (mut swi, mut swif, mut sw2i) = (0.0, 0.0, 0.0);
+        let lo = i.saturating_sub(half);
+        let hi = (i + half).min(n - 1);
+        for k in lo..=hi {
+            if !good[k] {
+                continue;
             }
-            if swi > 0.0 && sw2i > 0.0 {
-                out_f[i] = swif / swi;
-                out_iv[i] = swi * swi / sw2i;
-            }
+            let w = kernel[k + half - i];
+            swi += w * ivar[k];
+            swif += w * ivar[k] * values[k];
+            sw2i += w * w * ivar[k];
         }
-        Smoothed {
-            flux: out_f,
-            ivar: out_iv,
+        if swi > 0.0 && sw2i > 0.0 {
+            out_f[i] = swif / swi;
+            out_iv[i] = swi * swi / sw2i;
         }
     }
+    (out_f, out_iv)
 }
 
 #[cfg(test)]
@@ -186,6 +215,35 @@ mod tests {
         let s = spec(vec![0.0, 1.0, f64::NAN, 5.0, 0.0], vec![1.0, 3.0, 1.0, 1.0, 1.0]);
         let b = s.smooth_boxcar(3);
         assert_abs_diff_eq!(b.flux[2], (3.0 * 1.0 + 5.0) / 4.0, epsilon = 1e-12);
+    }
+
+    #[test]
+    fn other_values_are_smoothed_with_the_flux_weights() {
+        // values equal to the flux come out as the smoothed flux
+        let flux = vec![1.0, 4.0, f64::NAN, 2.0, 8.0, 0.5, 3.0];
+        let ivar = vec![1.0, 2.0, 1.0, 4.0, 1.0, 3.0, 2.0];
+        let s = spec(flux.clone(), ivar);
+        for w in [3, 5] {
+            let f = s.smooth_boxcar(w).flux;
+            let m = s.smooth_values_boxcar(&flux, w);
+            for i in (0..flux.len()).filter(|&i| i != 2) {
+                assert_abs_diff_eq!(f[i], m[i], epsilon = 1e-12);
+            }
+            assert!(m[2].is_nan(), "no value at the masked pixel");
+        }
+        // a value missing where the flux is good is left out (and stays
+        // missing); nothing usable in reach gives NaN
+        let v = [f64::NAN, 7.0, 1.0, 5.0, f64::NAN, 2.0, f64::NAN];
+        let m = s.smooth_values_boxcar(&v, 3);
+        assert!(m[0].is_nan() && m[4].is_nan() && m[6].is_nan(), "{m:?}");
+        assert_abs_diff_eq!(m[1], 7.0, epsilon = 1e-12); // pixel 2 is masked
+        assert_abs_diff_eq!(m[3], 5.0, epsilon = 1e-12);
+        // pixel 5 alone (4 and 6 have no value): weight ivar 3
+        assert_abs_diff_eq!(m[5], 2.0, epsilon = 1e-12);
+        assert!(s
+            .smooth_values_boxcar(&[f64::NAN; 7], 5)
+            .iter()
+            .all(|x| x.is_nan()));
     }
 
     #[test]

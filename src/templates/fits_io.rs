@@ -174,9 +174,18 @@ pub fn write_set_with(
     })?;
     let fits_name = format!("{}.fits", set.name);
     let fits_path = dir.join(&fits_name);
-    let tmp_fits = dir.join(format!(".{}.fits.tmp", set.name));
-    let _ = std::fs::remove_file(&tmp_fits);
-    write_fits(set, &tmp_fits)?;
+    // Through the one atomic output path: a temporary file, checked against
+    // its own headers, fsynced, renamed over the old one.
+    crate::campaign::atomic_create(&fits_path, ".fits", |tmp: &Path| {
+        write_fits(set, tmp).map_err(Step::Set)
+    })
+    .map_err(|e| match e {
+        Step::Io(source) => TemplateError::Io {
+            path: fits_path.clone(),
+            source,
+        },
+        Step::Set(e) => e,
+    })?;
 
     let descriptor = Descriptor {
         format: DESCRIPTOR_FORMAT.to_string(),
@@ -203,24 +212,31 @@ pub fn write_set_with(
         generator,
     };
     let json_path = dir.join(format!("{}.json", set.name));
-    let tmp_json = dir.join(format!(".{}.json.tmp", set.name));
     let text = serde_json::to_string_pretty(&descriptor).map_err(|e| TemplateError::BadSet {
         name: set.name.clone(),
         message: e.to_string(),
     })?;
-    std::fs::write(&tmp_json, text + "\n").map_err(|source| TemplateError::Io {
-        path: tmp_json.clone(),
-        source,
-    })?;
-    std::fs::rename(&tmp_fits, &fits_path).map_err(|source| TemplateError::Io {
-        path: fits_path.clone(),
-        source,
-    })?;
-    std::fs::rename(&tmp_json, &json_path).map_err(|source| TemplateError::Io {
+    crate::campaign::atomic_write(&json_path, |w| {
+        w.write_all(text.as_bytes())?;
+        w.write_all(b"\n")
+    })
+    .map_err(|source| TemplateError::Io {
         path: json_path,
         source,
     })?;
     Ok(())
+}
+
+/// A step of writing the set's FITS file: the file system or the set itself.
+enum Step {
+    Io(std::io::Error),
+    Set(TemplateError),
+}
+
+impl From<std::io::Error> for Step {
+    fn from(e: std::io::Error) -> Self {
+        Step::Io(e)
+    }
 }
 
 fn check_set(set: &TemplateSet) -> Result<(), TemplateError> {

@@ -10,33 +10,86 @@ use std::path::PathBuf;
 use std::sync::Arc;
 
 use super::jobs::{Fitter, JobKind, Jobs};
+use super::keys;
 use super::load::Loads;
 use super::panels;
 use super::state::{AppState, Shown};
 use super::view::{self, Prepared};
-use super::{keys, settings};
 
 /// Where the review log of an inspector lives.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub enum LogPlace {
     /// Exactly this file, whoever the inspector is (tests).
     File(PathBuf),
-    /// `<folder>/<inspector>.jsonl` (demo, campaign, loose files).
+    /// `<folder>/<inspector>.jsonl` (the demo, loose files).
     Folder(PathBuf),
+    /// The campaign in this folder: its `reviews/<inspector>.jsonl`, opened
+    /// by the campaign (which registers the inspector in its manifest).
+    Campaign(PathBuf),
     /// Not known yet: the files named on the command line are still being
     /// read, and no log is opened (or created) until they are in.
     Pending,
 }
 
 impl LogPlace {
-    /// The log file for `inspector` (None while the place is pending).
-    pub fn path_for(&self, inspector: &str) -> Option<PathBuf> {
+    /// The log file for `inspector` (None while the place is pending). An
+    /// inspector name becomes a file name: outside a single named file it
+    /// must pass the library's check ([`crate::campaign::check_inspector`]).
+    pub fn path_for(&self, inspector: &str) -> Result<Option<PathBuf>, String> {
+        let checked = || crate::campaign::check_inspector(inspector).map_err(|e| e.to_string());
         match self {
-            LogPlace::File(p) => Some(p.clone()),
-            LogPlace::Folder(d) => Some(d.join(format!("{}.jsonl", settings::file_safe(inspector)))),
+            LogPlace::File(p) => Ok(Some(p.clone())),
+            LogPlace::Folder(d) => checked().map(|()| Some(d.join(format!("{inspector}.jsonl")))),
+            LogPlace::Campaign(dir) => {
+                checked()?;
+                let c = crate::campaign::Campaign::open(dir).map_err(|e| e.to_string())?;
+                Ok(Some(c.review_log_path(inspector)))
+            }
+            LogPlace::Pending => Ok(None),
+        }
+    }
+
+    /// The folder of the review logs (None while pending).
+    pub fn folder(&self) -> Option<PathBuf> {
+        match self {
+            LogPlace::File(p) => Some(p.parent().map(PathBuf::from).unwrap_or_default()),
+            LogPlace::Folder(d) => Some(d.clone()),
+            LogPlace::Campaign(dir) => Some(dir.join(crate::campaign::REVIEWS_DIR)),
             LogPlace::Pending => None,
         }
     }
+
+    /// Open (creating if needed) `inspector`'s log through the library: a
+    /// campaign's through [`crate::campaign::Campaign::open_review_log`],
+    /// any other through [`ReviewLog::open`]. Returns the log, the lines it
+    /// had to skip, and its path; None while the place is pending.
+    pub fn open(&self, inspector: &str) -> Result<Option<OpenedLog>, String> {
+        let Some(path) = self.path_for(inspector)? else {
+            return Ok(None);
+        };
+        let (log, problems) = match self {
+            LogPlace::Campaign(dir) => crate::campaign::Campaign::open(dir)
+                .and_then(|mut c| c.open_review_log(inspector))
+                .map_err(|e| e.to_string())?,
+            _ => {
+                if let Some(dir) = path.parent().filter(|d| !d.as_os_str().is_empty()) {
+                    std::fs::create_dir_all(dir).map_err(|e| format!("{}: {e}", dir.display()))?;
+                }
+                ReviewLog::open(&path, inspector).map_err(|e| e.to_string())?
+            }
+        };
+        Ok(Some(OpenedLog { log, problems, path }))
+    }
+}
+
+/// A review log the window opened.
+pub struct OpenedLog {
+    /// The log.
+    pub log: ReviewLog,
+    /// Lines it had to skip.
+    pub problems: Vec<crate::review::LogProblem>,
+    /// Its file.
+    pub path: PathBuf,
 }
 
 /// What the window opens on.
@@ -86,6 +139,9 @@ pub struct ZvetApp {
     pub(crate) resume: Option<(PathBuf, Option<super::resume::Resume>)>,
     /// Object id to open on (from the resume file).
     pub(crate) resume_target: Option<String>,
+    /// Objects whose fits hold χ²(z) curves, least recently used first
+    /// (at most [`super::jobs::CURVE_CACHE`]).
+    pub(crate) curves_kept: std::collections::VecDeque<usize>,
 }
 
 impl ZvetApp {
@@ -117,6 +173,7 @@ impl ZvetApp {
             prepared: None,
             resume: None,
             resume_target: None,
+            curves_kept: Default::default(),
         };
         app.restart_fits();
         match inspector {
@@ -239,6 +296,12 @@ impl ZvetApp {
         self.jobs.progress()
     }
 
+    /// True when no background fit, χ²(z) curve or refit waits or runs
+    /// (results may still wait to be taken by the next frame).
+    pub fn background_idle(&self) -> bool {
+        self.jobs.idle()
+    }
+
     /// Draw one frame and apply what the inspector asked for.
     pub fn show(&mut self, ui: &mut egui::Ui) {
         let ctx = ui.ctx().clone();
@@ -321,9 +384,16 @@ impl ZvetApp {
             match (done.kind, done.result) {
                 (JobKind::Fit, Ok(fit)) => {
                     self.write_back(i, &fit);
+                    // A background fit far from the shown object keeps no
+                    // curves (they come again when it is shown).
+                    let mut fit = fit;
+                    if !self.near_selection(i) {
+                        fit.curves = Vec::new();
+                    }
                     if let Some(slot) = self.state.fits.get_mut(i) {
                         *slot = Some(fit);
                         any_fit = true;
+                        self.keep_curves(i);
                     }
                     let v = self.verdict_of(i).cloned();
                     self.state.refresh_item(i, v.as_ref());
@@ -371,6 +441,7 @@ impl ZvetApp {
 
     /// Restart the background fits for every object that has none.
     pub(crate) fn restart_fits(&mut self) {
+        self.curves_kept.clear();
         let todo: Vec<usize> = (0..self.state.objects.len())
             .filter(|&i| self.state.fits[i].is_none())
             .collect();
@@ -386,6 +457,7 @@ impl ZvetApp {
 
     /// Select object `index`, asking for its fit first if it is not done.
     pub(crate) fn select(&mut self, index: usize) {
+        self.touch_curves(index);
         let v = self.verdict_of(index).cloned();
         self.state.select(index, v.as_ref());
         self.auto_smooth();

@@ -18,7 +18,7 @@ The verdict rules (also in the README):
 - The grade of a verdict is kept by later accepts; a plain accept of a new
   object is secure.
 */
-use crate::review::{Change, Confidence, FitSeen, ReviewLog, Verdict, VerdictClass, ZSource};
+use crate::review::{Change, Confidence, FitSeen, Verdict, VerdictClass, ZSource};
 
 use super::action::Action;
 use super::app::ZvetApp;
@@ -418,60 +418,56 @@ impl ZvetApp {
         // Close the old log first so its lock is released.
         self.log = None;
         self.resume = None;
-        let Some(path) = self.log_place.path_for(name) else {
-            // The files are still being read: the log opens once they are in.
-            self.inspector = Some(name.to_string());
-            self.state.name_prompt = None;
-            return;
-        };
-        if let Some(dir) = path.parent() {
-            let _ = std::fs::create_dir_all(dir);
-        }
-        match ReviewLog::open(&path, name) {
-            Ok((log, problems)) => {
-                for p in problems {
-                    self.state.say(
-                        format!("{}: line {} skipped: {}", path.display(), p.line, p.message),
-                        true,
-                    );
-                }
-                self.state
-                    .say(format!("{name} reviews into {}", path.display()), false);
-                self.log = Some(log);
+        let opened = match self.log_place.open(name) {
+            Ok(Some(o)) => o,
+            Ok(None) => {
+                // The files are still being read: the log opens once they are in.
                 self.inspector = Some(name.to_string());
                 self.state.name_prompt = None;
-                if let Some(f) = &self.name_file {
-                    let remembered = settings::read_name(f);
-                    if remember {
-                        if let Err(e) = settings::write_name(f, name) {
-                            self.state.say(format!("could not remember the name: {e}"), true);
-                        }
-                    } else if remembered.as_deref().is_some_and(|r| r != name) {
-                        self.state.say(
-                            format!(
-                                "{name} for this session only; the remembered name stays {}",
-                                remembered.unwrap_or_default()
-                            ),
-                            false,
-                        );
-                    }
-                }
-                let here = self.state.current().map(|o| o.id().to_string());
-                self.load_resume(&path);
-                if self.resume_target.is_none() {
-                    self.resume_target = here;
-                }
-                self.rebuild_queue();
-                self.select_start();
+                return;
             }
             Err(e) => {
-                self.state.say(
-                    format!("could not open the review log {}: {e}", path.display()),
-                    true,
-                );
+                self.state
+                    .say(format!("could not open the review log of {name}: {e}"), true);
                 self.state.name_prompt = Some(name.to_string());
+                return;
+            }
+        };
+        let super::app::OpenedLog { log, problems, path } = opened;
+        for p in problems {
+            self.state.say(
+                format!("{}: line {} skipped: {}", path.display(), p.line, p.message),
+                true,
+            );
+        }
+        self.state
+            .say(format!("{name} reviews into {}", path.display()), false);
+        self.log = Some(log);
+        self.inspector = Some(name.to_string());
+        self.state.name_prompt = None;
+        if let Some(f) = &self.name_file {
+            let remembered = settings::read_name(f);
+            if remember {
+                if let Err(e) = settings::write_name(f, name) {
+                    self.state.say(format!("could not remember the name: {e}"), true);
+                }
+            } else if remembered.as_deref().is_some_and(|r| r != name) {
+                self.state.say(
+                    format!(
+                        "{name} for this session only; the remembered name stays {}",
+                        remembered.unwrap_or_default()
+                    ),
+                    false,
+                );
             }
         }
+        let here = self.state.current().map(|o| o.id().to_string());
+        self.load_resume(&path);
+        if self.resume_target.is_none() {
+            self.resume_target = here;
+        }
+        self.rebuild_queue();
+        self.select_start();
     }
 }
 

@@ -104,6 +104,12 @@ pub const REFIT_HALF_WIDTH_KMS: f64 = 2000.0;
 /// How many objects after the shown one get their χ²(z) curves ahead of time.
 pub const CURVE_PREFETCH: usize = 3;
 
+/// At most this many objects keep their χ²(z) curves in memory (the most
+/// recently shown or prefetched; a curve set of the built-in templates is
+/// of the order of a megabyte). An object whose curves were dropped gets
+/// them again when it is shown.
+pub const CURVE_CACHE: usize = 16;
+
 /// Automatic fits written back per batch (a batch is also written when the
 /// background fits are done).
 pub const WRITE_BACK_BATCH: usize = 64;
@@ -114,6 +120,8 @@ struct Shared {
     wake: Condvar,
     stop: AtomicBool,
     done: AtomicUsize,
+    /// Jobs taken by a worker and not yet sent back.
+    active: AtomicUsize,
 }
 
 /// The worker pool and its result channel.
@@ -133,6 +141,7 @@ impl Jobs {
             wake: Condvar::new(),
             stop: AtomicBool::new(false),
             done: AtomicUsize::new(0),
+            active: AtomicUsize::new(0),
         });
         let (tx, rx) = channel();
         let repaint: Arc<OnceLock<egui::Context>> = Arc::new(OnceLock::new());
@@ -203,6 +212,11 @@ impl Jobs {
         self.shared.wake.notify_all();
     }
 
+    /// Let the curves of `index` be asked for again (they were dropped).
+    pub fn forget_curves(&self, index: usize) {
+        lock(&self.shared.curves_asked).remove(&index);
+    }
+
     /// Ask for a refit of `index` near `z` (first in line).
     pub fn refit(&self, index: usize, z: f64, class: Option<ObjectClass>) {
         lock(&self.shared.queue).push_front((index, JobKind::RefitNear { z, class }));
@@ -223,6 +237,12 @@ impl Jobs {
     pub fn busy(&self) -> bool {
         let (d, t) = self.progress();
         d < t
+    }
+
+    /// True when no job of any kind (fit, curves, refit) waits or runs.
+    pub fn idle(&self) -> bool {
+        let q = lock(&self.shared.queue);
+        q.is_empty() && self.shared.active.load(Ordering::SeqCst) == 0
     }
 }
 
@@ -254,6 +274,9 @@ fn worker(
                     return;
                 }
                 if let Some(j) = q.pop_front() {
+                    // counted while the queue is locked, so `idle` never
+                    // sees a job that is neither queued nor active
+                    shared.active.fetch_add(1, Ordering::SeqCst);
                     break j;
                 }
                 q = shared.wake.wait(q).unwrap_or_else(|e| e.into_inner());
@@ -261,6 +284,7 @@ fn worker(
         };
         let (index, kind) = job;
         let Some(obj) = objects.get(index) else {
+            shared.active.fetch_sub(1, Ordering::SeqCst);
             continue;
         };
         // A panic inside the engine must not take the window down: report it.
@@ -274,7 +298,9 @@ fn worker(
         if matches!(kind, JobKind::Fit) {
             shared.done.fetch_add(1, Ordering::Relaxed);
         }
-        if tx.send(JobDone { index, kind, result }).is_err() {
+        let sent = tx.send(JobDone { index, kind, result });
+        shared.active.fetch_sub(1, Ordering::SeqCst);
+        if sent.is_err() {
             return;
         }
         if let Some(ctx) = repaint.get() {

@@ -48,8 +48,8 @@ pub enum Loaded {
         title: String,
         /// The objects (with cached fits where the campaign has them).
         objects: Vec<SurveyObject>,
-        /// Folder of the review logs.
-        log_folder: PathBuf,
+        /// The campaign folder (its review logs are opened through it).
+        dir: PathBuf,
         /// Inspectors the campaign knows (registered, or with a log).
         inspectors: Vec<String>,
         /// Things that could not be read.

@@ -112,12 +112,11 @@ pub fn read_campaign(path: &Path) -> Loaded {
             None
         }
     };
-    let log_folder = campaign.reviews_dir();
-    let inspectors = known_inspectors(&campaign.manifest().inspectors, &log_folder);
+    let inspectors = known_inspectors(&campaign);
     Loaded::Campaign {
         title: campaign.manifest().name.clone(),
         objects,
-        log_folder,
+        dir: campaign.dir().to_path_buf(),
         inspectors,
         problems,
         // automatic fits made here go back to the campaign's cache only when
@@ -127,21 +126,11 @@ pub fn read_campaign(path: &Path) -> Loaded {
     }
 }
 
-/// The campaign's registered inspectors, then those with a log in `folder`
-/// (file stems of `*.jsonl`), each once.
-pub fn known_inspectors(registered: &[String], folder: &Path) -> Vec<String> {
-    let mut names: Vec<String> = registered.to_vec();
-    let mut logs: Vec<String> = std::fs::read_dir(folder)
-        .map(|rd| {
-            rd.filter_map(|e| e.ok())
-                .map(|e| e.path())
-                .filter(|p| p.extension().is_some_and(|x| x == "jsonl"))
-                .filter_map(|p| p.file_stem().map(|s| s.to_string_lossy().into_owned()))
-                .collect()
-        })
-        .unwrap_or_default();
-    logs.sort();
-    for n in logs {
+/// The campaign's registered inspectors, then those with a log (as the
+/// campaign lists them), each once.
+pub fn known_inspectors(campaign: &crate::campaign::Campaign) -> Vec<String> {
+    let mut names: Vec<String> = campaign.manifest().inspectors.clone();
+    for n in campaign.log_inspectors().unwrap_or_default() {
         if !names.contains(&n) {
             names.push(n);
         }
@@ -170,7 +159,7 @@ impl ZvetApp {
             Loaded::Campaign {
                 title,
                 objects,
-                log_folder,
+                dir,
                 inspectors,
                 problems,
                 fitter,
@@ -181,7 +170,7 @@ impl ZvetApp {
                 if let Some(fitter) = fitter {
                     self.fitter = fitter;
                 }
-                self.replace_objects(title, objects, LogPlace::Folder(log_folder));
+                self.replace_objects(title, objects, LogPlace::Campaign(dir));
                 self.state.known_inspectors = inspectors;
             }
             Loaded::Catalog { path, rows } => {
@@ -290,6 +279,59 @@ impl ZvetApp {
             if cached.curves.is_empty() {
                 cached.curves = fit.curves;
             }
+        }
+        self.keep_curves(index);
+    }
+
+    /// The fit of `index` now holds curves: count it as the most recently
+    /// used, and drop the curves of the least recently used beyond
+    /// [`super::jobs::CURVE_CACHE`] (never the shown object's).
+    pub(crate) fn keep_curves(&mut self, index: usize) {
+        let holds = |s: &super::state::AppState, i: usize| {
+            s.fits
+                .get(i)
+                .is_some_and(|f| f.as_ref().is_some_and(|f| !f.curves.is_empty()))
+        };
+        if !holds(&self.state, index) {
+            return;
+        }
+        self.curves_kept.retain(|&i| i != index);
+        self.curves_kept.push_back(index);
+        while self.curves_kept.len() > super::jobs::CURVE_CACHE {
+            let Some(pos) = self
+                .curves_kept
+                .iter()
+                .position(|&i| Some(i) != self.state.selected)
+            else {
+                break;
+            };
+            let Some(old) = self.curves_kept.remove(pos) else {
+                break;
+            };
+            if let Some(Some(f)) = self.state.fits.get_mut(old) {
+                f.curves = Vec::new();
+            }
+            self.jobs.forget_curves(old);
+        }
+    }
+
+    /// True for the shown object and the next few of the list (those whose
+    /// curves are prefetched).
+    pub(crate) fn near_selection(&self, index: usize) -> bool {
+        let Some(pos) = self.state.position() else {
+            return self.state.selected == Some(index);
+        };
+        self.state.order[pos..]
+            .iter()
+            .take(1 + super::jobs::CURVE_PREFETCH)
+            .any(|&i| i == index)
+    }
+
+    /// Object `index` is being shown: its curves are the most recently used.
+    pub(crate) fn touch_curves(&mut self, index: usize) {
+        if let Some(pos) = self.curves_kept.iter().position(|&i| i == index) {
+            self.curves_kept.remove(pos);
+            self.curves_kept.push_back(index);
         }
     }
 

@@ -86,13 +86,12 @@ pub fn read(path: &Path) -> Result<Option<Resume>, String> {
     Ok(Some(r))
 }
 
-/// Write `r` to `path` (a temporary file renamed over the old one, so a
-/// crash leaves either the old or the new file).
+/// Write `r` to `path` through the library's one atomic output path
+/// ([`crate::campaign::atomic_write`]: a temporary file, fsynced, renamed
+/// over the old one), so a crash leaves either the old or the new file.
 pub fn write(path: &Path, r: &Resume) -> std::io::Result<()> {
     let text = serde_json::to_string_pretty(r).map_err(std::io::Error::other)?;
-    let tmp = path.with_extension("json.tmp");
-    std::fs::write(&tmp, text)?;
-    std::fs::rename(&tmp, path)
+    crate::campaign::atomic_write(path, |w| w.write_all(text.as_bytes()))
 }
 
 #[cfg(test)]
@@ -122,6 +121,13 @@ mod tests {
         };
         write(&p, &r).unwrap();
         assert_eq!(read(&p), Ok(Some(r.clone())));
+        // rewritten in place, no temporary left beside the log
+        write(&p, &r).unwrap();
+        let names: Vec<_> = std::fs::read_dir(dir.path())
+            .unwrap()
+            .map(|e| e.unwrap().file_name())
+            .collect();
+        assert_eq!(names, [p.file_name().unwrap()]);
         assert_eq!(r.view().smoothing, 9);
         std::fs::write(&p, "{ not json").unwrap();
         assert!(read(&p).unwrap_err().contains("not a resume file"));

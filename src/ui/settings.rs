@@ -22,12 +22,13 @@ pub fn read_name(path: &Path) -> Option<String> {
     (!s.is_empty()).then(|| s.to_string())
 }
 
-/// Remember `name` in `path` (creating the folder).
+/// Remember `name` in `path` (creating the folder), through the library's
+/// one atomic output path ([`crate::campaign::atomic_write`]).
 pub fn write_name(path: &Path, name: &str) -> std::io::Result<()> {
     if let Some(dir) = path.parent() {
         std::fs::create_dir_all(dir)?;
     }
-    std::fs::write(path, format!("{}\n", name.trim()))
+    crate::campaign::atomic_write(path, |w| writeln!(w, "{}", name.trim()))
 }
 
 /// Folder of the demo survey's review logs (work on the demo persists).
@@ -40,37 +41,9 @@ pub fn loose_log_folder() -> Option<PathBuf> {
     dirs().map(|d| d.data_dir().join("loose").join("reviews"))
 }
 
-/// `name` made safe as a file stem: letters, digits, `-`, `_` and `.` kept,
-/// anything else becomes `_`.
-pub fn file_safe(name: &str) -> String {
-    let s: String = name
-        .trim()
-        .chars()
-        .map(|c| {
-            if c.is_alphanumeric() || matches!(c, '-' | '_' | '.') {
-                c
-            } else {
-                '_'
-            }
-        })
-        .collect();
-    if s.is_empty() || s.starts_with('.') {
-        format!("_{s}")
-    } else {
-        s
-    }
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    #[test]
-    fn names_become_safe_file_stems() {
-        assert_eq!(file_safe("Ada Lovelace"), "Ada_Lovelace");
-        assert_eq!(file_safe("../x"), "_.._x");
-        assert_eq!(file_safe(""), "_");
-    }
 
     #[test]
     fn name_round_trips() {
@@ -79,5 +52,13 @@ mod tests {
         assert_eq!(read_name(&p), None);
         write_name(&p, " kim ").unwrap();
         assert_eq!(read_name(&p).as_deref(), Some("kim"));
+        write_name(&p, "ana").unwrap();
+        assert_eq!(read_name(&p).as_deref(), Some("ana"));
+        // replaced whole, no temporary left behind
+        let names: Vec<_> = std::fs::read_dir(p.parent().unwrap())
+            .unwrap()
+            .map(|e| e.unwrap().file_name())
+            .collect();
+        assert_eq!(names, [p.file_name().unwrap()]);
     }
 }

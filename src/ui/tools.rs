@@ -48,10 +48,8 @@ impl Adjudication {
     /// inside a campaign (`<campaign>/reviews`) takes the campaign's
     /// tolerance and adjudicator (as `zvet campaign merge` does).
     pub fn load(place: &LogPlace) -> Result<Adjudication, String> {
-        let folder = match place {
-            LogPlace::Folder(d) => d.clone(),
-            LogPlace::File(p) => p.parent().map(Path::to_path_buf).unwrap_or_default(),
-            LogPlace::Pending => return Err("the spectra are still loading: no review log yet".into()),
+        let Some(folder) = place.folder() else {
+            return Err("the spectra are still loading: no review log yet".into());
         };
         let campaign_dir = folder.parent().filter(|p| p.join("campaign.toml").is_file());
         let (logs, problems, adjudicator, tolerance) = match campaign_dir {
@@ -488,8 +486,11 @@ impl ZvetApp {
         }
     }
 
-    /// Record `who`'s class and z (with its error and source) as one's own
-    /// verdict, with one's own certainty (as Space would give it).
+    /// Record `who`'s verdict as one's own: class and z (with its error and
+    /// source), then their flags and note — one's own flags that they did
+    /// not raise are cleared, and the note becomes theirs — with one's own
+    /// certainty (as Space would give it). Each part is an ordinary event of
+    /// one's own log (the verdict, one per flag changed, the note).
     fn adopt(&mut self, who: &str) {
         let Some(v) = self.opinion(who) else {
             self.state
@@ -512,8 +513,27 @@ impl ZvetApp {
             source: v.z_source.unwrap_or(ZSource::Typed),
             confidence,
         });
+        let Some(mine) = self.current_verdict().cloned() else {
+            // not recorded (no log yet): the reason is already on screen
+            return;
+        };
+        for flag in crate::review::Flag::ALL {
+            let on = v.flags.contains(&flag);
+            if mine.flags.contains(&flag) != on {
+                self.record(Change::Flag { flag, on });
+            }
+        }
+        if mine.note != v.note {
+            self.record(Change::Note { text: v.note.clone() });
+        }
         let mine = self.current_verdict().cloned();
         self.state.sync_texts(mine.as_ref());
+        if let Some(m) = &mine {
+            self.state.say(
+                format!("adopted {who}'s verdict: {}", super::apply::verdict_words(m)),
+                false,
+            );
+        }
     }
 
     /// After a change of one's own log: keep the merge current.
@@ -581,7 +601,7 @@ impl ZvetApp {
             match z {
                 None => p.overlay_error = Some("no redshift shown yet".into()),
                 Some(z) => match self.fitter.overlay(s, o, z) {
-                    Ok(m) => p.overlay = smoothed_points(s.wave(), &m, width, zf),
+                    Ok(m) => p.overlay = smoothed_points(s, &m, width, zf),
                     Err(e) => p.overlay_error = Some(e),
                 },
             }
@@ -620,31 +640,21 @@ impl ZvetApp {
         }
         if t.show_sky {
             if let Some(sky) = s.sky() {
-                p.sky = smoothed_points(s.wave(), sky, width, zf);
+                p.sky = smoothed_points(s, sky, width, zf);
             }
         }
         p
     }
 }
 
-/// (λ/zf, running mean over `width` pixels of the finite values) at each
-/// pixel where `v` is finite.
-fn smoothed_points(wave: &[f64], v: &[f64], width: usize, zf: f64) -> Vec<[f64; 2]> {
-    let n = v.len().min(wave.len());
-    let mut s = vec![0.0; n + 1];
-    let mut c = vec![0usize; n + 1];
-    for (i, &x) in v.iter().enumerate().take(n) {
-        let ok = x.is_finite();
-        s[i + 1] = s[i] + if ok { x } else { 0.0 };
-        c[i + 1] = c[i] + usize::from(ok);
-    }
-    let half = width / 2;
-    (0..n)
-        .filter(|&i| v[i].is_finite())
-        .map(|i| {
-            let (a, b) = (i.saturating_sub(half), (i + half + 1).min(n));
-            [wave[i] / zf, (s[b] - s[a]) / (c[b] - c[a]).max(1) as f64]
-        })
+/// (λ/zf, `v` smoothed over `width` pixels by the library's smoothing, as the
+/// flux is) at each pixel where the smoothed value is finite.
+fn smoothed_points(s: &crate::Spectrum, v: &[f64], width: usize, zf: f64) -> Vec<[f64; 2]> {
+    s.wave()
+        .iter()
+        .zip(s.smooth_values_boxcar(v, width))
+        .filter(|(_, y)| y.is_finite())
+        .map(|(x, y)| [x / zf, y])
         .collect()
 }
 
@@ -653,10 +663,17 @@ mod tests {
     use super::*;
 
     #[test]
-    fn running_mean_skips_gaps() {
-        let w = [1.0, 2.0, 3.0, 4.0];
+    fn smoothing_of_drawn_values_skips_gaps() {
+        let s = crate::Spectrum::new(
+            vec![1.0, 2.0, 3.0, 4.0],
+            vec![0.0; 4],
+            Some(vec![1.0; 4]),
+            None,
+            Default::default(),
+        )
+        .unwrap();
         let v = [1.0, f64::NAN, 3.0, 5.0];
-        let p = smoothed_points(&w, &v, 3, 1.0);
+        let p = smoothed_points(&s, &v, 3, 1.0);
         assert_eq!(p.len(), 3);
         assert!((p[0][1] - 1.0).abs() < 1e-12);
         assert!((p[1][1] - 4.0).abs() < 1e-12);

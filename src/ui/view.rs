@@ -166,10 +166,12 @@ pub fn prepare(
         (true, Some(z)) if z > -1.0 => 1.0 + z,
         _ => 1.0,
     };
-    let (flux_s, sigma_s) = smooth(s, view.smoothing.max(1));
-    // The model is smoothed exactly as the flux is, so that line depths compare.
+    let width = view.smoothing.max(1);
+    let (flux_s, sigma_s) = smooth(s, width);
+    // The model is smoothed exactly as the flux is (the library's one
+    // smoothing, the same weights), so that line depths compare.
     let model_s = if model.len() == n {
-        smooth_values(s, model, view.smoothing.max(1))
+        s.smooth_values_boxcar(model, width)
     } else {
         Vec::new()
     };
@@ -270,76 +272,17 @@ pub fn prepare(
     p
 }
 
-/// Inverse-variance weighted boxcar of `width` pixels over good pixels, and
-/// the 1σ error of each smoothed value. Prefix sums keep it O(n) whatever the width.
+/// The flux smoothed by the library's boxcar of `width` pixels
+/// ([`Spectrum::smooth_boxcar`]: inverse-variance weighted over good pixels)
+/// and the 1σ error of each smoothed value (0 where no good pixel is in reach).
 pub fn smooth(s: &Spectrum, width: usize) -> (Vec<f64>, Vec<f64>) {
-    let n = s.len();
-    let (f, iv, g) = (s.flux(), s.ivar(), s.good());
-    let mut sw = vec![0.0; n + 1];
-    let mut swf = vec![0.0; n + 1];
-    for i in 0..n {
-        let w = if g[i] { iv[i] } else { 0.0 };
-        sw[i + 1] = sw[i] + w;
-        swf[i + 1] = swf[i] + w * f[i];
-    }
-    let half = width / 2;
-    let mut out = vec![0.0; n];
-    let mut err = vec![0.0; n];
-    for i in 0..n {
-        let a = i.saturating_sub(half);
-        let b = (i + half + 1).min(n);
-        let w = sw[b] - sw[a];
-        if w > 0.0 {
-            out[i] = (swf[b] - swf[a]) / w;
-            err[i] = 1.0 / w.sqrt();
-        } else {
-            out[i] = f[i];
-            err[i] = 0.0;
-        }
-    }
-    (out, err)
-}
-
-/// `values` (e.g. a model at the spectrum's pixels, NaN where undefined)
-/// smoothed with the same inverse-variance weighted boxcar as the flux in
-/// [`smooth`]; where a window holds no weighted pixel, the plain mean of its
-/// finite values; NaN where it holds none.
-pub fn smooth_values(s: &Spectrum, values: &[f64], width: usize) -> Vec<f64> {
-    let n = s.len().min(values.len());
-    if width <= 1 {
-        return values[..n].to_vec();
-    }
-    let (iv, g) = (s.ivar(), s.good());
-    let (mut sw, mut swf, mut cn, mut cf) = (
-        vec![0.0; n + 1],
-        vec![0.0; n + 1],
-        vec![0.0; n + 1],
-        vec![0.0; n + 1],
-    );
-    for i in 0..n {
-        let ok = values[i].is_finite();
-        let w = if ok && g[i] { iv[i] } else { 0.0 };
-        let v = if ok { values[i] } else { 0.0 };
-        sw[i + 1] = sw[i] + w;
-        swf[i + 1] = swf[i] + w * v;
-        cn[i + 1] = cn[i] + if ok { 1.0 } else { 0.0 };
-        cf[i + 1] = cf[i] + v;
-    }
-    let half = width / 2;
-    (0..n)
-        .map(|i| {
-            if !values[i].is_finite() {
-                return f64::NAN;
-            }
-            let (a, b) = (i.saturating_sub(half), (i + half + 1).min(n));
-            let w = sw[b] - sw[a];
-            if w > 0.0 {
-                (swf[b] - swf[a]) / w
-            } else {
-                (cf[b] - cf[a]) / (cn[b] - cn[a])
-            }
-        })
-        .collect()
+    let sm = s.smooth_boxcar(width);
+    let err = sm
+        .ivar
+        .iter()
+        .map(|&iv| if iv > 0.0 { 1.0 / iv.sqrt() } else { 0.0 })
+        .collect();
+    (sm.flux, err)
 }
 
 /// 1st–99th percentile of `v`, padded by 15 % (robust against spikes).
@@ -386,13 +329,13 @@ mod tests {
         let s = spec(flux.clone(), ivar, good);
         for w in [1, 3, 9] {
             let (f, _) = smooth(&s, w);
-            let m = smooth_values(&s, &flux, w);
+            let m = s.smooth_values_boxcar(&flux, w);
             for i in (0..40).filter(|&i| i != 5) {
                 assert_relative_eq!(f[i], m[i], epsilon = 1e-12);
             }
         }
         // At 9 px a one-pixel line of the model is as shallow as the data's.
-        let m9 = smooth_values(&s, &flux, 9);
+        let m9 = s.smooth_values_boxcar(&flux, 9);
         assert!(m9[20] < 3.0, "{}", m9[20]);
     }
 
