@@ -255,7 +255,7 @@ fn full_disk_report_keeps_the_old_set_whole() {
 }
 
 /// A campaign on three demo objects with one review each.
-fn demo_campaign(dir: &Path) -> PathBuf {
+pub(crate) fn demo_campaign(dir: &Path) -> PathBuf {
     let survey = zvet::demo::generate_n(zvet::demo::DEFAULT_SEED, 3);
     let w = zvet::demo::write_survey(&survey, &dir.join("demo")).unwrap();
     let camp = dir.join("campaign");
