@@ -360,6 +360,36 @@ fn lyman_alpha_forest_suppresses_the_blue_side() {
     assert!(at(c, 905.0) / at(c, 918.0) > 0.8);
 }
 
+/// Equivalent width (Å) of an absorption line in a real spectrum file:
+/// ∫ (1 − f/c) dλ over [center − half, center + half] (trapezoids on the
+/// file's own pixels), c the straight line through the median flux within
+/// ±5 Å of the two continuum points (the definition of an equivalent width,
+/// common practice).
+fn real_ew(path: &std::path::Path, center: f64, half: f64, cont: (f64, f64)) -> f64 {
+    let s = zvet::io::read_file(path, &Default::default()).unwrap().remove(0);
+    let (w, f) = (s.wave(), s.flux());
+    let med = |at: f64| {
+        let mut v: Vec<f64> = (0..w.len())
+            .filter(|&i| (w[i] - at).abs() <= 5.0 && f[i].is_finite())
+            .map(|i| f[i])
+            .collect();
+        assert!(!v.is_empty(), "{}: no pixels near {at} Å", path.display());
+        v.sort_by(f64::total_cmp);
+        v[v.len() / 2]
+    };
+    let (c0, c1) = (med(cont.0), med(cont.1));
+    let c = |l: f64| c0 + (c1 - c0) * (l - cont.0) / (cont.1 - cont.0);
+    let idx: Vec<usize> = (0..w.len())
+        .filter(|&i| (center - half..=center + half).contains(&w[i]))
+        .collect();
+    idx.windows(2)
+        .map(|p| {
+            let (a, b) = (p[0], p[1]);
+            0.5 * ((1.0 - f[a] / c(w[a])) + (1.0 - f[b] / c(w[b]))) * (w[b] - w[a])
+        })
+        .sum()
+}
+
 #[test]
 fn spectral_sequence_behaves_as_in_the_textbooks() {
     // Classification criteria (common practice): hydrogen lines peak at A0,
@@ -385,8 +415,18 @@ fn spectral_sequence_behaves_as_in_the_textbooks() {
         .unwrap()
         .0;
     assert_eq!(seq[best], "star-A", "Hδ EWs {hdelta:?}");
-    // An A0 dwarf has W(Hδ) ≈ 15–20 Å (from memory).
-    assert!((10.0..=25.0).contains(&hdelta[2]), "A-star Hδ EW {}", hdelta[2]);
+    // The A template's Hδ against a real A0 V star measured the same way
+    // (same line and continuum windows): the STIS spectrum of α Lyr that
+    // astro-sedpy ships (support::a0v_star).
+    let vega = real_ew(&support::a0v_star(), 4102.9, 40.0, (4045.0, 4160.0));
+    // The template is a generic A dwarf, α Lyr an A0 V; Balmer equivalent
+    // widths in a fixed window differ by up to about a fifth between A0 and
+    // A3 dwarfs (from memory), so within 20 % (measured: 13.6 Å vs 16.2 Å).
+    assert!(
+        (hdelta[2] / vega - 1.0).abs() < 0.2,
+        "A-star Hδ EW {} Å, α Lyr {vega} Å",
+        hdelta[2]
+    );
     let cak: Vec<f64> = seq[2..6]
         .iter()
         .map(|n| ew(get(set, n), 3934.8, 12.0, (3910.0, 3955.0)))
@@ -403,9 +443,15 @@ fn spectral_sequence_behaves_as_in_the_textbooks() {
     assert!(k > 0.9 && m0 < k && m4 < m0 && m4 < 0.6, "K {k} M0 {m0} M4 {m4}");
     // The white dwarf's Balmer lines are far broader than the A star's.
     let wd = ew(get(set, "star-WD-DA"), 4102.9, 60.0, (4010.0, 4200.0));
+    let a60 = ew(get(set, "star-A"), 4102.9, 60.0, (4010.0, 4200.0));
+    let real_wd = real_ew(&support::da_white_dwarf(), 4102.9, 60.0, (4010.0, 4200.0));
+    let real_a = real_ew(&support::a0v_star(), 4102.9, 60.0, (4010.0, 4200.0));
+    // The ratio of the real DA white dwarf's Hδ to the real A star's in the
+    // same window (1.2 for GRW +70 5824 and α Lyr) is the floor for the
+    // templates' ratio (a hot DA's lines are weaker than the strongest DAs').
     assert!(
-        wd > 1.5 * ew(get(set, "star-A"), 4102.9, 60.0, (4010.0, 4200.0)),
-        "WD Hδ EW {wd}"
+        wd / a60 >= real_wd / real_a,
+        "WD/A Hδ EW {wd:.1}/{a60:.1} below the real stars' {real_wd:.1}/{real_a:.1}"
     );
 }
 
