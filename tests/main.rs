@@ -12,6 +12,7 @@ mod gui_review;
 mod gui_tools;
 mod io;
 mod lines;
+mod noise;
 mod pipeline;
 mod records;
 mod review;

@@ -33,7 +33,7 @@ fn pad(mut data: Vec<u8>) -> Vec<u8> {
 }
 
 /// A 1-D float image of `n` pixels with a linear WCS, `naxis1` as declared.
-fn image(n: usize, naxis1: &str, cdelt: &str, extra: &[String]) -> Vec<u8> {
+pub(crate) fn image(n: usize, naxis1: &str, cdelt: &str, extra: &[String]) -> Vec<u8> {
     let mut cards = vec![
         card("SIMPLE", "T"),
         card("BITPIX", "-32"),

@@ -327,3 +327,45 @@ fn a_failed_export_says_its_message_once() {
     assert!(!o.status.success(), "{err}");
     assert_eq!(err.matches("no such file or folder").count(), 1, "{err}");
 }
+
+// ------------------------- items 5 and 12 through the program: the run goes on
+
+/// A folder holding a good spectrum, a FITS file whose NAXIS1 declares
+/// 2·10¹⁰ pixels and a file whose name is not UTF-8: `zvet fit` fits the good
+/// one, names both bad ones, and exits 1 (not 0, not an abort).
+#[cfg(unix)]
+#[test]
+fn a_run_over_a_corrupt_size_card_and_a_bad_name_fits_the_rest_and_exits_1() {
+    use std::os::unix::ffi::OsStrExt;
+    let dir = scratch("gaps-run-goes-on");
+    let survey = zvet::demo::generate_n(zvet::demo::DEFAULT_SEED, 1);
+    let w = zvet::demo::write_survey(&survey, &dir.join("demo")).unwrap();
+    std::fs::write(
+        w.spectra.join("huge.fits"),
+        crate::robust::image(500, "20000000000", "1.0", &[]),
+    )
+    .unwrap();
+    let bad = w.spectra.join(std::ffi::OsStr::from_bytes(b"bad\xff.csv"));
+    std::fs::write(&bad, "wave,flux\n5000,1\n5001,2\n").unwrap();
+    let out = dir.join("out.csv");
+    let o = zvet(&[
+        "fit".as_ref(),
+        w.spectra.as_os_str(),
+        "--out".as_ref(),
+        out.as_os_str(),
+        "--classes".as_ref(),
+        "galaxy".as_ref(),
+        "--threads".as_ref(),
+        "1".as_ref(),
+    ]);
+    let err = text(&o.stderr);
+    assert_eq!(o.status.code(), Some(1), "{err}");
+    assert!(err.contains("not UTF-8"), "{err}");
+    let rows = read_rows(&out).unwrap();
+    let good: Vec<&FitRow> = rows.iter().filter(|r| r.error.is_empty()).collect();
+    assert_eq!(good.len(), 1, "{rows:?}");
+    assert_eq!(good[0].object_id, survey.objects[0].id());
+    let huge: Vec<&FitRow> = rows.iter().filter(|r| r.source.contains("huge.fits")).collect();
+    assert_eq!(huge.len(), 1, "{rows:?}");
+    assert!(huge[0].error.contains("truncated"), "{}", huge[0].error);
+}
