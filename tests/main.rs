@@ -14,6 +14,7 @@ mod io;
 mod lines;
 mod noise;
 mod pipeline;
+mod real_quasar;
 mod records;
 mod review;
 mod robust;
