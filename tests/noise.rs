@@ -1,12 +1,20 @@
 /*!
-The noise estimate of files without uncertainties, against numpy: the pixels
-and numpy's estimate of the same quantity were recorded by
-tests/scripts/record_noise_numpy.py into tests/data/noise/noise_numpy.json.
+Pixel arithmetic against numpy. The noise estimate of files without
+uncertainties: the pixels and numpy's estimate of the same quantity were
+recorded by tests/scripts/record_noise_numpy.py into
+tests/data/noise/noise_numpy.json. The flux-conserving resampling onto the
+log-λ grid: numpy's rebin of the same pixels (from the cumulative integral)
+recorded by tests/scripts/record_resample_numpy.py into
+tests/data/resample/resample_numpy.json.
 */
 use serde_json::Value;
 
 fn recording() -> Value {
-    let p = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/data/noise/noise_numpy.json");
+    load("tests/data/noise/noise_numpy.json")
+}
+
+fn load(rel: &str) -> Value {
+    let p = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join(rel);
     serde_json::from_str(&std::fs::read_to_string(&p).unwrap()).unwrap()
 }
 
@@ -67,6 +75,39 @@ fn the_noise_estimate_matches_numpy_on_the_same_pixels() {
         assert!(
             (med / t - 1.0).abs() < 0.2,
             "pixels {lo}..{hi}: median σ {med}, drawn with {t}"
+        );
+    }
+}
+
+#[test]
+fn resampling_matches_a_numpy_rebin_of_the_same_pixels() {
+    let r = load("tests/data/resample/resample_numpy.json");
+    let (wave, flux, sigma) = (floats(&r["wave"]), floats(&r["flux"]), floats(&r["sigma"]));
+    let ivar: Vec<f64> = sigma.iter().map(|s| 1.0 / (s * s)).collect();
+    let s = zvet::Spectrum::new(wave, flux, Some(ivar), None, Default::default()).unwrap();
+    let dloglam = r["dloglam"].as_f64().unwrap();
+    let grid = s.log_grid(dloglam);
+    // The grid as the script built it from the documented rule.
+    assert_eq!(grid.n as u64, r["grid_n"].as_u64().unwrap());
+    assert!((grid.loglam0 - r["grid_loglam0"].as_f64().unwrap()).abs() < 1e-12);
+    let out = s.resample(&grid);
+    let index = r["index"].as_array().unwrap();
+    let (want_f, want_s) = (floats(&r["flux_out"]), floats(&r["sigma_out"]));
+    assert!(index.len() > 800);
+    for (k, j) in index.iter().enumerate() {
+        let j = j.as_u64().unwrap() as usize;
+        // Both are sums of a few products of the same doubles: 1e-9 relative.
+        let f = out.flux[j];
+        assert!(
+            ((f - want_f[k]) / want_f[k]).abs() < 1e-9,
+            "pixel {j}: flux {f} vs numpy {}",
+            want_f[k]
+        );
+        let sd = 1.0 / out.ivar[j].sqrt();
+        assert!(
+            ((sd - want_s[k]) / want_s[k]).abs() < 1e-9,
+            "pixel {j}: σ {sd} vs numpy {}",
+            want_s[k]
         );
     }
 }
