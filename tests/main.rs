@@ -1,6 +1,7 @@
 //! The integration tests: one binary, one module per area.
 mod support;
 
+mod chi2_by_hand;
 mod emission;
 mod fit;
 mod frames;
