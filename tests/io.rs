@@ -346,10 +346,9 @@ fn the_nearby_passive_galaxy_reads_as_astropy_reads_it() {
     assert_eq!(spectra.len(), 1);
     let s = &spectra[0];
     assert_eq!(s.meta.hdu, Some(r["hdu"].as_u64().unwrap() as usize));
-    assert_eq!(s.len(), 3815);
+    // Pixel count and range as astropy read them from the same file
+    // (tests/scripts/record_reference_spectra.py), not typed in here.
     assert_eq!(s.len() as u64, r["pixels"].as_u64().unwrap());
-    // 3826.5–9208.7 Å vacuum (the numbers; astropy's below)
-    assert!((s.wave()[0] - 3826.5).abs() < 0.05 && (s.wave()[s.len() - 1] - 9208.7).abs() < 0.05);
     assert!(close(s.wave()[0], r["wave_min"].as_f64().unwrap(), 1e-10));
     assert!(close(
         s.wave()[s.len() - 1],
