@@ -33,8 +33,25 @@ fn main() -> ExitCode {
                     return ExitCode::SUCCESS;
                 }
             }
-            eprintln!("zvet: error: {err:#}");
+            eprintln!("zvet: error: {}", message(&err));
             ExitCode::from(2)
         }
     }
+}
+
+/// The error and its causes on one line, each cause added only when the
+/// text so far does not already hold it (many errors print their cause in
+/// their own message; `{:#}` would then say everything twice).
+fn message(err: &anyhow::Error) -> String {
+    let mut out = String::new();
+    for cause in err.chain() {
+        let text = cause.to_string();
+        if out.is_empty() {
+            out = text;
+        } else if !out.contains(&text) {
+            out.push_str(": ");
+            out.push_str(&text);
+        }
+    }
+    out
 }

@@ -247,6 +247,11 @@ pub(crate) struct Recovery {
     pub trials: usize,
     /// Fraction of trials at S/N ≥ 5 with a warning set.
     pub flagged_hi: f64,
+    /// Per class and S/N: (class, S/N, successes, trials).
+    pub cells: Vec<(ObjectClass, f64, usize, usize)>,
+    /// Per class: median |Δz|/σ_z of the successes over all S/N (featureless
+    /// white dwarfs left out: their z is not measured), and how many.
+    pub pull_median: Vec<(ObjectClass, f64, usize)>,
 }
 
 /// Warning bits that tell an inspector not to trust the answer; the
@@ -449,7 +454,30 @@ pub(crate) fn recovery_table_with(per_cell: usize, seed: u64, config: FitConfig)
         eprintln!("  miss{}: {}", if r.6 { "" } else { " (CONFIDENT)" }, r.3);
     }
     let hi: Vec<_> = results.iter().filter(|r| r.1 >= 5.0).collect();
+    let mut cells = Vec::new();
+    for c in ObjectClass::ALL {
+        for &snr in &snrs {
+            let cell: Vec<_> = results.iter().filter(|r| r.0 == c && same(r.1, snr)).collect();
+            if !cell.is_empty() {
+                cells.push((c, snr, cell.iter().filter(|r| r.2).count(), cell.len()));
+            }
+        }
+    }
+    let pull_median = ObjectClass::ALL
+        .iter()
+        .map(|&c| {
+            let mut p: Vec<f64> = results
+                .iter()
+                .filter(|r| r.0 == c && r.2 && r.4.is_finite() && !featureless(&r.5))
+                .map(|r| r.4)
+                .collect();
+            p.sort_by(f64::total_cmp);
+            (c, p.get(p.len() / 2).copied().unwrap_or(f64::NAN), p.len())
+        })
+        .collect();
     Recovery {
+        cells,
+        pull_median,
         success: ObjectClass::ALL
             .iter()
             .map(|&c| {
@@ -482,6 +510,26 @@ fn synthetic_recovery_from_builtin_templates() {
         r.confident_wrong,
         r.trials
     );
+    // The README's recovery table, scaled to 3 per cell: 100 % at S/N ≥ 5
+    // for every class (so every trial), ≥ 94 % at S/N 2 (quasars 47/50; at
+    // most one miss of 3: two misses at a 6 % miss rate happen 1 % of the time).
+    for &(c, snr, ok, n) in &r.cells {
+        let allowed = if snr >= 5.0 { 0 } else { 1 };
+        assert!(ok + allowed >= n, "{c} at S/N {snr}: {ok}/{n}");
+    }
+    // σ_z calibration: for Gaussian errors the median |Δz|/σ_z is 0.674 (the
+    // normal distribution's quartile, common practice). With ~12 successes
+    // per class the sample median of a half-normal scatters by about ±0.25
+    // (1σ, common practice for the median of n = 12), so the band is wide;
+    // galaxies may sit higher (README: a systematic of a few km/s reaches
+    // 1.6 σ_z at S/N 20).
+    for &(c, med, n) in &r.pull_median {
+        let hi = if c == ObjectClass::Galaxy { 2.0 } else { 1.3 };
+        assert!(
+            n >= 8 && (0.3..=hi).contains(&med),
+            "{c}: median |Δz|/σ_z {med:.2} of {n}"
+        );
+    }
 }
 
 #[test]
@@ -516,6 +564,13 @@ fn recovery_large() {
     // the issue's targets: confident wrong ≤ 0.5 %, flagged at S/N ≥ 5 ≤ 10 %
     assert!(r.confident_wrong as f64 <= 0.005 * r.trials as f64);
     assert!(r.flagged_hi <= 0.10);
+    // σ_z calibration (0.674 for Gaussian errors, common practice): about
+    // 0.5–0.9 for quasars and stars; galaxies up to the README's 1.6 at S/N 20
+    // (a systematic of a few km/s), so their pooled median up to 1.7.
+    for &(c, med, n) in &r.pull_median {
+        let hi = if c == ObjectClass::Galaxy { 1.7 } else { 0.9 };
+        assert!((0.5..=hi).contains(&med), "{c}: median |Δz|/σ_z {med:.2} of {n}");
+    }
 }
 
 #[test]
@@ -540,7 +595,18 @@ fn cross_correlation_finds_the_redshift_of_test_galaxies() {
         eprintln!("xcorr z={z}: {} r={:.1} z_err={:.2e}", b.z, peaks[0].r, b.z_err);
         assert!(((b.z - z) / (1.0 + z)).abs() < 5e-4, "z {z} → {}", b.z);
         assert!(peaks[0].r > 3.0);
-        assert!(b.z_err > 0.0 && b.z_err < 1e-3);
+        // σ_z below half a grid pixel ((1+z)·ln 10·1e-4 per pixel at the
+        // default dloglam): at S/N 20 over 4000 pixels the peak is located far
+        // better than the grid; and the error it states covers the real one
+        // (4 σ: a mock from the fit's own templates leaves only noise).
+        let half_pixel = 0.5 * (1.0 + z) * std::f64::consts::LN_10 * 1e-4;
+        assert!(b.z_err > 0.0 && b.z_err < half_pixel, "z_err {}", b.z_err);
+        assert!(
+            (b.z - z).abs() < 4.0 * b.z_err,
+            "Δz {} is {:.1} σ_z",
+            b.z - z,
+            (b.z - z).abs() / b.z_err
+        );
     }
 }
 
@@ -612,10 +678,12 @@ fn result_tables_round_trip_in_every_format_and_merge_keeps_first_rows() {
         assert!(rows[5].z.is_none());
         for (i, r) in rows[..5].iter().enumerate() {
             assert_eq!(r.class, "galaxy");
-            assert!(
-                (r.z.unwrap() - (0.1 + 0.1 * i as f64)).abs() < 2e-3,
-                "{ext}: {r:?}"
-            );
+            // Half a pixel of the fitting grid (the engine's default step
+            // dloglam = 1e-4, so Δz = (1+z)·ln 10·1e-4 per pixel): the
+            // refinement must do better than the grid it starts from.
+            let zt = 0.1 + 0.1 * i as f64;
+            let half_pixel = 0.5 * (1.0 + zt) * std::f64::consts::LN_10 * 1e-4;
+            assert!((r.z.unwrap() - zt).abs() < half_pixel, "{ext}: {r:?}");
             assert!(r.error.is_empty(), "{ext}: {r:?}");
         }
         // shards 1/2 and 2/2 together hold every object exactly once
@@ -717,14 +785,32 @@ fn the_nearby_passive_galaxy_is_a_galaxy_at_its_catalogue_redshift() {
 
 #[test]
 fn the_a0v_star_is_a_star_at_rest_by_both_methods() {
-    // The file's header gives a radial velocity of −21 km/s (z ≈ −7e-5); issue #3 asks
-    // `star` with |z| < 0.0003.
+    // The file's header gives a radial velocity of −21 km/s: z = −21 / c.
+    let z_header = -21.0 / zvet::constants::C_KMS;
+    // What the quantity supports: this spectrum's resolution element is a few
+    // Å (R ≈ 500–1000 for the low-resolution gratings it is built from, from
+    // memory), 300–600 km/s; a template fit locates lines to about a tenth of
+    // it, 30 km/s = 1e-4 in z, with the template mismatch (χ²_r ≈ 4.5) on top.
     let (chi2, xc) = both_methods(&crate::support::a0v_star());
     for (method, r) in [("chi2", &chi2), ("xcorr", &xc)] {
         let b = r.best().unwrap();
         assert_eq!(b.class, ObjectClass::Star, "{method}");
-        assert!(b.z.abs() < 3e-4, "{method}: z = {}", b.z);
+        assert!(
+            (b.z - z_header).abs() < 1e-4,
+            "{method}: z = {} (header {z_header:.2e})",
+            b.z
+        );
     }
+    // The sign: cross-correlation finds the star approaching, as the header
+    // says. (The χ² fit gives z ≈ +1e-5 ± 3e-5, within the bound above but
+    // on the wrong side of zero: not asserted, reported.)
+    let x = xc.best().unwrap();
+    assert!(
+        x.z < 0.0 && (x.z - z_header).abs() < 3.0 * x.z_err,
+        "xcorr z = {} ± {}",
+        x.z,
+        x.z_err
+    );
 }
 
 #[test]

@@ -113,6 +113,21 @@ const MORTON_2003: &[(&str, &str, f64)] = &[
     ("K I 7701", "K I", 7701.0835),
 ];
 
+/// The published vacuum wavelength (Å) of our line `name`: Morton (2003)
+/// Table 2 as typed in [`MORTON_2003`], else the linetools galaxy list row
+/// mapped in [`GALAXY_LISTS`] (read from the fetched file); `None` for lines
+/// in neither.
+pub(crate) fn published_wave(name: &str) -> Option<f64> {
+    if let Some(&(_, _, w)) = MORTON_2003.iter().find(|(n, _, _)| *n == name) {
+        return Some(w);
+    }
+    let &(_, file, theirs) = GALAXY_LISTS.iter().find(|(n, _, _)| *n == name)?;
+    read_linetools(file)
+        .into_iter()
+        .find(|r| r.0 == theirs)
+        .map(|r| r.1)
+}
+
 /// Lines of ours that neither table holds, each with the reason.
 const IN_NEITHER: &[(&str, &str)] = &[
     ("Si IV+O IV]", "blend position, common practice"),

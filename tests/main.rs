@@ -2,6 +2,7 @@
 mod support;
 
 mod audit;
+mod chi2_by_hand;
 mod emission;
 mod fit;
 mod frames;
@@ -17,10 +18,13 @@ mod gui_seams;
 mod gui_tools;
 mod io;
 mod lines;
+mod noise;
 mod pipeline;
+mod real_quasar;
 mod records;
 mod review;
 mod robust;
+mod robust_gaps;
 mod smoke;
 mod stars;
 mod templates;

@@ -33,7 +33,7 @@ fn pad(mut data: Vec<u8>) -> Vec<u8> {
 }
 
 /// A 1-D float image of `n` pixels with a linear WCS, `naxis1` as declared.
-fn image(n: usize, naxis1: &str, cdelt: &str, extra: &[String]) -> Vec<u8> {
+pub(crate) fn image(n: usize, naxis1: &str, cdelt: &str, extra: &[String]) -> Vec<u8> {
     let mut cards = vec![
         card("SIMPLE", "T"),
         card("BITPIX", "-32"),
@@ -255,7 +255,7 @@ fn full_disk_report_keeps_the_old_set_whole() {
 }
 
 /// A campaign on three demo objects with one review each.
-fn demo_campaign(dir: &Path) -> PathBuf {
+pub(crate) fn demo_campaign(dir: &Path) -> PathBuf {
     let survey = zvet::demo::generate_n(zvet::demo::DEFAULT_SEED, 3);
     let w = zvet::demo::write_survey(&survey, &dir.join("demo")).unwrap();
     let camp = dir.join("campaign");

@@ -96,6 +96,30 @@ fn commit(tmp: TempPath, path: &Path) -> io::Result<()> {
     sync_dir(parent_of(path))
 }
 
+/// The file a result table grows in before it replaces `path`:
+/// `.STEM.zvet-partial.EXT` in the same folder (hidden, so folder walks do
+/// not read it as a spectrum; same extension, so it reads as the same kind
+/// of table). A fresh `zvet fit` writes its rows there as they come and
+/// renames it over `path` at the end ([`commit_partial`]); a run killed
+/// half-way leaves the old `path` as it was and its rows in the partial
+/// file, which `--resume` carries on.
+pub fn partial_path(path: &Path) -> PathBuf {
+    let stem = path.file_stem().map(|s| s.to_string_lossy()).unwrap_or_default();
+    let name = match path.extension() {
+        Some(ext) => format!(".{stem}.zvet-partial.{}", ext.to_string_lossy()),
+        None => format!(".{stem}.zvet-partial"),
+    };
+    parent_of(path).join(name)
+}
+
+/// Rename a finished partial file (written, flushed and fsynced by its
+/// writer) over `path` and make the rename durable. On error the old
+/// `path` is untouched and the partial file stays.
+pub fn commit_partial(partial: &Path, path: &Path) -> io::Result<()> {
+    std::fs::rename(partial, path)?;
+    sync_dir(parent_of(path))
+}
+
 /// Replace `path` with what `write` writes, atomically. Every write, the
 /// flush and the fsync are checked; on any error the old file is untouched.
 pub fn atomic_write(path: &Path, write: impl FnOnce(&mut dyn Write) -> io::Result<()>) -> io::Result<()> {
@@ -232,6 +256,23 @@ mod tests {
         atomic_create::<io::Error>(&p, ".txt", |t| std::fs::write(t, "three")).unwrap();
         assert_eq!(std::fs::read_to_string(&p).unwrap(), "three");
         assert_eq!(names(dir.path()), vec!["a.txt".to_string()]);
+    }
+
+    #[test]
+    fn the_partial_file_is_hidden_beside_its_output_with_the_same_extension() {
+        let p = Path::new("runs/out.csv");
+        assert_eq!(partial_path(p), Path::new("runs/.out.zvet-partial.csv"));
+        assert_eq!(
+            partial_path(Path::new("t.jsonl")),
+            Path::new("./.t.zvet-partial.jsonl")
+        );
+        let dir = tempfile::tempdir().unwrap();
+        let out = dir.path().join("o.csv");
+        std::fs::write(&out, "old").unwrap();
+        std::fs::write(partial_path(&out), "new").unwrap();
+        commit_partial(&partial_path(&out), &out).unwrap();
+        assert_eq!(std::fs::read_to_string(&out).unwrap(), "new");
+        assert_eq!(names(dir.path()), vec!["o.csv".to_string()]);
     }
 
     #[test]

@@ -17,7 +17,9 @@ pub mod manifest;
 mod objects;
 mod shards;
 
-pub use atomic::{atomic_create, atomic_dir, atomic_write, close_fits, sync_dir};
+pub use atomic::{
+    atomic_create, atomic_dir, atomic_write, close_fits, commit_partial, partial_path, sync_dir,
+};
 pub use manifest::{CatalogSettings, EngineSettings, Manifest, ReadSettings, MANIFEST_FORMAT};
 pub use shards::{CollectSummary, ImportSummary, PARTS_DIR};
 

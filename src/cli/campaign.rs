@@ -161,6 +161,13 @@ fn init(a: InitArgs) -> anyhow::Result<ExitCode> {
         c.dir().display(),
         cat.len()
     );
+    if c.catalog_path().is_some() {
+        let m = catalogue_match(&c, &cat);
+        println!("catalogue: {}", m.counts);
+        for w in &m.warnings {
+            eprintln!("zvet: warning: {w}");
+        }
+    }
     if a.fit {
         return fit(&c, None, false, None);
     }
@@ -276,8 +283,18 @@ fn status(a: StatusArgs) -> anyhow::Result<ExitCode> {
     for p in c.spectra_paths() {
         println!("  spectra   {}", p.display());
     }
+    let mut match_problems = Vec::new();
     if let Some(p) = c.catalog_path() {
         println!("  catalogue {}", p.display());
+        match c.load_catalog() {
+            Ok((cat, cat_problems)) => {
+                let m = catalogue_match(&c, &cat);
+                println!("  matches   {}", m.counts);
+                match_problems.extend(cat_problems);
+                match_problems.extend(m.warnings);
+            }
+            Err(e) => match_problems.push(format!("catalogue: {e}")),
+        }
     }
     println!("  templates {}", m.templates);
     println!("  engine    {}", m.engine.summary());
@@ -296,8 +313,53 @@ fn status(a: StatusArgs) -> anyhow::Result<ExitCode> {
     {
         println!("  inspector {name:<16} 0 reviewed");
     }
-    for p in fit_problems.iter().chain(&problems) {
+    for p in match_problems.iter().chain(&fit_problems).chain(&problems) {
         println!("  problem   {p}");
     }
     Ok(ExitCode::SUCCESS)
+}
+
+/// How the catalogue's ids meet the spectra's: one line of counts, and the
+/// warnings (ids that match nothing, ids that differ only in letter case,
+/// spectra that could not be read).
+struct CatalogueMatch {
+    counts: String,
+    warnings: Vec<String>,
+}
+
+/// Read the campaign's spectra (one at a time, only their ids kept) and
+/// count how their ids meet the catalogue's: spectra with a catalogue row,
+/// catalogue rows that match no spectrum.
+fn catalogue_match(c: &Campaign, cat: &BTreeMap<String, crate::catalog::CatalogRow>) -> CatalogueMatch {
+    let (files, mut warnings) = c.input_files();
+    warnings.retain(|p| !p.starts_with("note: "));
+    let mut ids = Vec::new();
+    let mut seen = std::collections::HashSet::new();
+    for item in crate::pipeline::stream(files, c.read_options()) {
+        match item {
+            Ok(s) => {
+                if seen.insert(s.meta.id.clone()) {
+                    ids.push(s.meta.id);
+                }
+            }
+            Err(e) => warnings.push(format!("{}: {}", e.source, e.message)),
+        }
+    }
+    let with_row = ids.iter().filter(|id| cat.contains_key(id.trim())).count();
+    let spectrum_ids: std::collections::HashSet<&str> = ids.iter().map(|i| i.trim()).collect();
+    let unmatched_rows = cat.keys().filter(|k| !spectrum_ids.contains(k.trim())).count();
+    let counts = format!(
+        "{with_row} of {} spectra have a catalogue row; {unmatched_rows} of {} catalogue rows match no spectrum",
+        ids.len(),
+        cat.len()
+    );
+    let cat_ids: Vec<&String> = cat.keys().collect();
+    if with_row == 0 && !ids.is_empty() {
+        warnings.push(
+            "no spectrum matches a catalogue row: the catalogue adds nothing to this campaign (check its id column, --column id=NAME)"
+                .to_string(),
+        );
+    }
+    warnings.extend(crate::catalog::match_summary(&ids, &cat_ids));
+    CatalogueMatch { counts, warnings }
 }

@@ -86,14 +86,20 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
         ..FitConfig::default()
     };
     let engine = pipeline::build_engine(args.templates.as_deref(), config)?;
-    let skip: HashSet<String> = if args.resume && args.out.exists() {
-        pipeline::read_records(&args.out)
-            .with_context(|| format!("reading {} to resume", args.out.display()))?
+    // `--resume` carries on the rows of a killed fresh run (its partial
+    // file) or of the output itself.
+    let resume_from = if args.resume {
+        pipeline::resume_source(&args.out)
+    } else {
+        None
+    };
+    let skip: HashSet<String> = match &resume_from {
+        Some(src) => pipeline::read_records(src)
+            .with_context(|| format!("reading {} to resume", src.display()))?
             .into_iter()
             .map(|r| r.object_id)
-            .collect()
-    } else {
-        HashSet::new()
+            .collect(),
+        None => HashSet::new(),
     };
     let opts = args.read.to_options();
     // the output is never read back as a spectrum, even inside an input folder

@@ -32,7 +32,9 @@ pub use kind::{kind_of, PathKind, CAMPAIGN_MANIFEST};
 pub use read::{read_all, source_of, stream, stream_timed, Item, ReadFailure};
 pub use record::{FitRecord, FitRow, TableError, RECORD_FORMAT};
 pub use run::{fit_all, fit_spectrum, fit_stream, method_name, RunOptions, Summary};
-pub use table::{merge_tables, read_records, read_rows, write_records, RowWriter, TableFormat};
+pub use table::{
+    merge_tables, read_records, read_rows, resume_source, write_records, RowWriter, TableFormat,
+};
 
 /// Shard K of N from a batch scheduler's job-array environment, if the
 /// process runs as an array task: Slurm's `SLURM_ARRAY_TASK_ID`,

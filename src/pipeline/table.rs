@@ -7,10 +7,14 @@ summary, [`FitRow`]), chosen by the file extension; read back for
 CSV and JSON Lines are written row by row and flushed, every write checked,
 so an interrupted run (a kill, a full disk) loses at most the row being
 written; that torn row is cut off when `--resume` reopens the file
-([`repair_tail`]) and the run carries on. A FITS table is written once at the
-end through the one atomic output path (`campaign::atomic_create`): a
-temporary file, checked, renamed into place — or an error, and the old file
-stays.
+([`repair_tail`]) and the run carries on. A fresh table grows in a hidden
+partial file beside its output (`campaign::partial_path`) and is renamed
+over the output only when every row is written and fsynced, so a fresh run
+that is killed or fails never truncates an older good table; `--resume`
+carries on the partial file when there is one, else appends to the output
+itself ([`resume_source`]). A FITS table is written once at the end through
+the one atomic output path (`campaign::atomic_create`): a temporary file,
+checked, renamed into place — or an error, and the old file stays.
 Missing numbers are empty (CSV), `null` (JSON) or NaN (FITS).
 */
 use super::record::{FitRecord, FitRow, TableError};
@@ -142,9 +146,27 @@ pub fn read_rows(path: &Path) -> Result<Vec<FitRow>, TableError> {
     Ok(read_records(path)?.iter().map(FitRecord::flat).collect())
 }
 
+/// The existing file whose rows a resumed run (`RowWriter::create(path,
+/// true)`) keeps and carries on: the partial file of a fresh run that was
+/// killed or failed (see [`RowWriter::create`]) when there is one, else
+/// `path` itself when it exists, else `None`.
+pub fn resume_source(path: &Path) -> Option<PathBuf> {
+    if TableFormat::from_path(path).ok() != Some(TableFormat::Fits) {
+        let partial = crate::campaign::partial_path(path);
+        if partial.is_file() {
+            return Some(partial);
+        }
+    }
+    path.exists().then(|| path.to_path_buf())
+}
+
 /// Writes rows to a result table as they come.
 pub struct RowWriter {
+    /// The output table.
     path: PathBuf,
+    /// The file written now: `path`, or its partial file for a fresh CSV or
+    /// JSON Lines table (renamed over `path` by [`RowWriter::finish`]).
+    target: PathBuf,
     kind: WriterKind,
 }
 
@@ -155,37 +177,52 @@ enum WriterKind {
 }
 
 impl RowWriter {
-    /// Create `path` (or, with `append`, add to it: existing rows are kept
-    /// and a torn last row is cut off first, see [`repair_tail`]).
+    /// Start writing the table `path`.
+    ///
+    /// Fresh (`append` false): a CSV or JSON Lines table is written into its
+    /// partial file (`campaign::partial_path`, truncated first) and renamed
+    /// over `path` by [`RowWriter::finish`]; until then an existing `path`
+    /// is left exactly as it was, and a writer dropped without `finish` (a
+    /// failed run) or a killed process leaves its rows in the partial file.
+    ///
+    /// With `append`, the rows of [`resume_source`] are kept and new rows
+    /// added after them (a torn last row is cut off first, see
+    /// [`repair_tail`]): a partial file is carried on and renamed over `path`
+    /// at the end; otherwise `path` is appended to in place (created when
+    /// missing). A FITS table is always written whole at the end.
     pub fn create(path: &Path, append: bool) -> Result<RowWriter, TableError> {
-        let exists = append && path.exists();
+        let format = TableFormat::from_path(path)?;
+        let source = if append { resume_source(path) } else { None };
+        let exists = source.is_some();
+        let target = match (format, source) {
+            (TableFormat::Fits, _) => path.to_path_buf(),
+            (_, Some(s)) => s,
+            // `--resume` with nothing to resume: grow the output in place,
+            // there is no older table to keep.
+            (_, None) if append => path.to_path_buf(),
+            (_, None) => crate::campaign::partial_path(path),
+        };
         if exists {
-            repair_tail(path)?;
+            repair_tail(&target)?;
         }
-        let kind = match TableFormat::from_path(path)? {
+        let open = |target: &Path| {
+            std::fs::OpenOptions::new()
+                .create(true)
+                .append(exists)
+                .write(true)
+                .truncate(!exists)
+                .open(target)
+                .map_err(io_err(path))
+        };
+        let kind = match format {
             TableFormat::Csv => {
-                let f = std::fs::OpenOptions::new()
-                    .create(true)
-                    .append(exists)
-                    .write(true)
-                    .truncate(!exists)
-                    .open(path)
-                    .map_err(io_err(path))?;
+                let f = open(&target)?;
                 let has_rows = exists && f.metadata().map(|m| m.len() > 0).unwrap_or(false);
                 WriterKind::Csv(Box::new(
                     csv::WriterBuilder::new().has_headers(!has_rows).from_writer(f),
                 ))
             }
-            TableFormat::Jsonl => {
-                let f = std::fs::OpenOptions::new()
-                    .create(true)
-                    .append(exists)
-                    .write(true)
-                    .truncate(!exists)
-                    .open(path)
-                    .map_err(io_err(path))?;
-                WriterKind::Jsonl(BufWriter::new(f))
-            }
+            TableFormat::Jsonl => WriterKind::Jsonl(BufWriter::new(open(&target)?)),
             TableFormat::Fits => WriterKind::Fits(if exists {
                 super::table_fits::read(path)?
             } else {
@@ -194,6 +231,7 @@ impl RowWriter {
         };
         Ok(RowWriter {
             path: path.to_path_buf(),
+            target,
             kind,
         })
     }
@@ -218,9 +256,10 @@ impl RowWriter {
         }
     }
 
-    /// Finish the file: CSV and JSON Lines are flushed and fsynced (with
-    /// their folder); a FITS table is written now, atomically. Every error is
-    /// returned.
+    /// Finish the file: CSV and JSON Lines are flushed and fsynced, a
+    /// partial file renamed over the output, and the folder fsynced; a FITS
+    /// table is written now, atomically. Every error is returned (and the
+    /// old output stays).
     pub fn finish(self) -> Result<(), TableError> {
         let path = &self.path;
         let file = match self.kind {
@@ -231,6 +270,10 @@ impl RowWriter {
             WriterKind::Fits(rows) => return super::table_fits::write(path, &rows),
         };
         file.sync_all().map_err(io_err(path))?;
+        drop(file);
+        if self.target != *path {
+            return crate::campaign::commit_partial(&self.target, path).map_err(io_err(path));
+        }
         let dir = match path.parent() {
             Some(p) if !p.as_os_str().is_empty() => p,
             _ => Path::new("."),

@@ -200,12 +200,135 @@ fn export_fits_round_trip() {
 }
 
 /// Writes the sample catalogue where tests/scripts/check_export_astropy.py
-/// reads it (`target/test-scratch/astropy_export/`). Run it before the script.
+/// reads it (`target/test-scratch/astropy_export/`; run this test before the
+/// script), and checks the FITS file written now against astropy's
+/// recording of it (tests/data/records/astropy_export.json): every column's
+/// TFORM, TUNIT and TNULL card and every provenance keyword.
 #[test]
 fn export_fixture_for_astropy() {
     let dir = support::scratch("astropy_export");
-    export::write(&dir.join("sample.fits"), &sample_rows(), &sample_provenance()).unwrap();
+    let fits = dir.join("sample.fits");
+    export::write(&fits, &sample_rows(), &sample_provenance()).unwrap();
     export::write(&dir.join("sample.csv"), &sample_rows(), &sample_provenance()).unwrap();
+    let rec = data("astropy_export.json");
+    let cards = table_header_cards(&fits, "ZVET_CATALOG");
+    let card = |k: &str| cards.iter().find(|(key, _)| key == k).map(|(_, v)| v.clone());
+    let n: usize = card("TFIELDS").unwrap().parse().unwrap();
+    assert_eq!(n, rec["tform"].as_object().unwrap().len());
+    for i in 1..=n {
+        let name = fits_string(&card(&format!("TTYPE{i}")).unwrap());
+        for (what, key) in [("tform", "TFORM"), ("tunit", "TUNIT"), ("tnull", "TNULL")] {
+            let got = card(&format!("{key}{i}"));
+            let want = &rec[what][&name];
+            match (got, want) {
+                (None, serde_json::Value::Null) => {}
+                (Some(v), serde_json::Value::String(w)) => {
+                    assert_eq!(fits_string(&v), *w, "{key}{i} ({name})")
+                }
+                (Some(v), serde_json::Value::Number(w)) => {
+                    assert_eq!(v.parse::<i64>().ok(), w.as_i64(), "{key}{i} ({name})")
+                }
+                (got, want) => panic!("{key}{i} ({name}): written {got:?}, astropy recorded {want}"),
+            }
+        }
+    }
+    // Provenance keywords: strings, logicals-as-integers and numbers as astropy read them.
+    for (k, want) in rec["header"].as_object().unwrap() {
+        let v = card(k).unwrap_or_else(|| panic!("{k} missing from the header written now"));
+        match want {
+            serde_json::Value::String(w) => assert_eq!(fits_string(&v), *w, "{k}"),
+            serde_json::Value::Number(w) => {
+                let got: f64 = v
+                    .replace(['D', 'd'], "E")
+                    .parse()
+                    .unwrap_or_else(|_| panic!("{k} = {v}"));
+                assert_relative_eq!(got, w.as_f64().unwrap(), max_relative = 1e-12);
+            }
+            serde_json::Value::Bool(w) => assert_eq!(v, if *w { "T" } else { "F" }, "{k}"),
+            other => panic!("{k}: unexpected recording {other}"),
+        }
+    }
+}
+
+/// The (keyword, value) cards of the header of the extension named `extname`,
+/// read from the file's bytes (FITS standard 4.0, §4: 80-byte cards in
+/// 2880-byte blocks; `KEYWORD = value / comment`).
+fn table_header_cards(path: &std::path::Path, extname: &str) -> Vec<(String, String)> {
+    let bytes = std::fs::read(path).unwrap();
+    let mut at = 0;
+    while at < bytes.len() {
+        let mut cards = Vec::new();
+        let mut end = false;
+        while !end {
+            let block = &bytes[at..at + 2880];
+            at += 2880;
+            for c in block.chunks(80) {
+                let c = String::from_utf8_lossy(c);
+                let key = c[..8].trim().to_string();
+                if key == "END" {
+                    end = true;
+                    break;
+                }
+                if &c[8..10] == "= " {
+                    cards.push((key, value_of(&c[10..])));
+                }
+            }
+        }
+        let int = |k: &str| {
+            cards
+                .iter()
+                .find(|(key, _)| key == k)
+                .map_or(0, |(_, v)| v.parse::<usize>().unwrap())
+        };
+        let naxis = int("NAXIS");
+        let data = if naxis == 0 {
+            0
+        } else {
+            let bits = int("BITPIX").max(8) / 8;
+            (1..=naxis).map(|i| int(&format!("NAXIS{i}"))).product::<usize>() * bits + int("PCOUNT")
+        };
+        if cards
+            .iter()
+            .any(|(k, v)| k == "EXTNAME" && fits_string(v) == extname)
+        {
+            return cards;
+        }
+        at += data.div_ceil(2880) * 2880;
+    }
+    panic!("no extension {extname} in {}", path.display())
+}
+
+/// A card's value without its comment (a quoted string keeps its quotes).
+fn value_of(v: &str) -> String {
+    let v = v.trim_start();
+    if let Some(rest) = v.strip_prefix('\'') {
+        // '' inside a string is one quote
+        let mut out = String::from("'");
+        let mut chars = rest.chars().peekable();
+        while let Some(ch) = chars.next() {
+            if ch == '\'' {
+                if chars.peek() == Some(&'\'') {
+                    out.push_str("''");
+                    chars.next();
+                    continue;
+                }
+                out.push('\'');
+                break;
+            }
+            out.push(ch);
+        }
+        out
+    } else {
+        v.split('/').next().unwrap_or("").trim().to_string()
+    }
+}
+
+/// A FITS string value: quotes off, trailing blanks off, '' → '.
+fn fits_string(v: &str) -> String {
+    match v.strip_prefix('\'').and_then(|s| s.strip_suffix('\'')) {
+        Some(s) => s.replace("''", "'").trim_end().to_string(),
+        None => v.to_string(),
+    }
 }
 
 #[test]

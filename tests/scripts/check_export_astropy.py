@@ -4,6 +4,7 @@
 Usage (from the repository root):
     cargo test --no-default-features --test integration records::export::export_fixture_for_astropy
     PYTHONPATH=target/reference/python python3 tests/scripts/check_export_astropy.py
+    cargo test --no-default-features --test integration records::export::export_fixture_for_astropy
 
 The first command writes target/test-scratch/astropy_export/sample.{fits,csv}
 (the fixed rows of tests/records/export.rs::sample_rows). This script opens them with
@@ -12,7 +13,9 @@ failure), and records per column the numpy dtype kind and item size, the unit,
 which entries astropy masks, and the values, plus the header keywords, into
 tests/data/records/astropy_export.json. The Rust test
 records::export::export_matches_astropy_view compares that file with what the current
-writer puts into the table, so CI needs no astropy.
+writer puts into the table, and records::export::export_fixture_for_astropy compares the
+TFORM/TUNIT/TNULL cards and provenance keywords of a file it writes now with it, so CI
+needs no astropy.
 """
 import json
 import math
@@ -71,6 +74,9 @@ def main():
                                   "ZGALMIN", "ZGALMAX", "ZQSOMIN", "ZQSOMAX", "ZSTARMIN",
                                   "ZSTARMAX", "ZTOL", "MINSEPKM", "NPOLY", "NCAND", "MASKSKY", "NONNEG"]}
         tforms = {h[f"TTYPE{i}"]: h[f"TFORM{i}"] for i in range(1, h["TFIELDS"] + 1)}
+        # The unit and null cards as written (absent: null).
+        tunits = {h[f"TTYPE{i}"]: h.get(f"TUNIT{i}") for i in range(1, h["TFIELDS"] + 1)}
+        tnulls = {h[f"TTYPE{i}"]: h.get(f"TNULL{i}") for i in range(1, h["TFIELDS"] + 1)}
         # Raises on any violation of the FITS standard that astropy checks.
         hdul.verify("exception")
 
@@ -90,6 +96,8 @@ def main():
         "columns": cols,
         "header": keys,
         "tform": tforms,
+        "tunit": tunits,
+        "tnull": tnulls,
         "csv": csv_view,
     }
     OUT.write_text(json.dumps(out, indent=1, ensure_ascii=False) + "\n")

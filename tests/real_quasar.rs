@@ -1,0 +1,132 @@
+/*!
+A real quasar at z ≈ 2.76: the combined high-resolution spectrum of
+Q0002−422 that linetools ships as test data (Crighton et al. 2015, MNRAS 446,
+18, per the package's README), fetched at test time and never committed.
+Its redshift comes from the file itself: the fourth column is the authors'
+continuum fit, whose Lyα and C IV emission peaks give z_em.
+*/
+use crate::support;
+use std::io::Read;
+use std::path::PathBuf;
+use zvet::fit::{Engine, FitConfig, Method, Warnings};
+use zvet::ObjectClass;
+
+/// Rest-frame vacuum wavelengths of the two strongest emission lines here:
+/// Lyα 1215.67 Å (NIST ASD) and the C IV doublet's mean 1549.06 Å (Vanden
+/// Berk et al. 2001, Table 2).
+const LYA: f64 = 1215.67;
+const CIV: f64 = 1549.06;
+
+/// The spectrum, inflated once into target/reference/ (zvet reads plain text).
+fn quasar_text() -> PathBuf {
+    let gz = support::reference_file(
+        "linetools==0.3.2",
+        "linetools/spectra/tests/files/q0002m422.txt.gz",
+    );
+    let out = support::target_dir().join("reference").join("q0002m422.txt");
+    if !out.exists() {
+        let mut text = Vec::new();
+        flate2::read::GzDecoder::new(std::fs::File::open(&gz).unwrap())
+            .read_to_end(&mut text)
+            .unwrap();
+        let tmp = out.with_extension("part");
+        std::fs::write(&tmp, text).unwrap();
+        std::fs::rename(&tmp, &out).unwrap();
+    }
+    out
+}
+
+/// z_em from the continuum column: the wavelength of its highest point
+/// within ±4 % of where each line would sit at z ≈ 2.76 (the Lyα peak seen
+/// by eye), over the line's rest wavelength; the two lines averaged.
+fn z_from_own_continuum(path: &std::path::Path) -> (f64, f64) {
+    let text = std::fs::read_to_string(path).unwrap();
+    let rows: Vec<(f64, f64)> = text
+        .lines()
+        .filter_map(|l| {
+            let v: Vec<f64> = l.split_whitespace().filter_map(|x| x.parse().ok()).collect();
+            (v.len() == 4).then(|| (v[0], v[3]))
+        })
+        .collect();
+    let peak = |rest: f64| {
+        let guess = rest * 3.76;
+        let (w, _) = rows
+            .iter()
+            .filter(|(w, _)| (w / guess - 1.0).abs() < 0.04)
+            .max_by(|a, b| a.1.total_cmp(&b.1))
+            .unwrap();
+        w / rest - 1.0
+    };
+    (peak(LYA), peak(CIV))
+}
+
+#[test]
+fn a_real_quasar_at_z_2_76_is_a_quasar_at_its_redshift_by_cross_correlation() {
+    let path = quasar_text();
+    let (z_lya, z_civ) = z_from_own_continuum(&path);
+    // The two lines agree to within the usual spread of quasar emission-line
+    // redshifts (high-ionisation lines are blueshifted by up to ~1000 km/s,
+    // common practice).
+    assert!(
+        (z_lya - z_civ).abs() / (1.0 + z_lya) < 0.005,
+        "Lyα {z_lya}, C IV {z_civ}"
+    );
+    let z_em = 0.5 * (z_lya + z_civ);
+    let s = zvet::io::read_file(&path, &Default::default()).unwrap().remove(0);
+    let set = zvet::templates::builtin();
+    let xc = Engine::new(
+        set,
+        FitConfig {
+            method: Method::XCorr,
+            ..FitConfig::default()
+        },
+    )
+    .unwrap()
+    .fit(&s)
+    .unwrap();
+    let b = xc.best().unwrap();
+    eprintln!(
+        "xcorr: {} z={:.5} ± {:.1e}; z_em from the file {z_em:.5} (Lyα {z_lya:.5}, C IV {z_civ:.5})",
+        b.class, b.z, b.z_err
+    );
+    assert_eq!(b.class, ObjectClass::Quasar);
+    // Within 1500 km/s of the emission-line redshift (the same spread).
+    assert!(
+        ((b.z - z_em) / (1.0 + z_em)).abs() < 0.005,
+        "z {} vs z_em {z_em}",
+        b.z
+    );
+    // The χ² method is not right on this spectrum (it prefers z ≈ 4.0, see
+    // the ignored test below); what must hold is that a wrong answer says so.
+    let chi2 = Engine::new(set, FitConfig::default()).unwrap().fit(&s).unwrap();
+    let c = chi2.best().unwrap();
+    let right = c.class == ObjectClass::Quasar && ((c.z - z_em) / (1.0 + z_em)).abs() < 0.005;
+    let doubt = Warnings::AMBIGUOUS | Warnings::POOR_FIT | Warnings::CLASS_CLOSE | Warnings::AT_GRID_EDGE;
+    eprintln!("chi2: {} z={:.5} [{}]", c.class, c.z, chi2.warnings.names());
+    assert!(
+        right || chi2.warnings.0 & doubt != 0,
+        "a wrong χ² answer without a warning: {} z={}",
+        c.class,
+        c.z
+    );
+}
+
+#[test]
+#[ignore = "known failure (the χ² method picks z ≈ 4.02 for this z = 2.76 quasar, flagged poor_fit; the right z is its fourth candidate): cargo test --test integration real_quasar::chi2 -- --ignored --nocapture"]
+fn chi2_finds_the_real_quasar_at_its_redshift() {
+    let path = quasar_text();
+    let (z_lya, z_civ) = z_from_own_continuum(&path);
+    let z_em = 0.5 * (z_lya + z_civ);
+    let s = zvet::io::read_file(&path, &Default::default()).unwrap().remove(0);
+    let r = Engine::new(zvet::templates::builtin(), FitConfig::default())
+        .unwrap()
+        .fit(&s)
+        .unwrap();
+    let b = r.best().unwrap();
+    assert_eq!(b.class, ObjectClass::Quasar);
+    assert!(
+        ((b.z - z_em) / (1.0 + z_em)).abs() < 0.005,
+        "z {} vs z_em {z_em}",
+        b.z
+    );
+}
