@@ -71,6 +71,10 @@ fn summaries() -> Vec<QueueItem> {
                 complete: reviewed,
                 started: reviewed,
                 flags,
+                // one object in fifty drawn into an audit sample (the
+                // "audit sample" and "vet next" orders sort on these)
+                audit_order: (i % 50 == 0).then_some(i / 50),
+                stratum_width: 0.1 + 0.5 * r.unit(),
             }
         })
         .collect()

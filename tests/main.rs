@@ -10,11 +10,14 @@ mod fuzz;
 #[cfg(feature = "gui")]
 mod gui;
 #[cfg(feature = "gui")]
+mod gui_audit;
+#[cfg(feature = "gui")]
 mod gui_cache;
 #[cfg(feature = "gui")]
 mod gui_review;
 #[cfg(feature = "gui")]
 mod gui_seams;
+#[cfg(feature = "gui")]
 mod gui_tools;
 mod io;
 mod lines;

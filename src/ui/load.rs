@@ -58,6 +58,8 @@ pub enum Loaded {
         fitter: Option<Arc<dyn Fitter>>,
         /// The campaign whose cache takes the fits made in the window.
         write_back: Option<Box<crate::campaign::Campaign>>,
+        /// The campaign's audit sample for the audit orders of the queue.
+        audit: Option<super::state::AuditQueue>,
     },
     /// Something went wrong; the text says what.
     Failed(String),

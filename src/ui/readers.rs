@@ -113,7 +113,15 @@ pub fn read_campaign(path: &Path) -> Loaded {
         }
     };
     let inspectors = known_inspectors(&campaign);
+    let audit = match audit_queue(&campaign) {
+        Ok(a) => a,
+        Err(e) => {
+            problems.push(format!("audit sample: {e}"));
+            None
+        }
+    };
     Loaded::Campaign {
+        audit,
         title: campaign.manifest().name.clone(),
         objects,
         dir: campaign.dir().to_path_buf(),
@@ -124,6 +132,32 @@ pub fn read_campaign(path: &Path) -> Loaded {
         write_back: fitter.is_some().then(|| Box::new(campaign.clone())),
         fitter,
     }
+}
+
+/// The campaign's audit sample with each member's review position and each
+/// object's stratum interval width (from the estimates as they stand).
+fn audit_queue(
+    campaign: &crate::campaign::Campaign,
+) -> Result<Option<super::state::AuditQueue>, crate::campaign::CampaignError> {
+    let Some(sample) = crate::audit::campaign::load_sample(campaign)? else {
+        return Ok(None);
+    };
+    let view = crate::audit::campaign::view(campaign)?;
+    let numbers = crate::audit::analyse(&sample, &view.observed);
+    let widths: std::collections::BTreeMap<String, f64> = numbers
+        .strata
+        .iter()
+        .map(|s| (s.key.clone(), s.accuracy_width))
+        .collect();
+    let vars = sample.vars();
+    let units: std::collections::HashMap<&str, &crate::audit::sample::Unit> =
+        view.units.iter().map(|u| (u.id.as_str(), u)).collect();
+    Ok(Some(super::state::AuditQueue::new(
+        &sample,
+        &widths,
+        |id| units.get(id).map(|u| crate::audit::sample::stratum_of(&vars, u)),
+        view.units.iter().map(|u| u.id.clone()),
+    )))
 }
 
 /// The campaign's registered inspectors, then those with a log (as the
@@ -164,6 +198,7 @@ impl ZvetApp {
                 problems,
                 fitter,
                 write_back,
+                audit,
             } => {
                 self.report(&problems);
                 self.write_back.set(write_back.map(|c| *c));
@@ -172,6 +207,17 @@ impl ZvetApp {
                 }
                 self.replace_objects(title, objects, LogPlace::Campaign(dir));
                 self.state.known_inspectors = inspectors;
+                if let Some(a) = audit {
+                    self.state.say(
+                        format!(
+                            "audit sample: {} objects (orders \"audit sample\" and \"vet next\"); only their verdicts feed the catalogue-wide estimates, the others are training data",
+                            a.sampled()
+                        ),
+                        false,
+                    );
+                    self.state.audit = Some(a);
+                    self.rebuild_queue();
+                }
             }
             Loaded::Catalog { path, rows } => {
                 let ids: Vec<String> = self.state.objects.iter().map(|o| o.id().to_string()).collect();

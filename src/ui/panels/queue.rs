@@ -68,6 +68,9 @@ pub fn ui(ui: &mut egui::Ui, state: &AppState, out: &mut Vec<Action>) {
                 state.order.len(),
                 state.objects.len()
             ));
+            if matches!(state.sort, SortKey::AuditSample | SortKey::VetNext) {
+                ui.label(audit_line(state));
+            }
             ui.separator();
             list(ui, state, out);
         });
@@ -205,4 +208,22 @@ fn list(ui: &mut egui::Ui, state: &AppState, out: &mut Vec<Action>) {
             }
         }
     });
+}
+
+/// What the audit orders mean, in one line under the sort menu.
+pub fn audit_line(state: &AppState) -> String {
+    match &state.audit {
+        Some(a) => {
+            let vetted = state
+                .items
+                .iter()
+                .filter(|i| i.audit_order.is_some() && i.is_reviewed())
+                .count();
+            format!(
+                "audit sample: {vetted} of {} vetted; only these feed the catalogue-wide estimates, other verdicts are training data",
+                a.sampled()
+            )
+        }
+        None => "no audit sample in this campaign (zvet campaign sample DIR --size N)".to_string(),
+    }
 }
