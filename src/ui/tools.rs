@@ -51,7 +51,9 @@ impl Adjudication {
         let Some(folder) = place.folder() else {
             return Err("the spectra are still loading: no review log yet".into());
         };
-        let campaign_dir = folder.parent().filter(|p| p.join("campaign.toml").is_file());
+        let campaign_dir = folder
+            .parent()
+            .filter(|p| crate::pipeline::kind::kind_of(p) == crate::pipeline::kind::PathKind::Campaign);
         let (logs, problems, adjudicator, tolerance) = match campaign_dir {
             Some(dir) => {
                 let c = crate::campaign::Campaign::open(dir).map_err(|e| e.to_string())?;
