@@ -16,6 +16,7 @@ mod pipeline;
 mod records;
 mod review;
 mod robust;
+mod scale;
 mod smoke;
 mod stars;
 mod templates;
