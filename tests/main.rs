@@ -28,6 +28,7 @@ mod records;
 mod review;
 mod robust;
 mod robust_gaps;
+mod scale;
 mod smoke;
 mod stars;
 mod templates;

@@ -388,6 +388,12 @@ impl Campaign {
     /// the manifest names none.
     pub fn merge(&self, tolerance: Option<f64>) -> Result<(Merged, Vec<String>), CampaignError> {
         let (logs, problems) = self.read_logs()?;
+        Ok((self.merge_logs(&logs, tolerance), problems))
+    }
+
+    /// [`Campaign::merge`] of logs already read ([`Campaign::read_logs`]),
+    /// for callers that need the logs too (the report).
+    pub fn merge_logs(&self, logs: &[InspectorLog], tolerance: Option<f64>) -> Merged {
         let adjudicator = self.manifest.adjudicator.clone().or_else(|| {
             logs.iter()
                 .any(|l| l.inspector == "adjudicator")
@@ -397,7 +403,7 @@ impl Campaign {
             tolerance: tolerance.unwrap_or(self.manifest.tolerance),
             adjudicator,
         };
-        Ok((merge(&logs, &opts), problems))
+        merge(logs, &opts)
     }
 
     /// The cached automatic fits by object id (empty when none were
@@ -413,21 +419,60 @@ impl Campaign {
         ))
     }
 
+    /// [`Campaign::load_fits`] keeping only each fit's summary
+    /// ([`fitcache::summary`]: the best candidate, Δχ², warnings), read line
+    /// by line: what status, export and report need, in a few hundred bytes
+    /// per object whatever the records hold.
+    pub fn load_fit_summaries(&self) -> Result<(BTreeMap<String, FitResult>, Vec<String>), CampaignError> {
+        let mut out = BTreeMap::new();
+        let path = self.dir.join(FITS_FILE);
+        let problems = fitcache::scan(&path, |r| {
+            if let Some(f) = r.fit {
+                out.insert(r.object_id, fitcache::summary(f));
+            }
+        })
+        .map_err(io_err(&path))?;
+        Ok((out, problems))
+    }
+
+    /// How many objects have a cached fit (read line by line, nothing kept),
+    /// with the cache's problems.
+    pub fn count_fits(&self) -> Result<(usize, Vec<String>), CampaignError> {
+        let mut ids = std::collections::HashSet::new();
+        let path = self.dir.join(FITS_FILE);
+        let problems = fitcache::scan(&path, |r| {
+            if r.fit.is_some() {
+                ids.insert(r.object_id);
+            }
+        })
+        .map_err(io_err(&path))?;
+        Ok((ids.len(), problems))
+    }
+
+    /// The ids of the objects with a cached fit (read line by line).
+    pub fn fit_ids(&self) -> Result<std::collections::HashSet<String>, CampaignError> {
+        let mut out = std::collections::HashSet::new();
+        let path = self.dir.join(FITS_FILE);
+        fitcache::scan(&path, |r| {
+            if r.fit.is_some() {
+                out.insert(r.object_id);
+            }
+        })
+        .map_err(io_err(&path))?;
+        Ok(out)
+    }
+
     /// The records of the fit cache by object id; unreadable lines (not
     /// UTF-8, not a record) are skipped and come back as problems naming
     /// their line.
     pub fn load_records(&self) -> Result<(BTreeMap<String, FitRecord>, Vec<String>), CampaignError> {
+        let mut out = BTreeMap::new();
         let path = self.dir.join(FITS_FILE);
-        let bytes = match std::fs::read(&path) {
-            Ok(t) => t,
-            Err(e) if e.kind() == std::io::ErrorKind::NotFound => return Ok(Default::default()),
-            Err(e) => return Err(io_err(&path)(e)),
-        };
-        let (records, problems) = fitcache::parse(&bytes);
-        Ok((
-            records.into_iter().map(|r| (r.object_id.clone(), r)).collect(),
-            problems,
-        ))
+        let problems = fitcache::scan(&path, |r| {
+            out.insert(r.object_id.clone(), r);
+        })
+        .map_err(io_err(&path))?;
+        Ok((out, problems))
     }
 
     /// Store fits in the cache (see [`Campaign::save_records`]); their
@@ -446,15 +491,68 @@ impl Campaign {
 
     /// Store records with a fit in the cache: objects already there are
     /// replaced, others kept (records without a fit are not cached); the
-    /// file is rewritten atomically.
+    /// file is rewritten atomically (see [`Campaign::fold_into_cache`]).
     pub fn save_records(&self, records: &[FitRecord]) -> Result<(), CampaignError> {
-        let (mut all, _) = self.load_records()?;
-        for r in records.iter().filter(|r| r.fit.is_some()) {
-            all.insert(r.object_id.clone(), r.clone());
-        }
+        self.fold_into_cache(&|f: &mut dyn FnMut(FitRecord)| {
+            records.iter().cloned().for_each(&mut *f);
+            Ok(Vec::new())
+        })?;
+        Ok(())
+    }
+
+    /// Fold new records into the cache in one atomic rewrite, streaming:
+    /// `new` hands its records to the callback it is given (it is called
+    /// twice, so it must give the same records each time, e.g. by reading
+    /// files again). The cached records of objects that `new` does not fit
+    /// are kept in their order, then the new records with a fit follow in
+    /// theirs (the last of an id wins); records without a fit are not
+    /// cached. Memory holds the ids of the new records, never the records.
+    /// Returns the new records' problems (from the first pass) and the
+    /// number of records with a fit taken.
+    pub fn fold_into_cache(&self, new: &NewRecords<'_>) -> Result<(usize, Vec<String>), CampaignError> {
+        // pass 1: which ids the new records fit, and where each id's last one is
+        let mut last: std::collections::HashMap<String, u64> = std::collections::HashMap::new();
+        let mut seq = 0u64;
+        let problems = new(&mut |r: FitRecord| {
+            if r.fit.is_some() {
+                last.insert(r.object_id, seq);
+            }
+            seq += 1;
+        })?;
         let path = self.dir.join(FITS_FILE);
-        let refs: Vec<&FitRecord> = all.values().collect();
-        let text = fitcache::to_text(&refs).map_err(|e| CampaignError::Other(e.to_string()))?;
-        atomic_write(&path, |w| w.write_all(text.as_bytes())).map_err(io_err(&path))
+        let mut taken = 0usize;
+        atomic_write(&path, |w| {
+            let mut failed: Option<std::io::Error> = None;
+            let put = |r: &FitRecord, w: &mut dyn std::io::Write| -> std::io::Result<()> {
+                let line = r.to_json_line().map_err(std::io::Error::other)?;
+                w.write_all(line.as_bytes())?;
+                w.write_all(b"\n")
+            };
+            fitcache::scan(&path, |r| {
+                if failed.is_none() && r.fit.is_some() && !last.contains_key(&r.object_id) {
+                    if let Err(e) = put(&r, w) {
+                        failed = Some(e);
+                    }
+                }
+            })?;
+            let mut seq = 0u64;
+            new(&mut |r: FitRecord| {
+                if failed.is_none() && last.get(&r.object_id) == Some(&seq) {
+                    match put(&r, w) {
+                        Ok(()) => taken += 1,
+                        Err(e) => failed = Some(e),
+                    }
+                }
+                seq += 1;
+            })
+            .map_err(|e| std::io::Error::other(e.to_string()))?;
+            failed.map_or(Ok(()), Err)
+        })
+        .map_err(io_err(&path))?;
+        Ok((taken, problems))
     }
 }
+
+/// A source of records for [`Campaign::fold_into_cache`]: hands every record
+/// to the callback, returns its problems.
+pub type NewRecords<'a> = dyn Fn(&mut dyn FnMut(FitRecord)) -> Result<Vec<String>, CampaignError> + 'a;

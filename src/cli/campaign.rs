@@ -2,8 +2,10 @@
 `zvet campaign init|fit|status`: create a campaign folder, compute its
 automatic fits into `fits.jsonl`, and show where it stands.
 */
+use super::progress::{cancel_on_interrupt, Bar};
 use super::read_opts::ReadArgs;
 use crate::campaign::{Campaign, EngineSettings, InitOptions};
+use crate::pipeline;
 use anyhow::Context;
 use std::collections::BTreeMap;
 use std::path::PathBuf;
@@ -227,7 +229,26 @@ fn fit(
     refit: bool,
     threads: Option<usize>,
 ) -> anyhow::Result<ExitCode> {
-    let (summary, problems, failures) = c.fit_run(shard, refit, threads, &|_| {}, None)?;
+    // the bar's total: the inputs' objects (from their headers) less those cached
+    let (files, _) = c.input_files();
+    let cached = if refit { 0 } else { c.fit_ids()?.len() as u64 };
+    let mut total = pipeline::estimate_objects(&files).saturating_sub(cached);
+    if let Some((_, n)) = shard {
+        total = total.div_ceil(n as u64);
+    }
+    let bar = Bar::new("campaign fit", "objects fitted", Some(total));
+    let cancel = cancel_on_interrupt();
+    let run = c.fit_run(
+        shard,
+        refit,
+        threads,
+        &|done| {
+            bar.set(done as u64);
+        },
+        Some(cancel),
+    );
+    bar.finish();
+    let (summary, problems, failures) = run?;
     for f in &failures {
         eprintln!("zvet: could not fit {f}");
     }
@@ -244,6 +265,14 @@ fn fit(
         Some((k, n)) => c.part_path(k, n),
         None => c.dir().join(crate::campaign::FITS_FILE),
     };
+    if summary.cancelled {
+        eprintln!(
+            "zvet: stopped by the interrupt; the objects finished are kept in {} — run `zvet campaign fit {}{}` to carry on",
+            into.display(),
+            c.dir().display(),
+            shard.map_or(String::new(), |(k, n)| format!(" --shard {k}/{n}"))
+        );
+    }
     println!(
         "{} objects fitted, {} failed, {} already cached{}{}; fits in {}",
         summary.fitted,
@@ -269,7 +298,9 @@ fn fit(
             c.dir().display()
         );
     }
-    Ok(if summary.failed == 0 && failed_inputs == 0 {
+    Ok(if summary.cancelled {
+        ExitCode::from(130)
+    } else if summary.failed == 0 && failed_inputs == 0 {
         ExitCode::SUCCESS
     } else {
         ExitCode::from(1)
@@ -298,8 +329,8 @@ fn status(a: StatusArgs) -> anyhow::Result<ExitCode> {
     }
     println!("  templates {}", m.templates);
     println!("  engine    {}", m.engine.summary());
-    let (fits, fit_problems) = c.load_fits()?;
-    println!("  fits      {} cached", fits.len());
+    let (fits, fit_problems) = c.count_fits()?;
+    println!("  fits      {fits} cached");
     let (logs, problems) = c.read_logs()?;
     for l in &logs {
         let reviewed = l.verdicts.values().filter(|v| v.is_complete()).count();

@@ -1,7 +1,9 @@
 /*!
-`zvet demo`: the invented demo survey. `--write DIR` writes it as files (one
-FITS table per spectrum, the catalogue and the truth as CSV) so the other
-subcommands can be tried on it; without `--write` it prints a summary.
+`zvet demo`: the invented demo survey. `--write DIR` writes it as files
+(multi-object FITS tables of `--chunk` spectra each, the catalogue and the
+truth as CSV, all streamed: any `--objects`, 10⁶ and more, in bounded
+memory) so the other subcommands can be tried on it; without `--write` it
+prints a summary of the first 500.
 */
 use anyhow::Context;
 use std::collections::BTreeMap;
@@ -19,27 +21,41 @@ pub struct Args {
     /// Seed of the generator (the window opens on the default one).
     #[arg(long, default_value_t = demo::DEFAULT_SEED)]
     pub seed: u64,
-    /// Number of objects (at most 500).
+    /// Number of objects (any number; past 500 the survey's cast repeats,
+    /// shuffled anew for every 500).
     #[arg(long, default_value_t = 500)]
     pub objects: usize,
+    /// Objects per spectrum file (a multi-object FITS table).
+    #[arg(long, default_value_t = demo::DEFAULT_CHUNK as u64, value_parser = clap::value_parser!(u64).range(1..))]
+    pub chunk: u64,
 }
 
 /// Run `zvet demo`.
 pub fn run(args: Args) -> anyhow::Result<ExitCode> {
-    let survey = demo::generate_n(args.seed, args.objects.min(500));
     match &args.write {
         Some(dir) => {
-            let w = demo::write_survey(&survey, dir)
-                .with_context(|| format!("writing the demo survey into {}", dir.display()))?;
+            let opts = demo::ScaleOptions {
+                seed: args.seed,
+                objects: args.objects,
+                chunk: usize::try_from(args.chunk).unwrap_or(usize::MAX),
+            };
+            let bar = super::progress::Bar::new("demo", "objects written", Some(args.objects as u64));
+            let cancel = super::progress::cancel_on_interrupt();
+            let w = demo::write_scaled(dir, &opts, &mut |n| bar.set(n as u64), Some(cancel))
+                .with_context(|| format!("writing the demo survey into {}", dir.display()));
+            bar.finish();
+            let w = w?;
             println!(
-                "wrote {} spectra to {}, the catalogue to {}, the truth to {}",
+                "wrote {} spectra in {} file(s) to {}, the catalogue to {}, the truth to {}",
                 w.objects,
+                w.files,
                 w.spectra.display(),
                 w.catalog.display(),
                 w.truth.display()
             );
         }
         None => {
+            let survey = demo::generate_n(args.seed, args.objects.min(500));
             let mut kinds: BTreeMap<&str, usize> = BTreeMap::new();
             for t in &survey.truth {
                 *kinds.entry(t.kind.as_str()).or_default() += 1;

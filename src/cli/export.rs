@@ -5,7 +5,7 @@ level and without given flags. A CSV gets its provenance in a `.json`
 sidecar; ECSV and FITS carry it in their headers.
 */
 use crate::campaign::Campaign;
-use crate::export::{export_campaign, ExportOptions};
+use crate::export::{export_campaign_steps, ExportOptions};
 use crate::review::{Confidence, Flag};
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -51,7 +51,11 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
         min_confidence: args.min_confidence,
         exclude_flags: args.exclude_flags,
     };
-    let s = export_campaign(&c, &args.out, &opts)?;
+    let bar = super::progress::Bar::steps("export");
+    super::progress::cancel_on_interrupt();
+    let s = export_campaign_steps(&c, &args.out, &opts, &mut |name| bar.step(name).is_ok());
+    bar.finish();
+    let s = s?;
     for p in &s.problems {
         eprintln!("zvet: warning: {p}");
     }

@@ -15,7 +15,6 @@ use crate::pipeline::{self, RowWriter, RunOptions};
 use crate::ObjectClass;
 use anyhow::Context;
 use std::collections::HashSet;
-use std::io::IsTerminal;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -111,15 +110,12 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
         eprintln!("zvet fit: error: {p}");
     }
     let mut writer = RowWriter::create(&args.out, args.resume)?;
-    let progress = std::io::stderr().is_terminal().then(|| {
-        let p = indicatif::ProgressBar::new_spinner();
-        if let Ok(style) =
-            indicatif::ProgressStyle::with_template("{spinner} {pos} objects fitted ({per_sec}, {elapsed})")
-        {
-            p.set_style(style);
-        }
-        p
-    });
+    let mut total = pipeline::estimate_objects(&found.files).saturating_sub(skip.len() as u64);
+    if let Some((_, n)) = args.shard {
+        total = total.div_ceil(n as u64);
+    }
+    let bar = super::progress::Bar::new("fit", "objects fitted", Some(total));
+    let cancel = super::progress::cancel_on_interrupt();
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(args.threads.unwrap_or(0))
         .build()
@@ -129,18 +125,19 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
         shard: args.shard,
         unique_ids: false,
     };
-    let tick = |done: usize| {
-        if let Some(p) = &progress {
-            p.set_position(done as u64);
-        }
-    };
+    let tick = |done: usize| bar.set(done as u64);
     let (times_tx, times_rx) = std::sync::mpsc::channel();
     let items = pipeline::stream_timed(found.files, opts, Some(times_tx));
-    let summary =
-        pool.install(|| pipeline::fit_stream(&engine, items, &run, |r| writer.write(&r), &tick, None))?;
+    let summary = pool
+        .install(|| pipeline::fit_stream(&engine, items, &run, |r| writer.write(&r), &tick, Some(cancel)))?;
     writer.finish()?;
-    if let Some(p) = progress {
-        p.finish_and_clear();
+    bar.finish();
+    if summary.cancelled {
+        eprintln!(
+            "zvet fit: stopped by the interrupt; the {} objects finished are in {} — add --resume to carry on",
+            summary.fitted + summary.failed,
+            args.out.display()
+        );
     }
     report_read_times(&times_rx.try_iter().collect::<Vec<_>>(), args.read_times);
     eprintln!(
@@ -157,7 +154,9 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
     );
     // Like `zvet inspect`: the rows are all written, but a script must be able
     // to tell that some objects (or inputs) failed.
-    Ok(if summary.failed > 0 || !found.problems.is_empty() {
+    Ok(if summary.cancelled {
+        ExitCode::from(130)
+    } else if summary.failed > 0 || !found.problems.is_empty() {
         ExitCode::from(1)
     } else {
         ExitCode::SUCCESS

@@ -31,7 +31,11 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
         anyhow::bail!("--tolerance must be a number ≥ 0, got {t}");
     }
     let c = Campaign::open(&args.campaign)?;
+    let bar = super::progress::Bar::steps("merge");
+    super::progress::cancel_on_interrupt();
+    bar.step("reading and merging the review logs")?;
     let (merged, problems) = c.merge(args.tolerance)?;
+    bar.finish();
     for p in &problems {
         eprintln!("zvet: warning: {p}");
     }
@@ -76,6 +80,9 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
         writeln!(out, "  {}: {}", k.object_id, k.reason)?;
     }
     if let Some(path) = &args.conflicts {
+        if super::progress::interrupted() {
+            anyhow::bail!("stopped by the interrupt; {} was not written", path.display());
+        }
         atomic_write(path, |w| {
             let mut cw = csv::Writer::from_writer(w);
             cw.write_record(["id", "reason", "inspector", "class", "z", "confidence"])?;

@@ -16,6 +16,7 @@ pub mod export;
 pub mod fit;
 pub mod inspect;
 pub mod merge;
+pub mod progress;
 pub mod read_opts;
 pub mod report;
 pub mod templates;
@@ -69,7 +70,28 @@ pub struct ReviewArgs {
 }
 
 /// Run a headless subcommand. `Review` is handled by the binary.
+///
+/// With `ZVET_PEAK_MEMORY_FILE=PATH` in the environment, the process's peak
+/// resident memory (`VmHWM` of `/proc/self/status`, Linux) is written to
+/// PATH in kB when the command ends: the memory checks of the scale tests
+/// and `scripts/scale-bench.sh` read it.
 pub fn run(command: Command) -> anyhow::Result<ExitCode> {
+    let out = run_command(command);
+    if let Some(path) = std::env::var_os("ZVET_PEAK_MEMORY_FILE") {
+        let peak = std::fs::read_to_string("/proc/self/status")
+            .ok()
+            .and_then(|s| {
+                s.lines()
+                    .find_map(|l| l.strip_prefix("VmHWM:"))
+                    .map(|v| v.trim().trim_end_matches("kB").trim().to_string())
+            })
+            .unwrap_or_default();
+        let _ = std::fs::write(path, format!("{peak}\n"));
+    }
+    out
+}
+
+fn run_command(command: Command) -> anyhow::Result<ExitCode> {
     match command {
         Command::Review(_) => anyhow::bail!("this zvet was built without the GUI (feature `gui`)"),
         Command::Inspect(a) => inspect::run(a),

@@ -20,13 +20,20 @@ pub struct Args {
 /// Run `zvet report`.
 pub fn run(args: Args) -> anyhow::Result<ExitCode> {
     let c = Campaign::open(&args.campaign)?;
+    let bar = super::progress::Bar::steps("report");
+    super::progress::cancel_on_interrupt();
+    bar.step("reading logs, fits and catalogue")?;
     let input = input_from_campaign(&c)?;
+    bar.step("counting")?;
+    let n = numbers(&input);
+    drop(input.fits);
+    let out = args.out.unwrap_or_else(|| c.exports_dir().join("report"));
+    bar.step("drawing and writing")?;
+    let files = write_report(&out, &n)?;
+    bar.finish();
     for p in &input.problems {
         eprintln!("zvet: warning: {p}");
     }
-    let n = numbers(&input);
-    let out = args.out.unwrap_or_else(|| c.exports_dir().join("report"));
-    let files = write_report(&out, &n)?;
     println!(
         "report written to {} ({} files): {} reviewed, {} conflicts, catastrophic redshift rate {}",
         out.join("report.html").display(),

@@ -19,10 +19,12 @@ attached; the window fits in the background.
 mod build;
 mod photometry;
 mod plan;
+mod scaled;
 mod synth;
 mod write;
 
 pub use plan::DemoKind;
+pub use scaled::{write_scaled, ScaleOptions, DEFAULT_CHUNK, SPECTRA_EXTNAME};
 pub use synth::{N_PIX, WAVE_MAX, WAVE_MIN};
 pub use write::{write, write_survey, DemoError, Written};
 
@@ -71,21 +73,17 @@ pub fn generate(seed: u64) -> DemoSurvey {
 
 /// The first `n` objects of the survey for `seed` (object k is the same
 /// whatever `n`; the hard cases come early, so a short survey has them).
+/// Past 500 the cast repeats block after block, each shuffled anew; for
+/// large `n` write the survey with [`write_scaled`] instead, which never
+/// holds more than a batch of spectra.
 pub fn generate_n(seed: u64, n: usize) -> DemoSurvey {
-    let kinds = plan::kinds(seed);
     let wave = synth::wave_grid();
     let sky = synth::sky_profile(&wave);
-    let mut seen = std::collections::HashMap::new();
-    let (objects, truth) = kinds
-        .iter()
+    let (objects, truth) = plan::cast(seed)
         .take(n)
-        .enumerate()
-        .map(|(i, &kind)| {
-            let ordinal = seen.entry(kind).or_insert(0usize);
+        .map(|(i, kind, ordinal)| {
             let mut rng = plan::object_rng(seed, i);
-            let out = build::object(i, kind, *ordinal, &wave, &sky, &mut rng);
-            *ordinal += 1;
-            out
+            build::object(i, kind, ordinal, &wave, &sky, &mut rng)
         })
         .unzip();
     DemoSurvey {

@@ -112,6 +112,39 @@ pub fn kinds(seed: u64) -> Vec<DemoKind> {
     v
 }
 
+/// The kinds of block `block` of a survey larger than the cast: block 0 is
+/// the full survey of `seed` ([`kinds`]), every further block of
+/// [`full_size`] objects is the same cast shuffled by its own seed, so a
+/// survey of any size keeps the mix and object k is the same whatever the
+/// size asked for.
+pub fn block_kinds(seed: u64, block: usize) -> Vec<DemoKind> {
+    if block == 0 {
+        kinds(seed)
+    } else {
+        // splitmix64's increment (common practice) spreads the block seeds
+        kinds(seed ^ (block as u64).wrapping_mul(0x9e37_79b9_7f4a_7c15))
+    }
+}
+
+/// Object index, kind and ordinal (how many of that kind came before) of
+/// every object of the survey for `seed`, in order, without end: the
+/// survey's cast block after block.
+pub fn cast(seed: u64) -> impl Iterator<Item = (usize, DemoKind, usize)> {
+    let mut seen: std::collections::HashMap<DemoKind, usize> = std::collections::HashMap::new();
+    let mut block: Vec<DemoKind> = Vec::new();
+    (0usize..).map(move |i| {
+        let n = full_size();
+        if i % n == 0 {
+            block = block_kinds(seed, i / n);
+        }
+        let kind = block[i % n];
+        let ordinal = seen.entry(kind).or_insert(0);
+        let out = (i, kind, *ordinal);
+        *ordinal += 1;
+        out
+    })
+}
+
 /// The random stream of object `index` (independent of the survey size).
 pub fn object_rng(seed: u64, index: usize) -> ChaCha8Rng {
     let mut rng = ChaCha8Rng::seed_from_u64(seed ^ 0x5eed_0bec7);
@@ -133,5 +166,25 @@ mod tests {
         for k in [DemoKind::SingleLine, DemoKind::DeadFibre, DemoKind::Catastrophic] {
             assert!(a[..40].contains(&k), "{k:?} not near the front");
         }
+    }
+
+    #[test]
+    fn cast_goes_on_block_after_block_with_the_same_mix() {
+        let first: Vec<DemoKind> = cast(3).take(500).map(|(_, k, _)| k).collect();
+        assert_eq!(first, kinds(3));
+        let two: Vec<(usize, DemoKind, usize)> = cast(3).take(1500).collect();
+        let second: Vec<DemoKind> = two[500..1000].iter().map(|x| x.1).collect();
+        assert_ne!(second, first, "each block is shuffled by its own seed");
+        let count = |v: &[DemoKind], k: DemoKind| v.iter().filter(|x| **x == k).count();
+        for (k, n) in CAST {
+            assert_eq!(count(&second, k), n, "{k:?}");
+        }
+        // ordinals count each kind through the whole stream
+        let stars: Vec<usize> = two
+            .iter()
+            .filter(|x| x.1 == DemoKind::Star)
+            .map(|x| x.2)
+            .collect();
+        assert_eq!(stars, (0..stars.len()).collect::<Vec<_>>());
     }
 }

@@ -41,6 +41,15 @@ pub enum DemoError {
     },
 }
 
+impl From<std::io::Error> for DemoError {
+    fn from(source: std::io::Error) -> Self {
+        DemoError::Io {
+            path: PathBuf::new(),
+            source,
+        }
+    }
+}
+
 /// What was written.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Written {
@@ -52,6 +61,8 @@ pub struct Written {
     pub truth: PathBuf,
     /// Number of objects.
     pub objects: usize,
+    /// Number of spectrum files.
+    pub files: usize,
 }
 
 /// Write the default demo survey into `dir`.
@@ -88,6 +99,7 @@ pub fn write_survey(survey: &DemoSurvey, dir: &Path) -> Result<Written, DemoErro
         catalog,
         truth,
         objects: survey.objects.len(),
+        files: survey.objects.len(),
     })
 }
 
@@ -133,44 +145,64 @@ fn opt(v: Option<f64>, digits: usize) -> String {
     v.map_or(String::new(), |x| format!("{x:.digits$}"))
 }
 
-fn write_catalog(survey: &DemoSurvey, path: &Path) -> Result<(), String> {
-    let mut w = csv::Writer::from_path(path).map_err(|e| e.to_string())?;
+/// The header row of `catalog.csv`.
+pub(super) fn catalog_header() -> Vec<String> {
     let mut header = vec!["id".to_string(), "ra".into(), "dec".into()];
     for b in BANDS {
         header.push(format!("mag_{b}"));
         header.push(format!("magerr_{b}"));
     }
     header.extend(["phot_class".into(), "phot_class_prob".into(), "phot_z".into()]);
-    w.write_record(&header).map_err(|e| e.to_string())?;
+    header
+}
+
+/// One row of `catalog.csv`.
+pub(super) fn catalog_record(r: &crate::catalog::CatalogRow) -> Vec<String> {
+    let mut rec = vec![r.id.clone(), opt(r.ra, 6), opt(r.dec, 6)];
+    for b in 0..BANDS.len() {
+        rec.push(opt(r.mag[b], 3));
+        rec.push(opt(r.mag_err[b], 3));
+    }
+    rec.push(r.phot_class.map_or(String::new(), |c| c.as_str().to_string()));
+    rec.push(opt(r.phot_class_prob, 3));
+    rec.push(opt(r.phot_z, 3));
+    rec
+}
+
+/// The header row of `truth.csv`.
+pub(super) fn truth_header() -> Vec<String> {
+    ["id", "class", "z", "kind", "phot_wrong", "note"]
+        .map(String::from)
+        .to_vec()
+}
+
+/// One row of `truth.csv`.
+pub(super) fn truth_record(t: &super::DemoTruth) -> Vec<String> {
+    vec![
+        t.id.clone(),
+        t.class.map_or("", |c| c.as_str()).to_string(),
+        format!("{:.6}", t.z),
+        t.kind.as_str().to_string(),
+        if t.phot_wrong { "1" } else { "0" }.to_string(),
+        t.note.clone(),
+    ]
+}
+
+fn write_catalog(survey: &DemoSurvey, path: &Path) -> Result<(), String> {
+    let mut w = csv::Writer::from_path(path).map_err(|e| e.to_string())?;
+    w.write_record(catalog_header()).map_err(|e| e.to_string())?;
     for o in &survey.objects {
         let Some(r) = &o.catalog else { continue };
-        let mut rec = vec![r.id.clone(), opt(r.ra, 6), opt(r.dec, 6)];
-        for b in 0..BANDS.len() {
-            rec.push(opt(r.mag[b], 3));
-            rec.push(opt(r.mag_err[b], 3));
-        }
-        rec.push(r.phot_class.map_or(String::new(), |c| c.as_str().to_string()));
-        rec.push(opt(r.phot_class_prob, 3));
-        rec.push(opt(r.phot_z, 3));
-        w.write_record(&rec).map_err(|e| e.to_string())?;
+        w.write_record(catalog_record(r)).map_err(|e| e.to_string())?;
     }
     w.flush().map_err(|e| e.to_string())
 }
 
 fn write_truth(survey: &DemoSurvey, path: &Path) -> Result<(), String> {
     let mut w = csv::Writer::from_path(path).map_err(|e| e.to_string())?;
-    w.write_record(["id", "class", "z", "kind", "phot_wrong", "note"])
-        .map_err(|e| e.to_string())?;
+    w.write_record(truth_header()).map_err(|e| e.to_string())?;
     for t in &survey.truth {
-        w.write_record([
-            t.id.as_str(),
-            t.class.map_or("", |c| c.as_str()),
-            &format!("{:.6}", t.z),
-            t.kind.as_str(),
-            if t.phot_wrong { "1" } else { "0" },
-            t.note.as_str(),
-        ])
-        .map_err(|e| e.to_string())?;
+        w.write_record(truth_record(t)).map_err(|e| e.to_string())?;
     }
     w.flush().map_err(|e| e.to_string())
 }

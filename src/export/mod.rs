@@ -60,6 +60,9 @@ pub enum ExportError {
     /// The campaign could not be read.
     #[error(transparent)]
     Campaign(#[from] CampaignError),
+    /// Stopped on request (Ctrl-C) before a step; nothing was written.
+    #[error("stopped by the interrupt before {0}; the output was not written")]
+    Interrupted(String),
 }
 
 /// One row of the training catalogue.
@@ -355,10 +358,34 @@ pub fn export_campaign(
     out: &Path,
     opts: &ExportOptions,
 ) -> Result<ExportSummary, ExportError> {
+    export_campaign_steps(campaign, out, opts, &mut |_| true)
+}
+
+/// [`export_campaign`], telling `step` the name of each step before it
+/// starts (merging, reading the fits, reading the catalogue, writing); when
+/// `step` returns false the export stops there with
+/// [`ExportError::Interrupted`] and `out` is not touched.
+pub fn export_campaign_steps(
+    campaign: &Campaign,
+    out: &Path,
+    opts: &ExportOptions,
+    step: &mut dyn FnMut(&str) -> bool,
+) -> Result<ExportSummary, ExportError> {
+    let mut go = |name: &str| {
+        if step(name) {
+            Ok(())
+        } else {
+            Err(ExportError::Interrupted(name.to_string()))
+        }
+    };
     Format::of(out)?;
+    go("merging the review logs")?;
     let (merged, mut problems) = campaign.merge(None)?;
-    let (fits, p) = campaign.load_fits()?;
+    go("reading the fit cache")?;
+    // read line by line; only each fit's summary is kept
+    let (fits, p) = campaign.load_fit_summaries()?;
     problems.extend(p);
+    go("reading the catalogue")?;
     let (catalog, p) = campaign.load_catalog()?;
     problems.extend(p);
     if campaign.catalog_path().is_some() {
@@ -374,6 +401,7 @@ pub fn export_campaign(
         .filter(|c| c.verdict.as_ref().is_some_and(|v| !v.is_complete()))
         .count();
     let with_verdict = merged.objects.len() - conflicts - incomplete;
+    go("writing")?;
     write(out, &rows, &Provenance::for_campaign(campaign, &merged, opts))?;
     Ok(ExportSummary {
         rows: rows.len(),

@@ -273,6 +273,35 @@ pub fn not_a_spectrum_table(path: &Path, opts: &ReadOptions) -> Option<&'static 
     None
 }
 
+/// About how many objects `files` hold, from their FITS headers only (for a
+/// progress bar's time left, never for results): a binary table with a
+/// vector column of 16 or more elements holds one object per row, a 2-D
+/// image one per row (a multi-object frame; sky and unused rows included),
+/// anything else one object per file.
+pub fn estimate_objects(files: &[PathBuf]) -> u64 {
+    files
+        .iter()
+        .map(|f| {
+            let Ok(layout) = crate::io::fits_layout(f) else {
+                return 1;
+            };
+            let mut n = 0u64;
+            for h in &layout {
+                let vector = h
+                    .columns
+                    .iter()
+                    .any(|(_, c)| matches!(c, crate::io::ColumnForm::Fixed { repeat } if *repeat >= 16));
+                match (h.xtension.as_deref(), h.naxis.as_slice()) {
+                    (Some("BINTABLE"), [_, rows, ..]) if vector => n += rows,
+                    (None | Some("IMAGE"), [len, rows]) if *len > 1 && *rows > 1 => n += rows,
+                    _ => {}
+                }
+            }
+            n.max(1)
+        })
+        .sum()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -27,7 +27,7 @@ pub mod table;
 mod table_fits;
 
 pub use engine::{build_engine, load_templates, PipelineError};
-pub use inputs::{check_output, find, Inputs};
+pub use inputs::{check_output, estimate_objects, find, Inputs};
 pub use kind::{kind_of, PathKind, CAMPAIGN_MANIFEST};
 pub use read::{read_all, source_of, stream, stream_timed, Item, ReadFailure};
 pub use record::{FitRecord, FitRow, TableError, RECORD_FORMAT};

@@ -442,21 +442,44 @@ impl FitRow {
 /// and named the same way.
 pub fn parse_lines(bytes: &[u8]) -> (Vec<FitRecord>, Vec<String>) {
     let mut out = Vec::new();
+    // reading from memory cannot fail
+    let problems = for_each_line(bytes, |r| out.push(r)).unwrap_or_default();
+    (out, problems)
+}
+
+/// [`parse_lines`] as a stream: every record of `reader` (read line by line,
+/// so memory holds one line at a time) handed to `f` in order; bad lines
+/// come back as problems with the same words. Only a read error of the
+/// reader itself is an error.
+pub fn for_each_line(
+    mut reader: impl std::io::BufRead,
+    mut f: impl FnMut(FitRecord),
+) -> std::io::Result<Vec<String>> {
     let mut problems = Vec::new();
-    for (i, raw) in bytes.split(|&b| b == b'\n').enumerate() {
-        let Ok(line) = std::str::from_utf8(raw) else {
-            problems.push(format!("line {}: not UTF-8 text; skipped", i + 1));
+    let mut raw = Vec::new();
+    let mut i = 0usize;
+    loop {
+        raw.clear();
+        if reader.read_until(b'\n', &mut raw)? == 0 {
+            break;
+        }
+        i += 1;
+        if raw.last() == Some(&b'\n') {
+            raw.pop();
+        }
+        let Ok(line) = std::str::from_utf8(&raw) else {
+            problems.push(format!("line {i}: not UTF-8 text; skipped"));
             continue;
         };
         if line.trim().is_empty() {
             continue;
         }
         match FitRecord::from_json_line(line) {
-            Ok(r) => out.push(r),
-            Err(e) => problems.push(format!("line {}: {e}; skipped", i + 1)),
+            Ok(r) => f(r),
+            Err(e) => problems.push(format!("line {i}: {e}; skipped")),
         }
     }
-    (out, problems)
+    Ok(problems)
 }
 
 #[cfg(test)]

@@ -361,9 +361,10 @@ pub fn write_report(out_dir: &Path, n: &ReportNumbers) -> Result<Vec<PathBuf>, R
 
 /// Read a campaign's logs, fits and catalogue into a report input.
 pub fn input_from_campaign(campaign: &Campaign) -> Result<ReportInput, ReportError> {
-    let (merged, mut problems) = campaign.merge(None)?;
-    let (logs, _) = campaign.read_logs()?;
-    let (fits, fit_problems) = campaign.load_fits()?;
+    // each log read once; fits read line by line, their summaries kept
+    let (logs, mut problems) = campaign.read_logs()?;
+    let merged = campaign.merge_logs(&logs, None);
+    let (fits, fit_problems) = campaign.load_fit_summaries()?;
     problems.extend(fit_problems);
     let (catalog, cat_problems) = campaign.load_catalog()?;
     problems.extend(cat_problems);
