@@ -327,8 +327,145 @@ macro_rules! vocab {
     };
 }
 
-/// All columns, in file order.
-pub const COLUMNS: [ColumnSpec; 36] = [
+/// Emission-line fluxes and errors: four significant digits (common practice:
+/// finer than any line flux is known).
+const LINEP: Precision = Precision::Significant(4);
+/// Ångström (FITS TUNIT and ECSV unit, as astropy spells it).
+const ANGSTROM: Option<&str> = Some("Angstrom");
+
+/// The three columns of exported line `$i` ([`super::EXPORT_LINES`]).
+macro_rules! line {
+    ($i:literal, $flux:literal, $err:literal, $ew:literal, $what:literal) => {
+        [
+            col(
+                $flux,
+                None,
+                concat!($what, " flux (spectra's flux unit × Å), automatic fit"),
+                Access::F64(
+                    |r| r.lines[$i].flux,
+                    |r, v| {
+                        r.lines[$i].flux = v;
+                        Ok(())
+                    },
+                    LINEP,
+                ),
+            ),
+            col(
+                $err,
+                None,
+                "its 1σ error",
+                Access::F64(
+                    |r| r.lines[$i].flux_err,
+                    |r, v| {
+                        r.lines[$i].flux_err = v;
+                        Ok(())
+                    },
+                    LINEP,
+                ),
+            ),
+            col(
+                $ew,
+                ANGSTROM,
+                concat!($what, " rest-frame equivalent width, positive for emission"),
+                Access::F64(
+                    |r| r.lines[$i].ew,
+                    |r, v| {
+                        r.lines[$i].ew = v;
+                        Ok(())
+                    },
+                    LINEP,
+                ),
+            ),
+        ]
+    };
+}
+
+/// The line columns, in [`super::EXPORT_LINES`] order.
+const LINE_COLUMNS: [[ColumnSpec; 3]; 8] = [
+    line!(
+        0,
+        "line_halpha_flux",
+        "line_halpha_flux_err",
+        "line_halpha_ew",
+        "Hα 6565"
+    ),
+    line!(
+        1,
+        "line_hbeta_flux",
+        "line_hbeta_flux_err",
+        "line_hbeta_ew",
+        "Hβ 4863"
+    ),
+    line!(
+        2,
+        "line_hgamma_flux",
+        "line_hgamma_flux_err",
+        "line_hgamma_ew",
+        "Hγ 4342"
+    ),
+    line!(
+        3,
+        "line_hdelta_flux",
+        "line_hdelta_flux_err",
+        "line_hdelta_ew",
+        "Hδ 4103"
+    ),
+    line!(
+        4,
+        "line_oiii_5008_flux",
+        "line_oiii_5008_flux_err",
+        "line_oiii_5008_ew",
+        "[O III] 5008"
+    ),
+    line!(
+        5,
+        "line_nii_6585_flux",
+        "line_nii_6585_flux_err",
+        "line_nii_6585_ew",
+        "[N II] 6585"
+    ),
+    line!(
+        6,
+        "line_oii_3727_3730_flux",
+        "line_oii_3727_3730_flux_err",
+        "line_oii_3727_3730_ew",
+        "[O II] 3727+3730 doublet"
+    ),
+    line!(
+        7,
+        "line_sii_6718_6733_flux",
+        "line_sii_6718_6733_flux_err",
+        "line_sii_6718_6733_ew",
+        "[S II] 6718+6733 doublet"
+    ),
+];
+
+/// Number of catalogue columns before the line columns.
+const N_BASE: usize = 36;
+
+/// All columns, in file order: the catalogue, fit and verdict columns, then
+/// the emission-line columns ([`LINE_COLUMNS`]).
+pub const COLUMNS: [ColumnSpec; N_BASE + 3 * LINE_COLUMNS.len()] = {
+    let mut out = [BASE_COLUMNS[0]; N_BASE + 3 * LINE_COLUMNS.len()];
+    let mut i = 0;
+    while i < N_BASE {
+        out[i] = BASE_COLUMNS[i];
+        i += 1;
+    }
+    let mut l = 0;
+    while l < LINE_COLUMNS.len() {
+        let mut c = 0;
+        while c < 3 {
+            out[N_BASE + 3 * l + c] = LINE_COLUMNS[l][c];
+            c += 1;
+        }
+        l += 1;
+    }
+    out
+};
+
+/// The catalogue, fit and verdict columns.
+const BASE_COLUMNS: [ColumnSpec; N_BASE] = [
     col(
         "id",
         None,
@@ -534,6 +671,7 @@ impl ExportRow {
             note: String::new(),
             inspectors: Vec::new(),
             consensus: ConsensusState::Single,
+            lines: Default::default(),
         };
         let mut seen = [false; COLUMNS.len()];
         for (name, cell) in cells {

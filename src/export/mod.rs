@@ -99,6 +99,65 @@ pub struct ExportRow {
     pub inspectors: Vec<String>,
     /// Consensus state.
     pub consensus: ConsensusState,
+    /// Emission lines of the automatic fit, in [`EXPORT_LINES`] order.
+    pub lines: [LineCells; EXPORT_LINES.len()],
+}
+
+/// One exported emission line (or doublet): flux, its 1σ error and the
+/// rest-frame equivalent width, as measured by [`crate::fit::emission`].
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct LineCells {
+    /// Integrated flux (the spectra's flux unit × Å); a line that is not
+    /// detected keeps its measured value (a 3σ upper limit is 3 × the error).
+    pub flux: Option<f64>,
+    /// Its 1σ error.
+    pub flux_err: Option<f64>,
+    /// Rest-frame equivalent width (Å, positive for emission) against the
+    /// continuum under the line, stellar absorption included.
+    pub ew: Option<f64>,
+}
+
+/// The exported lines: column stem and the line-list names summed into it
+/// (a doublet's two lines as one flux; the error adds the two errors in
+/// quadrature, which ignores their covariance — an overestimate when the
+/// doublet is blended and the two fluxes trade off).
+pub const EXPORT_LINES: [(&str, &[&str]); 8] = [
+    ("halpha", &["Hα"]),
+    ("hbeta", &["Hβ"]),
+    ("hgamma", &["Hγ"]),
+    ("hdelta", &["Hδ"]),
+    ("oiii_5008", &["[O III] 5008"]),
+    ("nii_6585", &["[N II] 6585"]),
+    ("oii_3727_3730", &["[O II] 3727", "[O II] 3730"]),
+    ("sii_6718_6733", &["[S II] 6718", "[S II] 6733"]),
+];
+
+/// Largest velocity difference (km/s) between the vetted and the automatic
+/// redshift at which the automatic fit's line measurements are exported:
+/// the largest line offset the line fit allows for galaxies
+/// ([`crate::fit::emission::table::limits`]). Beyond it the lines were
+/// measured at another redshift and the line columns stay empty.
+pub const LINE_EXPORT_MAX_DV_KMS: f64 = 500.0;
+
+/// The [`EXPORT_LINES`] values of a fit's line measurements.
+pub fn line_cells(lines: &[crate::fit::LineMeasurement]) -> [LineCells; EXPORT_LINES.len()] {
+    EXPORT_LINES.map(|(_, names)| {
+        let found: Vec<&crate::fit::LineMeasurement> = names
+            .iter()
+            .filter_map(|n| lines.iter().find(|l| l.name == *n))
+            .collect();
+        if found.len() != names.len() {
+            return LineCells::default();
+        }
+        let flux: f64 = found.iter().map(|l| l.flux).sum();
+        let err = found.iter().map(|l| l.flux_err * l.flux_err).sum::<f64>().sqrt();
+        let ew: f64 = found.iter().map(|l| l.ew_rest).sum();
+        LineCells {
+            flux: finite(flux),
+            flux_err: finite(err),
+            ew: finite(ew),
+        }
+    })
 }
 
 /// Which vetted objects to keep.
@@ -267,6 +326,13 @@ pub fn build_rows(
         }
         let cat = catalog.get(id);
         let best = fits.get(id).and_then(|f| f.best().map(|b| (f, b)));
+        // lines measured at (nearly) the vetted redshift, else none
+        let lines = match (best, v.z) {
+            (Some((f, b)), Some(z)) if crate::fit::velocity_sep_kms(b.z, z) <= LINE_EXPORT_MAX_DV_KMS => {
+                line_cells(&f.lines)
+            }
+            _ => Default::default(),
+        };
         rows.push(ExportRow {
             catalog: CatalogRow {
                 id: id.clone(),
@@ -286,6 +352,7 @@ pub fn build_rows(
             note: v.note.clone(),
             inspectors: c.inspectors.clone(),
             consensus: c.state,
+            lines,
         });
     }
     rows
@@ -410,4 +477,58 @@ pub fn export_campaign_steps(
         incomplete,
         problems,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::fit::LineMeasurement;
+
+    fn line(name: &str, flux: f64, err: f64, ew: f64) -> LineMeasurement {
+        LineMeasurement {
+            name: name.into(),
+            rest_wave: crate::lines::wave_of(name),
+            obs_wave: f64::NAN,
+            flux,
+            flux_err: err,
+            sigma_kms: 80.0,
+            ew_rest: ew,
+            snr: flux / err,
+            width_fitted: true,
+            continuum: 1.0,
+            abs_ew_rest: None,
+        }
+    }
+
+    #[test]
+    fn line_columns_take_single_lines_and_sum_doublets() {
+        let lines = vec![
+            line("Hα", 300.0, 6.0, 40.0),
+            line("[S II] 6718", 30.0, 3.0, 4.0),
+            line("[S II] 6733", 20.0, 4.0, 3.0),
+            line("[O II] 3727", 10.0, 1.0, f64::NAN),
+            // its partner is missing: the pair stays empty
+        ];
+        let cells = line_cells(&lines);
+        let at = |stem: &str| cells[EXPORT_LINES.iter().position(|l| l.0 == stem).unwrap()];
+        assert_eq!(
+            at("halpha"),
+            LineCells {
+                flux: Some(300.0),
+                flux_err: Some(6.0),
+                ew: Some(40.0)
+            }
+        );
+        let s2 = at("sii_6718_6733");
+        assert_eq!((s2.flux, s2.ew), (Some(50.0), Some(7.0)));
+        assert!((s2.flux_err.unwrap() - 5.0).abs() < 1e-12); // √(3² + 4²)
+        assert_eq!(at("oii_3727_3730"), LineCells::default());
+        assert_eq!(at("hbeta"), LineCells::default());
+        // every exported name is a line of the line list
+        for (_, names) in EXPORT_LINES {
+            for n in names {
+                assert!(crate::lines::find(n).is_some(), "{n}");
+            }
+        }
+    }
 }

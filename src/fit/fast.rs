@@ -354,6 +354,9 @@ fn sums_fft(
     let inv = cache.plan(len, false);
     let scale = 1.0 / len as f64;
     let mut buf = vec![C::new(0.0, 0.0); len];
+    // one scratch for every inverse transform (`process` would allocate and
+    // zero a new one at each call)
+    let mut scratch = vec![C::new(0.0, 0.0); inv.get_inplace_scratch_len()];
     let (mc, r0) = (win.m as i64, win.r0 as i64);
     // lag of shift si: c0 − si; the shifts whose lag overlaps the data
     let c0 = prep.g0 - unit.t0 - s_lo - r0;
@@ -373,7 +376,7 @@ fn sums_fft(
                 buf[x] = d1[x] * t1[x];
             }
         }
-        inv.process(&mut buf);
+        inv.process_with_scratch(&mut buf, &mut scratch);
         // shift si reads lag c0 − si: from position p0 backwards, wrapping at 0
         let parts: [&[C]; 2] = if p0 + 1 >= si_hi - si_lo {
             [&buf[p0 + 1 - (si_hi - si_lo)..=p0], &[]]

@@ -6,7 +6,7 @@ use chrono::TimeZone;
 use std::collections::BTreeSet;
 use std::path::Path;
 use zvet::campaign::EngineSettings;
-use zvet::export::{self, ExportRow, Provenance, COLUMNS};
+use zvet::export::{self, ExportRow, LineCells, Provenance, COLUMNS};
 use zvet::review::merge::ConsensusState;
 use zvet::review::{Confidence, Flag, ZSource};
 use zvet::ObjectClass;
@@ -39,6 +39,25 @@ pub fn sample_rows() -> Vec<ExportRow> {
         note: String::new(),
         inspectors: vec!["ana".into()],
         consensus: ConsensusState::Single,
+        lines: Default::default(),
+    };
+    let mut base = base;
+    // emission lines: a detected Hα, an undetected (negative) Hβ, a doublet
+    // sum with no EW (missing continuum); the other lines empty
+    base.lines[0] = LineCells {
+        flux: Some(812.4),
+        flux_err: Some(12.31),
+        ew: Some(45.67),
+    };
+    base.lines[1] = LineCells {
+        flux: Some(-3.1),
+        flux_err: Some(4.2),
+        ew: Some(-0.5),
+    };
+    base.lines[6] = LineCells {
+        flux: Some(1.234e-17),
+        flux_err: Some(2.0e-18),
+        ew: None,
     };
     let mut r2 = base.clone();
     r2.catalog.id = "obj-0002".into();
@@ -78,6 +97,7 @@ pub fn sample_rows() -> Vec<ExportRow> {
     r3.flags = [Flag::LowSignal].into_iter().collect();
     r3.note = "back\\slash, comma".into();
     r3.inspectors = vec!["ana".into(), "ben".into(), "judge".into()];
+    r3.lines = Default::default();
     r3.consensus = ConsensusState::Adjudicated;
     let mut r4 = base;
     r4.catalog.id = "obj-0004".into();
@@ -410,7 +430,7 @@ fn reading_a_foreign_or_damaged_export_is_an_error() {
 fn export_rejects_unknown_extension() {
     let err = export::write(Path::new("x.txt"), &[], &sample_provenance()).unwrap_err();
     assert!(err.to_string().contains(".csv, .ecsv or .fits"));
-    assert_eq!(COLUMNS.len(), 36);
+    assert_eq!(COLUMNS.len(), 36 + 3 * export::EXPORT_LINES.len());
 }
 
 /// What astropy 8.0.2 read from our FITS and CSV export of [`sample_rows`]

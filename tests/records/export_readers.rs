@@ -115,6 +115,13 @@ fn exports_open_in_pandas_and_astropy() {
     // Units are astropy units, not text: degrees are an angle.
     assert_eq!(ae["columns"]["ra"]["physical_type"], "angle");
     assert_eq!(ae["columns"]["mag_r"]["unit"], "mag");
+    // an emission line's equivalent width is a length in Å; its flux (in the
+    // spectra's own unit × Å, unknown to zvet) carries none
+    assert_eq!(ae["columns"]["line_halpha_ew"]["physical_type"], "length");
+    assert_eq!(ae["columns"]["line_halpha_ew"]["unit"], "Angstrom");
+    assert!(ae["columns"]["line_halpha_flux"]["unit"].is_null());
+    assert_eq!(ae["columns"]["line_halpha_flux"]["values"][0], 812.4);
+    assert_eq!(pd["values"]["line_hbeta_flux"][0], -3.1);
     assert_eq!(ae["meta"], prov.to_json().unwrap());
     assert_eq!(
         export::Provenance::from_json(&ae["meta"]).unwrap(),

@@ -60,6 +60,7 @@ def main():
     # Units must be real astropy units, not unparsed strings.
     assert t["ra"].unit.physical_type == "angle", t["ra"].unit
     assert t["mag_r"].unit.to_string() == "mag", t["mag_r"].unit
+    assert t["line_halpha_ew"].unit.physical_type == "length", t["line_halpha_ew"].unit
     assert (t["vetted_z"].dtype.kind, t["vetted_z"].dtype.itemsize) == ("f", 8)
     assert (t["confidence_level"].dtype.kind, t["confidence_level"].dtype.itemsize) == ("i", 2)
     assert t["note"].dtype.kind in "SU"

@@ -17,6 +17,11 @@ are found by Nelder–Mead (argmin) on the profiled χ².
   not searched for (a width fitted to noise runs away): it takes the other
   kind's kinematics (galaxies) or the start values, and its lines report
   `width_fitted = false`.
+- Stars: the kinematics are not searched; their lines (chromospheric, or
+  of a nebula around the star) are unresolved and at the star's velocity,
+  so they are fitted at the start width and no offset (`width_fitted =
+  false`). This also keeps a star's absorption-line mismatch from sending
+  the search to the width bounds.
 - Widths are bounded per class and kind ([`table::limits`]).
 - An undetected line keeps its measured flux and error and is reported with
   a 3σ upper limit ([`LineMeasurement::upper_limit`]).
@@ -225,8 +230,8 @@ impl Profiled<'_> {
     fn chi2(&self, kin: &[Kin; 2]) -> f64 {
         let mut sum = 0.0;
         for w in self.wins {
-            match w.solve(kin) {
-                Some(s) => sum += s.chi2,
+            match w.chi2(kin) {
+                Some(c) => sum += c,
                 None => return f64::MAX,
             }
         }
@@ -256,6 +261,12 @@ fn fit_kinematics(wins: &[&Window], class: ObjectClass) -> Option<([Kin; 2], [bo
             sigma: l.sigma_start,
         }
     });
+    // a star's emission lines (chromospheric, or of a nebula around it) are
+    // unresolved and at the star's own velocity: no kinematics search
+    if class == ObjectClass::Star {
+        let free = [false, false];
+        return Some((Profiled { wins, class, free }.kin(&[]).0, free));
+    }
     // detection probe at the start kinematics
     let mut best = [0.0f64; 2];
     for w in wins {

@@ -10,8 +10,9 @@ of the normal equations is computed once, the line columns at each call.
 #![allow(clippy::needless_range_loop)]
 use super::stellar::Basis;
 use super::table::LineKind;
-use crate::fit::prep::{solve_normal, MAX_COLUMNS};
+use crate::fit::prep::{solve_normal, solve_normal_into, MAX_COLUMNS};
 use crate::fit::C_KMS;
+use std::cell::RefCell;
 
 /// Velocity offset and Gaussian σ (both km/s) of one kind.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -63,12 +64,26 @@ pub struct Window {
     /// Line columns.
     pub cols: Vec<Column>,
     basis: Option<&'static Basis>,
+    /// Buffers of [`Window::solve`], reused from call to call.
+    scratch: RefCell<Scratch>,
+}
+
+/// Reused buffers of one window's solves.
+#[derive(Default)]
+struct Scratch {
+    ata: Vec<f64>,
+    atb: Vec<f64>,
+    /// Line columns, `l × n` column-major; zero outside `span`.
+    g: Vec<f64>,
+    /// Pixels each line column reaches in the last solve.
+    span: Vec<(usize, usize)>,
+    coef: Vec<f64>,
+    active: Vec<bool>,
+    chol: Vec<f64>,
 }
 
 /// A linear solution at given kinematics.
 pub struct Solution {
-    /// χ² of the window.
-    pub chi2: f64,
     /// Coefficients: continuum columns, then line columns (fluxes).
     pub coef: Vec<f64>,
     active: Vec<bool>,
@@ -144,6 +159,7 @@ impl Window {
             half: 0.5 * (hi - lo),
             cols,
             basis,
+            scratch: RefCell::new(Scratch::default()),
         };
         let mut row = vec![0.0; m];
         for i in 0..win.lam.len() {
@@ -197,19 +213,56 @@ impl Window {
     /// negative population would turn absorption into false emission: the
     /// most negative is dropped and the fit repeated).
     pub fn solve(&self, kin: &[Kin; 2]) -> Option<Solution> {
+        let mut sc = self.scratch.borrow_mut();
+        self.solve_into(kin, &mut sc)?;
+        Some(Solution {
+            coef: sc.coef.clone(),
+            active: sc.active.clone(),
+            ata: sc.ata.clone(),
+        })
+    }
+
+    /// χ² of [`Window::solve`] alone, with no allocation: the profiled χ²
+    /// that the kinematics search calls hundreds of times per spectrum.
+    pub fn chi2(&self, kin: &[Kin; 2]) -> Option<f64> {
+        self.solve_into(kin, &mut self.scratch.borrow_mut())
+    }
+
+    /// [`Window::solve`] into the buffers of `sc`; returns χ².
+    fn solve_into(&self, kin: &[Kin; 2], sc: &mut Scratch) -> Option<f64> {
         let m = self.m();
         let l = self.cols.len();
         let dim = m + l;
         let n = self.lam.len();
-        let mut ata = vec![0.0; dim * dim];
-        let mut atb = vec![0.0; dim];
+        let Scratch {
+            ata,
+            atb,
+            g,
+            span,
+            coef,
+            active,
+            chol,
+        } = sc;
+        ata.clear();
+        ata.resize(dim * dim, 0.0);
+        atb.clear();
+        atb.resize(dim, 0.0);
         for p in 0..m {
             atb[p] = self.base_atb[p];
             ata[p * dim..p * dim + m].copy_from_slice(&self.base_ata[p * m..(p + 1) * m]);
         }
-        // line columns on the pixels they reach (8σ)
-        let mut g = vec![0.0; l * n];
-        let mut span = vec![(n, 0usize); l];
+        // line columns on the pixels they reach (8σ); the buffer holds zeros
+        // outside the spans of the previous call, which are cleared first
+        if g.len() != l * n {
+            g.clear();
+            g.resize(l * n, 0.0);
+            span.clear();
+        }
+        for (j, &(a, b)) in span.iter().enumerate() {
+            g[j * n + a..j * n + b.max(a)].fill(0.0);
+        }
+        span.clear();
+        span.resize(l, (n, 0usize));
         for (j, col) in self.cols.iter().enumerate() {
             let k = kin[col.kind.index()];
             for c in &col.comps {
@@ -236,34 +289,33 @@ impl Window {
                 }
                 atb[m + j] += wg * self.f[i];
                 let row = &self.base[i * m..(i + 1) * m];
+                let out = &mut ata[(m + j) * dim..(m + j + 1) * dim];
                 for p in 0..m {
-                    ata[(m + j) * dim + p] += wg * row[p];
+                    out[p] += wg * row[p];
                 }
                 for j2 in 0..l {
-                    ata[(m + j) * dim + m + j2] += wg * g[j2 * n + i];
+                    out[m + j2] += wg * g[j2 * n + i];
                 }
             }
             for p in 0..m {
                 ata[p * dim + m + j] = ata[(m + j) * dim + p];
             }
         }
-        let mut active = vec![true; dim];
-        let mut coef = solve_normal(&ata, &atb, &active);
+        active.clear();
+        active.resize(dim, true);
+        coef.clear();
+        coef.resize(dim, 0.0);
+        solve_normal_into(ata, atb, active, coef, chol);
         for _ in 0..self.nt {
             let worst = (0..self.nt)
                 .filter(|&p| active[p] && coef[p] < 0.0)
                 .min_by(|&a, &b| coef[a].total_cmp(&coef[b]));
             let Some(p) = worst else { break };
             active[p] = false;
-            coef = solve_normal(&ata, &atb, &active);
+            solve_normal_into(ata, atb, active, coef, chol);
         }
-        let chi2 = self.fww - coef.iter().zip(&atb).map(|(c, b)| c * b).sum::<f64>();
-        (chi2.is_finite() && coef.iter().all(|c| c.is_finite())).then_some(Solution {
-            chi2,
-            coef,
-            active,
-            ata,
-        })
+        let chi2 = self.fww - coef.iter().zip(atb.iter()).map(|(c, b)| c * b).sum::<f64>();
+        (chi2.is_finite() && coef.iter().all(|c| c.is_finite())).then_some(chi2)
     }
 
     /// Cross terms of the kinematic parameters with the linear ones at
