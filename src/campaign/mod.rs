@@ -424,10 +424,21 @@ impl Campaign {
     /// by line: what status, export and report need, in a few hundred bytes
     /// per object whatever the records hold.
     pub fn load_fit_summaries(&self) -> Result<(BTreeMap<String, FitResult>, Vec<String>), CampaignError> {
+        self.load_fit_summaries_with(|_, _| {})
+    }
+
+    /// [`Campaign::load_fit_summaries`], showing each whole fit to `each`
+    /// first (with its object id) so a caller can keep a small part of what
+    /// the summary drops (the export keeps its line columns this way).
+    pub fn load_fit_summaries_with(
+        &self,
+        mut each: impl FnMut(&str, &FitResult),
+    ) -> Result<(BTreeMap<String, FitResult>, Vec<String>), CampaignError> {
         let mut out = BTreeMap::new();
         let path = self.dir.join(FITS_FILE);
         let problems = fitcache::scan(&path, |r| {
             if let Some(f) = r.fit {
+                each(&r.object_id, &f);
                 out.insert(r.object_id, fitcache::summary(f));
             }
         })

@@ -441,7 +441,7 @@ const LINE_COLUMNS: [[ColumnSpec; 3]; 8] = [
 ];
 
 /// Number of catalogue columns before the line columns.
-const N_BASE: usize = 36;
+const N_BASE: usize = 38;
 
 /// All columns, in file order: the catalogue, fit and verdict columns, then
 /// the emission-line columns ([`LINE_COLUMNS`]).
@@ -630,6 +630,29 @@ const BASE_COLUMNS: [ColumnSpec; N_BASE] = [
             },
         ),
     ),
+    col(
+        "in_audit_sample",
+        None,
+        "true when the object was drawn into the campaign's audit sample",
+        Access::Str(
+            |r| if r.in_audit_sample { "true" } else { "false" }.to_string(),
+            |r, s| {
+                r.in_audit_sample = match s.trim() {
+                    "true" | "True" | "TRUE" => true,
+                    "false" | "False" | "FALSE" | "" => false,
+                    other => return Err(format!("in_audit_sample: '{other}' is not true or false")),
+                };
+                Ok(())
+            },
+        ),
+    ),
+    float!(
+        "weight",
+        None,
+        Precision::Significant(6),
+        "weight for catalogue-wide estimates: N_h / vetted audit-sample objects of the stratum in the sample; 1 outside it (queue-chosen objects stand only for themselves)",
+        weight
+    ),
 ];
 
 impl ExportRow {
@@ -672,6 +695,8 @@ impl ExportRow {
             inspectors: Vec::new(),
             consensus: ConsensusState::Single,
             lines: Default::default(),
+            in_audit_sample: false,
+            weight: None,
         };
         let mut seen = [false; COLUMNS.len()];
         for (name, cell) in cells {

@@ -101,6 +101,14 @@ pub struct ExportRow {
     pub consensus: ConsensusState,
     /// Emission lines of the automatic fit, in [`EXPORT_LINES`] order.
     pub lines: [LineCells; EXPORT_LINES.len()],
+    /// Drawn into the campaign's audit sample ([`crate::audit`]).
+    pub in_audit_sample: bool,
+    /// Weight for estimates over the whole catalogue: for audit-sample
+    /// objects N_h / (vetted sample objects of the stratum), the inverse
+    /// inclusion probability corrected for sample objects not yet vetted;
+    /// 1 for every other object (chosen by the review queue, not at random,
+    /// it stands only for itself and must not enter catalogue-wide estimates).
+    pub weight: Option<f64>,
 }
 
 /// One exported emission line (or doublet): flux, its 1σ error and the
@@ -353,9 +361,40 @@ pub fn build_rows(
             inspectors: c.inspectors.clone(),
             consensus: c.state,
             lines,
+            in_audit_sample: false,
+            weight: Some(1.0),
         });
     }
     rows
+}
+
+/// Mark the audit-sample rows and give them their weight N_h / v_h, where
+/// v_h counts the stratum's sample objects with a complete consensus verdict
+/// (filters of the export do not change it, so the weights agree with the
+/// report's estimates).
+pub fn apply_audit_weights(
+    rows: &mut [ExportRow],
+    sample: &crate::audit::sample::AuditSample,
+    merged: &Merged,
+) {
+    let mut vetted = vec![0usize; sample.strata.len()];
+    let index = sample.index();
+    for (id, &(h, _)) in &index {
+        let complete = merged
+            .objects
+            .get(*id)
+            .and_then(|c| c.verdict.as_ref())
+            .is_some_and(|v| v.is_complete());
+        if complete {
+            vetted[h] += 1;
+        }
+    }
+    for r in rows {
+        if let Some(&(h, _)) = index.get(r.catalog.id.as_str()) {
+            r.in_audit_sample = true;
+            r.weight = (vetted[h] > 0).then(|| sample.strata[h].population as f64 / vetted[h] as f64);
+        }
+    }
 }
 
 /// Output format by file name.
@@ -449,8 +488,14 @@ pub fn export_campaign_steps(
     go("merging the review logs")?;
     let (merged, mut problems) = campaign.merge(None)?;
     go("reading the fit cache")?;
-    // read line by line; only each fit's summary is kept
-    let (fits, p) = campaign.load_fit_summaries()?;
+    // read line by line; only each fit's summary is kept, and the
+    // exported line cells of the best solution
+    let mut cells: BTreeMap<String, (f64, [LineCells; EXPORT_LINES.len()])> = BTreeMap::new();
+    let (fits, p) = campaign.load_fit_summaries_with(|id, f| {
+        if let Some(b) = f.best() {
+            cells.insert(id.to_string(), (b.z, line_cells(&f.lines)));
+        }
+    })?;
     problems.extend(p);
     go("reading the catalogue")?;
     let (catalog, p) = campaign.load_catalog()?;
@@ -460,7 +505,19 @@ pub fn export_campaign_steps(
         let cat_ids: Vec<&String> = catalog.keys().collect();
         problems.extend(crate::catalog::match_summary(&ids, &cat_ids));
     }
-    let rows = build_rows(&merged, &catalog, &fits, opts);
+    let mut rows = build_rows(&merged, &catalog, &fits, opts);
+    // the summaries hold no line measurements: the same rule as build_rows,
+    // on the cells kept while reading
+    for r in &mut rows {
+        if let (Some((z_auto, c)), Some(z)) = (cells.get(&r.catalog.id), r.vetted_z) {
+            if crate::fit::velocity_sep_kms(*z_auto, z) <= LINE_EXPORT_MAX_DV_KMS {
+                r.lines = *c;
+            }
+        }
+    }
+    if let Some(sample) = crate::audit::campaign::load_sample(campaign)? {
+        apply_audit_weights(&mut rows, &sample, &merged);
+    }
     let conflicts = merged.conflicts().count();
     let incomplete = merged
         .objects

@@ -408,3 +408,88 @@ fn report_on_the_demo_survey() {
     assert_eq!(n.inspectors[0].reviewed, n_obj);
     assert_eq!(n.consensus["single"], n_obj);
 }
+
+#[test]
+fn campaign_export_keeps_the_line_columns_of_the_cached_fits() {
+    // The campaign export reads only fit summaries (bounded memory); the
+    // line cells must still come through from the cache's line measurements.
+    let (c, s) = build_campaign("campaign_export_lines");
+    let (mut records, _) = c.load_records().unwrap();
+    let r7 = records.get_mut("o007").unwrap();
+    let fit = r7.fit.as_mut().unwrap();
+    let z = fit.best().unwrap().z;
+    fit.lines = vec![zvet::fit::LineMeasurement {
+        name: "Hα".into(),
+        rest_wave: 6564.61,
+        obs_wave: 6564.61 * (1.0 + z),
+        flux: 123.5,
+        flux_err: 4.5,
+        sigma_kms: 80.0,
+        ew_rest: 31.0,
+        snr: 123.5 / 4.5,
+        width_fitted: true,
+        continuum: 1.0,
+        abs_ew_rest: None,
+    }];
+    let all: Vec<_> = records.into_values().collect();
+    c.save_records(&all).unwrap();
+    let out = c.exports_dir().join("lines.csv");
+    export::export_campaign(&c, &out, &Default::default()).unwrap();
+    let (rows, _) = export::read(&out).unwrap();
+    let row = rows.iter().find(|r| r.catalog.id == "o007").unwrap();
+    // lines are exported when the vetted z is the automatic one (within the
+    // export's velocity limit), as o007's is in the scenario
+    let dv = zvet::fit::velocity_sep_kms(z, row.vetted_z.unwrap());
+    assert!(
+        dv <= export::LINE_EXPORT_MAX_DV_KMS,
+        "o007: vetted z {dv} km/s from the fit"
+    );
+    assert_eq!(row.lines[0].flux, Some(123.5));
+    assert_eq!(row.lines[0].flux_err, Some(4.5));
+    assert_eq!(row.lines[0].ew, Some(31.0));
+    assert!(s.ids.contains(&"o007".to_string()));
+    // every other row has no line values (their fits measured none)
+    assert!(rows
+        .iter()
+        .filter(|r| r.catalog.id != "o007")
+        .all(|r| r.lines[0].flux.is_none()));
+}
+
+#[test]
+fn campaign_export_marks_the_audit_sample_and_weights_it() {
+    // An audit sample of 20 of the scenario's 200 objects, drawn by
+    // photometric class; every object of the scenario is vetted, so each
+    // sampled object's weight is N_h / n_h, the inverse of its inclusion
+    // probability, and every other object's weight is 1.
+    use zvet::audit::campaign::{save_sample, view};
+    use zvet::audit::sample::{Allocation, AuditSample};
+    let (c, _) = build_campaign("campaign_export_audit");
+    let v = view(&c).unwrap();
+    let sample = AuditSample::draw(&v.units, "phot_class", 20, Allocation::Equal, 5).unwrap();
+    save_sample(&c, &sample).unwrap();
+    let out = c.exports_dir().join("audit.csv");
+    export::export_campaign(&c, &out, &Default::default()).unwrap();
+    let (rows, _) = export::read(&out).unwrap();
+    let index = sample.index();
+    let mut total_weight = 0.0;
+    for r in &rows {
+        match index.get(r.catalog.id.as_str()) {
+            Some(&(h, _)) => {
+                assert!(r.in_audit_sample, "{}", r.catalog.id);
+                let st = &sample.strata[h];
+                assert_relative_eq!(
+                    r.weight.unwrap(),
+                    st.population as f64 / st.sampled as f64,
+                    max_relative = 1e-5
+                );
+                total_weight += r.weight.unwrap();
+            }
+            None => {
+                assert!(!r.in_audit_sample);
+                assert_eq!(r.weight, Some(1.0));
+            }
+        }
+    }
+    // the weights of the sample add up to the catalogue (Horvitz–Thompson)
+    assert_relative_eq!(total_weight, 200.0, max_relative = 1e-4);
+}

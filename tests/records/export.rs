@@ -40,6 +40,8 @@ pub fn sample_rows() -> Vec<ExportRow> {
         inspectors: vec!["ana".into()],
         consensus: ConsensusState::Single,
         lines: Default::default(),
+        in_audit_sample: true,
+        weight: Some(12.5),
     };
     let mut base = base;
     // emission lines: a detected Hα, an undetected (negative) Hβ, a doublet
@@ -76,6 +78,9 @@ pub fn sample_rows() -> Vec<ExportRow> {
     r2.note = "C IV, C III] and Mg II; Lyα forest, \"BAL\"\nsecond line, λ 1549 Å".into();
     r2.inspectors = vec!["ana".into(), "ben".into()];
     r2.consensus = ConsensusState::Agreed;
+    // outside the audit sample: weight 1
+    r2.in_audit_sample = false;
+    r2.weight = Some(1.0);
     let mut r3 = base.clone();
     r3.catalog.id = "obj-0003".into();
     r3.catalog.ra = None;
@@ -430,7 +435,7 @@ fn reading_a_foreign_or_damaged_export_is_an_error() {
 fn export_rejects_unknown_extension() {
     let err = export::write(Path::new("x.txt"), &[], &sample_provenance()).unwrap_err();
     assert!(err.to_string().contains(".csv, .ecsv or .fits"));
-    assert_eq!(COLUMNS.len(), 36 + 3 * export::EXPORT_LINES.len());
+    assert_eq!(COLUMNS.len(), 38 + 3 * export::EXPORT_LINES.len());
 }
 
 /// What astropy 8.0.2 read from our FITS and CSV export of [`sample_rows`]
