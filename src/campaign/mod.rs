@@ -11,13 +11,14 @@ DIR/
 ```
 Every file but the review logs is rewritten only through [`atomic_write`].
 */
-mod atomic;
 pub mod fitcache;
 pub mod manifest;
 mod objects;
 mod shards;
 
-pub use atomic::{
+// the one atomic output path lives in `io` (below every writer); kept
+// here under its old names for the campaign's callers
+pub use crate::io::atomic::{
     atomic_create, atomic_dir, atomic_write, close_fits, commit_partial, partial_path, sync_dir,
 };
 pub use manifest::{CatalogSettings, EngineSettings, Manifest, ReadSettings, MANIFEST_FORMAT};

@@ -7,7 +7,7 @@ survey written as it is generated, so memory does not grow with N.
   vector columns WAVE, FLUX, IVAR, SKY (single precision, vacuum Å and the
   demo flux unit) and MASK (16-bit, nonzero = bad), and the scalar columns
   OBJID, RA, DEC. Each chunk is written into a temporary file and renamed
-  into place when whole ([`crate::campaign::atomic_create`]), so a stopped
+  into place when whole ([`crate::io::atomic::atomic_create`]), so a stopped
   run never leaves a torn table.
 - `catalog.csv` and `truth.csv` are written row by row.
 - Objects are generated in batches of [`BATCH`] in parallel; only a batch of
@@ -240,7 +240,7 @@ pub fn write_scaled(
         let path = spectra.join(chunk_name(files));
         let fe = fits_err(&path);
         let mut in_chunk = 0usize;
-        crate::campaign::atomic_create(&path, ".fits", |tmp: &Path| -> Result<(), DemoError> {
+        crate::io::atomic::atomic_create(&path, ".fits", |tmp: &Path| -> Result<(), DemoError> {
             let mut table = Chunk::create(tmp, id_width).map_err(&fe)?;
             while in_chunk < chunk {
                 let batch: Vec<_> = cast.by_ref().take(BATCH.min(chunk - in_chunk)).collect();

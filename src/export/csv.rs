@@ -10,7 +10,7 @@ it, named by appending `.json` to the whole file name (`cat.csv` →
 */
 use super::columns::{ColumnSpec, COLUMNS};
 use super::{columns_json, ExportError, ExportRow, Provenance};
-use crate::campaign::atomic_write;
+use crate::io::atomic::atomic_write;
 use std::path::{Path, PathBuf};
 
 /// The sidecar of a CSV catalogue: `F.csv` → `F.csv.json`.

@@ -14,7 +14,7 @@ any ECSV.
 use super::columns::{Kind, COLUMNS};
 use super::csv::{read_table, write_table};
 use super::{ExportError, ExportRow, Provenance};
-use crate::campaign::atomic_write;
+use crate::io::atomic::atomic_write;
 use serde_json::Value;
 use std::path::Path;
 

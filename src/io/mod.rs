@@ -19,6 +19,7 @@ warning on the spectrum.
 by one, reading a multi-object table row by row so memory stays bounded.
 Errors are [`LoadError`]s that say where (file, HDU, row, column) and what.
 */
+pub mod atomic;
 mod detect;
 mod error;
 mod fits_common;

@@ -13,7 +13,7 @@ over the output only when every row is written and fsynced, so a fresh run
 that is killed or fails never truncates an older good table; `--resume`
 carries on the partial file when there is one, else appends to the output
 itself ([`resume_source`]). A FITS table is written once at the end through
-the one atomic output path (`campaign::atomic_create`): a temporary file,
+the one atomic output path (`io::atomic::atomic_create`): a temporary file,
 checked, renamed into place — or an error, and the old file stays.
 Missing numbers are empty (CSV), `null` (JSON) or NaN (FITS).
 */

@@ -53,7 +53,7 @@ const NUM: [(&str, Getter<Option<f64>>); 11] = [
 /// file whose every write and close is checked, renamed into place; on any
 /// failure an error and the old file stays.
 pub fn write(path: &Path, rows: &[FitRow]) -> Result<(), TableError> {
-    let result = crate::campaign::atomic_create(path, ".fits", |tmp: &Path| -> Result<(), Step> {
+    let result = crate::io::atomic::atomic_create(path, ".fits", |tmp: &Path| -> Result<(), Step> {
         let mut f = FitsFile::create(tmp).open()?;
         let mut cols = Vec::new();
         let text_cols: Vec<(&str, Vec<String>)> = TEXT

@@ -176,7 +176,7 @@ pub fn write_set_with(
     let fits_path = dir.join(&fits_name);
     // Through the one atomic output path: a temporary file, checked against
     // its own headers, fsynced, renamed over the old one.
-    crate::campaign::atomic_create(&fits_path, ".fits", |tmp: &Path| {
+    crate::io::atomic::atomic_create(&fits_path, ".fits", |tmp: &Path| {
         write_fits(set, tmp).map_err(Step::Set)
     })
     .map_err(|e| match e {
@@ -216,7 +216,7 @@ pub fn write_set_with(
         name: set.name.clone(),
         message: e.to_string(),
     })?;
-    crate::campaign::atomic_write(&json_path, |w| {
+    crate::io::atomic::atomic_write(&json_path, |w| {
         w.write_all(text.as_bytes())?;
         w.write_all(b"\n")
     })
