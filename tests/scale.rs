@@ -265,3 +265,59 @@ fn campaign_memory_does_not_grow_with_the_number_of_objects() {
     println!("{report}");
     assert!(over.is_empty(), "over budget: {over:?}\n{report}");
 }
+
+/// Ctrl-C (SIGINT) stops `zvet demo --write` after the batch in hand: the
+/// spectrum files already complete stay and read whole, no table is left
+/// torn under its name, the catalogue and truth are not left half-written
+/// under theirs, and the exit status is 130.
+#[test]
+fn an_interrupted_demo_keeps_only_whole_files() {
+    let dir = support::scratch("scale_demo_interrupt");
+    let out = dir.join("demo");
+    let mut child = Command::new(env!("CARGO_BIN_EXE_zvet"))
+        .args([
+            "demo",
+            "--write",
+            out.to_str().unwrap(),
+            "--objects",
+            "100000",
+            "--chunk",
+            "16",
+        ])
+        .stdout(std::process::Stdio::null())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    let second = out.join("spectra").join("demo-00002.fits");
+    let start = std::time::Instant::now();
+    while !second.exists() {
+        assert!(start.elapsed().as_secs() < 300, "no second chunk written");
+        std::thread::sleep(std::time::Duration::from_millis(20));
+    }
+    let kill = Command::new("kill")
+        .args(["-INT", &child.id().to_string()])
+        .status()
+        .unwrap();
+    assert!(kill.success());
+    let status = child.wait().unwrap();
+    assert_eq!(status.code(), Some(130));
+    let mut files: Vec<PathBuf> = std::fs::read_dir(out.join("spectra"))
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .filter(|p| p.extension().is_some_and(|x| x == "fits"))
+        .collect();
+    files.sort();
+    assert!(files.len() >= 2 && files.len() < 100_000 / 16);
+    // every file under its final name is whole and holds its objects in order
+    let mut n = 0usize;
+    for f in &files {
+        for item in zvet::pipeline::stream(vec![f.clone()], Default::default()) {
+            let s = item.unwrap_or_else(|e| panic!("{}: {}", f.display(), e.message));
+            n += 1;
+            assert_eq!(s.meta.id, format!("TERN-{n:04}"));
+        }
+    }
+    assert!(n >= 32);
+    assert!(!out.join("catalog.csv").exists());
+    assert!(!out.join("truth.csv").exists());
+}
