@@ -44,6 +44,12 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
             let w = demo::write_scaled(dir, &opts, &mut |n| bar.set(n as u64), Some(cancel))
                 .with_context(|| format!("writing the demo survey into {}", dir.display()));
             bar.finish();
+            if super::progress::interrupted() {
+                if let Err(e) = &w {
+                    eprintln!("zvet demo: {e:#}");
+                    return Ok(ExitCode::from(130));
+                }
+            }
             let w = w?;
             println!(
                 "wrote {} spectra in {} file(s) to {}, the catalogue to {}, the truth to {}",
