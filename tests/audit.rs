@@ -145,16 +145,12 @@ fn coverage(allocation: Allocation, size: usize, draws: usize, seed: u64) -> (f6
 fn intervals_cover_the_truth_about_95_percent_of_the_time() {
     // Four populations (seeds 11–14) × 1000 draws for each allocation:
     // the binomial scatter of a measured 95 % coverage over 4000 draws is
-    // ±0.35 %. The default (proportional) allocation must land in the
-    // issue's 93–97 % band. Measured when written: proportional 0.946 /
-    // 0.948 (proportion / ratio); equal 0.930 / 0.928 — with equal
-    // allocation the stratum holding 75 % of the catalogue gets a third of
-    // the sample and few errors, and the effective-sample-size interval
-    // under-covers a little there (stated in the README); it is held to
-    // ≥ 91 % so that it cannot get worse unnoticed.
+    // ±0.35 %, so the 93–97 % band has room for it. Measured when
+    // written: proportional 0.946 / 0.947 (proportion / ratio), equal
+    // 0.936 / 0.931.
     for (alloc, size, band) in [
         (Allocation::Proportional, 200, 0.93..=0.97),
-        (Allocation::Equal, 240, 0.91..=0.97),
+        (Allocation::Equal, 240, 0.93..=0.97),
     ] {
         let (mut cp, mut cr) = (0.0, 0.0);
         for seed in 11..=14 {

@@ -20,13 +20,15 @@ whole catalogue is the case x = 1.
   stratified). A stratum with a single vetted object has no s²; it is given
   the largest variance an indicator can have, 1/4 (conservative).
 - **Interval:** the Wilson score interval (Wilson 1927) evaluated at the
-  effective sample size n* = R̂(1 − R̂) / V(R̂) — the approach of Korn &
+  effective sample size n* = R̂(1 − R̂) / Ṽ(R̂) — the approach of Korn &
   Graubard (1998, *Survey Methodology* 24, 193) for proportions estimated
   from complex samples. n* is not truncated at the sample size: a
   stratification that explains part of the variance (design effect < 1)
   legitimately narrows the interval, and the truncation made the intervals
-  over-cover (97 % for a nominal 95 % in the coverage test). When R̂ is 0
-  or 1 the domain's object count is used.
+  over-cover (97 % for a nominal 95 % in the coverage test). Ṽ is V with
+  each stratum's residual variance smoothed by z² pseudo-objects at the
+  pooled rate (`smoothed_s2`), so a stratum that drew no error does not
+  claim certainty. When R̂ is 0 or 1 the domain's object count is used.
   Unlike R̂ ± 1.96·√V it stays inside [0, 1] and behaves near 0 and 1, where
   error rates live. Its coverage is checked by simulation in the tests.
 
@@ -109,10 +111,11 @@ struct StratumSums {
 /// rest with y = 0 (d = −r) — the Agresti–Coull idea (Agresti & Coull 1998,
 /// *Am. Stat.* 52, 119) of adding z² pseudo-trials, centred here on the
 /// pooled estimate instead of 1/2 so that a rare error does not get an
-/// error rate of several per cent in every stratum. It is used only for
-/// strata whose domain drew no y = 1 or no y = 0 (where the plain variance
-/// is zero and would claim certainty), and only for the effective sample
-/// size; the reported standard error is the plain linearised one.
+/// error rate of several per cent in every stratum. A stratum whose draw
+/// holds no error (or no success) then no longer claims zero variance, and
+/// a stratum with few draws does not understate it. Used only for the
+/// effective sample size; the reported standard error is the plain
+/// linearised one.
 fn smoothed_s2(obs: &[Obs], h: usize, r: f64, s: &StratumSums) -> f64 {
     // z² pseudo-objects of the stratum's domain share, split as the pooled
     // estimate r: z²·r with y = 1, z²·(1 − r) with y = 0.
@@ -209,12 +212,7 @@ pub fn ratio(sizes: &[usize], obs: &[Obs], kind: IntervalKind) -> Estimate {
         let s2 = if s.n > 1 { acc / (n - 1.0) } else { 0.25 };
         let fpc = (1.0 - n / big_n as f64).max(0.0);
         var += (big_n as f64).powi(2) * fpc * s2 / n;
-        let k_fail = obs
-            .iter()
-            .filter(|o| o.stratum == h && o.x > 0.0 && o.y == 0.0)
-            .count();
-        let degenerate = s.sy == 0.0 || k_fail == 0;
-        let s2s = if degenerate { smoothed_s2(obs, h, r, s) } else { s2 };
+        let s2s = smoothed_s2(obs, h, r, s);
         var_smooth += (big_n as f64).powi(2) * fpc * s2s / n;
     }
     var /= x_hat * x_hat;

@@ -44,7 +44,7 @@ pub const SAMPLE_FILE: &str = "audit-sample.json";
 /// The method, in one sentence for reports.
 pub const METHOD: &str = "stratified combined-ratio (Horvitz–Thompson) estimates; 95 % Wilson score \
 intervals at the effective sample size (after Korn & Graubard 1998) from the linearised stratified \
-variance, strata that drew no error (or no success) smoothed with z² pseudo-objects at the pooled rate";
+variance, each stratum's variance smoothed with z² pseudo-objects at the pooled rate";
 
 /// What the audit knows about one object.
 #[derive(Debug, Clone, Default, PartialEq)]
