@@ -305,13 +305,14 @@ pub fn arrange(items: &[QueueItem], filter: &Filter, key: SortKey) -> Vec<usize>
         SortKey::VetNext => {
             let cands: Vec<crate::audit::next::Candidate> =
                 idx.iter().map(|&i| items[i].vet_next_candidate()).collect();
-            let pos: std::collections::HashMap<String, usize> = crate::audit::next::order(&cands)
-                .into_iter()
-                .enumerate()
-                .map(|(k, n)| (n.id, k))
-                .collect();
-            // vetted objects (not listed by the rule) keep their input order after the rest
-            idx.sort_by_key(|&i| pos.get(&items[i].id).copied().unwrap_or(usize::MAX));
+            let mut pos = vec![usize::MAX; idx.len()];
+            for (k, (c, _)) in crate::audit::next::rank(&cands).into_iter().enumerate() {
+                pos[c] = k;
+            }
+            // vetted objects (not ranked by the rule) keep their input order after the rest
+            let mut by: Vec<(usize, usize)> = pos.into_iter().zip(idx.iter().copied()).collect();
+            by.sort_by_key(|&(p, _)| p);
+            idx = by.into_iter().map(|(_, i)| i).collect();
         }
     }
     idx
@@ -319,9 +320,9 @@ pub fn arrange(items: &[QueueItem], filter: &Filter, key: SortKey) -> Vec<usize>
 
 impl QueueItem {
     /// What the vet-next rule needs to know about this object.
-    pub fn vet_next_candidate(&self) -> crate::audit::next::Candidate {
+    pub fn vet_next_candidate(&self) -> crate::audit::next::Candidate<'_> {
         crate::audit::next::Candidate {
-            id: self.id.clone(),
+            id: &self.id,
             sample_order: self.audit_order,
             vetted: self.is_reviewed(),
             disagrees: self.disagrees(),

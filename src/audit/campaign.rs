@@ -108,11 +108,11 @@ pub fn view_of(
 }
 
 /// The candidates of the vet-next rule for every object of the view.
-pub fn candidates(
-    view: &CampaignView,
+pub fn candidates<'a>(
+    view: &'a CampaignView,
     sample: Option<&AuditSample>,
     numbers: Option<&super::AuditNumbers>,
-) -> Vec<Candidate> {
+) -> Vec<Candidate<'a>> {
     let index = sample.map(AuditSample::index).unwrap_or_default();
     let vars = sample.map(AuditSample::vars).unwrap_or_default();
     let widths: BTreeMap<&str, f64> = numbers
@@ -134,7 +134,7 @@ pub fn candidates(
                     .unwrap_or((f64::NAN, Warnings::default(), false));
             let key = stratum_of(&vars, u);
             Candidate {
-                id: u.id.clone(),
+                id: &u.id,
                 sample_order: index.get(u.id.as_str()).map(|&(_, i)| i),
                 vetted: o.is_some_and(|o| o.vetted_class.is_some()),
                 disagrees: o

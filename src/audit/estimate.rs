@@ -315,9 +315,12 @@ mod tests {
 
     #[test]
     fn a_simple_random_sample_is_the_plain_proportion() {
-        // One stratum: the estimate is k/n; with s² taken with n − 1 and no
-        // finite-population correction to speak of, V = p(1−p)/(n−1), so
-        // n* = n − 1 and the interval is Wilson's at 39.
+        // One stratum, no finite-population correction to speak of: the
+        // estimate is k/n and its standard error √(p(1−p)/(n−1)) (s² taken
+        // with n − 1). The z² pseudo-objects at the pooled rate add z²·p(1−p)
+        // to the sum of squares and z² to the count, so
+        // n* = n (n + z² − 1)/(n + z²) = 39.09 for n = 40, and the interval is
+        // Wilson's at that n*.
         let obs: Vec<Obs> = (0..40)
             .map(|i| Obs {
                 stratum: 0,
@@ -327,8 +330,15 @@ mod tests {
             .collect();
         let e = ratio(&[1_000_000_000], &obs, IntervalKind::Wilson);
         assert!((e.value - 0.25).abs() < 1e-12);
-        assert!((e.n_eff - 39.0).abs() < 1e-4, "n* = {}", e.n_eff);
-        let (lo, hi) = wilson(0.25, 39.0, Z95);
+        assert!(
+            (e.se - (0.25f64 * 0.75 / 39.0).sqrt()).abs() < 1e-8,
+            "se = {}",
+            e.se
+        );
+        let z2 = Z95 * Z95;
+        let n_star = 40.0 * (40.0 + z2 - 1.0) / (40.0 + z2);
+        assert!((e.n_eff - n_star).abs() < 1e-4, "n* = {} vs {n_star}", e.n_eff);
+        let (lo, hi) = wilson(0.25, n_star, Z95);
         assert!((e.lo - lo).abs() < 1e-6 && (e.hi - hi).abs() < 1e-6);
     }
 

@@ -24,9 +24,9 @@ use serde::Serialize;
 
 /// What the rule needs per object.
 #[derive(Debug, Clone, PartialEq)]
-pub struct Candidate {
+pub struct Candidate<'a> {
     /// Object id.
-    pub id: String,
+    pub id: &'a str,
     /// Position in the audit sample's review order, if drawn.
     pub sample_order: Option<usize>,
     /// Has a complete verdict.
@@ -52,8 +52,34 @@ pub struct Next {
     pub reasons: Vec<String>,
 }
 
-/// Order the unvetted objects by the rule above.
-pub fn order(cands: &[Candidate]) -> Vec<Next> {
+/// The rule's score of an object outside the sample and its reasons.
+fn score(c: &Candidate, median: f64, with_reasons: bool) -> (u32, Vec<String>) {
+    let mut score = 0;
+    let mut reasons = Vec::new();
+    if c.disagrees {
+        score += 4;
+        if with_reasons {
+            reasons.push("photometric and automatic class disagree".to_string());
+        }
+    }
+    if c.doubtful {
+        score += 2;
+        if with_reasons {
+            reasons.push("automatic fit doubtful".to_string());
+        }
+    }
+    if c.stratum_width > median {
+        score += 1;
+        if with_reasons {
+            reasons.push(format!("stratum interval wide ({:.2})", c.stratum_width));
+        }
+    }
+    (score, reasons)
+}
+
+/// Indices into `cands` of the unvetted objects, in the rule's order, with
+/// each one's score (0 for audit-sample objects, which come first by rule 1).
+pub fn rank(cands: &[Candidate]) -> Vec<(usize, u32)> {
     let mut widths: Vec<f64> = cands
         .iter()
         .filter(|c| !c.vetted)
@@ -62,68 +88,61 @@ pub fn order(cands: &[Candidate]) -> Vec<Next> {
     widths.sort_by(f64::total_cmp);
     // "among the widest": above the median width of the unvetted objects
     let median = widths.get(widths.len() / 2).copied().unwrap_or(1.0);
-    let mut sample: Vec<&Candidate> = cands
-        .iter()
-        .filter(|c| !c.vetted && c.sample_order.is_some())
+    let mut sample: Vec<usize> = (0..cands.len())
+        .filter(|&i| !cands[i].vetted && cands[i].sample_order.is_some())
         .collect();
-    sample.sort_by_key(|c| c.sample_order);
-    let mut out: Vec<Next> = sample
-        .into_iter()
-        .map(|c| Next {
-            id: c.id.clone(),
-            score: 0,
-            reasons: vec![format!(
-                "audit sample, #{} in its random order",
-                c.sample_order.map_or(0, |o| o + 1)
-            )],
-        })
+    sample.sort_by_key(|&i| cands[i].sample_order);
+    let mut rest: Vec<(usize, u32)> = (0..cands.len())
+        .filter(|&i| !cands[i].vetted && cands[i].sample_order.is_none())
+        .map(|i| (i, score(&cands[i], median, false).0))
         .collect();
-    let mut rest: Vec<(u32, &Candidate, Vec<String>)> = cands
-        .iter()
-        .filter(|c| !c.vetted && c.sample_order.is_none())
-        .map(|c| {
-            let mut score = 0;
-            let mut reasons = Vec::new();
-            if c.disagrees {
-                score += 4;
-                reasons.push("photometric and automatic class disagree".to_string());
-            }
-            if c.doubtful {
-                score += 2;
-                reasons.push("automatic fit doubtful".to_string());
-            }
-            if c.stratum_width > median {
-                score += 1;
-                reasons.push(format!("stratum interval wide ({:.2})", c.stratum_width));
-            }
-            (score, c, reasons)
-        })
-        .collect();
-    rest.sort_by(|a, b| {
-        b.0.cmp(&a.0)
-            .then(b.1.stratum_width.total_cmp(&a.1.stratum_width))
+    rest.sort_by(|&(a, sa), &(b, sb)| {
+        let (a, b) = (&cands[a], &cands[b]);
+        sb.cmp(&sa)
+            .then(b.stratum_width.total_cmp(&a.stratum_width))
             .then(
-                a.1.delta_chi2
+                a.delta_chi2
                     .unwrap_or(f64::INFINITY)
-                    .total_cmp(&b.1.delta_chi2.unwrap_or(f64::INFINITY)),
+                    .total_cmp(&b.delta_chi2.unwrap_or(f64::INFINITY)),
             )
-            .then(a.1.id.cmp(&b.1.id))
+            .then(a.id.cmp(b.id))
     });
-    out.extend(rest.into_iter().map(|(score, c, reasons)| Next {
-        id: c.id.clone(),
-        score,
-        reasons,
-    }));
-    out
+    sample.into_iter().map(|i| (i, 0)).chain(rest).collect()
+}
+
+/// Order the unvetted objects by the rule above, with the reasons in words.
+pub fn order(cands: &[Candidate]) -> Vec<Next> {
+    let mut widths: Vec<f64> = cands
+        .iter()
+        .filter(|c| !c.vetted)
+        .map(|c| c.stratum_width)
+        .collect();
+    widths.sort_by(f64::total_cmp);
+    let median = widths.get(widths.len() / 2).copied().unwrap_or(1.0);
+    rank(cands)
+        .into_iter()
+        .map(|(i, sc)| {
+            let c = &cands[i];
+            let reasons = match c.sample_order {
+                Some(o) => vec![format!("audit sample, #{} in its random order", o + 1)],
+                None => score(c, median, true).1,
+            };
+            Next {
+                id: c.id.to_string(),
+                score: sc,
+                reasons,
+            }
+        })
+        .collect()
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
 
-    fn cand(id: &str) -> Candidate {
+    fn cand(id: &str) -> Candidate<'_> {
         Candidate {
-            id: id.into(),
+            id,
             sample_order: None,
             vetted: false,
             disagrees: false,
