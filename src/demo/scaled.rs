@@ -104,7 +104,7 @@ impl CsvOut {
         let f = buf.into_inner().map_err(|e| io(&partial)(e.into_error()))?;
         f.sync_all().map_err(io(&partial))?;
         drop(f);
-        std::fs::rename(&partial, &path).map_err(io(&path))
+        crate::io::atomic::commit_partial(&partial, &path).map_err(io(&path))
     }
 }
 
