@@ -72,7 +72,7 @@ fn audit_orders_follow_the_sample() {
         assert_eq!(st.order.len(), n, "{key:?}: every object stays listed");
         let line = zvet::ui::panels::queue::audit_line(st);
         assert!(
-            line.contains("0 of 4 vetted") && line.contains("only these feed"),
+            line.contains("vetted 0 of 4") && line.contains("only the sample's verdicts feed"),
             "{line}"
         );
     }

@@ -220,7 +220,7 @@ pub fn audit_line(state: &AppState) -> String {
                 .filter(|i| i.audit_order.is_some() && i.is_reviewed())
                 .count();
             format!(
-                "audit sample: {vetted} of {} vetted; only these feed the catalogue-wide estimates, other verdicts are training data",
+                "audit sample: you have vetted {vetted} of {}; only the sample's verdicts feed the catalogue-wide estimates, other verdicts are training data",
                 a.sampled()
             )
         }
