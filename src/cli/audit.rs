@@ -46,16 +46,16 @@ pub struct NextArgs {
 /// Run `zvet campaign sample`.
 pub fn sample(a: SampleArgs) -> anyhow::Result<ExitCode> {
     let c = Campaign::open(&a.dir)?;
-    if let Some(old) = load_sample(&c)? {
-        if !a.replace {
-            bail!(
-                "{} already holds an audit sample of {} objects (seed {}); \
-                 give --replace to draw a new one (estimates then start again)",
-                c.dir().join(SAMPLE_FILE).display(),
-                old.members.len(),
-                old.seed
-            );
-        }
+    match load_sample(&c) {
+        Ok(Some(old)) if !a.replace => bail!(
+            "{} already holds an audit sample of {} objects (seed {}); \
+             give --replace to draw a new one (estimates then start again)",
+            c.dir().join(SAMPLE_FILE).display(),
+            old.members.len(),
+            old.seed
+        ),
+        Err(e) if !a.replace => bail!("{e}; give --replace to draw a new sample over it"),
+        _ => {}
     }
     let v = view(&c)?;
     for p in &v.problems {

@@ -83,10 +83,14 @@ pub fn html(
     let p = &a.photometric;
     let _ = write!(
         o,
-        "<h3>Photometric classifier</h3><p>Overall accuracy {} (error rate {:.1} %).</p>\
+        "<h3>Photometric classifier</h3><p>Overall accuracy {} (error rate {}).</p>\
          <table><tr><th>vetted \\ photometric</th>",
         ci(&p.accuracy),
-        100.0 * (1.0 - p.accuracy.value)
+        if p.accuracy.is_defined() {
+            format!("{:.1} %", 100.0 * (1.0 - p.accuracy.value))
+        } else {
+            "– : no vetted sample object yet".to_string()
+        }
     );
     for c in &p.cols {
         let _ = write!(o, "<th>{}: share of catalogue</th><th>raw count</th>", esc(c));

@@ -378,7 +378,14 @@ pub fn input_from_campaign(campaign: &Campaign) -> Result<ReportInput, ReportErr
         let cat_ids: Vec<&String> = catalog.keys().collect();
         problems.extend(crate::catalog::match_summary(&ids, &cat_ids));
     }
-    let audit_sample = crate::audit::campaign::load_sample(campaign)?;
+    // a damaged sample file loses the audit section, not the report
+    let audit_sample = match crate::audit::campaign::load_sample(campaign) {
+        Ok(s) => s,
+        Err(e) => {
+            problems.push(format!("audit sample left out: {e}"));
+            None
+        }
+    };
     Ok(ReportInput {
         audit_sample,
         campaign: campaign.manifest().name.clone(),

@@ -493,3 +493,45 @@ fn campaign_export_marks_the_audit_sample_and_weights_it() {
     // the weights of the sample add up to the catalogue (Horvitz–Thompson)
     assert_relative_eq!(total_weight, 200.0, max_relative = 1e-4);
 }
+
+#[test]
+fn a_damaged_audit_sample_loses_the_audit_section_not_the_report() {
+    let (c, _) = build_campaign("campaign_bad_audit");
+    let sample = c.dir().join(zvet::audit::SAMPLE_FILE);
+    std::fs::write(&sample, "{\"format\": 1, \"seed\": 3").unwrap();
+    let input = zvet::report::input_from_campaign(&c).unwrap();
+    assert!(input.audit_sample.is_none());
+    assert!(
+        input
+            .problems
+            .iter()
+            .any(|p| p.contains("audit sample left out") && p.contains("audit-sample.json")),
+        "{:?}",
+        input.problems
+    );
+    // drawing over it needs --replace, and the error says so
+    let zvet = env!("CARGO_BIN_EXE_zvet");
+    let out = std::process::Command::new(zvet)
+        .args(["campaign", "sample"])
+        .arg(c.dir())
+        .args(["--size", "10"])
+        .output()
+        .unwrap();
+    assert!(!out.status.success());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("audit-sample.json") && err.contains("--replace"),
+        "{err}"
+    );
+    let out = std::process::Command::new(zvet)
+        .args(["campaign", "sample"])
+        .arg(c.dir())
+        .args(["--size", "10", "--replace"])
+        .output()
+        .unwrap();
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let s = zvet::audit::campaign::load_sample(&c)
+        .unwrap()
+        .expect("a new sample");
+    assert_eq!(s.members.len(), 10);
+}
