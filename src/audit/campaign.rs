@@ -48,7 +48,8 @@ pub struct CampaignView {
 
 /// Read the campaign's fits, catalogue and merged verdicts.
 pub fn view(campaign: &Campaign) -> Result<CampaignView, CampaignError> {
-    let (fits, mut problems) = campaign.load_fits()?;
+    // read line by line, each fit's summary kept (best solution, Δχ², warnings, S/N)
+    let (fits, mut problems) = campaign.load_fit_summaries()?;
     let (catalog, cat_problems) = campaign.load_catalog()?;
     problems.extend(cat_problems);
     let (merged, merge_problems) = campaign.merge(None)?;
