@@ -564,22 +564,7 @@ fn catalogue_match_counts_name_case_only_differences() {
 fn a_campaign_whose_catalogue_matches_nothing_says_so() {
     let dir = scratch("robust-catalog-nomatch");
     let camp = demo_campaign(&dir);
-    // Lower-case every id of the catalogue.
-    let cat = dir.join("demo/catalog.csv");
-    let text = std::fs::read_to_string(&cat).unwrap();
-    let lower: String = text
-        .lines()
-        .enumerate()
-        .map(|(i, l)| {
-            if i == 0 || l.starts_with('#') {
-                format!("{l}\n")
-            } else {
-                let (id, rest) = l.split_once(',').unwrap();
-                format!("{},{rest}\n", id.to_lowercase())
-            }
-        })
-        .collect();
-    std::fs::write(&cat, lower).unwrap();
+    crate::robust_gaps::lower_case_ids(&dir.join("demo/catalog.csv"));
     let c = zvet::campaign::Campaign::open(&camp).unwrap();
     let (_, problems) = c.load_objects().unwrap();
     assert!(

@@ -180,7 +180,7 @@ fn a_killed_fresh_fit_keeps_the_old_table_and_resume_finishes_it() {
 // ------------------------------------------- catalogue match counts (CLI)
 
 /// Lower-case every id of a demo catalogue (header and comments kept).
-fn lower_case_ids(cat: &Path) {
+pub(crate) fn lower_case_ids(cat: &Path) {
     let text = std::fs::read_to_string(cat).unwrap();
     let lower: String = text
         .lines()

@@ -144,10 +144,18 @@ pub enum IntervalKind {
     Normal,
 }
 
-/// Stratified combined-ratio estimate of Σy / Σx over the catalogue.
-/// `sizes[h]` is N_h, the number of catalogue objects in stratum h; `obs`
-/// are the vetted sample objects.
-pub fn ratio(sizes: &[usize], obs: &[Obs], kind: IntervalKind) -> Estimate {
+/// What one pass over the vetted objects gives: per-stratum sums, the
+/// totals Ŷ and X̂, the ratio and each stratum's plain residual variance s².
+struct Pass {
+    sums: Vec<StratumSums>,
+    x_hat: f64,
+    /// R̂ (NaN when X̂ is not positive).
+    r: f64,
+    /// s²_{d,h} per stratum (1/4 for a stratum with one object, 0 for none).
+    s2: Vec<f64>,
+}
+
+fn pass(sizes: &[usize], obs: &[Obs]) -> Pass {
     let mut sums: Vec<StratumSums> = sizes
         .iter()
         .map(|_| StratumSums {
@@ -163,13 +171,6 @@ pub fn ratio(sizes: &[usize], obs: &[Obs], kind: IntervalKind) -> Estimate {
             s.sx += o.x;
         }
     }
-    let total: f64 = sizes.iter().map(|&n| n as f64).sum();
-    let covered: f64 = sizes
-        .iter()
-        .zip(&sums)
-        .filter(|(_, s)| s.n > 0)
-        .map(|(&n, _)| n as f64)
-        .sum();
     let (mut y_hat, mut x_hat) = (0.0, 0.0);
     for (&big_n, s) in sizes.iter().zip(&sums) {
         if s.n > 0 {
@@ -177,9 +178,51 @@ pub fn ratio(sizes: &[usize], obs: &[Obs], kind: IntervalKind) -> Estimate {
             x_hat += big_n as f64 * s.sx / s.n as f64;
         }
     }
+    if x_hat.is_nan() || x_hat <= 0.0 {
+        let s2 = vec![0.0; sizes.len()];
+        return Pass {
+            sums,
+            x_hat,
+            r: f64::NAN,
+            s2,
+        };
+    }
+    let r = y_hat / x_hat;
+    // Linearised variance: residuals d = y − r·x, their variance within each stratum.
+    let mut ss = vec![0.0; sizes.len()];
+    for o in obs {
+        if let (Some(s), Some(acc)) = (sums.get(o.stratum), ss.get_mut(o.stratum)) {
+            let mean_d = (s.sy - r * s.sx) / s.n as f64;
+            *acc += (o.y - r * o.x - mean_d).powi(2);
+        }
+    }
+    let s2 = sums
+        .iter()
+        .zip(&ss)
+        .map(|(s, &acc)| match s.n {
+            0 => 0.0,
+            1 => 0.25,
+            n => acc / (n as f64 - 1.0),
+        })
+        .collect();
+    Pass { sums, x_hat, r, s2 }
+}
+
+/// Stratified combined-ratio estimate of Σy / Σx over the catalogue.
+/// `sizes[h]` is N_h, the number of catalogue objects in stratum h; `obs`
+/// are the vetted sample objects.
+pub fn ratio(sizes: &[usize], obs: &[Obs], kind: IntervalKind) -> Estimate {
+    let Pass { sums, x_hat, r, s2 } = pass(sizes, obs);
+    let total: f64 = sizes.iter().map(|&n| n as f64).sum();
+    let covered: f64 = sizes
+        .iter()
+        .zip(&sums)
+        .filter(|(_, s)| s.n > 0)
+        .map(|(&n, _)| n as f64)
+        .sum();
     let n_domain = obs.iter().filter(|o| o.x > 0.0).count();
     let coverage = if total > 0.0 { covered / total } else { 0.0 };
-    if x_hat.is_nan() || x_hat <= 0.0 {
+    if r.is_nan() {
         return Estimate {
             value: f64::NAN,
             lo: 0.0,
@@ -190,30 +233,18 @@ pub fn ratio(sizes: &[usize], obs: &[Obs], kind: IntervalKind) -> Estimate {
             coverage,
         };
     }
-    let r = y_hat / x_hat;
-    // Linearised variance: residuals d = y − r·x, their variance within each stratum.
-    let mut ss = vec![0.0; sizes.len()];
-    for o in obs {
-        if let (Some(s), Some(acc)) = (sums.get(o.stratum), ss.get_mut(o.stratum)) {
-            let mean_d = (s.sy - r * s.sx) / s.n as f64;
-            let d = o.y - r * o.x;
-            *acc += (d - mean_d).powi(2);
-        }
-    }
     let mut var = 0.0;
     // The same sum with each stratum's residuals smoothed by pseudo-objects
     // (see `smoothed_s2`), used only for the effective sample size.
     let mut var_smooth = 0.0;
-    for (h, ((&big_n, s), &acc)) in sizes.iter().zip(&sums).zip(&ss).enumerate() {
+    for (h, ((&big_n, s), &s2)) in sizes.iter().zip(&sums).zip(&s2).enumerate() {
         if s.n == 0 {
             continue;
         }
         let n = s.n as f64;
-        let s2 = if s.n > 1 { acc / (n - 1.0) } else { 0.25 };
         let fpc = (1.0 - n / big_n as f64).max(0.0);
         var += (big_n as f64).powi(2) * fpc * s2 / n;
-        let s2s = smoothed_s2(obs, h, r, s);
-        var_smooth += (big_n as f64).powi(2) * fpc * s2s / n;
+        var_smooth += (big_n as f64).powi(2) * fpc * smoothed_s2(obs, h, r, s) / n;
     }
     var /= x_hat * x_hat;
     var_smooth /= x_hat * x_hat;
@@ -264,46 +295,21 @@ pub fn grow_one_stratum(parts: &[f64], n: &[usize], h: usize, target_var: f64) -
 /// the variance sum in [`ratio`], without the finite-population factor, for
 /// planning).
 pub fn variance_parts(sizes: &[usize], obs: &[Obs]) -> (Vec<f64>, Vec<usize>) {
-    let mut n = vec![0usize; sizes.len()];
-    let mut sy = vec![0.0; sizes.len()];
-    let mut sx = vec![0.0; sizes.len()];
-    for o in obs {
-        if o.stratum < sizes.len() {
-            n[o.stratum] += 1;
-            sy[o.stratum] += o.y;
-            sx[o.stratum] += o.x;
-        }
-    }
-    let (mut y_hat, mut x_hat) = (0.0, 0.0);
-    for h in 0..sizes.len() {
-        if n[h] > 0 {
-            y_hat += sizes[h] as f64 * sy[h] / n[h] as f64;
-            x_hat += sizes[h] as f64 * sx[h] / n[h] as f64;
-        }
-    }
-    if x_hat.is_nan() || x_hat <= 0.0 {
+    let Pass { sums, x_hat, r, s2 } = pass(sizes, obs);
+    let n: Vec<usize> = sums.iter().map(|s| s.n).collect();
+    if r.is_nan() {
         return (vec![0.0; sizes.len()], n);
     }
-    let r = y_hat / x_hat;
-    let mut ss = vec![0.0; sizes.len()];
-    for o in obs {
-        if o.stratum < sizes.len() {
-            let h = o.stratum;
-            let mean_d = (sy[h] - r * sx[h]) / n[h] as f64;
-            ss[h] += (o.y - r * o.x - mean_d).powi(2);
-        }
-    }
-    let parts = (0..sizes.len())
-        .map(|h| {
-            if n[h] == 0 {
-                return 0.0;
-            }
-            let s2 = if n[h] > 1 {
-                ss[h] / (n[h] as f64 - 1.0)
+    let parts = sizes
+        .iter()
+        .zip(&n)
+        .zip(&s2)
+        .map(|((&big_n, &nh), &s2)| {
+            if nh == 0 {
+                0.0
             } else {
-                0.25
-            };
-            (sizes[h] as f64).powi(2) * s2 / n[h] as f64 / (x_hat * x_hat)
+                (big_n as f64).powi(2) * s2 / nh as f64 / (x_hat * x_hat)
+            }
         })
         .collect();
     (parts, n)

@@ -52,6 +52,18 @@ pub struct Next {
     pub reasons: Vec<String>,
 }
 
+/// "Among the widest": the rule's point goes to strata wider than the
+/// median width over the unvetted objects.
+fn median_width(cands: &[Candidate]) -> f64 {
+    let mut widths: Vec<f64> = cands
+        .iter()
+        .filter(|c| !c.vetted)
+        .map(|c| c.stratum_width)
+        .collect();
+    widths.sort_by(f64::total_cmp);
+    widths.get(widths.len() / 2).copied().unwrap_or(1.0)
+}
+
 /// The rule's score of an object outside the sample and its reasons.
 fn score(c: &Candidate, median: f64, with_reasons: bool) -> (u32, Vec<String>) {
     let mut score = 0;
@@ -80,14 +92,7 @@ fn score(c: &Candidate, median: f64, with_reasons: bool) -> (u32, Vec<String>) {
 /// Indices into `cands` of the unvetted objects, in the rule's order, with
 /// each one's score (0 for audit-sample objects, which come first by rule 1).
 pub fn rank(cands: &[Candidate]) -> Vec<(usize, u32)> {
-    let mut widths: Vec<f64> = cands
-        .iter()
-        .filter(|c| !c.vetted)
-        .map(|c| c.stratum_width)
-        .collect();
-    widths.sort_by(f64::total_cmp);
-    // "among the widest": above the median width of the unvetted objects
-    let median = widths.get(widths.len() / 2).copied().unwrap_or(1.0);
+    let median = median_width(cands);
     let mut sample: Vec<usize> = (0..cands.len())
         .filter(|&i| !cands[i].vetted && cands[i].sample_order.is_some())
         .collect();
@@ -112,13 +117,7 @@ pub fn rank(cands: &[Candidate]) -> Vec<(usize, u32)> {
 
 /// Order the unvetted objects by the rule above, with the reasons in words.
 pub fn order(cands: &[Candidate]) -> Vec<Next> {
-    let mut widths: Vec<f64> = cands
-        .iter()
-        .filter(|c| !c.vetted)
-        .map(|c| c.stratum_width)
-        .collect();
-    widths.sort_by(f64::total_cmp);
-    let median = widths.get(widths.len() / 2).copied().unwrap_or(1.0);
+    let median = median_width(cands);
     rank(cands)
         .into_iter()
         .map(|(i, sc)| {
