@@ -8,7 +8,6 @@ use egui_kittest::kittest::Queryable;
 use egui_kittest::Harness;
 use std::path::{Path, PathBuf};
 use zvet::demo;
-use zvet::fit::FitResult;
 use zvet::review::{read_log, Change, Confidence, Event, Flag, ReviewLog, VerdictClass, ZSource};
 use zvet::ui::tools::ToolAction;
 use zvet::ui::{action::Action, LogPlace, Session, ZvetApp};
@@ -16,27 +15,11 @@ use zvet::ui::{action::Action, LogPlace, Session, ZvetApp};
 /// Objects in the test survey.
 const N: usize = 8;
 
-/// The demo's first objects with their fits attached (fitted once).
+/// The demo's first objects with their fits attached: the first [`N`] of
+/// the GUI tests' shared set (object k of the demo does not depend on the
+/// survey's size, and the set is fitted once for all GUI tests).
 fn fitted_objects() -> Vec<zvet::campaign::SurveyObject> {
-    static FITS: std::sync::OnceLock<Vec<Option<FitResult>>> = std::sync::OnceLock::new();
-    let survey = demo::generate_n(demo::DEFAULT_SEED, N);
-    let fits = FITS.get_or_init(|| {
-        let engine = zvet::ui::default_engine().unwrap();
-        survey
-            .objects
-            .iter()
-            .map(|o| engine.fit(&o.spectrum).ok())
-            .collect()
-    });
-    survey
-        .objects
-        .into_iter()
-        .zip(fits.iter().cloned())
-        .map(|(mut o, f)| {
-            o.fit = f;
-            o
-        })
-        .collect()
+    super::gui::fitted_objects().into_iter().take(N).collect()
 }
 
 fn harness_at(place: LogPlace, inspector: &str) -> Harness<'static, ZvetApp> {
