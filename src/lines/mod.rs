@@ -49,8 +49,11 @@ pub struct Line {
 pub const SRC_NIST: &str = "NIST Atomic Spectra Database, vacuum (from memory)";
 /// Source note for conventional positions of blends and bands.
 pub const SRC_PRACTICE: &str = "common practice (blend/band position)";
-/// Source note for sky lines: air values from memory, converted to vacuum.
-pub const SRC_SKY: &str = "night-sky line, air value from memory, converted to vacuum (common practice)";
+/// Source note for sky lines: air values from memory, converted to vacuum,
+/// each checked against a real night-sky spectrum or the NIST Hg I lamp list
+/// (test `lines::every_sky_line_is_seen_in_a_real_night_sky_spectrum_or_a_lamp_list`).
+pub const SRC_SKY: &str =
+    "night-sky line, air value from memory converted to vacuum; checked against a real night-sky spectrum";
 
 /// Rest-frame emission and absorption lines (vacuum Å), sorted by wavelength.
 pub fn all() -> &'static [Line] {
