@@ -326,9 +326,7 @@ impl QueueItem {
             sample_order: self.audit_order,
             vetted: self.is_reviewed(),
             disagrees: self.disagrees(),
-            doubtful: self.delta_chi2.is_some_and(|d| d < SMALL_DELTA_CHI2)
-                || self.warnings.has(Warnings::AMBIGUOUS)
-                || self.warnings.has(Warnings::CLASS_CLOSE),
+            doubtful: self.delta_chi2.is_some_and(|d| d < SMALL_DELTA_CHI2) || self.warnings.doubts_answer(),
             delta_chi2: self.delta_chi2,
             stratum_width: self.stratum_width,
         }

@@ -95,9 +95,7 @@ pub fn view_of(
                 snr,
             },
         );
-        let doubtful = f.delta_chi2 < crate::queue::SMALL_DELTA_CHI2
-            || f.warnings.has(Warnings::AMBIGUOUS)
-            || f.warnings.has(Warnings::CLASS_CLOSE);
+        let doubtful = f.delta_chi2 < crate::queue::SMALL_DELTA_CHI2 || f.warnings.doubts_answer();
         fit_doubt.insert(id.clone(), (f.delta_chi2, f.warnings, doubtful));
     }
     CampaignView {

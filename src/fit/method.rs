@@ -35,6 +35,46 @@ pub const POOR_FIT_CHI2R: f64 = 2.0;
 /// [`mismatch_scale`]). Calibrated on the recovery run (README, "Warnings").
 pub const CLASS_CLOSE_DCHI2: f64 = 25.0;
 
+/// Median S/N per pixel below which the continuum is taken to carry no
+/// redshift of its own, so that the emission lines alone decide it (our
+/// choice, calibrated on the demo and the recovery runs: README, "Warnings").
+pub const FAINT_CONTINUUM_SNR: f64 = 2.0;
+/// S/N at which an emission line counts as evidence for the redshift (a 5σ
+/// detection, common practice).
+pub const LINE_EVIDENCE_SNR: f64 = 5.0;
+/// Detected lines closer than this fraction of their wavelength form one
+/// feature (a doublet or blend fitted with tied ratios: [O II], [O III]
+/// 4960/5008, Hα + [N II], [S II]); Hβ and [O III] 4960 (2 % apart) stay two.
+pub const ONE_FEATURE_FRACTION: f64 = 0.015;
+
+/// True when the redshift of a galaxy or quasar answer rests on one emission
+/// feature over a continuum with no signal: every emission line detected at
+/// [`LINE_EVIDENCE_SNR`] lies within one [`ONE_FEATURE_FRACTION`] group and
+/// the median S/N is below [`FAINT_CONTINUUM_SNR`]. One line alone cannot tell
+/// [O II] from [O III] from Hα from Lyα; the templates' fixed line ratios
+/// decide among them, and template ratios are not the galaxy's.
+pub fn rests_on_one_line(
+    class: ObjectClass,
+    lines: &[super::result::LineMeasurement],
+    snr_median: f64,
+) -> bool {
+    if class == ObjectClass::Star || !(snr_median < FAINT_CONTINUUM_SNR) {
+        return false;
+    }
+    let mut waves: Vec<f64> = lines
+        .iter()
+        .filter(|m| m.flux > 0.0 && m.snr >= LINE_EVIDENCE_SNR && m.obs_wave.is_finite())
+        .map(|m| m.obs_wave)
+        .collect();
+    waves.sort_by(f64::total_cmp);
+    let features = waves
+        .windows(2)
+        .filter(|w| w[1] - w[0] > ONE_FEATURE_FRACTION * w[0])
+        .count()
+        + usize::from(!waves.is_empty());
+    features == 1
+}
+
 /// Factor by which the Δχ² cuts grow with template mismatch: the reduced χ²
 /// of the best fit, at least 1. Where no template matches to the noise
 /// (χ²_r > 1) every χ² difference is inflated by roughly that factor, so a
@@ -186,16 +226,93 @@ pub(crate) fn finish(
         warnings.set(Warnings::NOISE_ESTIMATED);
     }
     let lines = super::lines::measure(s, &best);
+    let snr_median = s.median_snr();
+    if rests_on_one_line(best.class, &lines, snr_median) {
+        warnings.set(Warnings::SINGLE_LINE);
+    }
     Ok(FitResult {
         object_id: s.meta.id.clone(),
         candidates: sol.candidates,
         delta_chi2,
         chi2_reduced,
         n_good,
-        snr_median: s.median_snr(),
+        snr_median,
         warnings,
         curves: sol.curves,
         lines,
         per_class,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::fit::result::LineMeasurement;
+
+    /// A detected (or not) emission line of our list at redshift `z`.
+    fn line(name: &str, z: f64, snr: f64) -> LineMeasurement {
+        let rest = crate::lines::find(name)
+            .unwrap_or_else(|| panic!("{name} in the line list"))
+            .wave;
+        LineMeasurement {
+            name: name.to_string(),
+            rest_wave: rest,
+            obs_wave: rest * (1.0 + z),
+            flux: snr,
+            flux_err: 1.0,
+            sigma_kms: 100.0,
+            ew_rest: 10.0,
+            snr,
+            width_fitted: true,
+            continuum: 0.0,
+            abs_ew_rest: None,
+        }
+    }
+
+    #[test]
+    fn one_tied_doublet_over_a_dark_continuum_is_a_single_line() {
+        // The [O III] pair (tied ratio, 1 % apart) is one feature.
+        let z = 0.558;
+        let pair = vec![
+            line("[O III] 4960", z, 8.0),
+            line("[O III] 5008", z, 8.0),
+            line("Hβ", z, 1.0),
+        ];
+        assert!(rests_on_one_line(ObjectClass::Galaxy, &pair, 0.2));
+        // Hβ detected as well (2 % bluer): two features, the redshift is pinned.
+        let mut two = pair.clone();
+        two[2] = line("Hβ", z, 6.0);
+        assert!(!rests_on_one_line(ObjectClass::Galaxy, &two, 0.2));
+        // A continuum with signal carries the redshift too.
+        assert!(!rests_on_one_line(
+            ObjectClass::Galaxy,
+            &pair,
+            FAINT_CONTINUUM_SNR
+        ));
+        // Stars are judged by their own rules; no line at all is not "one line".
+        assert!(!rests_on_one_line(ObjectClass::Star, &pair, 0.2));
+        assert!(!rests_on_one_line(
+            ObjectClass::Galaxy,
+            &[line("Hβ", z, 2.0)],
+            0.2
+        ));
+    }
+
+    #[test]
+    fn a_blend_is_one_feature_and_lines_apart_are_two() {
+        // Hα with [N II] 6585 (0.3 % apart) is one feature; [S II] 6718 (2.3 %
+        // redder) is a second. A quasar with C IV and C III] is pinned.
+        let z = 0.19;
+        let blend = [line("Hα", z, 9.0), line("[N II] 6585", z, 5.0)];
+        assert!(rests_on_one_line(ObjectClass::Galaxy, &blend, 0.5));
+        let with_sii = [
+            line("Hα", z, 9.0),
+            line("[N II] 6585", z, 5.0),
+            line("[S II] 6718", z, 5.0),
+        ];
+        assert!(!rests_on_one_line(ObjectClass::Galaxy, &with_sii, 0.5));
+        let q = [line("C IV", 2.1, 12.0), line("C III]", 2.1, 6.0)];
+        assert!(!rests_on_one_line(ObjectClass::Quasar, &q, 0.5));
+        assert!(rests_on_one_line(ObjectClass::Quasar, &q[..1], 0.5));
+    }
 }

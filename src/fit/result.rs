@@ -25,8 +25,12 @@ impl Warnings {
     /// The best star and the best non-star solution are close in χ²
     /// (see `CLASS_CLOSE_DCHI2` in the engine): the class is uncertain.
     pub const CLASS_CLOSE: u32 = 1 << 6;
+    /// The redshift rests on one emission feature over a continuum with no
+    /// signal (see `rests_on_one_line` in the engine): the line could be
+    /// another line at another redshift.
+    pub const SINGLE_LINE: u32 = 1 << 7;
     /// Names of the bits, in bit order.
-    pub const NAMES: [(u32, &'static str); 7] = [
+    pub const NAMES: [(u32, &'static str); 8] = [
         (Self::AMBIGUOUS, "ambiguous"),
         (Self::AT_GRID_EDGE, "at_grid_edge"),
         (Self::NEGATIVE_TEMPLATE, "negative_template"),
@@ -34,6 +38,7 @@ impl Warnings {
         (Self::POOR_FIT, "poor_fit"),
         (Self::NOISE_ESTIMATED, "noise_estimated"),
         (Self::CLASS_CLOSE, "class_close"),
+        (Self::SINGLE_LINE, "single_line"),
     ];
 
     /// True when bit `b` is set.
@@ -44,6 +49,12 @@ impl Warnings {
     /// Set bit `b`.
     pub fn set(&mut self, b: u32) {
         self.0 |= b;
+    }
+
+    /// A warning that doubts the answer itself (another redshift or class
+    /// may be right): `ambiguous`, `class_close` or `single_line`.
+    pub fn doubts_answer(self) -> bool {
+        self.has(Self::AMBIGUOUS | Self::CLASS_CLOSE | Self::SINGLE_LINE)
     }
 
     /// Names of the set bits joined by `|` (empty string when none).
