@@ -58,7 +58,8 @@ pub fn rests_on_one_line(
     lines: &[super::result::LineMeasurement],
     snr_median: f64,
 ) -> bool {
-    if class == ObjectClass::Star || !(snr_median < FAINT_CONTINUUM_SNR) {
+    let dark = snr_median < FAINT_CONTINUUM_SNR; // false for NaN: no answer, no warning
+    if class == ObjectClass::Star || !dark {
         return false;
     }
     let mut waves: Vec<f64> = lines
