@@ -151,8 +151,9 @@ impl Engine {
     /// The χ² fit over `ranges`; when its best solution is a poor fit
     /// (χ²_r > [`POOR_FIT_CHI2R`](super::POOR_FIT_CHI2R)) the fit is
     /// repeated with [`POOR_FIT_POLY_TERMS`] continuum terms and that one
-    /// is kept when the Bayesian information criterion prefers it (Schwarz
-    /// 1978: χ² + k ln N, N the good pixels, k the extra terms).
+    /// is kept when its best solution is of the same class and the Bayesian
+    /// information criterion prefers it (Schwarz 1978: χ² + k ln N, N the
+    /// good pixels, k the extra terms).
     fn run_chi2(&self, s: &Spectrum, ranges: &[(ObjectClass, (i64, i64))]) -> Result<FitResult, FitError> {
         let first = self.run(&self.config, &Chi2, s, ranges)?;
         let j = self.config.poly_terms;
@@ -176,8 +177,16 @@ impl Engine {
         let (Some(a), Some(b)) = (first.best(), second.best()) else {
             return Ok(first);
         };
+        // the refit settles where the first fit's class sits, not the class:
+        // a star is told from galaxies and quasars largely by its continuum,
+        // which the extra terms take over (a real DA white dwarf or M dwarf
+        // then fits better as a galaxy or quasar)
         let price = (POOR_FIT_POLY_TERMS - j) as f64 * (second.n_good.max(2) as f64).ln();
-        Ok(if b.chi2 + price < a.chi2 { second } else { first })
+        Ok(if b.class == a.class && b.chi2 + price < a.chi2 {
+            second
+        } else {
+            first
+        })
     }
 
     /// Template column groups per template (2 with throughput terms).
