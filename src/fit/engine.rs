@@ -34,6 +34,14 @@ use crate::ObjectClass;
 /// that could reorder the leading solutions).
 pub const REFINE_DCHI2: f64 = 50.0;
 
+/// Legendre continuum terms of the second χ² fit of a spectrum whose first
+/// fit is poor (see [`Engine::fit`]): enough to follow the response of a
+/// spectrum whose relative flux calibration is off by factors across its
+/// range (as merged echelle orders often are), which the default three
+/// terms cannot; kept only when the Bayesian information criterion prefers
+/// it.
+pub const POOR_FIT_POLY_TERMS: usize = 10;
+
 /// The redshift engine. `Send + Sync`: share one engine across threads.
 #[derive(Debug)]
 pub struct Engine {
@@ -135,8 +143,58 @@ impl Engine {
     pub fn fit(&self, s: &Spectrum) -> Result<FitResult, FitError> {
         let ranges = self.full_ranges();
         match self.config.method {
-            Method::Chi2 => self.run(&Chi2, s, &ranges),
-            Method::XCorr => self.run(&XCorr, s, &ranges),
+            Method::Chi2 => self.run_chi2(s, &ranges),
+            Method::XCorr => self.run(&self.config, &XCorr, s, &ranges),
+        }
+    }
+
+    /// The χ² fit over `ranges`; when its best solution is a poor fit
+    /// (χ²_r > [`POOR_FIT_CHI2R`](super::POOR_FIT_CHI2R)) the fit is
+    /// repeated with [`POOR_FIT_POLY_TERMS`] continuum terms and that one
+    /// is kept when its best solution is of the same class and the Bayesian
+    /// information criterion prefers it (Schwarz 1978: χ² + k ln N, N the
+    /// good pixels, k the extra terms).
+    fn run_chi2(&self, s: &Spectrum, ranges: &[(ObjectClass, (i64, i64))]) -> Result<FitResult, FitError> {
+        let first = self.run(&self.config, &Chi2, s, ranges)?;
+        let j = self.config.poly_terms;
+        if !first.warnings.has(super::Warnings::POOR_FIT) || j >= POOR_FIT_POLY_TERMS {
+            return Ok(first);
+        }
+        let flexible = FitConfig {
+            poly_terms: POOR_FIT_POLY_TERMS,
+            ..self.config.clone()
+        };
+        if self
+            .units
+            .iter()
+            .any(|u| self.groups() * u.k() + POOR_FIT_POLY_TERMS > 32)
+        {
+            return Ok(first);
+        }
+        let Ok(second) = self.run(&flexible, &Chi2, s, ranges) else {
+            return Ok(first);
+        };
+        let (Some(a), Some(b)) = (first.best(), second.best()) else {
+            return Ok(first);
+        };
+        // the refit settles where the first fit's class sits, not the class:
+        // a star is told from galaxies and quasars largely by its continuum,
+        // which the extra terms take over (a real DA white dwarf or M dwarf
+        // then fits better as a galaxy or quasar)
+        let price = (POOR_FIT_POLY_TERMS - j) as f64 * (second.n_good.max(2) as f64).ln();
+        Ok(if b.class == a.class && b.chi2 + price < a.chi2 {
+            second
+        } else {
+            first
+        })
+    }
+
+    /// Template column groups per template (2 with throughput terms).
+    fn groups(&self) -> usize {
+        if self.config.throughput_terms {
+            2
+        } else {
+            1
         }
     }
 
@@ -174,7 +232,7 @@ impl Engine {
         }
         // a refit near a hand-placed z is always the χ² fit (a cross-correlation
         // peak needs the whole range to judge its height against)
-        self.run(&Chi2, s, &ranges)
+        self.run_chi2(s, &ranges)
     }
 
     /// Model flux at `s.wave()` for candidate `c` (NaN where the template
@@ -195,10 +253,15 @@ impl Engine {
         let dll = self.config.dloglam;
         let nanv = vec![f64::NAN; s.len()];
         let k = unit.k();
-        let j = self.config.poly_terms;
-        let g = if self.config.throughput_terms { 2 } else { 1 };
+        let g = self.groups();
         let kc = k * g;
-        if c.coeffs.len() != kc + j || c.z.is_nan() || c.z <= -1.0 {
+        // the configured continuum terms, or those of a poor fit's refit
+        let j = c.coeffs.len().saturating_sub(kc);
+        if c.coeffs.len() < kc
+            || (j != self.config.poly_terms && j != POOR_FIT_POLY_TERMS)
+            || c.z.is_nan()
+            || c.z <= -1.0
+        {
             return nanv;
         }
         let w = s.wave();
@@ -236,7 +299,12 @@ impl Engine {
 
     /// Prepare a spectrum as the engine sees it (resampled, masked if configured).
     pub(crate) fn prepare(&self, s: &Spectrum) -> Result<Prepared, FitError> {
-        let (dll, j) = (self.config.dloglam, self.config.poly_terms);
+        self.prepare_with(&self.config, s)
+    }
+
+    /// [`Engine::prepare`] with `config`'s continuum terms.
+    fn prepare_with(&self, config: &FitConfig, s: &Spectrum) -> Result<Prepared, FitError> {
+        let (dll, j) = (config.dloglam, config.poly_terms);
         let mut p = if self.config.mask_sky {
             let mut m = s.clone();
             super::sky::mask(&mut m);
@@ -293,24 +361,31 @@ impl Engine {
 
     /// What the methods see of the engine.
     fn setup(&self) -> Setup<'_> {
+        self.setup_with(&self.config)
+    }
+
+    /// [`Engine::setup`] with `config` (the same units and caches).
+    fn setup_with<'a>(&'a self, config: &'a FitConfig) -> Setup<'a> {
         Setup {
-            config: &self.config,
+            config,
             units: &self.units,
             cache: &self.cache,
         }
     }
 
-    /// Prepare `s`, let `method` find its candidates over `ranges`, and
-    /// assemble the result.
+    /// Prepare `s`, let `method` find its candidates over `ranges` with
+    /// `config` (the engine's own, or its poor-fit variant), and assemble
+    /// the result.
     fn run(
         &self,
+        config: &FitConfig,
         method: &dyn FitMethod,
         s: &Spectrum,
         ranges: &[(ObjectClass, (i64, i64))],
     ) -> Result<FitResult, FitError> {
-        let prep = self.prepare(s)?;
-        let solution = method.solve(self.setup(), &prep, ranges)?;
-        finish(s, &prep, &self.config, solution)
+        let prep = self.prepare_with(config, s)?;
+        let solution = method.solve(self.setup_with(config), &prep, ranges)?;
+        finish(s, &prep, config, solution)
     }
 
     /// Cross-correlate `s` with every template of the configured classes

@@ -45,12 +45,17 @@ pub const CASE_B: &[(&str, f64)] = &[
     ("Paγ", 0.0904),
 ];
 
-/// Doublet ratios fixed by atomic physics (from memory): [O III] 5008/4960 ≈ 2.98,
-/// [N II] 6585/6550 ≈ 3, [O I] 6302/6366 ≈ 3, [Ne III] 3870/3969 ≈ 3.3,
+/// Doublet ratios fixed by atomic physics (from memory unless a source is
+/// named): [O III] 5008/4960 ≈ 2.98, [N II] 6585/6550 = 2.94 (below),
+/// [O I] 6302/6366 ≈ 3, [Ne III] 3870/3969 ≈ 3.3,
 /// [S III] 9533/9071 ≈ 2.5 (ratios of transition probabilities × photon energies).
 pub const OIII_RATIO: f64 = 2.98;
-/// [N II] 6585/6550 (from memory).
-pub const NII_RATIO: f64 = 3.0;
+/// [N II] 6585/6550 = A(¹D₂→³P₂) λ6550 / (A(¹D₂→³P₁) λ6585) with the
+/// transition probabilities of Froese Fischer & Tachiev 2004 (ADNDT 87, 1):
+/// 2.914e-3 s⁻¹ and 9.851e-4 s⁻¹ as tabulated in pyneb 1.1.32's
+/// `n_ii_atom_FFT04.dat`, so 2.958 × 0.9946 = 2.94 (both lines leave the same
+/// level, so the ratio is independent of density and temperature).
+pub const NII_RATIO: f64 = 2.94;
 
 /// Forbidden and helium lines relative to Hβ for an H II-region-like
 /// star-forming galaxy (typical values, from memory). The density-sensitive

@@ -48,8 +48,10 @@ pub struct LineSpec {
 /// is that of transition probabilities × photon energies, independent of
 /// density and temperature.
 pub const OIII_5008_4960: f64 = 2.98;
-/// [N II] λ6585/λ6550 flux ratio (Storey & Zeippen 2000; value from memory).
-pub const NII_6585_6550: f64 = 3.05;
+/// [N II] λ6585/λ6550 flux ratio: the template generator's value, from the
+/// transition probabilities of Froese Fischer & Tachiev 2004 (ADNDT 87, 1;
+/// see [`crate::templates::galaxies::NII_RATIO`]).
+pub const NII_6585_6550: f64 = crate::templates::galaxies::NII_RATIO;
 /// [Ne III] λ3870/λ3969 flux ratio: same upper level, ratio of transition
 /// probabilities × photon energies (from memory; no paper at hand).
 pub const NEIII_3870_3969: f64 = 3.32;
