@@ -431,7 +431,13 @@ impl FitMethod for Chi2 {
             }
             let min_sep = setup.min_sep_pixels();
             let n_cand = setup.config.n_candidates;
-            let mut kept = separated(minima, min_sep, 3 * n_cand);
+            // a star minimum faster than STAR_VMAX_KMS ranks after every other
+            // class (below); it must not crowd out, by the separation rule, a
+            // slightly worse minimum inside the plausible window (a
+            // featureless white dwarf's flat χ²(v) has its lowest point
+            // anywhere in the window, often beyond that speed)
+            let demoted = |m: &Minimum| too_fast_star(class, 10f64.powf(m.shift as f64 * dll) - 1.0);
+            let mut kept = separated(minima, min_sep, 3 * n_cand, &demoted);
             for m in kept.iter_mut() {
                 let u = &setup.units[m.unit];
                 if prep.nonneg && !fast::curve_constrained(prep, u) {
@@ -440,7 +446,7 @@ impl FitMethod for Chi2 {
                     m.chi2 = sums_fit(prep, u, m.shift as f64, &thresholds(prep, u), true).chi2;
                 }
             }
-            minima_by_class.push((class, separated(kept, min_sep, n_cand)));
+            minima_by_class.push((class, separated(kept, min_sep, n_cand, &demoted)));
         }
         // refine: Brent for each class's best minimum and for any minimum
         // within REFINE_DCHI2 of the lowest; the others from the grid parabola
@@ -598,9 +604,14 @@ fn star_window_allowance(prep: &Prepared, galaxy_k: usize, star_k: usize) -> f64
 }
 
 /// The lowest minima, at most `n`, each at least `min_sep` pixels from
-/// every lower one.
-fn separated(mut minima: Vec<Minimum>, min_sep: f64, n: usize) -> Vec<Minimum> {
-    minima.sort_by(|a, b| a.chi2.total_cmp(&b.chi2));
+/// every lower one; minima that `demoted` marks come after all others.
+fn separated(
+    mut minima: Vec<Minimum>,
+    min_sep: f64,
+    n: usize,
+    demoted: &dyn Fn(&Minimum) -> bool,
+) -> Vec<Minimum> {
+    minima.sort_by(|a, b| demoted(a).cmp(&demoted(b)).then(a.chi2.total_cmp(&b.chi2)));
     let mut kept: Vec<Minimum> = Vec::new();
     for m in minima {
         if kept.len() >= n {

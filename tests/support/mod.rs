@@ -120,6 +120,15 @@ pub fn reference_file_with_prefix(spec: &str, rel_dir: &str, prefix: &str) -> Pa
     })
 }
 
+/// First file in folder `rel_dir` of the wheel for `spec` whose name starts
+/// with `prefix` and ends with `suffix` (a file whose full name must not be
+/// spelled out in the repository is chosen by such a pattern).
+pub fn reference_file_matching(spec: &str, rel_dir: &str, prefix: &str, suffix: &str) -> PathBuf {
+    reference_file_where(spec, rel_dir, &format!("{prefix}…{suffix}"), |f| {
+        f.starts_with(prefix) && f.ends_with(suffix)
+    })
+}
+
 /// The nearby passive galaxy's spectrum table (log10 λ, flux, ivar).
 pub fn passive_galaxy() -> PathBuf {
     reference_file_with_prefix("ppxf==9.5.2", "ppxf/spectra", "NGC3522_")
