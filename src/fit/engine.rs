@@ -183,6 +183,10 @@ impl Engine {
         // then fits better as a galaxy or quasar)
         let price = (POOR_FIT_POLY_TERMS - j) as f64 * (second.n_good.max(2) as f64).ln();
         Ok(if b.class == a.class && b.chi2 + price < a.chi2 {
+            // the warning stays: the templates with the usual continuum did
+            // not describe this spectrum (bad calibration, or a rare object)
+            let mut second = second;
+            second.warnings.set(super::Warnings::POOR_FIT);
             second
         } else {
             first
