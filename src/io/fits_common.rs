@@ -429,6 +429,41 @@ pub(crate) fn open_stream(path: &Path, opts: &ReadOptions) -> Result<FitsStream,
     })
 }
 
+impl FitsStream {
+    /// The id of every item of the stream, in order, reading only the id
+    /// columns of multi-object tables (an HDU that cannot be read gives its
+    /// message, once per item it stands for).
+    pub(crate) fn ids(&self) -> Vec<Result<String, String>> {
+        let mut out = Vec::new();
+        let path = self.fits.path.clone();
+        for src in &self.sources {
+            match src {
+                Source::Failed(e) => out.push(Err(format!("{}: {e}", path.display()))),
+                Source::Image(p) => out.push(Ok(p.id.clone())),
+                Source::PixelTable(p) => out.push(Ok(p.base.id.clone())),
+                Source::VectorTable(p) => {
+                    let read = guard(|| {
+                        let mut f = self
+                            .fits
+                            .file
+                            .lock()
+                            .map_err(|e| LoadError::fits(e, p.loc.clone()))?;
+                        fits_table::read_ids(&mut f, &self.fits, p)
+                    });
+                    match read {
+                        Ok(ids) => out.extend(ids.into_iter().map(Ok)),
+                        Err(e) => {
+                            let m = format!("{}: {e}", path.display());
+                            out.extend((0..p.nrows).map(|_| Err(m.clone())));
+                        }
+                    }
+                }
+            }
+        }
+        out
+    }
+}
+
 /// Iterator over the objects of a FITS file (see [`super::stream_file`]).
 pub(crate) struct FitsStream {
     fits: OpenFits,
@@ -440,6 +475,28 @@ pub(crate) struct FitsStream {
 
 impl Iterator for FitsStream {
     type Item = Result<Spectrum, LoadError>;
+
+    fn nth(&mut self, mut n: usize) -> Option<Self::Item> {
+        // skip `n` items without reading their pixels
+        loop {
+            if let Some((plan, row)) = &mut self.current {
+                let left = plan.nrows - *row;
+                if n < left {
+                    *row += n;
+                    return self.next();
+                }
+                n -= left;
+                self.current = None;
+            }
+            if n == 0 {
+                return self.next();
+            }
+            match self.sources.pop_front()? {
+                Source::VectorTable(p) => self.current = Some((p, 0)),
+                _ => n -= 1,
+            }
+        }
+    }
 
     fn next(&mut self) -> Option<Self::Item> {
         loop {

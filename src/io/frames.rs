@@ -721,6 +721,43 @@ impl Iterator for FrameStream {
         }
         None
     }
+
+    fn nth(&mut self, mut n: usize) -> Option<Self::Item> {
+        // skip `n` items without reading their pixels
+        while n > 0 && self.next < self.plan.layout.rows {
+            if !matches!(self.plan.uses[self.next], Ok(RowUse::Target) | Err(_)) {
+                self.next += 1;
+                continue;
+            }
+            self.next += 1;
+            n -= 1;
+        }
+        self.next()
+    }
+}
+
+impl FrameStream {
+    /// The id of every item of the stream, in order, without reading pixels
+    /// (an unusable row gives its message).
+    pub(crate) fn ids(&self) -> Vec<Result<String, String>> {
+        let mut out = Vec::new();
+        for (r, u) in self.plan.uses.iter().enumerate() {
+            match u {
+                Ok(RowUse::Target) => out.push(Ok(match self.plan.ids[r].trim() {
+                    "" => format!("{}#{r}", self.stem),
+                    s => s.to_string(),
+                })),
+                Ok(_) => {}
+                Err(m) => out.push(Err(LoadError::BadHdu {
+                    at: self.plan.layout.table.with_row(r),
+                    reason: m.clone(),
+                }
+                .with_path(&self.path)
+                .to_string())),
+            }
+        }
+        out
+    }
 }
 
 #[cfg(test)]

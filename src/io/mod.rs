@@ -480,6 +480,46 @@ pub fn stream_file(
     Ok(it)
 }
 
+/// The ids of the objects of one file, in the order [`stream_file`] gives
+/// them (position k here is item k of the stream), reading as little as
+/// possible: the id column of a multi-object table, the plan of a frame, a
+/// text file whole. An item that cannot be read gives its message. Pair it
+/// with [`read_object`] to read one object when it is needed.
+pub fn list_objects(path: &Path, opts: &ReadOptions) -> Result<Vec<Result<String, String>>, LoadError> {
+    let wrap = |e: LoadError| e.with_path(path);
+    Ok(match detect_format(path).map_err(wrap)? {
+        Format::Fits => match frames::open_stream(path, opts).map_err(wrap)? {
+            Some(frame) => frame.ids(),
+            None => fits_common::open_stream(path, opts).map_err(wrap)?.ids(),
+        },
+        Format::Text => match text::read_text(path, opts) {
+            Ok(s) => vec![Ok(s.meta.id)],
+            Err(e) => vec![Err(wrap(e).to_string())],
+        },
+    })
+}
+
+/// Item `k` of [`stream_file`] of `path`, the items before it skipped
+/// without reading their pixels.
+pub fn read_object(path: &Path, opts: &ReadOptions, k: usize) -> Result<Spectrum, LoadError> {
+    let wrap = |e: LoadError| e.with_path(path);
+    let gone = || {
+        LoadError::Malformed(format!(
+            "object {} is no longer in the file (the file changed since it was opened)",
+            k + 1
+        ))
+    };
+    let item = match detect_format(path).map_err(wrap)? {
+        Format::Fits => match frames::open_stream(path, opts).map_err(wrap)? {
+            Some(mut frame) => frame.nth(k),
+            None => fits_common::open_stream(path, opts).map_err(wrap)?.nth(k),
+        },
+        Format::Text if k == 0 => Some(text::read_text(path, opts)),
+        Format::Text => None,
+    };
+    item.unwrap_or_else(|| Err(gone())).map_err(wrap)
+}
+
 /// File stem used as the object id when the file gives none.
 pub(crate) fn file_stem(path: &Path) -> String {
     let name = path
