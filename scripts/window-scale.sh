@@ -27,16 +27,19 @@ d=$(mktemp -d)
 export HOME=$d/home XDG_DATA_HOME=$d/data XDG_CONFIG_HOME=$d/config
 mkdir -p "$HOME"
 disp=${XDISPLAY:-:$((260 + RANDOM % 30))}
-Xvfb "$disp" -screen 0 1600x1000x24 >/dev/null 2>&1 &
-xpid=$!
-sleep 1
+xpid=
+if ! xdpyinfo -display "$disp" >/dev/null 2>&1; then
+    Xvfb "$disp" -screen 0 1600x1000x24 >/dev/null 2>&1 &
+    xpid=$!
+    sleep 1
+fi
 export DISPLAY=$disp
 times=$d/times.txt
 : >"$times"
 t0=$(date +%s.%N)
 ZVET_WINDOW_TIMES=$times "$ZVET" review --campaign "$CAMP" --inspector "$WHO" >"$d/gui.log" 2>&1 &
 gpid=$!
-cleanup() { kill "$gpid" 2>/dev/null; wait "$gpid" 2>/dev/null; kill "$xpid" 2>/dev/null; }
+cleanup() { kill "$gpid" 2>/dev/null; wait "$gpid" 2>/dev/null; [ -n "$xpid" ] && kill "$xpid" 2>/dev/null; }
 trap cleanup EXIT
 for _ in $(seq 1 2400); do
     grep -q first_object_drawn "$times" && break
@@ -50,18 +53,20 @@ wid=$(xdotool search --pid "$gpid" 2>/dev/null | head -1)
 xdotool windowfocus --sync "$wid" 2>/dev/null
 sleep 2
 for _ in $(seq 1 "$NSW"); do
-    xdotool key --window "$wid" n
+    xdotool key n
     sleep 0.25
 done
 sleep 1
 # the queue: sort by z, by id, by need of a look (the sort box's menu), re-sort
 click() { xdotool mousemove --window "$wid" "$1" "$2" click 1; sleep 0.6; }
-SORT_X=${SORT_X:-80} SORT_Y=${SORT_Y:-128}
-for item in 3 2 1; do
+# (places in the 1560×960 window, as laid out by this version; the menu's
+# items are 23 pixels apart: needs a look, id, z, Δχ², S/N, …)
+SORT_X=${SORT_X:-60} SORT_Y=${SORT_Y:-221}
+for item in 2 1 0; do
     click "$SORT_X" "$SORT_Y"
-    click "$SORT_X" $((SORT_Y + 4 + 21 * item))
+    click "$SORT_X" $((SORT_Y + 28 + 23 * item))
 done
-click "${RESORT_X:-200}" "$SORT_Y"
+click "${RESORT_X:-180}" "$SORT_Y"
 sleep 1
 end_mem=$(mem)
 n_obj=$(awk '/first_object_drawn/ {print $4}' "$times")

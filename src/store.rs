@@ -140,8 +140,29 @@ struct Prefetch {
     running: bool,
 }
 
+/// Spectrum files kept open (their layout checked once) at most.
+const OPEN_FILES: usize = 4;
+
+/// What tells a file changed since it was opened: length, modification
+/// time, inode.
+type Stamp = (u64, Option<std::time::SystemTime>, u64);
+
+fn stamp(path: &std::path::Path) -> std::io::Result<Stamp> {
+    let m = std::fs::metadata(path)?;
+    #[cfg(unix)]
+    let ino = std::os::unix::fs::MetadataExt::ino(&m);
+    #[cfg(not(unix))]
+    let ino = 0;
+    Ok((m.len(), m.modified().ok(), ino))
+}
+
+/// An open file shared by the reading threads (one read at a time).
+type SharedFile = Arc<Mutex<crate::io::ObjectFile>>;
+
 struct Inner {
     files: Vec<PathBuf>,
+    /// Open files, least recently used first.
+    handles: Mutex<Vec<(u32, Stamp, SharedFile)>>,
     opts: ReadOptions,
     ids: Vec<Box<str>>,
     spectra: Vec<SpecAt>,
@@ -171,6 +192,33 @@ fn fit_of_line(bytes: &[u8]) -> Result<Option<FitResult>, String> {
 }
 
 impl Inner {
+    /// File `fi`, open (kept open while it has not changed on disk).
+    fn file(&self, fi: u32) -> Result<SharedFile, String> {
+        let path = &self.files[fi as usize];
+        let now = stamp(path).map_err(|e| format!("{}: {e}", path.display()))?;
+        {
+            let mut h = lock(&self.handles);
+            if let Some(pos) = h.iter().position(|(f, _, _)| *f == fi) {
+                let entry = h.remove(pos);
+                if entry.1 == now {
+                    let file = entry.2.clone();
+                    h.push(entry);
+                    return Ok(file);
+                }
+            }
+        }
+        let file = Arc::new(Mutex::new(
+            crate::io::ObjectFile::open(path, &self.opts).map_err(|e| e.to_string())?,
+        ));
+        let mut h = lock(&self.handles);
+        h.retain(|(f, _, _)| *f != fi);
+        h.push((fi, now, file.clone()));
+        if h.len() > OPEN_FILES {
+            h.remove(0);
+        }
+        Ok(file)
+    }
+
     fn read_spectrum(&self, i: usize) -> Result<Spectrum, String> {
         let want = self.ids.get(i).ok_or_else(|| format!("no object {i}"))?;
         match &self.spectra[i] {
@@ -178,7 +226,9 @@ impl Inner {
             SpecAt::File { file, item } => {
                 let path = &self.files[*file as usize];
                 self.reads.fetch_add(1, Ordering::Relaxed);
-                let s = crate::io::read_object(path, &self.opts, *item as usize)
+                let s = self
+                    .file(*file)
+                    .and_then(|f| lock(&f).read(*item as usize).map_err(|e| e.to_string()))
                     .map_err(|e| format!("{want}: the spectrum cannot be read: {e}"))?;
                 if *s.meta.id != **want {
                     return Err(format!(
@@ -332,6 +382,7 @@ impl ObjectStore {
             summaries,
             inner: Arc::new(Inner {
                 files,
+                handles: Mutex::new(Vec::new()),
                 opts,
                 ids,
                 spectra,
@@ -432,11 +483,11 @@ impl ObjectStore {
                 path: path.clone(),
                 source,
             };
-            let lines = index_lines(f, |offset, len, record| {
-                let Some(fit) = record.fit else { return };
-                if let Some(&i) = index.get(record.object_id.as_str()) {
+            let lines = index_lines(f, |offset, len, (id, fit)| {
+                let Some(fit) = fit else { return };
+                if let Some(&i) = index.get(id.as_str()) {
                     fits[i] = FitAt::Cache { offset, len };
-                    sums[i] = Some(fitcache::summary(fit));
+                    sums[i] = Some(fit);
                 }
             })
             .map_err(io)?;
@@ -676,11 +727,19 @@ fn list(files: Vec<PathBuf>, opts: &ReadOptions) -> Listed {
     let mut spectra = Vec::new();
     let mut problems = Vec::new();
     let mut seen: HashMap<String, u32> = HashMap::new();
-    for (fi, path) in files.iter().enumerate() {
-        let items = match crate::io::list_objects(path, opts) {
+    // every file's ids, on every core (each file's layout is checked as it is opened)
+    let listed: Vec<Result<Vec<Result<String, String>>, String>> = {
+        use rayon::prelude::*;
+        files
+            .par_iter()
+            .map(|path| crate::io::list_objects(path, opts).map_err(|e| e.to_string()))
+            .collect()
+    };
+    for ((fi, path), items) in files.iter().enumerate().zip(listed) {
+        let items = match items {
             Ok(items) => items,
             Err(e) => {
-                problems.push(e.to_string());
+                problems.push(e);
                 continue;
             }
         };
@@ -714,40 +773,134 @@ fn list(files: Vec<PathBuf>, opts: &ReadOptions) -> Listed {
     (summaries, spectra, files, problems)
 }
 
-/// Read a fit cache line by line through `file`, handing each record with
-/// its byte offset and length (without the newline) to `f`; bad lines come
-/// back as `line N: …` problems.
-fn index_lines(file: &File, mut f: impl FnMut(u64, u32, FitRecord)) -> std::io::Result<Vec<String>> {
+/// Lines parsed together (on every core).
+const INDEX_BATCH: usize = 512;
+
+/// One line of the cache as the index needs it: the object id and the
+/// summary of its fit ([`fitcache::summary`]; None for a record without a fit).
+type Indexed = (String, Option<FitResult>);
+
+/// Read a fit cache line by line through `file`, handing the id and fit
+/// summary of each record with its byte offset and length (without the
+/// newline) to `f`, in file order; lines are parsed in batches on every
+/// core. Bad lines come back as `line N: …` problems.
+fn index_lines(file: &File, mut f: impl FnMut(u64, u32, Indexed)) -> std::io::Result<Vec<String>> {
+    use rayon::prelude::*;
     let mut reader = std::io::BufReader::with_capacity(1 << 20, file);
     let mut problems = Vec::new();
-    let mut raw = Vec::new();
     let mut offset = 0u64;
     let mut n = 0usize;
     loop {
-        raw.clear();
-        let got = reader.read_until(b'\n', &mut raw)?;
-        if got == 0 {
+        // (line number, offset, bytes without the newline)
+        let mut batch: Vec<(usize, u64, Vec<u8>)> = Vec::with_capacity(INDEX_BATCH);
+        while batch.len() < INDEX_BATCH {
+            let mut raw = Vec::new();
+            let got = reader.read_until(b'\n', &mut raw)?;
+            if got == 0 {
+                break;
+            }
+            n += 1;
+            let start = offset;
+            offset += got as u64;
+            if raw.last() == Some(&b'\n') {
+                raw.pop();
+            }
+            batch.push((n, start, raw));
+        }
+        if batch.is_empty() {
             break;
         }
-        n += 1;
-        let start = offset;
-        offset += got as u64;
-        if raw.last() == Some(&b'\n') {
-            raw.pop();
-        }
-        let Ok(line) = std::str::from_utf8(&raw) else {
-            problems.push(format!("line {n}: not UTF-8 text; skipped"));
-            continue;
-        };
-        if line.trim().is_empty() {
-            continue;
-        }
-        match FitRecord::from_json_line(line) {
-            Ok(r) => f(start, raw.len() as u32, r),
-            Err(e) => problems.push(format!("line {n}: {e}; skipped")),
+        let parsed: Vec<Option<Result<Indexed, String>>> = batch
+            .par_iter()
+            .map(|(_, _, raw)| {
+                let Ok(line) = std::str::from_utf8(raw) else {
+                    return Some(Err("not UTF-8 text".to_string()));
+                };
+                if line.trim().is_empty() {
+                    return None;
+                }
+                Some(summary_of_line(line))
+            })
+            .collect();
+        for ((line, start, raw), p) in batch.iter().zip(parsed) {
+            match p {
+                None => {}
+                Some(Ok(x)) => f(*start, raw.len() as u32, x),
+                Some(Err(e)) => problems.push(format!("line {line}: {e}; skipped")),
+            }
         }
     }
     Ok(problems)
+}
+
+/// The keys of a record line the index reads (the others are skipped
+/// unparsed: line measurements, per-class solutions, the flat columns).
+#[derive(serde::Deserialize)]
+struct LightLine {
+    v: Option<u32>,
+    object_id: Option<String>,
+    #[serde(default)]
+    error: Option<String>,
+    candidates: Option<Vec<LightCandidate>>,
+    delta_chi2: Option<f64>,
+    chi2_reduced: Option<f64>,
+    n_good: Option<usize>,
+    snr_median: Option<f64>,
+    warnings: Option<crate::fit::Warnings>,
+}
+
+#[derive(serde::Deserialize)]
+struct LightCandidate {
+    class: crate::ObjectClass,
+    template: String,
+    z: Option<f64>,
+    z_err: Option<f64>,
+    chi2: Option<f64>,
+}
+
+/// The id and fit summary of one record line: read through [`LightLine`]
+/// for lines of the current format, else (older formats, flat rows,
+/// anything unexpected) through the full reader [`FitRecord::from_json_line`].
+/// Both give the same summary (`null` numbers as NaN, a `null` Δχ² as ∞).
+fn summary_of_line(line: &str) -> Result<Indexed, String> {
+    let slow = || {
+        let r = FitRecord::from_json_line(line)?;
+        Ok((r.object_id, r.fit.map(fitcache::summary)))
+    };
+    let Ok(l) = serde_json::from_str::<LightLine>(line) else {
+        return slow();
+    };
+    let (Some(v), Some(id), Some(cands)) = (l.v, l.object_id, l.candidates) else {
+        return slow();
+    };
+    if v != crate::pipeline::RECORD_FORMAT || id.is_empty() {
+        return slow();
+    }
+    if l.error.as_deref().is_some_and(|e| !e.is_empty()) {
+        return Ok((id, None));
+    }
+    let nan = |x: Option<f64>| x.unwrap_or(f64::NAN);
+    let best = cands.into_iter().next().map(|c| crate::fit::Candidate {
+        class: c.class,
+        template: c.template,
+        z: nan(c.z),
+        z_err: nan(c.z_err),
+        chi2: nan(c.chi2),
+        coeffs: Vec::new(),
+    });
+    let fit = FitResult {
+        object_id: id.clone(),
+        candidates: best.into_iter().collect(),
+        delta_chi2: l.delta_chi2.unwrap_or(f64::INFINITY),
+        chi2_reduced: nan(l.chi2_reduced),
+        n_good: l.n_good.unwrap_or(0),
+        snr_median: nan(l.snr_median),
+        warnings: l.warnings.unwrap_or_default(),
+        curves: Vec::new(),
+        lines: Vec::new(),
+        per_class: Vec::new(),
+    };
+    Ok((id, Some(fit)))
 }
 
 /// The catalogue rows of `rows` joined to the store's ids (for a catalogue
@@ -755,4 +908,67 @@ fn index_lines(file: &File, mut f: impl FnMut(u64, u32, FitRecord)) -> std::io::
 pub fn join_catalog(store: &ObjectStore, rows: &[CatalogRow]) -> crate::catalog::Join {
     let ids: Vec<String> = store.iter().map(|s| s.id.clone()).collect();
     crate::catalog::join(&ids, rows)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::fit::{Candidate, Warnings};
+
+    fn fit(delta: f64, z_err: f64) -> FitResult {
+        FitResult {
+            object_id: "K-7".into(),
+            candidates: vec![
+                Candidate {
+                    class: crate::ObjectClass::Quasar,
+                    template: "q".into(),
+                    z: 2.25,
+                    z_err,
+                    chi2: 4100.5,
+                    coeffs: vec![1.0, -2.0],
+                },
+                Candidate {
+                    class: crate::ObjectClass::Galaxy,
+                    template: "g".into(),
+                    z: 0.5,
+                    z_err: 1e-4,
+                    chi2: 4200.0,
+                    coeffs: vec![3.0],
+                },
+            ],
+            delta_chi2: delta,
+            chi2_reduced: 1.05,
+            n_good: 3900,
+            snr_median: 4.5,
+            warnings: Warnings(5),
+            curves: vec![],
+            lines: vec![],
+            per_class: vec![],
+        }
+    }
+
+    #[test]
+    fn the_quick_line_reader_gives_the_summary_of_the_full_reader() {
+        for f in [fit(99.5, 3e-4), fit(f64::INFINITY, f64::NAN)] {
+            let line = FitRecord::fitted(f, "a.fits[hdu=1,row=3]", "chi2")
+                .to_json_line()
+                .unwrap();
+            let quick = summary_of_line(&line).unwrap();
+            let full = FitRecord::from_json_line(&line).unwrap();
+            let want = fitcache::summary(full.fit.unwrap());
+            assert_eq!(quick.0, "K-7");
+            // NaN ≠ NaN: compare as text
+            assert_eq!(format!("{:?}", quick.1.unwrap()), format!("{want:?}"));
+        }
+        // a record without a fit, and a line of the first cache format (key `id`)
+        let failed = FitRecord::failed("K-8", "b.fits", "no good pixels")
+            .to_json_line()
+            .unwrap();
+        assert_eq!(summary_of_line(&failed).unwrap(), ("K-8".to_string(), None));
+        let old = r#"{"id":"K-9","candidates":[{"class":"galaxy","template":"g","z":0.1,"z_err":0.001,"chi2":10.0,"coeffs":[]}],"delta_chi2":50.0,"chi2_reduced":1.0,"n_good":10,"snr_median":3.0,"warnings":0,"lines":[]}"#;
+        let (id, f) = summary_of_line(old).unwrap();
+        assert_eq!(id, "K-9");
+        assert_eq!(f.unwrap().best().unwrap().z, 0.1);
+        assert!(summary_of_line("{not json").is_err());
+    }
 }

@@ -145,7 +145,12 @@ fn is_short(path: &Path) -> bool {
     !gz && std::fs::metadata(path).is_ok_and(|m| m.len() % 2880 != 0)
 }
 
-fn open(path: &Path) -> Result<OpenFits, LoadError> {
+/// Open a FITS file: its layout read and checked
+/// ([`super::fits_scan::fits_layout`]) unless the caller has it already.
+fn open_checked(
+    path: &Path,
+    checked: Option<Vec<super::fits_scan::HduLayout>>,
+) -> Result<OpenFits, LoadError> {
     // The FITS library takes the name as UTF-8 text and gives `[`, `+` at the
     // end, `!` and `-` meanings of their own (cfitsio's extended file-name
     // syntax), so such names cannot be opened as they are.
@@ -162,7 +167,10 @@ fn open(path: &Path) -> Result<OpenFits, LoadError> {
     }
     // Every size the headers declare, checked against the real file before
     // the FITS library sizes anything by them.
-    let layout = super::fits_scan::fits_layout(path)?;
+    let layout = match checked {
+        Some(l) => l,
+        None => super::fits_scan::fits_layout(path)?,
+    };
     let mut f = match FitsFile::open(path) {
         Ok(f) => f,
         Err(e) => {
@@ -416,8 +424,17 @@ fn plan(fits: &OpenFits, opts: &ReadOptions) -> Result<Vec<Source>, LoadError> {
 
 /// Open `path` and return the iterator over its objects.
 pub(crate) fn open_stream(path: &Path, opts: &ReadOptions) -> Result<FitsStream, LoadError> {
+    open_stream_checked(path, opts, None)
+}
+
+/// [`open_stream`] with the file's layout already read and checked.
+pub(crate) fn open_stream_checked(
+    path: &Path,
+    opts: &ReadOptions,
+    layout: Option<Vec<super::fits_scan::HduLayout>>,
+) -> Result<FitsStream, LoadError> {
     let (fits, sources) = guard(|| {
-        let fits = open(path)?;
+        let fits = open_checked(path, layout)?;
         let sources = plan(&fits, opts)?;
         Ok((fits, sources))
     })?;
@@ -430,6 +447,35 @@ pub(crate) fn open_stream(path: &Path, opts: &ReadOptions) -> Result<FitsStream,
 }
 
 impl FitsStream {
+    /// Item `k` of the stream, read without moving the stream (random
+    /// access for a file kept open).
+    pub(crate) fn read_item(&self, mut k: usize) -> Result<Spectrum, LoadError> {
+        let (fits, opts) = (&self.fits, &self.opts);
+        for src in &self.sources {
+            let n = match src {
+                Source::VectorTable(p) => p.nrows,
+                _ => 1,
+            };
+            if k >= n {
+                k -= n;
+                continue;
+            }
+            return guard(|| {
+                let mut f = fits.file.lock().map_err(|e| LoadError::fits(e, Loc::default()))?;
+                match src {
+                    Source::Failed(e) => Err(LoadError::Malformed(e.to_string())),
+                    Source::Image(p) => fits_image::read(&mut f, fits, p, opts),
+                    Source::PixelTable(p) => fits_table::read_pixel_table(&mut f, fits, p, opts),
+                    Source::VectorTable(p) => fits_table::read_row(&mut f, fits, p, k, opts),
+                }
+            });
+        }
+        Err(LoadError::Malformed(format!(
+            "object {} is no longer in the file (the file changed since it was opened)",
+            k + 1
+        )))
+    }
+
     /// The id of every item of the stream, in order, reading only the id
     /// columns of multi-object tables (an HDU that cannot be read gives its
     /// message, once per item it stands for).
@@ -553,7 +599,7 @@ mod tests {
     #[test]
     fn names_the_library_would_misread_are_refused() {
         for name in ["spec[1].fits", "-x.fits", "!x.fits"] {
-            let e = open(Path::new(name)).err().expect("refused");
+            let e = open_checked(Path::new(name), None).err().expect("refused");
             assert!(matches!(e, LoadError::BadFileName(_)), "{name}: {e}");
         }
     }

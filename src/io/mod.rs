@@ -480,44 +480,84 @@ pub fn stream_file(
     Ok(it)
 }
 
-/// The ids of the objects of one file, in the order [`stream_file`] gives
-/// them (position k here is item k of the stream), reading as little as
-/// possible: the id column of a multi-object table, the plan of a frame, a
-/// text file whole. An item that cannot be read gives its message. Pair it
-/// with [`read_object`] to read one object when it is needed.
-pub fn list_objects(path: &Path, opts: &ReadOptions) -> Result<Vec<Result<String, String>>, LoadError> {
-    let wrap = |e: LoadError| e.with_path(path);
-    Ok(match detect_format(path).map_err(wrap)? {
-        Format::Fits => match frames::open_stream(path, opts).map_err(wrap)? {
-            Some(frame) => frame.ids(),
-            None => fits_common::open_stream(path, opts).map_err(wrap)?.ids(),
-        },
-        Format::Text => match text::read_text(path, opts) {
-            Ok(s) => vec![Ok(s.meta.id)],
-            Err(e) => vec![Err(wrap(e).to_string())],
-        },
-    })
+/// One spectrum file kept open for reading its objects in any order (the
+/// review window's on-demand reads): the file's layout is read and checked
+/// once, when it is opened; item k is item k of [`stream_file`].
+pub struct ObjectFile {
+    path: PathBuf,
+    opened: Opened,
 }
 
-/// Item `k` of [`stream_file`] of `path`, the items before it skipped
-/// without reading their pixels.
+enum Opened {
+    Fits(Box<fits_common::FitsStream>),
+    Frame(Box<frames::FrameStream>),
+    Text(ReadOptions),
+}
+
+impl ObjectFile {
+    /// Open `path` (a FITS file's whole layout is checked here, once).
+    pub fn open(path: &Path, opts: &ReadOptions) -> Result<ObjectFile, LoadError> {
+        let wrap = |e: LoadError| e.with_path(path);
+        let opened = match detect_format(path).map_err(wrap)? {
+            Format::Fits => {
+                let layout = fits_scan::fits_layout(path);
+                match frames::open_stream_checked(path, opts, layout.as_ref().ok().map(|l| &l[..]))
+                    .map_err(wrap)?
+                {
+                    Some(frame) => Opened::Frame(Box::new(frame)),
+                    None => {
+                        let layout = layout.map_err(wrap)?;
+                        Opened::Fits(Box::new(
+                            fits_common::open_stream_checked(path, opts, Some(layout)).map_err(wrap)?,
+                        ))
+                    }
+                }
+            }
+            Format::Text => Opened::Text(opts.clone()),
+        };
+        Ok(ObjectFile {
+            path: path.to_path_buf(),
+            opened,
+        })
+    }
+
+    /// The ids of the file's objects in stream order, reading as little as
+    /// possible: the id column of a multi-object table, a frame's plan, a
+    /// text file whole. An item that cannot be read gives its message.
+    pub fn ids(&self) -> Vec<Result<String, String>> {
+        match &self.opened {
+            Opened::Fits(f) => f.ids(),
+            Opened::Frame(f) => f.ids(),
+            Opened::Text(opts) => match text::read_text(&self.path, opts) {
+                Ok(s) => vec![Ok(s.meta.id)],
+                Err(e) => vec![Err(e.with_path(&self.path).to_string())],
+            },
+        }
+    }
+
+    /// Item `k` (the items before it are not read).
+    pub fn read(&self, k: usize) -> Result<Spectrum, LoadError> {
+        let r = match &self.opened {
+            Opened::Fits(f) => f.read_item(k),
+            Opened::Frame(f) => f.read_item(k),
+            Opened::Text(opts) if k == 0 => text::read_text(&self.path, opts),
+            Opened::Text(_) => Err(LoadError::Malformed(
+                "object 2 or later of a one-spectrum text file (the file changed since it was opened)".into(),
+            )),
+        };
+        r.map_err(|e| e.with_path(&self.path))
+    }
+}
+
+/// The ids of the objects of one file, in the order [`stream_file`] gives
+/// them (see [`ObjectFile::ids`]).
+pub fn list_objects(path: &Path, opts: &ReadOptions) -> Result<Vec<Result<String, String>>, LoadError> {
+    Ok(ObjectFile::open(path, opts)?.ids())
+}
+
+/// Item `k` of [`stream_file`] of `path` (see [`ObjectFile::read`]).
 pub fn read_object(path: &Path, opts: &ReadOptions, k: usize) -> Result<Spectrum, LoadError> {
-    let wrap = |e: LoadError| e.with_path(path);
-    let gone = || {
-        LoadError::Malformed(format!(
-            "object {} is no longer in the file (the file changed since it was opened)",
-            k + 1
-        ))
-    };
-    let item = match detect_format(path).map_err(wrap)? {
-        Format::Fits => match frames::open_stream(path, opts).map_err(wrap)? {
-            Some(mut frame) => frame.nth(k),
-            None => fits_common::open_stream(path, opts).map_err(wrap)?.nth(k),
-        },
-        Format::Text if k == 0 => Some(text::read_text(path, opts)),
-        Format::Text => None,
-    };
-    item.unwrap_or_else(|| Err(gone())).map_err(wrap)
+    ObjectFile::open(path, opts)?.read(k)
 }
 
 /// File stem used as the object id when the file gives none.
