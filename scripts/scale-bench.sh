@@ -12,6 +12,9 @@
 # once (the slow part: about 9 ms of one core per 4000-pixel spectrum on an
 # idle machine); `campaign fit` then finds everything cached. Needs python3
 # (scripts/scale-reviews.py writes two inspectors' logs from the truth).
+# With Xvfb and xdotool installed, the review window is measured last on the
+# same campaign (scripts/window-scale.sh: open to the first object drawn,
+# switch and draw, queue sorts, memory); its row follows the table.
 set -euo pipefail
 N=${1:?usage: scale-bench.sh N [WORKDIR]}
 ROOT=${2:-target/scale-bench}/$N
@@ -46,3 +49,11 @@ run "campaign status" campaign status "$ROOT/camp"
 run "merge" merge "$ROOT/camp" --conflicts "$ROOT/conflicts.csv"
 run "export" export "$ROOT/camp" --out "$ROOT/train.csv"
 run "report" report "$ROOT/camp"
+if command -v Xvfb >/dev/null && command -v xdotool >/dev/null; then
+    echo
+    echo "| objects | window open | switch and draw | queue sort / filter | memory |"
+    echo "|---:|---|---|---|---|"
+    ZVET=$ZVET TIMES_OUT=$ROOT/window-times.txt "$HERE/window-scale.sh" "$ROOT/camp" | tee -a "$TABLE"
+else
+    echo "(no Xvfb/xdotool: the window is not measured)" >&2
+fi

@@ -26,6 +26,7 @@ pub mod queue;
 pub mod report;
 pub mod review;
 pub mod spectrum;
+pub mod store;
 pub mod templates;
 #[cfg(feature = "gui")]
 pub mod ui;

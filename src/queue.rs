@@ -76,17 +76,32 @@ impl QueueItem {
     /// Summarise an object with its fit (pass `obj.fit.as_ref()` or a fit kept
     /// elsewhere) and its verdict.
     pub fn new(obj: &SurveyObject, fit: Option<&FitResult>, verdict: Option<&Verdict>) -> Self {
+        let snr = match fit {
+            Some(f) => f.snr_median,
+            None => obj.spectrum.median_snr(),
+        };
+        QueueItem::from_parts(obj.id(), obj.catalog.as_ref(), snr, fit, verdict)
+    }
+
+    /// Summarise an object from its id, catalogue row and spectrum S/N (the
+    /// fit's S/N is used when there is a fit), with its fit (a summary is
+    /// enough) and verdict.
+    pub fn from_parts(
+        id: &str,
+        catalog: Option<&crate::catalog::CatalogRow>,
+        snr: f64,
+        fit: Option<&FitResult>,
+        verdict: Option<&Verdict>,
+    ) -> Self {
         let best = fit.and_then(|f| f.best());
         QueueItem {
-            id: obj.id().to_string(),
+            id: id.to_string(),
             fit_class: best.map(|c| c.class),
             fit_z: best.map(|c| c.z),
             delta_chi2: fit.map(|f| f.delta_chi2),
             warnings: fit.map(|f| f.warnings).unwrap_or_default(),
-            snr: fit
-                .map(|f| f.snr_median)
-                .unwrap_or_else(|| obj.spectrum.median_snr()),
-            phot_class: obj.catalog.as_ref().and_then(|c| c.phot_class),
+            snr: fit.map(|f| f.snr_median).unwrap_or(snr),
+            phot_class: catalog.and_then(|c| c.phot_class),
             verdict_class: verdict.and_then(|v| v.class),
             verdict_z: verdict.and_then(|v| v.z),
             complete: verdict.is_some_and(Verdict::is_complete),

@@ -261,7 +261,11 @@ fn previewing_and_accepting_a_candidate() {
     let idx = {
         let s = &h.state().state;
         (0..s.objects.len())
-            .find(|&i| s.fits[i].as_ref().is_some_and(|f| f.candidates.len() >= 2))
+            .find(|&i| {
+                // the whole fit (the queue keeps only the best candidate)
+                let e = s.objects.load(i).unwrap();
+                e.fit.as_ref().is_some_and(|f| f.candidates.len() >= 2)
+            })
             .expect("some fit has two candidates")
     };
     h.state_mut().apply(zvet::ui::action::Action::Select(idx));

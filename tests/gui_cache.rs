@@ -89,9 +89,7 @@ fn a_cached_campaign_opens_without_refitting_and_new_fits_go_back_to_its_cache()
     // The background fits finish and are written back; the shown object
     // gets its curves.
     settle(&mut h, "the new fits and the first curves", |a| {
-        let s = &a.state;
-        let sel = s.selected.unwrap();
-        a.fit_progress().0 == NEW && s.fits[sel].as_ref().is_some_and(|f| !f.curves.is_empty())
+        a.fit_progress().0 == NEW && a.state.current_fit().is_some_and(|f| !f.curves.is_empty())
     });
     // … and everything asked for is done (and taken in by a frame).
     settle(&mut h, "the background work", ZvetApp::background_idle);
@@ -103,13 +101,13 @@ fn a_cached_campaign_opens_without_refitting_and_new_fits_go_back_to_its_cache()
     let pos = s.position().unwrap();
     let near: BTreeSet<usize> = s.order[pos..].iter().take(1 + CURVE_PREFETCH).copied().collect();
     let with_curves: Vec<&str> = (0..N)
-        .filter(|i| s.fits[*i].as_ref().is_some_and(|f| !f.curves.is_empty()))
+        .filter(|i| s.objects.has_curves(*i))
         .map(|i| s.objects[i].id())
         .collect();
     for (i, o) in s.objects.iter().enumerate() {
         if !near.contains(&i) && !new_ids.contains(o.id()) {
             assert!(
-                s.fits[i].as_ref().unwrap().curves.is_empty(),
+                !s.objects.has_curves(i),
                 "{} is neither shown nor next but has curves (curves on {with_curves:?})",
                 o.id()
             );
@@ -135,8 +133,10 @@ fn a_cached_campaign_opens_without_refitting_and_new_fits_go_back_to_its_cache()
     assert!(problems.is_empty(), "{problems:?}");
     assert_eq!(records.len(), N, "messages: {:?}", s.messages);
     for (i, o) in s.objects.iter().enumerate() {
-        let shown = s.fits[i].clone().expect("fitted");
-        let want = FitRecord::fitted(shown, &zvet::pipeline::source_of(&o.spectrum), "chi2");
+        // the whole fit, as the window reads it when the object is shown
+        let e = s.objects.load(i).unwrap();
+        let shown = e.fit.clone().expect("fitted");
+        let want = FitRecord::fitted(shown, &zvet::pipeline::source_of(&e.spectrum), "chi2");
         assert_eq!(
             record_text(&records[o.id()]),
             record_text(&want),
@@ -153,10 +153,7 @@ fn a_cached_campaign_opens_without_refitting_and_new_fits_go_back_to_its_cache()
     // Moving on asks for the next object's curves (prefetched or computed now).
     press(&mut h, egui::Key::N);
     settle(&mut h, "the next object's curves", |a| {
-        let s = &a.state;
-        s.fits[s.selected.unwrap()]
-            .as_ref()
-            .is_some_and(|f| !f.curves.is_empty())
+        a.state.current_fit().is_some_and(|f| !f.curves.is_empty())
     });
 }
 
@@ -236,15 +233,10 @@ fn only_a_bounded_number_of_objects_keep_their_curves() {
     h.run_steps(3);
     let holding = |a: &ZvetApp| {
         (0..a.state.objects.len())
-            .filter(|&i| a.state.fits[i].as_ref().is_some_and(|f| !f.curves.is_empty()))
+            .filter(|&i| a.state.objects.has_curves(i))
             .count()
     };
-    let shown_has_curves = |a: &ZvetApp| {
-        let s = &a.state;
-        s.fits[s.selected.unwrap()]
-            .as_ref()
-            .is_some_and(|f| !f.curves.is_empty())
-    };
+    let shown_has_curves = |a: &ZvetApp| a.state.current_fit().is_some_and(|f| !f.curves.is_empty());
     let first = h.state().state.selected.unwrap();
     for step in 0..n - 1 {
         settle(&mut h, "the shown object's curves", |a| {
@@ -259,7 +251,7 @@ fn only_a_bounded_number_of_objects_keep_their_curves() {
     h.run_steps(1);
     assert_eq!(holding(h.state()), CURVE_CACHE, "the cache is full, not more");
     // The first object's curves were dropped long ago; shown again, they come back.
-    assert!(h.state().state.fits[first].as_ref().unwrap().curves.is_empty());
+    assert!(!h.state().state.objects.has_curves(first));
     h.state_mut().apply(Action::Select(first));
     settle(&mut h, "the first object's curves again", shown_has_curves);
     assert!(holding(h.state()) <= CURVE_CACHE);

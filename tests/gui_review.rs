@@ -72,7 +72,9 @@ fn runner_up(h: &Harness<'_, ZvetApp>) -> (usize, usize) {
     let mut other: Option<(usize, usize)> = None;
     let mut any = None;
     for i in 0..s.objects.len() {
-        let Some(f) = s.fits[i].as_ref() else { continue };
+        // the whole fit (the queue keeps only the best candidate)
+        let e = s.objects.load(i).unwrap();
+        let Some(f) = e.fit.as_ref() else { continue };
         for k in 1..f.candidates.len() {
             if f.candidates[k].class != f.candidates[0].class {
                 if other.is_none_or(|(_, k0)| k < k0) {
@@ -163,7 +165,12 @@ fn the_chosen_class_drives_model_markers_closeups_and_refit() {
         .into_iter()
         .find(|c| {
             *c != best
-                && h.state().state.fits[i]
+                && h.state()
+                    .state
+                    .objects
+                    .load(i)
+                    .unwrap()
+                    .fit
                     .as_ref()
                     .unwrap()
                     .curves
@@ -446,7 +453,8 @@ fn flux_and_band_break_at_masked_runs() {
     let mut h = harness(&log);
     let i = (0..N)
         .find(|&i| {
-            let g = h.state().state.objects[i].spectrum.good();
+            let o = h.state().state.objects.load(i).unwrap();
+            let g = o.spectrum.good();
             let first = g.iter().position(|x| *x).unwrap_or(0);
             let last = g.iter().rposition(|x| *x).unwrap_or(0);
             g[first..last].iter().any(|x| !x)

@@ -18,6 +18,8 @@ mod gui_review;
 #[cfg(feature = "gui")]
 mod gui_seams;
 #[cfg(feature = "gui")]
+mod gui_store;
+#[cfg(feature = "gui")]
 mod gui_tools;
 mod io;
 mod lines;
@@ -34,3 +36,4 @@ mod stars;
 mod templates;
 mod tools;
 mod train;
+mod window_store;

@@ -145,7 +145,12 @@ fn is_short(path: &Path) -> bool {
     !gz && std::fs::metadata(path).is_ok_and(|m| m.len() % 2880 != 0)
 }
 
-fn open(path: &Path) -> Result<OpenFits, LoadError> {
+/// Open a FITS file: its layout read and checked
+/// ([`super::fits_scan::fits_layout`]) unless the caller has it already.
+fn open_checked(
+    path: &Path,
+    checked: Option<Vec<super::fits_scan::HduLayout>>,
+) -> Result<OpenFits, LoadError> {
     // The FITS library takes the name as UTF-8 text and gives `[`, `+` at the
     // end, `!` and `-` meanings of their own (cfitsio's extended file-name
     // syntax), so such names cannot be opened as they are.
@@ -162,7 +167,10 @@ fn open(path: &Path) -> Result<OpenFits, LoadError> {
     }
     // Every size the headers declare, checked against the real file before
     // the FITS library sizes anything by them.
-    let layout = super::fits_scan::fits_layout(path)?;
+    let layout = match checked {
+        Some(l) => l,
+        None => super::fits_scan::fits_layout(path)?,
+    };
     let mut f = match FitsFile::open(path) {
         Ok(f) => f,
         Err(e) => {
@@ -416,8 +424,17 @@ fn plan(fits: &OpenFits, opts: &ReadOptions) -> Result<Vec<Source>, LoadError> {
 
 /// Open `path` and return the iterator over its objects.
 pub(crate) fn open_stream(path: &Path, opts: &ReadOptions) -> Result<FitsStream, LoadError> {
+    open_stream_checked(path, opts, None)
+}
+
+/// [`open_stream`] with the file's layout already read and checked.
+pub(crate) fn open_stream_checked(
+    path: &Path,
+    opts: &ReadOptions,
+    layout: Option<Vec<super::fits_scan::HduLayout>>,
+) -> Result<FitsStream, LoadError> {
     let (fits, sources) = guard(|| {
-        let fits = open(path)?;
+        let fits = open_checked(path, layout)?;
         let sources = plan(&fits, opts)?;
         Ok((fits, sources))
     })?;
@@ -427,6 +444,70 @@ pub(crate) fn open_stream(path: &Path, opts: &ReadOptions) -> Result<FitsStream,
         sources: sources.into(),
         current: None,
     })
+}
+
+impl FitsStream {
+    /// Item `k` of the stream, read without moving the stream (random
+    /// access for a file kept open).
+    pub(crate) fn read_item(&self, mut k: usize) -> Result<Spectrum, LoadError> {
+        let (fits, opts) = (&self.fits, &self.opts);
+        for src in &self.sources {
+            let n = match src {
+                Source::VectorTable(p) => p.nrows,
+                _ => 1,
+            };
+            if k >= n {
+                k -= n;
+                continue;
+            }
+            return guard(|| {
+                let mut f = fits.file.lock().map_err(|e| LoadError::fits(e, Loc::default()))?;
+                match src {
+                    Source::Failed(e) => Err(LoadError::Malformed(e.to_string())),
+                    Source::Image(p) => fits_image::read(&mut f, fits, p, opts),
+                    Source::PixelTable(p) => fits_table::read_pixel_table(&mut f, fits, p, opts),
+                    Source::VectorTable(p) => fits_table::read_row(&mut f, fits, p, k, opts),
+                }
+            });
+        }
+        Err(LoadError::Malformed(format!(
+            "object {} is no longer in the file (the file changed since it was opened)",
+            k + 1
+        )))
+    }
+
+    /// The id of every item of the stream, in order, reading only the id
+    /// columns of multi-object tables (an HDU that cannot be read gives its
+    /// message, once per item it stands for).
+    pub(crate) fn ids(&self) -> Vec<Result<String, String>> {
+        let mut out = Vec::new();
+        let path = self.fits.path.clone();
+        for src in &self.sources {
+            match src {
+                Source::Failed(e) => out.push(Err(format!("{}: {e}", path.display()))),
+                Source::Image(p) => out.push(Ok(p.id.clone())),
+                Source::PixelTable(p) => out.push(Ok(p.base.id.clone())),
+                Source::VectorTable(p) => {
+                    let read = guard(|| {
+                        let mut f = self
+                            .fits
+                            .file
+                            .lock()
+                            .map_err(|e| LoadError::fits(e, p.loc.clone()))?;
+                        fits_table::read_ids(&mut f, &self.fits, p)
+                    });
+                    match read {
+                        Ok(ids) => out.extend(ids.into_iter().map(Ok)),
+                        Err(e) => {
+                            let m = format!("{}: {e}", path.display());
+                            out.extend((0..p.nrows).map(|_| Err(m.clone())));
+                        }
+                    }
+                }
+            }
+        }
+        out
+    }
 }
 
 /// Iterator over the objects of a FITS file (see [`super::stream_file`]).
@@ -440,6 +521,28 @@ pub(crate) struct FitsStream {
 
 impl Iterator for FitsStream {
     type Item = Result<Spectrum, LoadError>;
+
+    fn nth(&mut self, mut n: usize) -> Option<Self::Item> {
+        // skip `n` items without reading their pixels
+        loop {
+            if let Some((plan, row)) = &mut self.current {
+                let left = plan.nrows - *row;
+                if n < left {
+                    *row += n;
+                    return self.next();
+                }
+                n -= left;
+                self.current = None;
+            }
+            if n == 0 {
+                return self.next();
+            }
+            match self.sources.pop_front()? {
+                Source::VectorTable(p) => self.current = Some((p, 0)),
+                _ => n -= 1,
+            }
+        }
+    }
 
     fn next(&mut self) -> Option<Self::Item> {
         loop {
@@ -496,7 +599,7 @@ mod tests {
     #[test]
     fn names_the_library_would_misread_are_refused() {
         for name in ["spec[1].fits", "-x.fits", "!x.fits"] {
-            let e = open(Path::new(name)).err().expect("refused");
+            let e = open_checked(Path::new(name), None).err().expect("refused");
             assert!(matches!(e, LoadError::BadFileName(_)), "{name}: {e}");
         }
     }

@@ -417,6 +417,37 @@ pub(crate) fn read_pixel_table(
     raw.finish(p.loc.clone())
 }
 
+/// The id of every row of a one-object-per-row table, as [`read_row`] gives
+/// it, reading only the id column.
+pub(crate) fn read_ids(f: &mut FitsFile, fits: &OpenFits, p: &TablePlan) -> Result<Vec<String>, LoadError> {
+    let hdu = f.hdu(p.hdu).map_err(|e| fits.err(e, p.loc.clone()))?;
+    let all = 0..p.nrows;
+    let raw: Vec<Option<String>> = match &p.id_col {
+        Some((c, true)) => hdu
+            .read_col_range::<String>(f, &c.name, &all)
+            .map_err(|e| fits.err(e, p.loc.clone()))?
+            .into_iter()
+            .map(|s| Some(s.trim().to_string()))
+            .collect(),
+        Some((c, false)) => hdu
+            .read_col_range::<i64>(f, &c.name, &all)
+            .map_err(|e| fits.err(e, p.loc.clone()))?
+            .into_iter()
+            .map(|v| Some(v.to_string()))
+            .collect(),
+        None => vec![None; p.nrows],
+    };
+    Ok(raw
+        .into_iter()
+        .enumerate()
+        .map(|(row, id)| match id.filter(|s| !s.is_empty()) {
+            Some(id) => id,
+            None if p.nrows == 1 => p.base.id.clone(),
+            None => format!("{}#{row}", p.base.id),
+        })
+        .collect())
+}
+
 /// Read row `row` of a one-object-per-row table.
 pub(crate) fn read_row(
     f: &mut FitsFile,

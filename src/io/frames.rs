@@ -574,13 +574,23 @@ fn usable_name(path: &Path) -> bool {
 }
 
 fn open(path: &Path, opts: &ReadOptions) -> Result<Option<(FitsFile, Plan)>, LoadError> {
+    let layout = super::fits_scan::fits_layout(path).ok();
+    open_checked(path, opts, layout.as_deref())
+}
+
+/// [`open`] with the file's layout already read (None: it could not be).
+fn open_checked(
+    path: &Path,
+    opts: &ReadOptions,
+    layout: Option<&[super::fits_scan::HduLayout]>,
+) -> Result<Option<(FitsFile, Plan)>, LoadError> {
     if !usable_name(path) {
         return Ok(None);
     }
     // Only a file whose checked layout holds a 2-D image can be a frame; any
     // other file (or one whose declared sizes are wrong, or whose columns the
     // FITS library cannot describe) goes to the ordinary reader, which says why.
-    let Ok(layout) = super::fits_scan::fits_layout(path) else {
+    let Some(layout) = layout else {
         return Ok(None);
     };
     let image_2d = layout.iter().any(|h| {
@@ -608,7 +618,17 @@ pub fn frame_layout(path: &Path, opts: &ReadOptions) -> Result<Option<FrameLayou
 /// The target rows of a multi-object frame, one spectrum at a time; `None`
 /// when the file is not one.
 pub(crate) fn open_stream(path: &Path, opts: &ReadOptions) -> Result<Option<FrameStream>, LoadError> {
-    Ok(open(path, opts)?.map(|(f, plan)| FrameStream {
+    let layout = super::fits_scan::fits_layout(path).ok();
+    open_stream_checked(path, opts, layout.as_deref())
+}
+
+/// [`open_stream`] with the file's layout already read (None: it could not be).
+pub(crate) fn open_stream_checked(
+    path: &Path,
+    opts: &ReadOptions,
+    layout: Option<&[super::fits_scan::HduLayout]>,
+) -> Result<Option<FrameStream>, LoadError> {
+    Ok(open_checked(path, opts, layout)?.map(|(f, plan)| FrameStream {
         file: f.threadsafe(),
         path: path.to_path_buf(),
         stem: super::file_stem(path),
@@ -720,6 +740,71 @@ impl Iterator for FrameStream {
             return Some(guard(|| self.read_row(r)));
         }
         None
+    }
+
+    fn nth(&mut self, mut n: usize) -> Option<Self::Item> {
+        // skip `n` items without reading their pixels
+        while n > 0 && self.next < self.plan.layout.rows {
+            if !matches!(self.plan.uses[self.next], Ok(RowUse::Target) | Err(_)) {
+                self.next += 1;
+                continue;
+            }
+            self.next += 1;
+            n -= 1;
+        }
+        self.next()
+    }
+}
+
+impl FrameStream {
+    /// Item `k` of the stream, read without moving the stream.
+    pub(crate) fn read_item(&self, k: usize) -> Result<Spectrum, LoadError> {
+        let mut left = k;
+        for (r, u) in self.plan.uses.iter().enumerate() {
+            match u {
+                Ok(RowUse::Target) => {
+                    if left == 0 {
+                        return guard(|| self.read_row(r));
+                    }
+                }
+                Ok(_) => continue,
+                Err(m) => {
+                    if left == 0 {
+                        return Err(LoadError::BadHdu {
+                            at: self.plan.layout.table.with_row(r),
+                            reason: m.clone(),
+                        });
+                    }
+                }
+            }
+            left -= 1;
+        }
+        Err(LoadError::Malformed(format!(
+            "object {} is no longer in the file (the file changed since it was opened)",
+            k + 1
+        )))
+    }
+
+    /// The id of every item of the stream, in order, without reading pixels
+    /// (an unusable row gives its message).
+    pub(crate) fn ids(&self) -> Vec<Result<String, String>> {
+        let mut out = Vec::new();
+        for (r, u) in self.plan.uses.iter().enumerate() {
+            match u {
+                Ok(RowUse::Target) => out.push(Ok(match self.plan.ids[r].trim() {
+                    "" => format!("{}#{r}", self.stem),
+                    s => s.to_string(),
+                })),
+                Ok(_) => {}
+                Err(m) => out.push(Err(LoadError::BadHdu {
+                    at: self.plan.layout.table.with_row(r),
+                    reason: m.clone(),
+                }
+                .with_path(&self.path)
+                .to_string())),
+            }
+        }
+        out
     }
 }
 

@@ -480,6 +480,86 @@ pub fn stream_file(
     Ok(it)
 }
 
+/// One spectrum file kept open for reading its objects in any order (the
+/// review window's on-demand reads): the file's layout is read and checked
+/// once, when it is opened; item k is item k of [`stream_file`].
+pub struct ObjectFile {
+    path: PathBuf,
+    opened: Opened,
+}
+
+enum Opened {
+    Fits(Box<fits_common::FitsStream>),
+    Frame(Box<frames::FrameStream>),
+    Text(ReadOptions),
+}
+
+impl ObjectFile {
+    /// Open `path` (a FITS file's whole layout is checked here, once).
+    pub fn open(path: &Path, opts: &ReadOptions) -> Result<ObjectFile, LoadError> {
+        let wrap = |e: LoadError| e.with_path(path);
+        let opened = match detect_format(path).map_err(wrap)? {
+            Format::Fits => {
+                let layout = fits_scan::fits_layout(path);
+                match frames::open_stream_checked(path, opts, layout.as_ref().ok().map(|l| &l[..]))
+                    .map_err(wrap)?
+                {
+                    Some(frame) => Opened::Frame(Box::new(frame)),
+                    None => {
+                        let layout = layout.map_err(wrap)?;
+                        Opened::Fits(Box::new(
+                            fits_common::open_stream_checked(path, opts, Some(layout)).map_err(wrap)?,
+                        ))
+                    }
+                }
+            }
+            Format::Text => Opened::Text(opts.clone()),
+        };
+        Ok(ObjectFile {
+            path: path.to_path_buf(),
+            opened,
+        })
+    }
+
+    /// The ids of the file's objects in stream order, reading as little as
+    /// possible: the id column of a multi-object table, a frame's plan, a
+    /// text file whole. An item that cannot be read gives its message.
+    pub fn ids(&self) -> Vec<Result<String, String>> {
+        match &self.opened {
+            Opened::Fits(f) => f.ids(),
+            Opened::Frame(f) => f.ids(),
+            Opened::Text(opts) => match text::read_text(&self.path, opts) {
+                Ok(s) => vec![Ok(s.meta.id)],
+                Err(e) => vec![Err(e.with_path(&self.path).to_string())],
+            },
+        }
+    }
+
+    /// Item `k` (the items before it are not read).
+    pub fn read(&self, k: usize) -> Result<Spectrum, LoadError> {
+        let r = match &self.opened {
+            Opened::Fits(f) => f.read_item(k),
+            Opened::Frame(f) => f.read_item(k),
+            Opened::Text(opts) if k == 0 => text::read_text(&self.path, opts),
+            Opened::Text(_) => Err(LoadError::Malformed(
+                "object 2 or later of a one-spectrum text file (the file changed since it was opened)".into(),
+            )),
+        };
+        r.map_err(|e| e.with_path(&self.path))
+    }
+}
+
+/// The ids of the objects of one file, in the order [`stream_file`] gives
+/// them (see [`ObjectFile::ids`]).
+pub fn list_objects(path: &Path, opts: &ReadOptions) -> Result<Vec<Result<String, String>>, LoadError> {
+    Ok(ObjectFile::open(path, opts)?.ids())
+}
+
+/// Item `k` of [`stream_file`] of `path` (see [`ObjectFile::read`]).
+pub fn read_object(path: &Path, opts: &ReadOptions, k: usize) -> Result<Spectrum, LoadError> {
+    ObjectFile::open(path, opts)?.read(k)
+}
+
 /// File stem used as the object id when the file gives none.
 pub(crate) fn file_stem(path: &Path) -> String {
     let name = path

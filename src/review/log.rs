@@ -54,14 +54,27 @@ fn newer_version(v: u32) -> String {
     format!("written in log format version {v} (this zvet reads up to {LOG_FORMAT_VERSION})")
 }
 
-fn parse(bytes: &[u8]) -> Parsed {
+/// Read a log line by line (memory holds one line and the events, never
+/// the file's bytes).
+fn parse_lines(mut reader: impl std::io::BufRead) -> std::io::Result<Parsed> {
     let mut events = Vec::new();
     let mut problems = Vec::new();
-    let open_tail = !bytes.is_empty() && !bytes.ends_with(b"\n");
-    let n_lines = bytes.split(|&b| b == b'\n').count();
-    for (i, raw) in bytes.split(|&b| b == b'\n').enumerate() {
-        let line = i + 1;
-        let is_tail = open_tail && line == n_lines;
+    let mut open_tail = false;
+    let mut raw = Vec::new();
+    let mut line = 0usize;
+    loop {
+        raw.clear();
+        if reader.read_until(b'\n', &mut raw)? == 0 {
+            break;
+        }
+        line += 1;
+        // only the last line can lack its newline
+        let is_tail = raw.last() != Some(&b'\n');
+        open_tail = is_tail;
+        if !is_tail {
+            raw.pop();
+        }
+        let raw = &raw[..];
         if raw.iter().all(|b| b.is_ascii_whitespace()) {
             continue;
         }
@@ -91,21 +104,22 @@ fn parse(bytes: &[u8]) -> Parsed {
             }),
         }
     }
-    Parsed {
+    Ok(Parsed {
         events,
         problems,
         open_tail,
-    }
+    })
 }
 
 /// Read every event of a log without taking its lock (merge, reports).
 /// Unusable lines come back as problems; only an unreadable file is an error.
 pub fn read_log(path: &Path) -> Result<(Vec<Event>, Vec<LogProblem>), ReviewError> {
-    let bytes = std::fs::read(path).map_err(|source| ReviewError::Io {
+    let io = |source| ReviewError::Io {
         path: path.to_path_buf(),
         source,
-    })?;
-    let p = parse(&bytes);
+    };
+    let file = File::open(path).map_err(io)?;
+    let p = parse_lines(std::io::BufReader::new(file)).map_err(io)?;
     Ok((p.events, p.problems))
 }
 
@@ -177,8 +191,8 @@ impl ReviewLog {
             .create(true)
             .open(path)
             .map_err(io)?;
-        let bytes = std::fs::read(path).map_err(io)?;
-        let parsed = parse(&bytes);
+        // read line by line through the handle just opened (under the lock)
+        let parsed = parse_lines(std::io::BufReader::new(&file)).map_err(io)?;
         let state = Replay::from_events(&parsed.events);
         let next_seq = parsed.events.iter().map(|e| e.seq).max().unwrap_or(0) + 1;
         let reviewed = state.objects.values().filter(|s| s.verdict.is_complete()).count();

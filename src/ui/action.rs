@@ -116,6 +116,8 @@ pub enum Action {
     Open(OpenKind, Vec<PathBuf>),
     /// Open a file dialog for the given kind.
     Browse(OpenKind),
+    /// Give up the background fits that have not started.
+    CancelFits,
     /// Close the window (everything is already in the log).
     Quit,
     /// A request for one of the tools (adjudication, jump, overlays).

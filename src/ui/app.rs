@@ -6,6 +6,7 @@ frame's actions once every panel is drawn. `eframe::App::ui` only delegates to
 */
 use crate::campaign::SurveyObject;
 use crate::review::{Event, ReviewLog, Verdict};
+use crate::store::ObjectStore;
 use std::path::PathBuf;
 use std::sync::Arc;
 
@@ -139,9 +140,8 @@ pub struct ZvetApp {
     pub(crate) resume: Option<(PathBuf, Option<super::resume::Resume>)>,
     /// Object id to open on (from the resume file).
     pub(crate) resume_target: Option<String>,
-    /// Objects whose fits hold χ²(z) curves, least recently used first
-    /// (at most [`super::jobs::CURVE_CACHE`]).
-    pub(crate) curves_kept: std::collections::VecDeque<usize>,
+    /// Timings for the scale figures (`ZVET_WINDOW_TIMES`, see [`super::timing`]).
+    pub timing: Option<super::timing::Timing>,
 }
 
 impl ZvetApp {
@@ -156,9 +156,9 @@ impl ZvetApp {
             inspector,
             name_file,
         } = session;
-        let objects = Arc::new(objects);
-        let state = AppState::new(title, objects.clone());
-        let jobs = Jobs::start(fitter.clone(), objects, Vec::new());
+        let opened = ObjectStore::in_memory(objects);
+        let jobs = Jobs::start(fitter.clone(), opened.store.reader(), Vec::new());
+        let state = AppState::new(title, opened.store, opened.fits);
         let mut app = ZvetApp {
             state,
             log: None,
@@ -173,7 +173,7 @@ impl ZvetApp {
             prepared: None,
             resume: None,
             resume_target: None,
-            curves_kept: Default::default(),
+            timing: None,
         };
         app.restart_fits();
         match inspector {
@@ -296,6 +296,11 @@ impl ZvetApp {
         self.jobs.progress()
     }
 
+    /// True while objects are being read ahead of the inspector.
+    pub fn prefetching(&self) -> bool {
+        self.state.objects.prefetching()
+    }
+
     /// True when no background fit, χ²(z) curve or refit waits or runs
     /// (results may still wait to be taken by the next frame).
     pub fn background_idle(&self) -> bool {
@@ -304,6 +309,7 @@ impl ZvetApp {
 
     /// Draw one frame and apply what the inspector asked for.
     pub fn show(&mut self, ui: &mut egui::Ui) {
+        let frame_start = std::time::Instant::now();
         let ctx = ui.ctx().clone();
         self.jobs.set_repaint(&ctx);
         self.loads.set_repaint(&ctx);
@@ -323,7 +329,7 @@ impl ZvetApp {
         let reviewed = log.map(|l| l.reviewed_count()).unwrap_or(0);
         let top = panels::topbar::TopInfo {
             reviewed,
-            fits: self.jobs.progress(),
+            fits: self.jobs.fit_progress(),
             loading: self.loads.busy(),
             inspector: self.inspector.as_deref(),
         };
@@ -367,8 +373,13 @@ impl ZvetApp {
         super::jump::ui(&ctx, &mut self.state, &mut actions);
         let has_log = self.log.is_some();
         panels::inspector::ui(&ctx, &mut self.state, has_log, &mut actions);
+        let drew = prepared.is_some() && self.state.current().is_some();
+        let frame_work = frame_start.elapsed();
         for a in actions {
             self.apply(a);
+        }
+        if let Some(t) = &mut self.timing {
+            t.frame_end(frame_work, drew, self.state.objects.len());
         }
         self.save_resume();
         if self.state.quit_asked {
@@ -383,17 +394,19 @@ impl ZvetApp {
             let i = done.index;
             match (done.kind, done.result) {
                 (JobKind::Fit, Ok(fit)) => {
-                    self.write_back(i, &fit);
-                    // A background fit far from the shown object keeps no
-                    // curves (they come again when it is shown).
-                    let mut fit = fit;
-                    if !self.near_selection(i) {
-                        fit.curves = Vec::new();
-                    }
-                    if let Some(slot) = self.state.fits.get_mut(i) {
-                        *slot = Some(fit);
-                        any_fit = true;
-                        self.keep_curves(i);
+                    self.write_back(&done.source, &fit);
+                    // The fit goes to the store's file and (whole) to its
+                    // cache when the object is held there; the window keeps
+                    // its summary.
+                    self.state.take_full_fit(i, &fit);
+                    match self.state.objects.put_fit(i, &fit) {
+                        Ok(summary) => {
+                            if let Some(slot) = self.state.fits.get_mut(i) {
+                                *slot = Some(summary);
+                                any_fit = true;
+                            }
+                        }
+                        Err(e) => self.state.say(format!("{}: {e}", fit.object_id), true),
                     }
                     let v = self.verdict_of(i).cloned();
                     self.state.refresh_item(i, v.as_ref());
@@ -407,7 +420,7 @@ impl ZvetApp {
                         *slot = Some(e);
                     }
                 }
-                (JobKind::Curves, Ok(fit)) => self.absorb_curves(i, fit),
+                (JobKind::Curves, Ok(fit)) => self.absorb_curves(i, &fit),
                 (JobKind::Curves, Err(_)) => {}
                 (JobKind::RefitNear { .. }, result) => {
                     if self.state.selected != Some(i) {
@@ -434,6 +447,10 @@ impl ZvetApp {
         if any_fit {
             self.state.order_stale = true;
         }
+        // objects dropped from the store's cache lost their curves
+        for i in self.state.objects.take_evicted() {
+            self.jobs.forget_curves(i);
+        }
         for loaded in self.loads.poll() {
             self.apply_loaded(loaded);
         }
@@ -441,11 +458,10 @@ impl ZvetApp {
 
     /// Restart the background fits for every object that has none.
     pub(crate) fn restart_fits(&mut self) {
-        self.curves_kept.clear();
         let todo: Vec<usize> = (0..self.state.objects.len())
             .filter(|&i| self.state.fits[i].is_none())
             .collect();
-        self.jobs = Jobs::start(self.fitter.clone(), self.state.objects.clone(), todo);
+        self.jobs = Jobs::start(self.fitter.clone(), self.state.objects.reader(), todo);
     }
 
     /// Re-filter and re-sort the list from the log's verdicts.
@@ -457,7 +473,7 @@ impl ZvetApp {
 
     /// Select object `index`, asking for its fit first if it is not done.
     pub(crate) fn select(&mut self, index: usize) {
-        self.touch_curves(index);
+        let t0 = std::time::Instant::now();
         let v = self.verdict_of(index).cloned();
         self.state.select(index, v.as_ref());
         self.auto_smooth();
@@ -465,6 +481,9 @@ impl ZvetApp {
             self.jobs.prioritize(index);
         }
         self.want_curves_from(index);
+        if let Some(t) = &mut self.timing {
+            t.selected(t0.elapsed());
+        }
     }
 
     /// Compute the plot data if the object, solution or view changed.

@@ -141,13 +141,13 @@ impl ZvetApp {
             Action::Redo => self.undo_redo(false),
             Action::SetFilter(f) => {
                 self.state.filter = f;
-                self.rebuild_queue();
+                self.timed_rebuild();
             }
             Action::SetSort(k) => {
                 self.state.sort = k;
-                self.rebuild_queue();
+                self.timed_rebuild();
             }
-            Action::Resort => self.rebuild_queue(),
+            Action::Resort => self.timed_rebuild(),
             Action::Move(m) => self.state.plot_move = Some(m),
             Action::ToggleRestFrame => self.state.view.rest_frame = !self.state.view.rest_frame,
             Action::Smooth(d) => {
@@ -174,7 +174,26 @@ impl ZvetApp {
             Action::AskInspector => self.state.name_prompt = Some(self.inspector.clone().unwrap_or_default()),
             Action::Open(kind, paths) => self.loads.open(kind, paths),
             Action::Browse(kind) => self.loads.browse(kind),
+            Action::CancelFits => {
+                let n = self.jobs.cancel_fits();
+                self.state.say(
+                    format!(
+                        "background fits stopped: {n} objects left unfitted (they are fitted when shown)"
+                    ),
+                    false,
+                );
+            }
             Action::Tool(t) => self.apply_tool(t),
+        }
+    }
+
+    /// Re-filter and re-sort the queue (timed when the window is measured).
+    fn timed_rebuild(&mut self) {
+        let t0 = std::time::Instant::now();
+        self.rebuild_queue();
+        if let Some(t) = &mut self.timing {
+            let sort = format!("{:?}", self.state.sort);
+            t.queue(t0.elapsed(), &sort, self.state.order.len());
         }
     }
 
@@ -184,6 +203,11 @@ impl ZvetApp {
             self.state.say("select an object first", true);
             return;
         };
+        if let Some(e) = &self.state.load_error {
+            let e = format!("nothing recorded: {e}");
+            self.state.say(e, true);
+            return;
+        }
         let seen = self.fit_seen();
         let id = self.state.objects[index].id().to_string();
         let Some(log) = self.log.as_mut() else {

@@ -10,9 +10,10 @@ list ([`CURVE_PREFETCH`]) only, so opening a fitted campaign costs no refit.
 Automatic fits made here for a campaign are written back to its cache
 ([`WriteBack`]), in batches and off the window's thread.
 */
-use crate::campaign::{Campaign, SurveyObject};
+use crate::campaign::Campaign;
 use crate::fit::{Candidate, Engine, FitResult};
 use crate::pipeline::FitRecord;
+use crate::store::ObjectReader;
 use crate::{ObjectClass, Spectrum};
 use std::collections::{HashSet, VecDeque};
 use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
@@ -95,20 +96,24 @@ pub struct JobDone {
     pub kind: JobKind,
     /// The fit, or why it failed.
     pub result: Result<FitResult, String>,
+    /// Where the spectrum came from (`file[hdu=…,row=…]`; empty when it
+    /// could not be read).
+    pub source: String,
 }
 
 /// Half-width of the "refit near here" window (km/s). About ±0.007 in z at
 /// z = 0: wide enough for a hand-placed z, narrow enough to stay on one feature.
 pub const REFIT_HALF_WIDTH_KMS: f64 = 2000.0;
 
-/// How many objects after the shown one get their χ²(z) curves ahead of time.
-pub const CURVE_PREFETCH: usize = 3;
+/// How many objects after the shown one get their χ²(z) curves ahead of time
+/// (they are read ahead too, see [`crate::store::PREFETCH`]).
+pub const CURVE_PREFETCH: usize = crate::store::PREFETCH;
 
-/// At most this many objects keep their χ²(z) curves in memory (the most
-/// recently shown or prefetched; a curve set of the built-in templates is
-/// of the order of a megabyte). An object whose curves were dropped gets
-/// them again when it is shown.
-pub const CURVE_CACHE: usize = 16;
+/// At most this many objects keep their χ²(z) curves in memory: those held
+/// whole by the store's cache (a curve set of the built-in templates is of
+/// the order of a megabyte). An object whose curves were dropped gets them
+/// again when it is shown.
+pub const CURVE_CACHE: usize = crate::store::CACHE;
 
 /// Automatic fits written back per batch (a batch is also written when the
 /// background fits are done).
@@ -120,6 +125,8 @@ struct Shared {
     wake: Condvar,
     stop: AtomicBool,
     done: AtomicUsize,
+    /// Automatic fits given up (cancelled before they ran).
+    dropped: AtomicUsize,
     /// Jobs taken by a worker and not yet sent back.
     active: AtomicUsize,
 }
@@ -129,18 +136,33 @@ pub struct Jobs {
     shared: Arc<Shared>,
     rx: Receiver<JobDone>,
     total: usize,
+    started: std::time::Instant,
     repaint: Arc<OnceLock<egui::Context>>,
+}
+
+/// Where the automatic fits stand (for the progress display).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct FitProgress {
+    /// Fits done.
+    pub done: usize,
+    /// Fits asked for (less those cancelled).
+    pub total: usize,
+    /// Fits per second since they started.
+    pub rate: f64,
+    /// Seconds left at that rate (None before the first fit).
+    pub left_s: Option<f64>,
 }
 
 impl Jobs {
     /// Start workers fitting `todo` (object indices) in that order.
-    pub fn start(fitter: Arc<dyn Fitter>, objects: Arc<Vec<SurveyObject>>, todo: Vec<usize>) -> Jobs {
+    pub fn start(fitter: Arc<dyn Fitter>, objects: ObjectReader, todo: Vec<usize>) -> Jobs {
         let shared = Arc::new(Shared {
             queue: Mutex::new(todo.iter().map(|&i| (i, JobKind::Fit)).collect()),
             curves_asked: Mutex::new(HashSet::new()),
             wake: Condvar::new(),
             stop: AtomicBool::new(false),
             done: AtomicUsize::new(0),
+            dropped: AtomicUsize::new(0),
             active: AtomicUsize::new(0),
         });
         let (tx, rx) = channel();
@@ -172,6 +194,7 @@ impl Jobs {
             shared,
             rx,
             total: todo.len(),
+            started: std::time::Instant::now(),
             repaint,
         }
     }
@@ -228,9 +251,36 @@ impl Jobs {
         self.rx.try_iter().collect()
     }
 
-    /// (automatic fits done, automatic fits asked for).
+    /// (automatic fits done, automatic fits asked for and not cancelled).
     pub fn progress(&self) -> (usize, usize) {
-        (self.shared.done.load(Ordering::Relaxed), self.total)
+        (
+            self.shared.done.load(Ordering::Relaxed),
+            self.total - self.shared.dropped.load(Ordering::Relaxed),
+        )
+    }
+
+    /// Progress with its rate and the time left.
+    pub fn fit_progress(&self) -> FitProgress {
+        let (done, total) = self.progress();
+        let secs = self.started.elapsed().as_secs_f64().max(1e-3);
+        let rate = done as f64 / secs;
+        FitProgress {
+            done,
+            total,
+            rate,
+            left_s: (done > 0 && rate > 0.0).then(|| total.saturating_sub(done) as f64 / rate),
+        }
+    }
+
+    /// Give up the automatic fits that have not started (those running
+    /// finish); curves and refits asked for stay. Returns how many were dropped.
+    pub fn cancel_fits(&self) -> usize {
+        let mut q = lock(&self.shared.queue);
+        let before = q.len();
+        q.retain(|(_, k)| !matches!(k, JobKind::Fit));
+        let n = before - q.len();
+        self.shared.dropped.fetch_add(n, Ordering::Relaxed);
+        n
     }
 
     /// True while automatic fits are outstanding.
@@ -263,7 +313,7 @@ fn worker(
     shared: &Shared,
     tx: &Sender<JobDone>,
     fitter: &dyn Fitter,
-    objects: &[SurveyObject],
+    objects: &ObjectReader,
     repaint: &OnceLock<egui::Context>,
 ) {
     loop {
@@ -283,22 +333,38 @@ fn worker(
             }
         };
         let (index, kind) = job;
-        let Some(obj) = objects.get(index) else {
+        if index >= objects.len() {
             shared.active.fetch_sub(1, Ordering::SeqCst);
             continue;
+        }
+        // the spectrum: the curves of an object about to be shown go
+        // through the store's cache (they are read ahead), other work reads
+        // it on its own
+        let spectrum = match kind {
+            JobKind::Curves => objects.load(index).map(|e| e.spectrum.clone()),
+            _ => objects.spectrum(index),
         };
+        let source = spectrum
+            .as_ref()
+            .map(crate::pipeline::source_of)
+            .unwrap_or_default();
         // A panic inside the engine must not take the window down: report it.
-        let result = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| match kind {
-            JobKind::Fit | JobKind::Curves => fitter.fit(&obj.spectrum),
-            JobKind::RefitNear { z, class } => {
-                fitter.refit_near(&obj.spectrum, z, class, REFIT_HALF_WIDTH_KMS)
-            }
-        }))
-        .unwrap_or_else(|_| Err("the fit stopped with an internal error".to_string()));
+        let result = spectrum.and_then(|s| {
+            std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| match kind {
+                JobKind::Fit | JobKind::Curves => fitter.fit(&s),
+                JobKind::RefitNear { z, class } => fitter.refit_near(&s, z, class, REFIT_HALF_WIDTH_KMS),
+            }))
+            .unwrap_or_else(|_| Err("the fit stopped with an internal error".to_string()))
+        });
         if matches!(kind, JobKind::Fit) {
             shared.done.fetch_add(1, Ordering::Relaxed);
         }
-        let sent = tx.send(JobDone { index, kind, result });
+        let sent = tx.send(JobDone {
+            index,
+            kind,
+            result,
+            source,
+        });
         shared.active.fetch_sub(1, Ordering::SeqCst);
         if sent.is_err() {
             return;
@@ -334,12 +400,11 @@ impl WriteBack {
         self.pending.clear();
     }
 
-    /// Keep `fit` of `spectrum` for the next write.
-    pub fn add(&mut self, spectrum: &Spectrum, fit: &FitResult) {
+    /// Keep `fit` of the spectrum read from `source` for the next write.
+    pub fn add(&mut self, source: &str, fit: &FitResult) {
         if self.campaign.is_some() {
-            let source = crate::pipeline::source_of(spectrum);
             self.pending
-                .push(FitRecord::fitted(fit.clone(), &source, &self.method));
+                .push(FitRecord::fitted(fit.clone(), source, &self.method));
         }
     }
 
@@ -427,28 +492,27 @@ mod tests {
         }
     }
 
-    fn objects(values: &[f64]) -> Arc<Vec<SurveyObject>> {
-        Arc::new(
-            values
-                .iter()
-                .enumerate()
-                .map(|(i, &v)| SurveyObject {
-                    spectrum: Spectrum::new(
-                        vec![1.0, 2.0],
-                        vec![v, v],
-                        None,
-                        None,
-                        crate::spectrum::SpectrumMeta {
-                            id: format!("o{i}"),
-                            ..Default::default()
-                        },
-                    )
-                    .unwrap(),
-                    catalog: None,
-                    fit: None,
-                })
-                .collect(),
-        )
+    fn objects(values: &[f64]) -> ObjectReader {
+        let objects: Vec<crate::campaign::SurveyObject> = values
+            .iter()
+            .enumerate()
+            .map(|(i, &v)| crate::campaign::SurveyObject {
+                spectrum: Spectrum::new(
+                    vec![1.0, 2.0],
+                    vec![v, v],
+                    None,
+                    None,
+                    crate::spectrum::SpectrumMeta {
+                        id: format!("o{i}"),
+                        ..Default::default()
+                    },
+                )
+                .unwrap(),
+                catalog: None,
+                fit: None,
+            })
+            .collect();
+        crate::store::ObjectStore::in_memory(objects).store.reader()
     }
 
     fn collect(jobs: &Jobs, want: usize) -> Vec<JobDone> {

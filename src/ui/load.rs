@@ -4,7 +4,6 @@ on their own threads and hand back a [`Loaded`] over a channel. Paths arrive
 from a dialog (rfd; on desktops without a portal it may give nothing, so a
 path can also be typed), from drag and drop, or from the command line.
 */
-use crate::campaign::SurveyObject;
 use crate::catalog::CatalogRow;
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicUsize, Ordering};
@@ -23,8 +22,8 @@ pub enum Loaded {
     Spectra {
         /// Name for the title bar.
         title: String,
-        /// The objects.
-        objects: Vec<SurveyObject>,
+        /// The objects, listed (read when shown).
+        objects: Box<crate::store::Opened>,
         /// Files or rows that could not be read.
         problems: Vec<String>,
     },
@@ -46,8 +45,8 @@ pub enum Loaded {
     Campaign {
         /// Name for the title bar.
         title: String,
-        /// The objects (with cached fits where the campaign has them).
-        objects: Vec<SurveyObject>,
+        /// The objects, listed, with the summaries of their cached fits.
+        objects: Box<crate::store::Opened>,
         /// The campaign folder (its review logs are opened through it).
         dir: PathBuf,
         /// Inspectors the campaign knows (registered, or with a log).

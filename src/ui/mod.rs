@@ -25,6 +25,7 @@ mod readers;
 pub mod resume;
 pub mod settings;
 pub mod state;
+pub mod timing;
 pub mod tools;
 pub mod view;
 
@@ -76,6 +77,7 @@ pub fn demo_session(opts: &LaunchOptions) -> anyhow::Result<Session> {
 
 /// Open the GUI.
 pub fn run(opts: LaunchOptions) -> anyhow::Result<ExitCode> {
+    let started = std::time::Instant::now();
     let mut session = demo_session(&opts)?;
     let wants_files = opts.campaign.is_some() || !opts.spectra.is_empty();
     if wants_files {
@@ -97,6 +99,7 @@ pub fn run(opts: LaunchOptions) -> anyhow::Result<ExitCode> {
         native,
         Box::new(move |_cc| {
             let mut app = ZvetApp::new(session);
+            app.timing = timing::Timing::from_env(started);
             if let Some(c) = opts.campaign {
                 app.apply(action::Action::Open(action::OpenKind::Campaign, vec![c]));
             } else if !opts.spectra.is_empty() {

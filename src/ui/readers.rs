@@ -4,10 +4,10 @@ window (on the UI thread): spectra files, a catalogue joined by id, a template
 set that replaces the engine, a campaign folder with its review logs.
 */
 use super::jobs::Fitter;
-use crate::campaign::SurveyObject;
 use crate::fit::{Engine, FitConfig};
 use crate::io::ReadOptions;
 use crate::pipeline;
+use crate::store::{ObjectStore, Opened};
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
@@ -35,17 +35,10 @@ pub fn read_spectra(paths: &[PathBuf]) -> Loaded {
     let n_files = files.len();
     let mut problems = found.problems;
     problems.extend(found.notes);
-    let (spectra, read_problems) = pipeline::read_all(files, &opts);
-    problems.extend(read_problems);
-    let objects: Vec<SurveyObject> = spectra
-        .into_iter()
-        .map(|spectrum| SurveyObject {
-            spectrum,
-            catalog: None,
-            fit: None,
-        })
-        .collect();
-    if objects.is_empty() {
+    // listed now (ids only), read when shown
+    let opened = ObjectStore::open_files(files, &opts);
+    problems.extend(opened.problems.iter().cloned());
+    if opened.store.is_empty() {
         return Loaded::Failed(format!(
             "no spectrum could be read: {}",
             problems.first().cloned().unwrap_or_default()
@@ -57,7 +50,7 @@ pub fn read_spectra(paths: &[PathBuf]) -> Loaded {
     };
     Loaded::Spectra {
         title,
-        objects,
+        objects: Box::new(opened),
         problems,
     }
 }
@@ -88,19 +81,23 @@ pub fn read_templates(path: &Path) -> Loaded {
     }
 }
 
-/// Read a campaign folder through the library (`Campaign::load_objects`: its
-/// spectra with the manifest's reader options, its catalogue joined by id,
-/// its cached fits) and build the engine the manifest names, so that objects
-/// without a cached fit are fitted with the campaign's own templates and
-/// settings. Cached fits are used as they are; their χ²(z) curves are
-/// computed when an object is shown (see [`super::jobs`]).
+/// Open a campaign folder for the window ([`ObjectStore::open_campaign`]:
+/// its inputs listed by id with the manifest's reader options, its
+/// catalogue joined by id, its fit cache indexed — spectra and whole fits
+/// are read when an object is shown) and build the engine the manifest
+/// names, so that objects without a cached fit are fitted with the
+/// campaign's own templates and settings. Cached fits are used as they are;
+/// their χ²(z) curves are computed when an object is shown (see [`super::jobs`]).
 pub fn read_campaign(path: &Path) -> Loaded {
     let campaign = match crate::campaign::Campaign::open(path) {
         Ok(c) => c,
         Err(e) => return Loaded::Failed(format!("{}: {e}", path.display())),
     };
-    let (objects, mut problems) = match campaign.load_objects() {
-        Ok(loaded) => loaded,
+    let (objects, mut problems) = match ObjectStore::open_campaign(&campaign) {
+        Ok(mut opened) => {
+            let problems = std::mem::take(&mut opened.problems);
+            (Box::new(opened), problems)
+        }
         Err(e) => return Loaded::Failed(format!("{}: {e}", path.display())),
     };
     let fitter: Option<Arc<dyn Fitter>> = match campaign.engine() {
@@ -188,7 +185,7 @@ impl ZvetApp {
                 let place = settings::loose_log_folder()
                     .map(LogPlace::Folder)
                     .unwrap_or_else(|| LogPlace::Folder(std::env::temp_dir().join("zvet-reviews")));
-                self.replace_objects(title, objects, place);
+                self.replace_objects(title, *objects, place);
             }
             Loaded::Campaign {
                 title,
@@ -205,7 +202,7 @@ impl ZvetApp {
                 if let Some(fitter) = fitter {
                     self.fitter = fitter;
                 }
-                self.replace_objects(title, objects, LogPlace::Campaign(dir));
+                self.replace_objects(title, *objects, LogPlace::Campaign(dir));
                 self.state.known_inspectors = inspectors;
                 if let Some(a) = audit {
                     self.state.say(
@@ -220,13 +217,14 @@ impl ZvetApp {
                 }
             }
             Loaded::Catalog { path, rows } => {
-                let ids: Vec<String> = self.state.objects.iter().map(|o| o.id().to_string()).collect();
-                let join = crate::catalog::join(&ids, &rows);
-                let mut objects: Vec<SurveyObject> = self.state.objects.as_ref().clone();
+                let join = crate::store::join_catalog(&self.state.objects, &rows);
                 for &(si, ri) in &join.matched {
-                    if let (Some(o), Some(r)) = (objects.get_mut(si), rows.get(ri)) {
-                        o.catalog = Some(r.clone());
+                    if let Some(r) = rows.get(ri) {
+                        self.state.objects.set_catalog(si, Some(r.clone()));
                     }
+                }
+                if let Some((i, o)) = &mut self.state.shown_object {
+                    o.catalog = self.state.objects.get(*i).and_then(|s| s.catalog.clone());
                 }
                 self.state.say(
                     format!(
@@ -238,7 +236,6 @@ impl ZvetApp {
                     ),
                     false,
                 );
-                self.state.objects = Arc::new(objects);
                 self.rebuild_queue();
             }
             Loaded::Templates { name, fitter } => {
@@ -247,6 +244,10 @@ impl ZvetApp {
                 self.fitter = fitter;
                 for f in &mut self.state.fits {
                     *f = None;
+                }
+                self.state.objects.clear_fits();
+                if let Some((_, o)) = &mut self.state.shown_object {
+                    o.fit = None;
                 }
                 for e in &mut self.state.fit_errors {
                     *e = None;
@@ -273,10 +274,10 @@ impl ZvetApp {
 
     /// Replace everything on screen by `objects`; the same inspector goes on
     /// in the log at `place`.
-    pub(crate) fn replace_objects(&mut self, title: String, objects: Vec<SurveyObject>, place: LogPlace) {
+    pub(crate) fn replace_objects(&mut self, title: String, objects: Opened, place: LogPlace) {
         let view = self.state.view.clone();
         let messages = std::mem::take(&mut self.state.messages);
-        self.state = AppState::new(title, Arc::new(objects));
+        self.state = AppState::new(title, objects.store, objects.fits);
         self.state.view = view;
         self.state.messages = messages;
         self.log_place = place;
@@ -298,94 +299,44 @@ impl ZvetApp {
 /// χ²(z) curves on demand and fits written back (see [`super::jobs`]).
 impl ZvetApp {
     /// Ask for the χ²(z) curves of object `index` and of the next few in the
-    /// list, where their fit came without them.
+    /// list, where their fit came without them, and read the next few ahead.
     pub(crate) fn want_curves_from(&mut self, index: usize) {
-        let lacks = |i: usize| {
-            self.state
-                .fits
-                .get(i)
-                .is_some_and(|f| f.as_ref().is_some_and(|f| f.curves.is_empty()))
-        };
-        let shown = lacks(index).then_some(index);
         let next: Vec<usize> = match self.state.order.iter().position(|&i| i == index) {
             Some(pos) => self.state.order[pos + 1..]
                 .iter()
                 .copied()
-                .filter(|&i| lacks(i))
                 .take(super::jobs::CURVE_PREFETCH)
                 .collect(),
             None => Vec::new(),
         };
+        self.state.objects.prefetch(&next);
+        let fitted = |i: usize| self.state.fits.get(i).is_some_and(|f| f.is_some());
+        let shown = self
+            .state
+            .current_fit()
+            .is_some_and(|f| f.curves.is_empty())
+            .then_some(index);
+        let next: Vec<usize> = next
+            .into_iter()
+            .filter(|&i| fitted(i) && !self.state.objects.has_curves(i))
+            .collect();
         self.jobs.want_curves(shown, &next);
     }
 
-    /// Put the curves of a whole fit onto the cached fit of `index`.
-    pub(crate) fn absorb_curves(&mut self, index: usize, fit: crate::fit::FitResult) {
-        if let Some(Some(cached)) = self.state.fits.get_mut(index) {
-            if cached.curves.is_empty() {
-                cached.curves = fit.curves;
-            }
-        }
-        self.keep_curves(index);
-    }
-
-    /// The fit of `index` now holds curves: count it as the most recently
-    /// used, and drop the curves of the least recently used beyond
-    /// [`super::jobs::CURVE_CACHE`] (never the shown object's).
-    pub(crate) fn keep_curves(&mut self, index: usize) {
-        let holds = |s: &super::state::AppState, i: usize| {
-            s.fits
-                .get(i)
-                .is_some_and(|f| f.as_ref().is_some_and(|f| !f.curves.is_empty()))
-        };
-        if !holds(&self.state, index) {
-            return;
-        }
-        self.curves_kept.retain(|&i| i != index);
-        self.curves_kept.push_back(index);
-        while self.curves_kept.len() > super::jobs::CURVE_CACHE {
-            let Some(pos) = self
-                .curves_kept
-                .iter()
-                .position(|&i| Some(i) != self.state.selected)
-            else {
-                break;
-            };
-            let Some(old) = self.curves_kept.remove(pos) else {
-                break;
-            };
-            if let Some(Some(f)) = self.state.fits.get_mut(old) {
-                f.curves = Vec::new();
-            }
-            self.jobs.forget_curves(old);
-        }
-    }
-
-    /// True for the shown object and the next few of the list (those whose
-    /// curves are prefetched).
-    pub(crate) fn near_selection(&self, index: usize) -> bool {
-        let Some(pos) = self.state.position() else {
-            return self.state.selected == Some(index);
-        };
-        self.state.order[pos..]
-            .iter()
-            .take(1 + super::jobs::CURVE_PREFETCH)
-            .any(|&i| i == index)
-    }
-
-    /// Object `index` is being shown: its curves are the most recently used.
-    pub(crate) fn touch_curves(&mut self, index: usize) {
-        if let Some(pos) = self.curves_kept.iter().position(|&i| i == index) {
-            self.curves_kept.remove(pos);
-            self.curves_kept.push_back(index);
+    /// Put the curves of a whole fit onto the cached fit of `index` (and
+    /// the shown object's); curves of an object no longer held are let go,
+    /// to be asked for again when it is shown.
+    pub(crate) fn absorb_curves(&mut self, index: usize, fit: &crate::fit::FitResult) {
+        self.state.take_curves(index, fit);
+        let held = self.state.objects.set_curves(index, fit);
+        if !held && self.state.selected != Some(index) {
+            self.jobs.forget_curves(index);
         }
     }
 
     /// An automatic fit made here: keep it for the campaign's cache.
-    pub(crate) fn write_back(&mut self, index: usize, fit: &crate::fit::FitResult) {
-        if let Some(o) = self.state.objects.get(index) {
-            self.write_back.add(&o.spectrum, fit);
-        }
+    pub(crate) fn write_back(&mut self, source: &str, fit: &crate::fit::FitResult) {
+        self.write_back.add(source, fit);
         let all = !self.jobs.busy();
         self.write_back.flush(all);
         for e in self.write_back.take_errors() {

@@ -9,9 +9,9 @@ use crate::campaign::SurveyObject;
 use crate::fit::{Candidate, FitResult};
 use crate::queue::{self, Filter, QueueItem, SortKey};
 use crate::review::{Change, Verdict, ZSource};
+use crate::store::ObjectStore;
 use crate::ObjectClass;
 use std::collections::{BTreeMap, HashMap};
-use std::sync::Arc;
 
 /// The solution currently drawn over the spectrum (before or after it is accepted).
 #[derive(Debug, Clone, PartialEq)]
@@ -220,10 +220,18 @@ pub enum FocusRequest {
 pub struct AppState {
     /// Name of what is open (survey, campaign or folder).
     pub title: String,
-    /// The objects (spectrum, catalogue row, fit loaded with them).
-    pub objects: Arc<Vec<SurveyObject>>,
-    /// Automatic fits, by object index (filled by the background jobs).
+    /// The objects: a summary of each in memory (id, catalogue row, S/N),
+    /// spectra and full fits read when shown ([`crate::store`]).
+    pub objects: ObjectStore,
+    /// Summaries of the automatic fits (best candidate, Δχ², S/N, warnings;
+    /// [`crate::campaign::fitcache::summary`]), by object index (filled by
+    /// the background jobs). The selected object's full fit is in `shown_object`.
     pub fits: Vec<Option<FitResult>>,
+    /// The selected object read whole (spectrum, catalogue row, full fit
+    /// with its χ²(z) curves once computed), with its index.
+    pub shown_object: Option<(usize, SurveyObject)>,
+    /// Why the selected object could not be read (shown in the window).
+    pub load_error: Option<String>,
     /// Fit failures, by object index.
     pub fit_errors: Vec<Option<String>>,
     /// Queue summaries, by object index.
@@ -322,14 +330,17 @@ impl AuditQueue {
 }
 
 impl AppState {
-    /// A state for `objects`, nothing selected yet.
-    pub fn new(title: String, objects: Arc<Vec<SurveyObject>>) -> Self {
-        let fits: Vec<Option<FitResult>> = objects.iter().map(|o| o.fit.clone()).collect();
+    /// A state for `objects` with their fit summaries, nothing selected yet.
+    pub fn new(title: String, objects: ObjectStore, fits: Vec<Option<FitResult>>) -> Self {
         let n = objects.len();
+        let mut fits = fits;
+        fits.resize(n, None);
         AppState {
             title,
             objects,
             fits,
+            shown_object: None,
+            load_error: None,
             fit_errors: vec![None; n],
             items: Vec::new(),
             order: Vec::new(),
@@ -367,7 +378,15 @@ impl AppState {
             .objects
             .iter()
             .zip(&self.fits)
-            .map(|(o, f)| QueueItem::new(o, f.as_ref(), verdict(o.id()).as_ref()))
+            .map(|(o, f)| {
+                QueueItem::from_parts(
+                    &o.id,
+                    o.catalog.as_ref(),
+                    o.snr,
+                    f.as_ref(),
+                    verdict(&o.id).as_ref(),
+                )
+            })
             .collect();
         if let Some(a) = &self.audit {
             queue::apply_audit(&mut self.items, &a.order, |id| a.width.get(id).copied());
@@ -382,7 +401,7 @@ impl AppState {
     pub fn refresh_item(&mut self, index: usize, verdict: Option<&Verdict>) {
         if let Some(o) = self.objects.get(index) {
             let fit = self.fits.get(index).and_then(|f| f.as_ref());
-            let mut item = QueueItem::new(o, fit, verdict);
+            let mut item = QueueItem::from_parts(&o.id, o.catalog.as_ref(), o.snr, fit, verdict);
             if let Some(a) = &self.audit {
                 queue::apply_audit(std::slice::from_mut(&mut item), &a.order, |id| {
                     a.width.get(id).copied()
@@ -392,16 +411,66 @@ impl AppState {
         }
     }
 
-    /// The selected object.
+    /// The selected object, read whole (None while nothing is selected or
+    /// when it could not be read: see `load_error`).
     pub fn current(&self) -> Option<&SurveyObject> {
-        self.selected.and_then(|i| self.objects.get(i))
+        match &self.shown_object {
+            Some((i, o)) if Some(*i) == self.selected => Some(o),
+            _ => None,
+        }
     }
 
-    /// The selected object's automatic fit.
+    /// The selected object's automatic fit (whole).
     pub fn current_fit(&self) -> Option<&FitResult> {
-        self.selected
-            .and_then(|i| self.fits.get(i))
-            .and_then(|f| f.as_ref())
+        self.current().and_then(|o| o.fit.as_ref())
+    }
+
+    /// Read object `index` whole into `shown_object` (through the store's
+    /// cache); a failure is said in the message strip and kept in `load_error`.
+    pub fn load_shown(&mut self, index: usize) {
+        match self.objects.object(index) {
+            Ok((o, problem)) => {
+                self.shown_object = Some((index, o));
+                self.load_error = None;
+                if let Some(p) = problem {
+                    self.say(p, true);
+                }
+            }
+            Err(e) => {
+                self.shown_object = None;
+                self.say(e.clone(), true);
+                self.load_error = Some(e);
+            }
+        }
+    }
+
+    /// A whole fit of object `index` arrived: the shown object takes it
+    /// (keeping curves it already has when the new one has none).
+    pub fn take_full_fit(&mut self, index: usize, fit: &FitResult) {
+        if let Some((i, o)) = &mut self.shown_object {
+            if *i == index {
+                let curves = o.fit.take().map(|f| f.curves).unwrap_or_default();
+                let mut f = fit.clone();
+                if f.curves.is_empty() {
+                    f.curves = curves;
+                }
+                o.fit = Some(f);
+            }
+        }
+    }
+
+    /// χ²(z) curves of object `index` arrived: the shown object's fit takes
+    /// them when it has none.
+    pub fn take_curves(&mut self, index: usize, fit: &FitResult) {
+        if let Some((i, o)) = &mut self.shown_object {
+            if *i == index {
+                if let Some(f) = &mut o.fit {
+                    if f.curves.is_empty() {
+                        f.curves = fit.curves.clone();
+                    }
+                }
+            }
+        }
     }
 
     /// The fit whose candidates are listed: the refit if there is one, else the automatic fit.
@@ -423,6 +492,7 @@ impl AppState {
         }
         self.selected = Some(index);
         self.selection_serial += 1;
+        self.load_shown(index);
         self.refit = None;
         self.refit_running = false;
         self.flag_chord = false;

@@ -51,6 +51,14 @@ pub fn ui(
     ui.horizontal(|ui| super::overlay::controls(ui, state, out));
     super::overlay::notes(ui, state);
     let Some(p) = prepared else {
+        if let (Some(e), Some(i)) = (&state.load_error, state.selected) {
+            let id = state.objects.id(i).unwrap_or("");
+            ui.colored_label(
+                ui.visuals().error_fg_color,
+                format!("{id} could not be read, so it cannot be shown: {e}"),
+            );
+            ui.label("Nothing is lost: its review log and the other objects are untouched; step on with N or pick another object.");
+        }
         ui.allocate_space(egui::vec2(ui.available_width(), height));
         return;
     };

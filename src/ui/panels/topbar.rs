@@ -11,8 +11,8 @@ use crate::ui::state::AppState;
 pub struct TopInfo<'a> {
     /// Objects with a class verdict.
     pub reviewed: usize,
-    /// (automatic fits done, asked for).
-    pub fits: (usize, usize),
+    /// Automatic fits: done, asked for, rate, time left.
+    pub fits: crate::ui::jobs::FitProgress,
     /// A dialog or file read is running.
     pub loading: bool,
     /// Inspector name, once known.
@@ -33,10 +33,17 @@ pub fn ui(ui: &mut egui::Ui, state: &mut AppState, info: &TopInfo<'_>, out: &mut
             };
             ui.label(RichText::new(format!("reviewed {} / {}", info.reviewed, total)).strong());
             ui.add(ProgressBar::new(frac).desired_width(110.0));
-            let (done, asked) = info.fits;
-            if done < asked {
+            let p = info.fits;
+            if p.done < p.total {
                 ui.spinner();
-                ui.label(format!("fitting {done} / {asked}"));
+                ui.label(fit_progress_text(&p));
+                if ui
+                    .button("stop fits")
+                    .on_hover_text("give up the background fits not started (an object without a fit is fitted when shown)")
+                    .clicked()
+                {
+                    out.push(Action::CancelFits);
+                }
             }
             if info.loading {
                 ui.spinner();
@@ -81,4 +88,24 @@ pub fn ui(ui: &mut egui::Ui, state: &mut AppState, info: &TopInfo<'_>, out: &mut
             }
         });
     });
+}
+
+/// "fitting 120 / 5000 · 31.5/s · 2 min 35 s left".
+pub fn fit_progress_text(p: &crate::ui::jobs::FitProgress) -> String {
+    let mut t = format!("fitting {} / {}", p.done, p.total);
+    if p.done > 0 {
+        t.push_str(&format!(" · {:.1}/s", p.rate));
+    }
+    if let Some(s) = p.left_s.filter(|s| s.is_finite()) {
+        let s = s.round() as u64;
+        let left = if s >= 3600 {
+            format!("{} h {:02} min", s / 3600, (s % 3600) / 60)
+        } else if s >= 60 {
+            format!("{} min {:02} s", s / 60, s % 60)
+        } else {
+            format!("{s} s")
+        };
+        t.push_str(&format!(" · {left} left"));
+    }
+    t
 }

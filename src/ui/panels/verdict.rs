@@ -40,7 +40,13 @@ pub fn ui(
     out: &mut Vec<Action>,
 ) {
     let Some(obj) = state.current() else {
-        ui.label("Nothing selected.");
+        match (&state.load_error, state.selected) {
+            (Some(_), Some(i)) => ui.label(format!(
+                "{} could not be read (see the spectrum panel).",
+                state.objects.id(i).unwrap_or("")
+            )),
+            _ => ui.label("Nothing selected."),
+        };
         return;
     };
     ui.heading(format!("Verdict on {}", obj.id()));
