@@ -704,7 +704,6 @@ fn real_star_mocks(per: usize, seed: u64) -> (MockCounts, MockCounts) {
 }
 
 #[test]
-#[ignore = "known failure on the merged engine: 7 confident-wrong of 90 (the sdO standard as a quasar at S/N 5 and 10, early-M dwarfs at S/N 3): cargo test --test integration stars::mock_observations -- --ignored --nocapture"]
 fn mock_observations_of_real_stars_are_stars_or_flagged() {
     // 2 mock observations per real star and S/N (the README's table is
     // `real_star_recovery`, the same loop with more draws)
