@@ -165,7 +165,12 @@ fn visit(n: usize) -> (usize, usize, usize) {
         for (j, v) in e.spectrum.flux().iter().enumerate() {
             // written as single precision: equal once widened
             let want = flux_of(k, j) as f32 as f64;
-            assert_eq!(v.to_bits(), want.to_bits(), "{} pixel {j}: {v} vs {want}", id_of(k));
+            assert_eq!(
+                v.to_bits(),
+                want.to_bits(),
+                "{} pixel {j}: {v} vs {want}",
+                id_of(k)
+            );
         }
         // and its fit is the whole record, every candidate with its coefficients
         assert_eq!(e.fit.as_ref().unwrap(), &fit_of(k));
