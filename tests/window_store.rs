@@ -151,8 +151,8 @@ fn visit(n: usize) -> (usize, usize, usize) {
         let f = opened.fits[k].as_ref().expect("a cached fit");
         assert_eq!(f.candidates.len(), 1, "only the best candidate is kept in memory");
         assert!(f.candidates[0].coeffs.is_empty());
-        assert_eq!(f.best().unwrap().z, z_of(k));
-        assert_eq!(store[k].snr, 2.0 + (k % 7) as f64);
+        assert_eq!(f.best().unwrap().z.to_bits(), z_of(k).to_bits());
+        assert_eq!(store[k].snr.to_bits(), (2.0 + (k % 7) as f64).to_bits());
         assert!(store[k].catalog.is_some());
     }
     let mut most_bytes = 0;
@@ -164,7 +164,13 @@ fn visit(n: usize) -> (usize, usize, usize) {
         assert_eq!(e.spectrum.len(), PIX);
         for (j, v) in e.spectrum.flux().iter().enumerate() {
             // written as single precision: equal once widened
-            assert_eq!(*v, flux_of(k, j) as f32 as f64, "{} pixel {j}", id_of(k));
+            let want = flux_of(k, j) as f32 as f64;
+            assert_eq!(
+                v.to_bits(),
+                want.to_bits(),
+                "{} pixel {j}: {v} vs {want}",
+                id_of(k)
+            );
         }
         // and its fit is the whole record, every candidate with its coefficients
         assert_eq!(e.fit.as_ref().unwrap(), &fit_of(k));
