@@ -37,7 +37,7 @@ pub const CLASS_CLOSE_DCHI2: f64 = 25.0;
 
 /// Median S/N per pixel below which the continuum is taken to carry no
 /// redshift of its own, so that the emission lines alone decide it (our
-/// choice, calibrated on the demo and the recovery runs: README, "Warnings").
+/// choice, set on the demo; the default recovery run passes with it: README, "Warnings").
 pub const FAINT_CONTINUUM_SNR: f64 = 2.0;
 /// S/N at which an emission line counts as evidence for the redshift (a 5σ
 /// detection, common practice).
