@@ -34,6 +34,7 @@ use crate::Spectrum;
 use std::collections::{HashMap, VecDeque};
 use std::fs::File;
 use std::io::{BufRead, Read, Seek, SeekFrom, Write};
+use std::time::Instant;
 use std::path::PathBuf;
 use std::sync::atomic::{AtomicUsize, Ordering};
 use std::sync::{Arc, Mutex};
@@ -448,9 +449,12 @@ impl ObjectStore {
     /// catalogue joined by id, its fit cache indexed (each line's byte range
     /// and fit summary; the records are read again when their object is shown).
     pub fn open_campaign(c: &Campaign) -> Result<Opened, CampaignError> {
+        let t = Instant::now();
         let (files, mut problems) = c.input_files();
         let opts = c.read_options();
         let (mut summaries, spectra, files, list_problems) = list(files, &opts);
+        open_phase("inputs listed", t);
+        let t = Instant::now();
         problems.extend(list_problems);
         let (mut catalog, cat_problems) = c.load_catalog()?;
         problems.extend(cat_problems);
@@ -462,6 +466,8 @@ impl ObjectStore {
         for s in &mut summaries {
             s.catalog = catalog.remove(&s.id);
         }
+        open_phase("catalogue joined", t);
+        let t = Instant::now();
         let n = summaries.len();
         let mut fits = vec![FitAt::None; n];
         let mut sums: Vec<Option<FitResult>> = vec![None; n];
@@ -493,6 +499,7 @@ impl ObjectStore {
             .map_err(io)?;
             problems.extend(lines.into_iter().map(|p| format!("{FITS_FILE} {p}")));
         }
+        open_phase("fit cache indexed", t);
         for (s, f) in summaries.iter_mut().zip(&sums) {
             if let Some(f) = f {
                 s.snr = f.snr_median;
@@ -715,6 +722,18 @@ impl ObjectStore {
         let c = lock(&self.inner.cache);
         let bytes = c.map.values().map(|e| e.bytes()).sum();
         (c.map.len(), bytes, self.inner.reads.load(Ordering::Relaxed))
+    }
+}
+
+/// Append `open_ms MS PHASE` to the timings file, if timings are on (`open_ms MS PHASE`, see the window's
+/// timings, `ui::timing`); called from the thread that opens a campaign.
+pub fn open_phase(phase: &str, since: Instant) {
+    let Some(path) = std::env::var_os("ZVET_WINDOW_TIMES") else {
+        return;
+    };
+    if let Ok(mut f) = std::fs::OpenOptions::new().create(true).append(true).open(path) {
+        // a measurement that cannot be written is lost, nothing else
+        let _ = writeln!(f, "open_ms {:.1} {phase}", since.elapsed().as_secs_f64() * 1e3);
     }
 }
 

@@ -20,7 +20,19 @@ numbers (`C`, `M`) are flagged so that the readers can refuse them with a
 plain message.
 
 Memory: the scan reads the file block by block (one 2880-byte block at a
-time). A gzip-compressed file is inflated as a stream while it is scanned and
+time).
+
+Speed: a plain (not compressed) file is not read through its large data
+units: the scan moves to the end the header declares and looks at what lies
+there. When that is the end of the file or the header of an extension, the
+sizes are consistent and the data unit is passed over unread (a 72 MB
+multi-object table is then checked in microseconds, not by reading 72 MB);
+anything else there sends the scan back through the data unit block by block,
+which finds the header it runs over or the bytes that follow the last HDU,
+as for a stream. What this cannot see is a size card wrong by exactly the
+size of whole HDUs that follow (ending again on a header or the end of the
+file): the file then reads as fewer HDUs with the last one longer, all of it
+bytes the file holds. A gzip-compressed file is inflated as a stream while it is scanned and
 refused when it inflates to more than [`MAX_INFLATED`] bytes, since the FITS
 library then holds the whole inflated file in memory.
 */
@@ -110,15 +122,76 @@ pub fn fits_layout(path: &Path) -> Result<Vec<HduLayout>, LoadError> {
     std::io::Seek::seek(&mut f, std::io::SeekFrom::Start(0))?;
     if gz {
         let rd = flate2::read::MultiGzDecoder::new(std::io::BufReader::new(f));
-        scan(rd.take(MAX_INFLATED + 1), true, false)
+        scan(Streamed(rd.take(MAX_INFLATED + 1)), true, false)
     } else {
-        scan(std::io::BufReader::with_capacity(1 << 16, f), false, false)
+        scan(Seekable(std::io::BufReader::with_capacity(1 << 16, f)), false, false)
+    }
+}
+
+/// Data units at least this long (bytes, padded) are passed over unread in
+/// a seekable file when the sizes are consistent (see the module
+/// documentation): 64 KiB, below which reading costs no more than looking.
+const PASS_OVER_MIN: u64 = 1 << 16;
+
+/// Where the scan reads FITS bytes from.
+trait Source: Read {
+    /// Move from `pos` to `pos + len` without reading what lies between, if
+    /// the block at `pos + len` is the header of an extension or the end of
+    /// the file; otherwise stay at `pos` and answer false.
+    fn pass_over(&mut self, pos: u64, len: u64) -> std::io::Result<bool>;
+}
+
+/// A stream (inflated on the fly, or bytes in memory): read through.
+struct Streamed<R>(R);
+
+impl<R: Read> Read for Streamed<R> {
+    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+        self.0.read(buf)
+    }
+}
+
+impl<R: Read> Source for Streamed<R> {
+    fn pass_over(&mut self, _pos: u64, _len: u64) -> std::io::Result<bool> {
+        Ok(false)
+    }
+}
+
+/// A plain file: large data units are passed over when consistent.
+struct Seekable<R>(R);
+
+impl<R: Read> Read for Seekable<R> {
+    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+        self.0.read(buf)
+    }
+}
+
+impl<R: Read + std::io::Seek> Source for Seekable<R> {
+    fn pass_over(&mut self, pos: u64, len: u64) -> std::io::Result<bool> {
+        use std::io::SeekFrom;
+        if len < PASS_OVER_MIN {
+            return Ok(false);
+        }
+        let Some(end) = pos.checked_add(len) else {
+            return Ok(false);
+        };
+        let file_len = self.0.seek(SeekFrom::End(0))?;
+        let ok = if end == file_len {
+            true
+        } else if end < file_len {
+            self.0.seek(SeekFrom::Start(end))?;
+            let mut head = [0u8; 90];
+            fill(&mut self.0, &mut head).is_ok_and(|n| is_header_start(&head[..n]))
+        } else {
+            false
+        };
+        self.0.seek(SeekFrom::Start(if ok { end } else { pos }))?;
+        Ok(ok)
     }
 }
 
 /// The layout of a FITS file held in memory (for tests and the fuzz runner).
 pub fn layout_of_bytes(bytes: &[u8]) -> Result<Vec<HduLayout>, LoadError> {
-    scan(bytes, false, false)
+    scan(Streamed(bytes), false, false)
 }
 
 /// [`fits_layout`] for a file zvet has just written: additionally, every
@@ -126,7 +199,7 @@ pub fn layout_of_bytes(bytes: &[u8]) -> Result<Vec<HduLayout>, LoadError> {
 /// HDU, so the file's length is exactly what its headers declare.
 pub fn fits_layout_exact(path: &Path) -> Result<Vec<HduLayout>, LoadError> {
     let f = std::fs::File::open(path)?;
-    scan(std::io::BufReader::with_capacity(1 << 16, f), false, true)
+    scan(Streamed(std::io::BufReader::with_capacity(1 << 16, f)), false, true)
 }
 
 /// Fill `buf` as far as the stream allows; returns the bytes read.
@@ -209,7 +282,7 @@ fn bin_form(t: &str) -> Option<(u64, ColumnForm)> {
     Some((repeat.checked_mul(width)?, ColumnForm::Fixed { repeat }))
 }
 
-fn scan(mut rd: impl Read, gz: bool, exact: bool) -> Result<Vec<HduLayout>, LoadError> {
+fn scan(mut rd: impl Source, gz: bool, exact: bool) -> Result<Vec<HduLayout>, LoadError> {
     let mut hdus: Vec<HduLayout> = Vec::new();
     let mut pos: u64 = 0;
     let mut block = vec![0u8; BLOCK as usize];
@@ -395,6 +468,10 @@ fn scan(mut rd: impl Read, gz: bool, exact: bool) -> Result<Vec<HduLayout>, Load
         };
         // Data: present in full, and not running over a following header.
         let mut left = padded(data_len);
+        if rd.pass_over(pos, left)? {
+            pos += left;
+            left = 0;
+        }
         while left > 0 {
             let n = fill(&mut rd, &mut block)?;
             if let Some(e) = too_big(pos + n as u64) {
@@ -505,6 +582,43 @@ mod tests {
         f.extend(vec![0u8; 2880 * 2]);
         let e = layout_of_bytes(&f).unwrap_err();
         assert!(e.to_string().contains("runs over the header"), "{e}");
+    }
+
+    /// The layout as a plain file is scanned (large data units passed over
+    /// when consistent), from bytes in memory.
+    fn layout_seekable(bytes: &[u8]) -> Result<Vec<HduLayout>, LoadError> {
+        scan(Seekable(std::io::Cursor::new(bytes)), false, false)
+    }
+
+    #[test]
+    fn passing_over_large_data_units_finds_what_reading_them_finds() {
+        // 100 000 float32 (400 000 bytes, above PASS_OVER_MIN) then an extension
+        let n = 100_000u64;
+        let mut good = image(n, 4 * n as usize);
+        good.extend(ext());
+        assert_eq!(layout_seekable(&good).unwrap(), layout_of_bytes(&good).unwrap());
+        // the same ending at the end of the file
+        let last = image(n, 4 * n as usize);
+        assert_eq!(layout_seekable(&last).unwrap(), layout_of_bytes(&last).unwrap());
+        // special records after the last HDU (not an extension): the list ends there
+        let mut special = last.clone();
+        special.extend(vec![b'x'; 2880]);
+        assert_eq!(layout_seekable(&special).unwrap().len(), 1);
+        // NAXIS1 doubled over a following extension and more bytes: the
+        // header it runs over is found by reading, as in a stream
+        let mut over = image(2 * n, 4 * n as usize);
+        over.truncate(padded(2880 + 4 * n) as usize);
+        over.extend(ext());
+        over.extend(vec![0u8; 4 * n as usize]);
+        for e in [layout_seekable(&over).unwrap_err(), layout_of_bytes(&over).unwrap_err()] {
+            assert!(e.to_string().contains("runs over the header"), "{e}");
+        }
+        // NAXIS1 past the end of the file: truncation either way
+        let mut short = image(n, 4 * n as usize);
+        short.truncate(2880 + 4 * n as usize / 2);
+        for e in [layout_seekable(&short).unwrap_err(), layout_of_bytes(&short).unwrap_err()] {
+            assert!(matches!(e, LoadError::Truncated(_)), "{e}");
+        }
     }
 
     fn table(tform2: &str) -> Vec<u8> {

@@ -89,18 +89,36 @@ pub fn read_templates(path: &Path) -> Loaded {
 /// campaign's own templates and settings. Cached fits are used as they are;
 /// their χ²(z) curves are computed when an object is shown (see [`super::jobs`]).
 pub fn read_campaign(path: &Path) -> Loaded {
+    use crate::store::open_phase;
+    let t = std::time::Instant::now();
     let campaign = match crate::campaign::Campaign::open(path) {
         Ok(c) => c,
         Err(e) => return Loaded::Failed(format!("{}: {e}", path.display())),
     };
-    let (objects, mut problems) = match ObjectStore::open_campaign(&campaign) {
+    // the engine (its templates built on first use) is made on another
+    // thread while the inputs are listed and the cache indexed
+    let (opened, engine) = std::thread::scope(|scope| {
+        let engine = scope.spawn(|| {
+            let t = std::time::Instant::now();
+            let e = campaign.engine();
+            open_phase("engine built", t);
+            e
+        });
+        let opened = ObjectStore::open_campaign(&campaign);
+        open_phase("objects listed, catalogue joined, fit cache indexed", t);
+        // a panic there is the reading thread's (see `load`)
+        let engine = engine.join().unwrap_or_else(|p| std::panic::resume_unwind(p));
+        (opened, engine)
+    });
+    let (objects, mut problems) = match opened {
         Ok(mut opened) => {
             let problems = std::mem::take(&mut opened.problems);
             (Box::new(opened), problems)
         }
         Err(e) => return Loaded::Failed(format!("{}: {e}", path.display())),
     };
-    let fitter: Option<Arc<dyn Fitter>> = match campaign.engine() {
+    let t = std::time::Instant::now();
+    let fitter: Option<Arc<dyn Fitter>> = match engine {
         Ok(engine) => Some(Arc::new(engine)),
         Err(e) => {
             problems.push(format!(
@@ -117,6 +135,7 @@ pub fn read_campaign(path: &Path) -> Loaded {
             None
         }
     };
+    open_phase("inspectors and audit sample read", t);
     Loaded::Campaign {
         audit,
         title: campaign.manifest().name.clone(),
