@@ -483,3 +483,57 @@ fn telluric_bands_match_a_reduction_package_and_a_transmission_spectrum() {
         );
     }
 }
+
+#[test]
+fn the_sky_list_covers_the_brightest_lines_of_a_real_night_sky() {
+    // Completeness of our sky lines and telluric bands (what the optional sky
+    // mask of the fit masks) on the real night-sky spectrum pypeit ships: take
+    // its emission peaks in 4000–9800 Å (our list's reach), brightest first,
+    // each at least 10 Å from a brighter one. The 15 brightest (269–1515× the
+    // median of 4000–9800 Å when this was written; the 16th is covered too,
+    // the 17th, OH 8781 Å at 257×, is not in our list) must each lie within
+    // 5 Å of one of our sky lines (the mask's half-width, `SKY_HALF_WIDTH_A`
+    // in src/fit/sky.rs) or inside one of our telluric bands.
+    const HALF_WIDTH: f64 = 5.0;
+    let (wave, flux) = night_sky_spectrum();
+    let keep: Vec<usize> = (0..wave.len())
+        .filter(|&i| (4_000.0..=9_800.0).contains(&wave[i]) && flux[i].is_finite())
+        .collect();
+    let w: Vec<f64> = keep.iter().map(|&i| wave[i]).collect();
+    let f: Vec<f64> = keep.iter().map(|&i| flux[i]).collect();
+    let covered =
+        |l: f64| lines::in_telluric_band(l) || lines::sky().iter().any(|s| (s.wave - l).abs() <= HALF_WIDTH);
+    let mut sorted = f.clone();
+    sorted.sort_by(f64::total_cmp);
+    let median = sorted[sorted.len() / 2];
+    let mut order: Vec<usize> = (0..w.len()).collect();
+    order.sort_by(|&a, &b| f[b].total_cmp(&f[a]));
+    let mut peaks: Vec<usize> = Vec::new();
+    for i in order {
+        if peaks.iter().all(|&p| (w[p] - w[i]).abs() >= 10.0) {
+            peaks.push(i);
+            if peaks.len() == 15 {
+                break;
+            }
+        }
+    }
+    for &p in &peaks {
+        eprintln!(
+            "{:.2} Å {:.0}× median covered {}",
+            w[p],
+            f[p] / median,
+            covered(w[p])
+        );
+    }
+    let missed: Vec<String> = peaks
+        .iter()
+        .filter(|&&p| !covered(w[p]))
+        .map(|&p| format!("{:.2} Å ({:.0}× median)", w[p], f[p] / median))
+        .collect();
+    assert!(missed.is_empty(), "bright sky lines not in our list: {missed:?}");
+    assert!(
+        f[peaks[14]] > 100.0 * median,
+        "the 15th peak is only {:.0}× the median",
+        f[peaks[14]] / median
+    );
+}
