@@ -206,8 +206,25 @@ fn folders_expand_to_all_spectrum_files_in_stable_order() {
         .iter()
         .map(|p| p.strip_prefix(data_dir()).unwrap().display().to_string())
         .collect();
-    // 15 good fixtures + 3 multi-object frames + 8 bad; the JSON files are not spectra
-    assert_eq!(names.len(), 26, "{names:?}");
+    // Exactly the fixtures the writing scripts recorded: the good files and
+    // bad files of make_io_fixtures.py (expected.json), the frames of
+    // make_frame_fixtures.py (frames_expected.json), and the one bad frame
+    // that script writes without recording it; the JSON files are not spectra.
+    let exp = json("expected.json");
+    let frames = json("frames_expected.json");
+    let mut want: Vec<String> = exp["files"]
+        .as_object()
+        .unwrap()
+        .keys()
+        .chain(frames["files"].as_object().unwrap().keys())
+        .cloned()
+        .chain(exp["bad"].as_object().unwrap().keys().map(|k| format!("bad/{k}")))
+        .chain(["bad/frame_short_table.fits".to_string()])
+        .collect();
+    want.sort();
+    let mut got = names.clone();
+    got.sort();
+    assert_eq!(got, want);
     let mut sorted = names.clone();
     sorted.sort();
     assert_eq!(names, sorted);
