@@ -134,4 +134,24 @@ fn chi2_differences_match_a_hand_computation() {
         "reported Δχ² {} vs {hand} by hand (slack {slack})",
         r.delta_chi2
     );
+    // Ranking: the candidates come best first by χ², and the runner-up
+    // solution more than 1000 km/s from the best sits at the hand-found
+    // shift k2 (within a pixel: refinement).
+    let chis: Vec<f64> = r.candidates.iter().map(|c| c.chi2).collect();
+    assert!(
+        chis.windows(2).all(|w| w[0] <= w[1]),
+        "candidates out of order: {chis:?}"
+    );
+    let z_k2 = 10f64.powf(k2 as f64 * DLL) - 1.0;
+    let runner_up = r
+        .candidates
+        .iter()
+        .skip(1)
+        .find(|c| (c.z - r.best().unwrap().z).abs() > 6.0 * pixel)
+        .expect("a distinct runner-up candidate");
+    assert!(
+        (runner_up.z - z_k2).abs() < pixel,
+        "runner-up z {} vs the hand-found second minimum {z_k2}",
+        runner_up.z
+    );
 }

