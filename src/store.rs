@@ -34,10 +34,10 @@ use crate::Spectrum;
 use std::collections::{HashMap, VecDeque};
 use std::fs::File;
 use std::io::{BufRead, Read, Seek, SeekFrom, Write};
-use std::time::Instant;
 use std::path::PathBuf;
 use std::sync::atomic::{AtomicUsize, Ordering};
 use std::sync::{Arc, Mutex};
+use std::time::Instant;
 
 /// Objects held whole (spectrum and full fit) at most.
 pub const CACHE: usize = 16;

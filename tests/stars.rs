@@ -1015,7 +1015,13 @@ fn real_star_recovery() {
 #[test]
 fn fast_star_curves_equal_the_oracle_on_real_stars() {
     let stars = real_stars();
-    let wanted = ["M8 dwarf", "M1 dwarf", "sdO standard", "B3V library", "K3III mean"];
+    let wanted = [
+        "M8 dwarf",
+        "M1 dwarf",
+        "sdO standard",
+        "B3V library",
+        "K3III mean",
+    ];
     for tilt in [false, true] {
         let config = FitConfig {
             classes: vec![ObjectClass::Star],
@@ -1037,7 +1043,10 @@ fn fast_star_curves_equal_the_oracle_on_real_stars() {
                     }
                 }
             }
-            eprintln!("{} tilt={tilt}: worst relative difference {:.2e}", star.label, worst.0);
+            eprintln!(
+                "{} tilt={tilt}: worst relative difference {:.2e}",
+                star.label, worst.0
+            );
             assert!(worst.0 < 1e-6, "{} tilt={tilt}: {}", star.label, worst.1);
         }
     }

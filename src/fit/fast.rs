@@ -72,10 +72,22 @@ type PlanMap = HashMap<(usize, bool), Arc<dyn Fft<f64>>>;
 /// Cache key of a unit's transforms: (unit, window start, window length, L).
 type UnitKey = (usize, usize, usize, usize);
 
-/// Transforms of one unit's (cut) templates and their pairwise products at one L.
+/// Transforms of one unit's (cut) templates and their pairwise products at
+/// one L, each of the array scaled to unit norm (see [`Scaled`]).
 struct UnitTransforms {
-    t: Vec<Vec<C>>,
-    tt: Vec<Vec<C>>,
+    t: Vec<Scaled>,
+    tt: Vec<Scaled>,
+}
+
+/// The transform of an array divided by its L2 norm, and that norm. Two
+/// correlations share one complex inverse transform, and the round-off of
+/// that transform is relative to the larger of the two: unscaled, a sum of
+/// the flux (in the file's units, 10⁻¹⁷ or less) would share it with a sum
+/// of the weights (10³⁰ or more) and lose every digit. Scaled, every
+/// correlation is of order one and keeps the transform's relative precision.
+struct Scaled {
+    x: Vec<C>,
+    norm: f64,
 }
 
 /// FFT plans and cached template transforms (shared by all threads).
@@ -147,16 +159,32 @@ impl FftCache {
         (fx, fy)
     }
 
-    /// Forward transforms of real arrays, two per complex FFT.
-    fn forward_many(&self, arrays: &[Vec<f64>], len: usize) -> Vec<Vec<C>> {
+    /// Forward transforms of real arrays, each scaled to unit L2 norm (an
+    /// array of zeros stays as it is), two per complex FFT.
+    fn forward_many(&self, arrays: &[Vec<f64>], len: usize) -> Vec<Scaled> {
+        let scaled: Vec<(Vec<f64>, f64)> = arrays
+            .iter()
+            .map(|a| {
+                let norm = a.iter().map(|v| v * v).sum::<f64>().sqrt();
+                if norm > 0.0 && norm.is_finite() {
+                    (a.iter().map(|v| v / norm).collect(), norm)
+                } else {
+                    (a.clone(), 1.0)
+                }
+            })
+            .collect();
         let mut out = Vec::with_capacity(arrays.len());
-        for pair in arrays.chunks(2) {
-            if let [x, y] = pair {
+        for pair in scaled.chunks(2) {
+            if let [(x, nx), (y, ny)] = pair {
                 let (fx, fy) = self.forward_real_pair(x, y, len);
-                out.push(fx);
-                out.push(fy);
+                out.push(Scaled { x: fx, norm: *nx });
+                out.push(Scaled { x: fy, norm: *ny });
             } else {
-                out.push(self.forward_real(&pair[0], len));
+                let (x, nx) = &pair[0];
+                out.push(Scaled {
+                    x: self.forward_real(x, len),
+                    norm: *nx,
+                });
             }
         }
         out
@@ -193,10 +221,10 @@ fn template_products(t: &[&[f64]]) -> Vec<Vec<f64>> {
     out
 }
 
-/// Conjugated transforms of the data arrays at one L.
+/// Conjugated transforms of the data arrays at one L (scaled, see [`Scaled`]).
 pub struct DataTransforms {
-    wp: Vec<Vec<C>>,
-    wf: Vec<Vec<C>>,
+    wp: Vec<Scaled>,
+    wf: Vec<Scaled>,
 }
 
 /// Data transforms per FFT length, made lazily for one spectrum.
@@ -208,9 +236,12 @@ pub struct DataCache {
 impl DataCache {
     fn get(&mut self, cache: &FftCache, prep: &Prepared, len: usize) -> &DataTransforms {
         self.by_len.entry(len).or_insert_with(|| {
-            let conj = |v: Vec<Vec<C>>| -> Vec<Vec<C>> {
+            let conj = |v: Vec<Scaled>| -> Vec<Scaled> {
                 v.into_iter()
-                    .map(|a| a.into_iter().map(|c| c.conj()).collect())
+                    .map(|a| Scaled {
+                        x: a.x.into_iter().map(|c| c.conj()).collect(),
+                        norm: a.norm,
+                    })
                     .collect()
             };
             DataTransforms {
@@ -331,7 +362,7 @@ fn sums_fft(
     let ut = cache.unit_transforms(key, unit, win);
     let dt = data.get(cache, prep, len);
     // the list of correlations: (data spectrum, template spectrum)
-    let mut pairs: Vec<(&[C], &[C])> = Vec::new();
+    let mut pairs: Vec<(&Scaled, &Scaled)> = Vec::new();
     for tt in &ut.tt {
         for q in 0..2 * g - 1 {
             pairs.push((&dt.wp[q], tt));
@@ -364,8 +395,9 @@ fn sums_fft(
     let si_hi = (c0 + n).clamp(si_lo as i64, ns as i64) as usize;
     let p0 = (c0 - si_lo as i64).rem_euclid(len as i64) as usize;
     for chunk in pairs.chunks(2) {
-        let (d1, t1) = chunk[0];
+        let (d1, t1) = (&chunk[0].0.x, &chunk[0].1.x);
         if let Some((d2, t2)) = chunk.get(1) {
+            let (d2, t2) = (&d2.x, &t2.x);
             for x in 0..len {
                 // i·(d2·t2): both correlations are real, so they come back as Re and Im
                 let p = d2[x] * t2[x];
@@ -384,6 +416,8 @@ fn sums_fft(
             [&buf[..=p0], &buf[len - (si_hi - si_lo - p0 - 1)..]]
         };
         for part in 0..chunk.len() {
+            // the arrays' norms back in
+            let scale = scale * chunk[part].0.norm * chunk[part].1.norm;
             out.resize(out.len() + si_lo, 0.0);
             for seg in parts {
                 out.extend(

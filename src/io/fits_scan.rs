@@ -124,7 +124,11 @@ pub fn fits_layout(path: &Path) -> Result<Vec<HduLayout>, LoadError> {
         let rd = flate2::read::MultiGzDecoder::new(std::io::BufReader::new(f));
         scan(Streamed(rd.take(MAX_INFLATED + 1)), true, false)
     } else {
-        scan(Seekable(std::io::BufReader::with_capacity(1 << 16, f)), false, false)
+        scan(
+            Seekable(std::io::BufReader::with_capacity(1 << 16, f)),
+            false,
+            false,
+        )
     }
 }
 
@@ -199,7 +203,11 @@ pub fn layout_of_bytes(bytes: &[u8]) -> Result<Vec<HduLayout>, LoadError> {
 /// HDU, so the file's length is exactly what its headers declare.
 pub fn fits_layout_exact(path: &Path) -> Result<Vec<HduLayout>, LoadError> {
     let f = std::fs::File::open(path)?;
-    scan(Streamed(std::io::BufReader::with_capacity(1 << 16, f)), false, true)
+    scan(
+        Streamed(std::io::BufReader::with_capacity(1 << 16, f)),
+        false,
+        true,
+    )
 }
 
 /// Fill `buf` as far as the stream allows; returns the bytes read.
@@ -610,13 +618,19 @@ mod tests {
         over.truncate(padded(2880 + 4 * n) as usize);
         over.extend(ext());
         over.extend(vec![0u8; 4 * n as usize]);
-        for e in [layout_seekable(&over).unwrap_err(), layout_of_bytes(&over).unwrap_err()] {
+        for e in [
+            layout_seekable(&over).unwrap_err(),
+            layout_of_bytes(&over).unwrap_err(),
+        ] {
             assert!(e.to_string().contains("runs over the header"), "{e}");
         }
         // NAXIS1 past the end of the file: truncation either way
         let mut short = image(n, 4 * n as usize);
         short.truncate(2880 + 4 * n as usize / 2);
-        for e in [layout_seekable(&short).unwrap_err(), layout_of_bytes(&short).unwrap_err()] {
+        for e in [
+            layout_seekable(&short).unwrap_err(),
+            layout_of_bytes(&short).unwrap_err(),
+        ] {
             assert!(matches!(e, LoadError::Truncated(_)), "{e}");
         }
     }

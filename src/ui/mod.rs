@@ -131,7 +131,9 @@ impl jobs::Fitter for DefaultWhenUsed {
         }
     }
     fn overlay_templates(&self) -> Vec<crate::fit::OverlayTemplate> {
-        self.engine().map(jobs::Fitter::overlay_templates).unwrap_or_default()
+        self.engine()
+            .map(jobs::Fitter::overlay_templates)
+            .unwrap_or_default()
     }
     fn overlay(
         &self,
