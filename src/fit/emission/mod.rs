@@ -57,11 +57,36 @@ const MAX_ITERS: u64 = 300;
 
 /// Measure the emission lines of `class`'s line list in `s` at redshift `z`.
 pub fn measure(s: &Spectrum, z: f64, class: ObjectClass) -> Vec<LineMeasurement> {
+    let basis = (class != ObjectClass::Quasar).then(stellar::basis);
+    measure_on(s, z, class, basis, Some(BROAD_TROUGH_REST))
+}
+
+/// [`measure`] on the stellar populations of `basis` in place of ours, with
+/// the broad Balmer trough columns of σ `trough_rest` (rest Å) or none: for
+/// comparisons with other population libraries (a test fits a real galaxy
+/// with published population spectra this way). The product uses
+/// [`measure`].
+pub fn measure_with_basis(
+    s: &Spectrum,
+    z: f64,
+    class: ObjectClass,
+    basis: &'static stellar::Basis,
+    trough_rest: Option<f64>,
+) -> Vec<LineMeasurement> {
+    measure_on(s, z, class, Some(basis), trough_rest)
+}
+
+fn measure_on(
+    s: &Spectrum,
+    z: f64,
+    class: ObjectClass,
+    basis: Option<&'static stellar::Basis>,
+    trough_rest: Option<f64>,
+) -> Vec<LineMeasurement> {
     if !(z > -1.0 && z.is_finite()) || s.len() < 2 {
         return Vec::new();
     }
     let specs = lines_for(class);
-    let basis = (class != ObjectClass::Quasar).then(stellar::basis);
     let wave = s.wave();
     let (lo, hi) = (wave[0], wave[wave.len() - 1]);
     let start = [
@@ -133,13 +158,13 @@ pub fn measure(s: &Spectrum, z: f64, class: ObjectClass) -> Vec<LineMeasurement>
         // a broad trough under each Balmer line: corrects the depth and
         // shape of the model populations' absorption where they differ
         // from the galaxy's own stars
-        let broad: Vec<(f64, f64)> = if basis.is_some() {
-            g.iter()
+        let broad: Vec<(f64, f64)> = match (basis, trough_rest) {
+            (Some(_), Some(t)) => g
+                .iter()
                 .filter(|&&(k, _, _)| specs[k].balmer)
-                .map(|&(_, mu, _)| (mu, BROAD_TROUGH_REST * (1.0 + z)))
-                .collect()
-        } else {
-            Vec::new()
+                .map(|&(_, mu, _)| (mu, t * (1.0 + z)))
+                .collect(),
+            _ => Vec::new(),
         };
         if let Some(w) = Window::new(
             wave,
