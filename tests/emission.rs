@@ -8,9 +8,9 @@ use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, Normal};
 use std::path::Path;
 use std::process::Command;
-use zvet::fit::emission::measure_with_basis;
 use zvet::fit::emission::stellar::Basis;
 use zvet::fit::emission::table::{NII_6585_6550, OIII_5008_4960};
+use zvet::fit::emission::{measure_with_basis, stellar, Trough};
 use zvet::fit::{measure_emission_lines, Engine, FitConfig, LineMeasurement};
 use zvet::spectrum::SpectrumMeta;
 use zvet::templates::galaxies::{emission, population};
@@ -144,7 +144,7 @@ fn balmer_and_forbidden_fluxes_of_a_real_dwarf_galaxy_match_its_stored_line_tabl
 }
 
 #[test]
-#[ignore = "known failure (Hγ, Hδ come out negative: the galaxy's Hγ, Hδ troughs are narrower than our model populations', see README Emission lines): cargo test --test integration emission::hgamma_hdelta -- --ignored --nocapture"]
+#[ignore = "known failure (Hγ −42, Hδ −46 vs stored 31, 30: our populations' Balmer troughs do not fit this galaxy's; on published populations ours and pPXF's fits give Hγ 82-102 but also Hβ 161-235 vs stored 82, so no model tried fits all four stored Balmer lines, see README Emission lines): cargo test --test integration emission::hgamma_hdelta -- --ignored --nocapture"]
 fn hgamma_hdelta_of_the_real_dwarf_galaxy_match_its_stored_line_table() {
     let (_, bad) = compare_with_stored_table(&["Hγ", "Hδ"]);
     assert!(bad.is_empty(), "outside max(3σ, 10 %): {bad:?}");
@@ -429,7 +429,7 @@ fn published_populations_give_the_dwarf_galaxy_balmer_lines_consistent_with_case
     let z = galaxy_redshift(&s);
     let table = stored_line_table(&path);
     let get_stored = |theirs: &str| table.iter().find(|r| r.0 == theirs).unwrap();
-    let with_trough = measure_with_basis(&s, z, ObjectClass::Galaxy, basis, Some(10.0));
+    let with_trough = measure_with_basis(&s, z, ObjectClass::Galaxy, basis, Some(Trough::Gaussian(10.0)));
     let lines = measure_with_basis(&s, z, ObjectClass::Galaxy, basis, None);
     let get = |n: &str| lines.iter().find(|l| l.name == n).unwrap();
     // pPXF on the same populations (its example's polynomial: none
@@ -544,6 +544,64 @@ fn published_populations_give_the_dwarf_galaxy_balmer_lines_consistent_with_case
         }
     }
     assert!(bad.is_empty(), "outside max(3σ, 10 %): {bad:?}");
+}
+
+#[test]
+#[ignore = "diagnostic: cargo test --test integration emission::no_trough_model -- --ignored --nocapture"]
+fn no_trough_model_on_our_populations_gives_all_four_stored_balmer_lines() {
+    // our own populations with, under each Balmer line, a Stark-shaped
+    // absorption column (core half-width w, wings ∝ Δλ^−5/2) in place of
+    // the product's free 10 Å Gaussian: the rows of the README's table
+    let path = dwarf_galaxy();
+    let s = zvet::io::read_file(&path, &Default::default()).unwrap().remove(0);
+    let z = galaxy_redshift(&s);
+    let table = stored_line_table(&path);
+    let stored = |ours: &str| table.iter().find(|r| r.0 == stored_name(ours)).unwrap();
+    let names = ["Hα", "Hβ", "Hγ", "Hδ", "[O III] 5008", "[N II] 6585"];
+    eprintln!(
+        "{:>22}: {}",
+        "trough",
+        names.map(|n| format!("{n:>14}")).join(" ")
+    );
+    let mut rows = Vec::new();
+    for t in [
+        Some(Trough::Gaussian(10.0)),
+        None,
+        Some(Trough::Stark(1.0)),
+        Some(Trough::Stark(2.0)),
+        Some(Trough::Stark(3.0)),
+        Some(Trough::Stark(5.0)),
+        Some(Trough::Stark(8.0)),
+    ] {
+        let lines = measure_with_basis(&s, z, ObjectClass::Galaxy, stellar::basis(), t);
+        let get = |n: &str| lines.iter().find(|l| l.name == n).unwrap();
+        eprintln!(
+            "{:>22}: {}",
+            format!("{t:?}"),
+            names
+                .map(|n| format!("{:>7.1} ± {:>4.1}", get(n).flux, get(n).flux_err))
+                .join(" ")
+        );
+        eprintln!(
+            "{:>22}  Balmer σ {:.1} km/s, forbidden σ {:.1} km/s",
+            "",
+            get("Hβ").sigma_kms,
+            get("[O III] 5008").sigma_kms
+        );
+        rows.push((t, ["Hα", "Hβ", "Hγ", "Hδ"].map(|n| get(n).flux)));
+    }
+    // no row puts all four Balmer lines within max(3σ, 10 %) of the stored
+    // table at once
+    for (t, f) in rows {
+        let inside = ["Hα", "Hβ", "Hγ", "Hδ"]
+            .iter()
+            .zip(f)
+            .all(|(n, v)| (v - stored(n).1).abs() <= (3.0 * stored(n).2).max(0.1 * stored(n).1));
+        assert!(
+            !inside,
+            "{t:?} fits the stored Balmer lines: {f:?} (un-ignore hgamma_hdelta_…)"
+        );
+    }
 }
 
 /// The stored table's name of one of our lines in [`PAIRS`].

@@ -40,7 +40,7 @@ use crate::ObjectClass;
 use argmin::core::{CostFunction, Error, Executor};
 use argmin::solver::neldermead::NelderMead;
 use table::{limits, lines_for, margin_rest, LineKind, LineSpec};
-use window::{Column, Comp, Kin, Window};
+use window::{Column, Comp, Kin, TroughColumn, TroughShape, Window};
 
 /// S/N at or above which a line counts as detected (common practice).
 pub const DETECT_SNR: f64 = 3.0;
@@ -58,22 +58,35 @@ const MAX_ITERS: u64 = 300;
 /// Measure the emission lines of `class`'s line list in `s` at redshift `z`.
 pub fn measure(s: &Spectrum, z: f64, class: ObjectClass) -> Vec<LineMeasurement> {
     let basis = (class != ObjectClass::Quasar).then(stellar::basis);
-    measure_on(s, z, class, basis, Some(BROAD_TROUGH_REST))
+    measure_on(s, z, class, basis, Some(Trough::Gaussian(BROAD_TROUGH_REST)))
+}
+
+/// A trough column fitted with the stellar populations under each Balmer
+/// line (widths in rest Å).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Trough {
+    /// A Gaussian of σ (rest Å), free in sign: the product's, at
+    /// [`BROAD_TROUGH_REST`].
+    Gaussian(f64),
+    /// A Stark-broadened hydrogen-line shape of core half-width w (rest
+    /// Å), wings ∝ Δλ^{−5/2}, absorption only (see
+    /// `window::TroughShape::Stark`); its core is rounded over the σ of the
+    /// galaxies' start line width (100 km/s).
+    Stark(f64),
 }
 
 /// [`measure`] on the stellar populations of `basis` in place of ours, with
-/// the broad Balmer trough columns of σ `trough_rest` (rest Å) or none: for
-/// comparisons with other population libraries (a test fits a real galaxy
-/// with published population spectra this way). The product uses
-/// [`measure`].
+/// `trough` columns under the Balmer lines or none: for comparisons with
+/// other population libraries and trough models (tests fit a real galaxy
+/// this way). The product uses [`measure`].
 pub fn measure_with_basis(
     s: &Spectrum,
     z: f64,
     class: ObjectClass,
     basis: &'static stellar::Basis,
-    trough_rest: Option<f64>,
+    trough: Option<Trough>,
 ) -> Vec<LineMeasurement> {
-    measure_on(s, z, class, Some(basis), trough_rest)
+    measure_on(s, z, class, Some(basis), trough)
 }
 
 fn measure_on(
@@ -81,7 +94,7 @@ fn measure_on(
     z: f64,
     class: ObjectClass,
     basis: Option<&'static stellar::Basis>,
-    trough_rest: Option<f64>,
+    trough: Option<Trough>,
 ) -> Vec<LineMeasurement> {
     if !(z > -1.0 && z.is_finite()) || s.len() < 2 {
         return Vec::new();
@@ -158,11 +171,27 @@ fn measure_on(
         // a broad trough under each Balmer line: corrects the depth and
         // shape of the model populations' absorption where they differ
         // from the galaxy's own stars
-        let broad: Vec<(f64, f64)> = match (basis, trough_rest) {
+        let broad: Vec<TroughColumn> = match (basis, trough) {
             (Some(_), Some(t)) => g
                 .iter()
                 .filter(|&&(k, _, _)| specs[k].balmer)
-                .map(|&(_, mu, _)| (mu, t * (1.0 + z)))
+                .map(|&(_, mu, _)| match t {
+                    Trough::Gaussian(sigma) => TroughColumn {
+                        centre: mu,
+                        shape: TroughShape::Gaussian {
+                            sigma: sigma * (1.0 + z),
+                        },
+                        absorb: false,
+                    },
+                    Trough::Stark(w) => TroughColumn {
+                        centre: mu,
+                        shape: TroughShape::Stark {
+                            w: w * (1.0 + z),
+                            s: mu * start[0].sigma_start / C_KMS,
+                        },
+                        absorb: true,
+                    },
+                })
                 .collect(),
             _ => Vec::new(),
         };
