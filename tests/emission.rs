@@ -429,8 +429,8 @@ fn published_populations_give_the_dwarf_galaxy_balmer_lines_consistent_with_case
     let z = galaxy_redshift(&s);
     let table = stored_line_table(&path);
     let get_stored = |theirs: &str| table.iter().find(|r| r.0 == theirs).unwrap();
-    let with_trough = measure_with_basis(&s, z, ObjectClass::Galaxy, basis, Some(Trough::Gaussian(10.0)));
-    let lines = measure_with_basis(&s, z, ObjectClass::Galaxy, basis, None);
+    let with_trough = measure_with_basis(&s, z, ObjectClass::Galaxy, basis, &[Trough::Gaussian(10.0)]);
+    let lines = measure_with_basis(&s, z, ObjectClass::Galaxy, basis, &[]);
     let get = |n: &str| lines.iter().find(|l| l.name == n).unwrap();
     // pPXF on the same populations (its example's polynomial: none
     // additive, degree 10 multiplicative; and pPXF's defaults, 4 and none)
@@ -565,15 +565,18 @@ fn no_trough_model_on_our_populations_gives_all_four_stored_balmer_lines() {
     );
     let mut rows = Vec::new();
     for t in [
-        Some(Trough::Gaussian(10.0)),
-        None,
-        Some(Trough::Stark(1.0)),
-        Some(Trough::Stark(2.0)),
-        Some(Trough::Stark(3.0)),
-        Some(Trough::Stark(5.0)),
-        Some(Trough::Stark(8.0)),
+        vec![Trough::Gaussian(10.0)],
+        vec![],
+        vec![Trough::Stark(1.0)],
+        vec![Trough::Stark(2.0)],
+        vec![Trough::Stark(3.0)],
+        vec![Trough::Stark(5.0)],
+        vec![Trough::Stark(8.0)],
+        vec![Trough::Stark(2.0), Trough::Gaussian(10.0)],
+        vec![Trough::Stark(3.0), Trough::Gaussian(10.0)],
+        vec![Trough::Stark(2.0), Trough::Gaussian(20.0)],
     ] {
-        let lines = measure_with_basis(&s, z, ObjectClass::Galaxy, stellar::basis(), t);
+        let lines = measure_with_basis(&s, z, ObjectClass::Galaxy, stellar::basis(), &t);
         let get = |n: &str| lines.iter().find(|l| l.name == n).unwrap();
         eprintln!(
             "{:>22}: {}",

@@ -58,7 +58,7 @@ const MAX_ITERS: u64 = 300;
 /// Measure the emission lines of `class`'s line list in `s` at redshift `z`.
 pub fn measure(s: &Spectrum, z: f64, class: ObjectClass) -> Vec<LineMeasurement> {
     let basis = (class != ObjectClass::Quasar).then(stellar::basis);
-    measure_on(s, z, class, basis, Some(Trough::Gaussian(BROAD_TROUGH_REST)))
+    measure_on(s, z, class, basis, &[Trough::Gaussian(BROAD_TROUGH_REST)])
 }
 
 /// A trough column fitted with the stellar populations under each Balmer
@@ -76,7 +76,7 @@ pub enum Trough {
 }
 
 /// [`measure`] on the stellar populations of `basis` in place of ours, with
-/// `trough` columns under the Balmer lines or none: for comparisons with
+/// the columns of `troughs` under each Balmer line (none when empty): for comparisons with
 /// other population libraries and trough models (tests fit a real galaxy
 /// this way). The product uses [`measure`].
 pub fn measure_with_basis(
@@ -84,9 +84,9 @@ pub fn measure_with_basis(
     z: f64,
     class: ObjectClass,
     basis: &'static stellar::Basis,
-    trough: Option<Trough>,
+    troughs: &[Trough],
 ) -> Vec<LineMeasurement> {
-    measure_on(s, z, class, Some(basis), trough)
+    measure_on(s, z, class, Some(basis), troughs)
 }
 
 fn measure_on(
@@ -94,7 +94,7 @@ fn measure_on(
     z: f64,
     class: ObjectClass,
     basis: Option<&'static stellar::Basis>,
-    trough: Option<Trough>,
+    troughs: &[Trough],
 ) -> Vec<LineMeasurement> {
     if !(z > -1.0 && z.is_finite()) || s.len() < 2 {
         return Vec::new();
@@ -171,11 +171,11 @@ fn measure_on(
         // a broad trough under each Balmer line: corrects the depth and
         // shape of the model populations' absorption where they differ
         // from the galaxy's own stars
-        let broad: Vec<TroughColumn> = match (basis, trough) {
-            (Some(_), Some(t)) => g
-                .iter()
+        let broad: Vec<TroughColumn> = if basis.is_some() {
+            g.iter()
                 .filter(|&&(k, _, _)| specs[k].balmer)
-                .map(|&(_, mu, _)| match t {
+                .flat_map(|&(_, mu, _)| troughs.iter().map(move |&t| (mu, t)))
+                .map(|(mu, t)| match t {
                     Trough::Gaussian(sigma) => TroughColumn {
                         centre: mu,
                         shape: TroughShape::Gaussian {
@@ -192,8 +192,9 @@ fn measure_on(
                         absorb: true,
                     },
                 })
-                .collect(),
-            _ => Vec::new(),
+                .collect()
+        } else {
+            Vec::new()
         };
         if let Some(w) = Window::new(
             wave,
