@@ -40,7 +40,7 @@ use crate::ObjectClass;
 use argmin::core::{CostFunction, Error, Executor};
 use argmin::solver::neldermead::NelderMead;
 use table::{limits, lines_for, margin_rest, LineKind, LineSpec};
-use window::{Column, Comp, Kin, Window};
+use window::{Column, Comp, Kin, TroughColumn, TroughShape, Window};
 
 /// S/N at or above which a line counts as detected (common practice).
 pub const DETECT_SNR: f64 = 3.0;
@@ -57,11 +57,49 @@ const MAX_ITERS: u64 = 300;
 
 /// Measure the emission lines of `class`'s line list in `s` at redshift `z`.
 pub fn measure(s: &Spectrum, z: f64, class: ObjectClass) -> Vec<LineMeasurement> {
+    let basis = (class != ObjectClass::Quasar).then(stellar::basis);
+    measure_on(s, z, class, basis, &[Trough::Gaussian(BROAD_TROUGH_REST)])
+}
+
+/// A trough column fitted with the stellar populations under each Balmer
+/// line (widths in rest Å).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Trough {
+    /// A Gaussian of σ (rest Å), free in sign: the product's, at
+    /// [`BROAD_TROUGH_REST`].
+    Gaussian(f64),
+    /// A Stark-broadened hydrogen-line shape of core half-width w (rest
+    /// Å), wings ∝ Δλ^{−5/2}, absorption only (see
+    /// `window::TroughShape::Stark`); its core is rounded over the σ of the
+    /// galaxies' start line width (100 km/s).
+    Stark(f64),
+}
+
+/// [`measure`] on the stellar populations of `basis` in place of ours, with
+/// the columns of `troughs` under each Balmer line (none when empty): for comparisons with
+/// other population libraries and trough models (tests fit a real galaxy
+/// this way). The product uses [`measure`].
+pub fn measure_with_basis(
+    s: &Spectrum,
+    z: f64,
+    class: ObjectClass,
+    basis: &'static stellar::Basis,
+    troughs: &[Trough],
+) -> Vec<LineMeasurement> {
+    measure_on(s, z, class, Some(basis), troughs)
+}
+
+fn measure_on(
+    s: &Spectrum,
+    z: f64,
+    class: ObjectClass,
+    basis: Option<&'static stellar::Basis>,
+    troughs: &[Trough],
+) -> Vec<LineMeasurement> {
     if !(z > -1.0 && z.is_finite()) || s.len() < 2 {
         return Vec::new();
     }
     let specs = lines_for(class);
-    let basis = (class != ObjectClass::Quasar).then(stellar::basis);
     let wave = s.wave();
     let (lo, hi) = (wave[0], wave[wave.len() - 1]);
     let start = [
@@ -133,10 +171,27 @@ pub fn measure(s: &Spectrum, z: f64, class: ObjectClass) -> Vec<LineMeasurement>
         // a broad trough under each Balmer line: corrects the depth and
         // shape of the model populations' absorption where they differ
         // from the galaxy's own stars
-        let broad: Vec<(f64, f64)> = if basis.is_some() {
+        let broad: Vec<TroughColumn> = if basis.is_some() {
             g.iter()
                 .filter(|&&(k, _, _)| specs[k].balmer)
-                .map(|&(_, mu, _)| (mu, BROAD_TROUGH_REST * (1.0 + z)))
+                .flat_map(|&(_, mu, _)| troughs.iter().map(move |&t| (mu, t)))
+                .map(|(mu, t)| match t {
+                    Trough::Gaussian(sigma) => TroughColumn {
+                        centre: mu,
+                        shape: TroughShape::Gaussian {
+                            sigma: sigma * (1.0 + z),
+                        },
+                        absorb: false,
+                    },
+                    Trough::Stark(w) => TroughColumn {
+                        centre: mu,
+                        shape: TroughShape::Stark {
+                            w: w * (1.0 + z),
+                            s: mu * start[0].sigma_start / C_KMS,
+                        },
+                        absorb: true,
+                    },
+                })
                 .collect()
         } else {
             Vec::new()

@@ -38,6 +38,31 @@ impl Basis {
         (self.grid.wave(0.0), self.grid.wave((self.grid.n - 1) as f64))
     }
 
+    /// A basis of other populations, given on a rest-frame log10-λ grid:
+    /// `flux[k][i]` is population `k` at 10^(`loglam0` + i·`dloglam`) Å
+    /// (vacuum). For comparisons with other population libraries (the
+    /// product always uses [`basis`]). Errors on an empty or ragged set, a
+    /// grid of fewer than two pixels, a bad step or non-finite values.
+    pub fn on_log_grid(loglam0: f64, dloglam: f64, flux: Vec<Vec<f64>>) -> Result<Basis, String> {
+        let n = flux.first().map_or(0, |f| f.len());
+        if flux.is_empty() || n < 2 {
+            return Err("a basis needs at least one population of two or more pixels".into());
+        }
+        if flux.iter().any(|f| f.len() != n) {
+            return Err("the populations of a basis must share one grid".into());
+        }
+        if !(dloglam > 0.0 && dloglam.is_finite() && loglam0.is_finite()) {
+            return Err(format!("bad log10-λ grid: start {loglam0}, step {dloglam}"));
+        }
+        if flux.iter().flatten().any(|v| !v.is_finite()) {
+            return Err("non-finite flux in a basis population".into());
+        }
+        Ok(Basis {
+            grid: Grid { loglam0, dloglam, n },
+            flux,
+        })
+    }
+
     /// Values of every population at rest wavelength `lam` (linear
     /// interpolation in log λ) into `out`; `false` outside the grid.
     pub fn at(&self, lam: f64, out: &mut [f64]) -> bool {

@@ -43,6 +43,53 @@ pub struct Column {
     pub lines: Vec<usize>,
 }
 
+/// One trough column under a stellar Balmer line.
+#[derive(Debug, Clone, Copy)]
+pub struct TroughColumn {
+    /// Observed centre (Å).
+    pub centre: f64,
+    /// Shape and observed widths.
+    pub shape: TroughShape,
+    /// Absorption only: the column is −profile with a non-negative
+    /// coefficient; otherwise +profile, free in sign.
+    pub absorb: bool,
+}
+
+/// Profile of a trough column (widths in observed Å).
+#[derive(Debug, Clone, Copy)]
+pub enum TroughShape {
+    /// exp(−½ (Δλ/σ)²).
+    Gaussian { sigma: f64 },
+    /// 1 / (1 + (r/w)^{5/2}) with r = √(Δλ² + s²): the far wings fall as
+    /// Δλ^{−5/2}, the Holtsmark (quasi-static linear Stark) limit of
+    /// hydrogen lines (from memory), a core of half-width ≈ `w`, rounded
+    /// over `s` (the populations' broadening).
+    Stark { w: f64, s: f64 },
+}
+
+impl TroughColumn {
+    /// The column's value at observed `lam`.
+    pub fn at(&self, lam: f64) -> f64 {
+        let d = lam - self.centre;
+        let v = match self.shape {
+            TroughShape::Gaussian { sigma } => {
+                let u = d / sigma;
+                if u.abs() < 8.0 {
+                    (-0.5 * u * u).exp()
+                } else {
+                    0.0
+                }
+            }
+            TroughShape::Stark { w, s } => 1.0 / (1.0 + ((d * d + s * s).sqrt() / w).powf(2.5)),
+        };
+        if self.absorb {
+            -v
+        } else {
+            v
+        }
+    }
+}
+
 /// The pixels and continuum columns of one window.
 pub struct Window {
     z: f64,
@@ -53,9 +100,11 @@ pub struct Window {
     base: Vec<f64>,
     nt: usize,
     np: usize,
-    /// Broad Gaussians (observed centre, σ in Å) of the stellar Balmer
-    /// troughs, continuum columns after the polynomial.
-    broad: Vec<(f64, f64)>,
+    /// Trough columns under the stellar Balmer lines, continuum columns
+    /// after the polynomial.
+    broad: Vec<TroughColumn>,
+    /// Whether a trough column may only absorb.
+    absorbing: bool,
     base_ata: Vec<f64>,
     base_atb: Vec<f64>,
     fww: f64,
@@ -121,7 +170,7 @@ impl Window {
         (lo, hi): (f64, f64),
         np: usize,
         basis: Option<&'static Basis>,
-        broad: Vec<(f64, f64)>,
+        broad: Vec<TroughColumn>,
         cols: Vec<Column>,
     ) -> Option<Window> {
         let nt = basis.map_or(0, |b| b.len());
@@ -151,6 +200,7 @@ impl Window {
             base: vec![0.0; idx.len() * m],
             nt,
             np,
+            absorbing: broad.iter().any(|t| t.absorb),
             broad,
             base_ata: vec![0.0; m * m],
             base_atb: vec![0.0; m],
@@ -190,9 +240,8 @@ impl Window {
             (lam - self.lam_mid) / self.half,
             &mut row[self.nt..self.nt + self.np],
         );
-        for (k, &(c, s)) in self.broad.iter().enumerate() {
-            let u = (lam - c) / s;
-            row[self.nt + self.np + k] = if u.abs() < 8.0 { (-0.5 * u * u).exp() } else { 0.0 };
+        for (k, t) in self.broad.iter().enumerate() {
+            row[self.nt + self.np + k] = t.at(lam);
         }
         true
     }
@@ -306,9 +355,14 @@ impl Window {
         coef.clear();
         coef.resize(dim, 0.0);
         solve_normal_into(ata, atb, active, coef, chol);
-        for _ in 0..self.nt {
-            let worst = (0..self.nt)
-                .filter(|&p| active[p] && coef[p] < 0.0)
+        // the stellar amplitudes, and the troughs that may only absorb (the
+        // search reaches past the populations only when there are such)
+        let base = self.nt + self.np;
+        let reach = if self.absorbing { m } else { self.nt };
+        let constrained = |p: usize| p < self.nt || (p >= base && self.broad[p - base].absorb);
+        for _ in 0..self.nt + self.broad.len() {
+            let worst = (0..reach)
+                .filter(|&p| constrained(p) && active[p] && coef[p] < 0.0)
                 .min_by(|&a, &b| coef[a].total_cmp(&coef[b]));
             let Some(p) = worst else { break };
             active[p] = false;
