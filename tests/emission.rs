@@ -343,9 +343,10 @@ type PpxfLine = (String, f64, f64);
 
 /// The two fits of this same galaxy whose line fluxes ppxf 9.5.2 ships in
 /// its reference output (`ppxf/examples/ppxf_python_reference_output.txt`:
-/// `ppxf_example_gas_sdss_tied.py`, E-MILES populations, and
+/// the gas example with tied lines, E-MILES populations, and
 /// `ppxf_example_population_photometry.py`, FSPS populations with the
-/// galaxy's photometry): per run, pPXF's line name → (flux, error) in the
+/// galaxy's photometry; each run found by the pattern of its script's name,
+/// `ppxf_example_gas_*_tied.py` and `ppxf_example_population_photometry*.py`): per run, pPXF's line name → (flux, error) in the
 /// file's flux unit × Å. pPXF prints the flux summed over pixels of the
 /// spectrum divided by its median (as both examples normalise it), so it is
 /// multiplied by that median and by the observed pixel width at the line.
@@ -378,13 +379,23 @@ fn ppxf_reference_output(spectrum: &Path, z: f64) -> Vec<(&'static str, Vec<Ppxf
         })
     };
     [
-        "ppxf_example_gas_sdss_tied.py",
-        "ppxf_example_population_photometry.py",
+        ("gas example, E-MILES", "ppxf_example_gas_", "_tied.py"),
+        (
+            "population-photometry example, FSPS",
+            "ppxf_example_population_photometry",
+            ".py",
+        ),
     ]
     .into_iter()
-    .map(|run| {
+    .map(|(run, prefix, suffix)| {
         let start = text
-            .find(&format!("Running: {run}"))
+            .match_indices("Running: ")
+            .map(|(i, m)| i + m.len())
+            .find(|&i| {
+                let script = text[i..].split_whitespace().next().unwrap_or("");
+                script.starts_with(prefix) && script.ends_with(suffix)
+            })
+            .map(|i| i - "Running: ".len())
             .unwrap_or_else(|| panic!("{run} not in pPXF's reference output"));
         let block = &text[start..];
         let end = block[1..].find("Running: ").map_or(block.len(), |e| e + 1);
