@@ -725,8 +725,9 @@ impl ObjectStore {
     }
 }
 
-/// Append `open_ms MS PHASE` to the timings file, if timings are on (`open_ms MS PHASE`, see the window's
-/// timings, `ui::timing`); called from the thread that opens a campaign.
+/// Append the line `open_ms MS PHASE` (the milliseconds since `since`) to
+/// the file named by `ZVET_WINDOW_TIMES`, when it is set: the window's
+/// timings (`ui::timing`), taken on the thread that opens a campaign.
 pub fn open_phase(phase: &str, since: Instant) {
     let Some(path) = std::env::var_os("ZVET_WINDOW_TIMES") else {
         return;
