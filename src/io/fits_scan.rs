@@ -20,7 +20,9 @@ numbers (`C`, `M`) are flagged so that the readers can refuse them with a
 plain message.
 
 Memory: the scan reads the file block by block (one 2880-byte block at a
-time).
+time). A gzip-compressed file is inflated as a stream while it is scanned and
+refused when it inflates to more than [`MAX_INFLATED`] bytes, since the FITS
+library then holds the whole inflated file in memory.
 
 Speed: a plain (not compressed) file is not read through its large data
 units: the scan moves to the end the header declares and looks at what lies
@@ -32,9 +34,7 @@ which finds the header it runs over or the bytes that follow the last HDU,
 as for a stream. What this cannot see is a size card wrong by exactly the
 size of whole HDUs that follow (ending again on a header or the end of the
 file): the file then reads as fewer HDUs with the last one longer, all of it
-bytes the file holds. A gzip-compressed file is inflated as a stream while it is scanned and
-refused when it inflates to more than [`MAX_INFLATED`] bytes, since the FITS
-library then holds the whole inflated file in memory.
+bytes the file holds.
 */
 use super::{LoadError, Loc};
 use std::io::Read;

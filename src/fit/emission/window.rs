@@ -103,8 +103,6 @@ pub struct Window {
     /// Trough columns under the stellar Balmer lines, continuum columns
     /// after the polynomial.
     broad: Vec<TroughColumn>,
-    /// Whether a trough column may only absorb.
-    absorbing: bool,
     base_ata: Vec<f64>,
     base_atb: Vec<f64>,
     fww: f64,
@@ -200,7 +198,6 @@ impl Window {
             base: vec![0.0; idx.len() * m],
             nt,
             np,
-            absorbing: broad.iter().any(|t| t.absorb),
             broad,
             base_ata: vec![0.0; m * m],
             base_atb: vec![0.0; m],
@@ -355,13 +352,11 @@ impl Window {
         coef.clear();
         coef.resize(dim, 0.0);
         solve_normal_into(ata, atb, active, coef, chol);
-        // the stellar amplitudes, and the troughs that may only absorb (the
-        // search reaches past the populations only when there are such)
+        // the stellar amplitudes, and the troughs that may only absorb
         let base = self.nt + self.np;
-        let reach = if self.absorbing { m } else { self.nt };
         let constrained = |p: usize| p < self.nt || (p >= base && self.broad[p - base].absorb);
         for _ in 0..self.nt + self.broad.len() {
-            let worst = (0..reach)
+            let worst = (0..m)
                 .filter(|&p| constrained(p) && active[p] && coef[p] < 0.0)
                 .min_by(|&a, &b| coef[a].total_cmp(&coef[b]));
             let Some(p) = worst else { break };
