@@ -876,9 +876,11 @@ fn refinement_sums_equal_the_direct_fit_at_fractional_shifts() {
     let s = mock(&set, ObjectClass::Galaxy, 0.2, 8.0, 1200, &mut rng);
     let (lo, hi) = engine.fit_range();
     let mut prep = Prepared::new(&s, 1e-4, 3, (lo, hi)).unwrap();
+    prep.set_groups(2);
     for groups in [1, 2] {
-        prep.set_groups(groups);
         for u in engine.units() {
+            // every unit with and without its throughput columns
+            let u = &zvet::fit::Unit { groups, ..u.clone() };
             let thr = thresholds(&prep, u);
             for _ in 0..5 {
                 let shift = rng.random_range(-20.0..800.0);

@@ -228,6 +228,15 @@ pub fn write_fits(path: &Path, rows: &[ExportRow], prov: &Provenance) -> Result<
             ),
         )
         .map_err(&fe)?;
+        hdu.write_key(
+            &mut f,
+            "STARTPUT",
+            (
+                i64::from(e.star_throughput_terms),
+                "star template x throughput-tilt term (1/0)",
+            ),
+        )
+        .map_err(&fe)?;
         // What the library's close wrote is checked too.
         crate::campaign::close_fits(f, rows.len()).map_err(Step::Io)
     });
@@ -321,6 +330,8 @@ pub fn read_fits(path: &Path) -> Result<(Vec<ExportRow>, Provenance), ExportErro
         sys_floor: x(&mut f, "SYSFLOOR")?,
         star_window_prefers_stars: i(&mut f, "STARWIN")? != 0,
         throughput_terms: i(&mut f, "TPUTTERM")? != 0,
+        // exports written before the keyword existed were fitted without it
+        star_throughput_terms: hdu.read_key::<i64>(&mut f, "STARTPUT").is_ok_and(|v| v != 0),
     };
     let minconf = s(&mut f, "MINCONF")?;
     let min_confidence = match minconf.as_str() {

@@ -98,6 +98,17 @@ pub struct FitConfig {
     /// Turn it on for spectra whose relative flux calibration is poor.
     #[serde(default)]
     pub throughput_terms: bool,
+    /// The throughput term T·x for every **stellar** template (each fitted
+    /// alone), whatever [`FitConfig::throughput_terms`] says. A star is a
+    /// single template times the instrument's throughput, so a tilt of that
+    /// throughput is the one freedom a star lacks against the galaxy and
+    /// quasar bases, whose continuum polynomials and several templates absorb
+    /// it: without it a real hot subdwarf or early-M dwarf observed through a
+    /// tilted throughput fits better as a galaxy or quasar. The star window
+    /// (a few hundred km/s) keeps the extra freedom from making stars of
+    /// other objects. On by default.
+    #[serde(default = "yes")]
+    pub star_throughput_terms: bool,
 }
 
 fn yes() -> bool {
@@ -128,11 +139,23 @@ impl Default for FitConfig {
             sys_floor: DEFAULT_SYS_FLOOR,
             star_window_prefers_stars: true,
             throughput_terms: false,
+            star_throughput_terms: true,
         }
     }
 }
 
 impl FitConfig {
+    /// Columns per template for the templates of `class`: 2 (T and its
+    /// throughput term T·x) with [`FitConfig::throughput_terms`], or for
+    /// stars with [`FitConfig::star_throughput_terms`]; else 1.
+    pub fn groups_of(&self, class: ObjectClass) -> usize {
+        if self.throughput_terms || (class == ObjectClass::Star && self.star_throughput_terms) {
+            2
+        } else {
+            1
+        }
+    }
+
     /// Redshift range configured for `class`.
     pub fn z_range(&self, class: ObjectClass) -> (f64, f64) {
         match class {
@@ -176,7 +199,7 @@ impl FitConfig {
         format!(
             "method={} dloglam={} classes={} z_galaxy={}..{} z_quasar={}..{} z_star={}..{} \
              poly_terms={} n_candidates={} min_separation_kms={} mask_sky={} nonnegative={} \
-             sys_floor={} star_window_prefers_stars={} throughput_terms={}",
+             sys_floor={} star_window_prefers_stars={} throughput_terms={} star_throughput_terms={}",
             self.method.as_str(),
             self.dloglam,
             classes.join(","),
@@ -193,7 +216,8 @@ impl FitConfig {
             self.nonnegative,
             self.sys_floor,
             self.star_window_prefers_stars,
-            self.throughput_terms
+            self.throughput_terms,
+            self.star_throughput_terms
         )
     }
 }

@@ -89,9 +89,11 @@ impl Engine {
                 )));
             }
         }
-        let units = build_units(templates, &config.classes, config.dloglam)?;
-        let groups = if config.throughput_terms { 2 } else { 1 };
-        if let Some(u) = units.iter().find(|u| groups * u.k() + config.poly_terms > 32) {
+        let mut units = build_units(templates, &config.classes, config.dloglam)?;
+        for u in &mut units {
+            u.groups = config.groups_of(u.class);
+        }
+        if let Some(u) = units.iter().find(|u| u.cols() + config.poly_terms > 32) {
             return Err(FitError::InvalidConfig(format!(
                 "{} has {} templates; with {} polynomial terms (and throughput terms if set) that exceeds 32 columns",
                 u.name,
@@ -151,9 +153,12 @@ impl Engine {
     /// The χ² fit over `ranges`; when its best solution is a poor fit
     /// (χ²_r > [`POOR_FIT_CHI2R`](super::POOR_FIT_CHI2R)) the fit is
     /// repeated with [`POOR_FIT_POLY_TERMS`] continuum terms and that one
-    /// is kept when its best solution is of the same class and the Bayesian
-    /// information criterion prefers it (Schwarz 1978: χ² + k ln N, N the
-    /// good pixels, k the extra terms).
+    /// is kept when the Bayesian information criterion prefers it (Schwarz
+    /// 1978: χ² + k ln N, N the good pixels, k the extra terms) and its best
+    /// solution is of the same class, or of another class that beats the
+    /// first class's best in the refit by more than the `class_close` cut
+    /// ([`CLASS_CLOSE_DCHI2`](super::CLASS_CLOSE_DCHI2) × the mismatch
+    /// scale). Either way the answer keeps the `poor_fit` warning.
     fn run_chi2(&self, s: &Spectrum, ranges: &[(ObjectClass, (i64, i64))]) -> Result<FitResult, FitError> {
         let first = self.run(&self.config, &Chi2, s, ranges)?;
         let j = self.config.poly_terms;
@@ -164,11 +169,7 @@ impl Engine {
             poly_terms: POOR_FIT_POLY_TERMS,
             ..self.config.clone()
         };
-        if self
-            .units
-            .iter()
-            .any(|u| self.groups() * u.k() + POOR_FIT_POLY_TERMS > 32)
-        {
+        if self.units.iter().any(|u| u.cols() + POOR_FIT_POLY_TERMS > 32) {
             return Ok(first);
         }
         let Ok(second) = self.run(&flexible, &Chi2, s, ranges) else {
@@ -177,29 +178,29 @@ impl Engine {
         let (Some(a), Some(b)) = (first.best(), second.best()) else {
             return Ok(first);
         };
-        // the refit settles where the first fit's class sits, not the class:
-        // a star is told from galaxies and quasars largely by its continuum,
-        // which the extra terms take over (a real DA white dwarf or M dwarf
-        // then fits better as a galaxy or quasar)
+        // the refit settles where the first fit's class sits; it changes the
+        // class only when, with the same continuum freedom for every class,
+        // its answer beats that class's best by far more than the class cut
+        // (a star is told from galaxies and quasars largely by its continuum,
+        // which the extra terms take over; a spectrum whose flux calibration
+        // is off across its range is fitted, with three terms, best by a
+        // star's tilted continuum, and its lines decide only with more)
         let price = (POOR_FIT_POLY_TERMS - j) as f64 * (second.n_good.max(2) as f64).ln();
-        Ok(if b.class == a.class && b.chi2 + price < a.chi2 {
-            // the warning stays: the templates with the usual continuum did
-            // not describe this spectrum (bad calibration, or a rare object)
-            let mut second = second;
-            second.warnings.set(super::Warnings::POOR_FIT);
-            second
-        } else {
-            first
-        })
-    }
-
-    /// Template column groups per template (2 with throughput terms).
-    fn groups(&self) -> usize {
-        if self.config.throughput_terms {
-            2
-        } else {
-            1
-        }
+        let same_class_in_refit = second.per_class.iter().find(|c| c.class == a.class);
+        let class_clear = same_class_in_refit.is_some_and(|c| {
+            c.chi2 - b.chi2 > super::CLASS_CLOSE_DCHI2 * super::mismatch_scale(second.chi2_reduced)
+        });
+        Ok(
+            if (b.class == a.class || class_clear) && b.chi2 + price < a.chi2 {
+                // the warning stays: the templates with the usual continuum did
+                // not describe this spectrum (bad calibration, or a rare object)
+                let mut second = second;
+                second.warnings.set(super::Warnings::POOR_FIT);
+                second
+            } else {
+                first
+            },
+        )
     }
 
     /// The engine restricted to |Δv| ≤ `half_width_kms` around `z` (one class or all).
@@ -257,7 +258,7 @@ impl Engine {
         let dll = self.config.dloglam;
         let nanv = vec![f64::NAN; s.len()];
         let k = unit.k();
-        let g = self.groups();
+        let g = unit.groups;
         let kc = k * g;
         // the configured continuum terms, or those of a poor fit's refit
         let j = c.coeffs.len().saturating_sub(kc);
@@ -317,7 +318,7 @@ impl Engine {
             Prepared::with_floor(s, dll, j, self.reach, self.config.sys_floor)?
         };
         p.nonneg = self.config.nonnegative;
-        p.set_groups(if self.config.throughput_terms { 2 } else { 1 });
+        p.set_groups(self.units.iter().map(|u| u.groups).max().unwrap_or(1));
         Ok(p)
     }
 
@@ -440,7 +441,9 @@ impl FitMethod for Chi2 {
             // slightly worse minimum inside the plausible window (a
             // featureless white dwarf's flat χ²(v) has its lowest point
             // anywhere in the window, often beyond that speed)
-            let demoted = |m: &Minimum| too_fast_star(class, 10f64.powf(m.shift as f64 * dll) - 1.0);
+            let demoted = |m: &Minimum| {
+                class == ObjectClass::Star && too_fast_star(class, 10f64.powf(m.shift as f64 * dll) - 1.0)
+            };
             let mut kept = separated(minima, min_sep, 3 * n_cand, &demoted);
             for m in kept.iter_mut() {
                 let u = &setup.units[m.unit];
@@ -506,12 +509,12 @@ impl FitMethod for Chi2 {
             && cands[0].0.class == ObjectClass::Galaxy
             && velocity_sep_kms(cands[0].0.z, 0.0) <= STAR_VMAX_KMS
         {
-            let galaxy_k = setup.units[cands[0].1.unit].k();
+            let galaxy_cols = setup.units[cands[0].1.unit].cols();
             if let Some(i) = cands.iter().position(|(c, m, _)| {
                 c.class == ObjectClass::Star
                     && !implausible(c)
                     && c.chi2 - cands[0].0.chi2
-                        <= star_window_allowance(prep, galaxy_k, setup.units[m.unit].k())
+                        <= star_window_allowance(prep, galaxy_cols, setup.units[m.unit].cols())
             }) {
                 let star = cands.remove(i);
                 cands.insert(0, star);
@@ -544,7 +547,7 @@ impl FitMethod for Chi2 {
             ambiguous: false,
             dchi2_cut: true,
             candidates: ordered,
-            n_par: prep.cols(best_unit.k()) + prep.j(),
+            n_par: best_unit.cols() + prep.j(),
             at_edge: best_min.edge,
             negative_template: template_part_mean(prep, best_unit, best_shift, &best.coeffs) < 0.0,
             curves,
@@ -601,8 +604,8 @@ fn reach(units: &[Unit], config: &FitConfig) -> (f64, f64) {
 /// price of the galaxy basis's extra parameters, Δk · ln N, with N the
 /// independent good pixels. A galaxy that beats every star by more is a
 /// galaxy, however slow.
-fn star_window_allowance(prep: &Prepared, galaxy_k: usize, star_k: usize) -> f64 {
-    let extra = prep.cols(galaxy_k).saturating_sub(prep.cols(star_k)) as f64;
+fn star_window_allowance(prep: &Prepared, galaxy_cols: usize, star_cols: usize) -> f64 {
+    let extra = galaxy_cols.saturating_sub(star_cols) as f64;
     let n = (prep.n_good() as f64 / prep.oversampling).max(2.0);
     extra * n.ln()
 }
@@ -610,14 +613,16 @@ fn star_window_allowance(prep: &Prepared, galaxy_k: usize, star_k: usize) -> f64
 /// The lowest minima, at most `n`, each at least `min_sep` pixels from
 /// every lower one; minima that `demoted` marks come after all others.
 fn separated(
-    mut minima: Vec<Minimum>,
+    minima: Vec<Minimum>,
     min_sep: f64,
     n: usize,
     demoted: &dyn Fn(&Minimum) -> bool,
 ) -> Vec<Minimum> {
-    minima.sort_by(|a, b| demoted(a).cmp(&demoted(b)).then(a.chi2.total_cmp(&b.chi2)));
+    // the demotion judged once per minimum, not at every comparison
+    let mut keyed: Vec<(bool, Minimum)> = minima.into_iter().map(|m| (demoted(&m), m)).collect();
+    keyed.sort_by(|a, b| a.0.cmp(&b.0).then(a.1.chi2.total_cmp(&b.1.chi2)));
     let mut kept: Vec<Minimum> = Vec::new();
-    for m in minima {
+    for (_, m) in keyed {
         if kept.len() >= n {
             break;
         }
@@ -647,7 +652,7 @@ fn template_part_mean(prep: &Prepared, u: &Unit, shift: f64, coeffs: &[f64]) -> 
     let k = u.k();
     for &i in &prep.good {
         for a in 0..k {
-            let amp = if prep.groups() == 2 {
+            let amp = if u.groups == 2 {
                 coeffs[a] + coeffs[k + a] * prep.x[i]
             } else {
                 coeffs[a]

@@ -35,7 +35,9 @@ inverse FFT (real and imaginary part).
 */
 // Index loops here mirror the sums of the normal equations term by term.
 #![allow(clippy::needless_range_loop)]
-use super::prep::{amplitudes_feasible, solve_constrained, solve_normal_into, Prepared, MAX_COLUMNS};
+use super::prep::{
+    amplitudes_feasible, normal_fit_value, solve_constrained, solve_normal_into, Prepared, MAX_COLUMNS,
+};
 use super::sums::{active_columns_into, assemble_polynomials, assemble_templates, dot, n_corr, thresholds};
 use super::units::Unit;
 use rustfft::num_complex::Complex;
@@ -313,7 +315,7 @@ pub fn chi2_curve(
     plan: CorrPlan,
 ) -> Vec<f64> {
     let n = prep.grid.n;
-    let (k, j, g) = (unit.k(), prep.j(), prep.groups());
+    let (k, j, g) = (unit.k(), prep.j(), unit.groups);
     let ns = (s_hi - s_lo + 1).max(0) as usize;
     let ncorr = n_corr(k, j, g);
     let base = prep.g0 - unit.t0;
@@ -357,24 +359,27 @@ fn sums_fft(
     win: &Window,
 ) -> Vec<f64> {
     let n = prep.grid.n as i64;
-    let (k, g) = (unit.k(), prep.groups());
+    let (k, g) = (unit.k(), unit.groups);
     let len = win.len;
     let ut = cache.unit_transforms(key, unit, win);
     let dt = data.get(cache, prep, len);
+    // the data arrays this unit's columns use (a prefix of those made)
+    let (nq, nf) = (prep.data_for(g).0.len(), prep.data_for(g).1.len());
+    let (dwp, dwf) = (&dt.wp[..nq], &dt.wf[..nf]);
     // the list of correlations: (data spectrum, template spectrum)
     let mut pairs: Vec<(&Scaled, &Scaled)> = Vec::new();
     for tt in &ut.tt {
         for q in 0..2 * g - 1 {
-            pairs.push((&dt.wp[q], tt));
+            pairs.push((&dwp[q], tt));
         }
     }
     for t in &ut.t {
-        for wp in &dt.wp {
+        for wp in dwp {
             pairs.push((wp, t));
         }
     }
     for t in &ut.t {
-        for wf in &dt.wf {
+        for wf in dwf {
             pairs.push((wf, t));
         }
     }
@@ -437,9 +442,9 @@ fn sums_fft(
 /// of the data arrays and the shifted template arrays.
 fn sums_direct(prep: &Prepared, unit: &Unit, s_lo: i64, ns: usize) -> Vec<f64> {
     let (n, m) = (prep.grid.n as i64, unit.m() as i64);
-    let (k, g) = (unit.k(), prep.groups());
+    let (k, g) = (unit.k(), unit.groups);
     let ncorr = n_corr(k, prep.j(), g);
-    let (wp, wf) = (&prep.wl, &prep.wfx);
+    let (wp, wf) = prep.data_for(g);
     let t: Vec<&[f64]> = unit.t.iter().map(Vec::as_slice).collect();
     let tt = template_products(&t);
     let mut out = vec![0.0; ns * ncorr];
@@ -489,7 +494,7 @@ pub fn curve_constrained(prep: &Prepared, unit: &Unit) -> bool {
 /// Solve the normal equations at each shift from the sums (correlation-major),
 /// constrained as [`curve_constrained`] says.
 fn solve_shifts(prep: &Prepared, unit: &Unit, out: &[f64], ns: usize) -> Vec<f64> {
-    let (k, j, g) = (unit.k(), prep.j(), prep.groups());
+    let (k, j, g) = (unit.k(), prep.j(), unit.groups);
     let constrained = curve_constrained(prep, unit);
     let ncorr = n_corr(k, j, g);
     let thr = thresholds(prep, unit);
@@ -503,15 +508,27 @@ fn solve_shifts(prep: &Prepared, unit: &Unit, out: &[f64], ns: usize) -> Vec<f64
     let mut scratch = Vec::with_capacity(dim * dim);
     let mut chi2 = Vec::with_capacity(ns);
     let mut row = vec![0.0; ncorr];
-    assemble_polynomials(prep, k, &mut a, &mut b);
+    assemble_polynomials(prep, k, g, &mut a, &mut b);
+    let poly = (!constrained).then(|| PolyBlock::new(&a, &b, kc, j)).flatten();
     for si in 0..ns {
         for (ci, r) in row.iter_mut().enumerate() {
             *r = out[ci * ns + si];
         }
-        assemble_templates(prep, k, &row, &mut a, &mut b);
+        assemble_templates(prep, k, g, &row, &mut a, &mut b);
         active_columns_into(&a, dim, k, kc, &thr, &mut active[..dim]);
+        if !constrained {
+            // the coefficients are not needed, only bᵀc: from the polynomial
+            // block factored once, else (a near-singular template block) by
+            // the full solve
+            let fit = poly
+                .as_ref()
+                .and_then(|p| p.fit_value(&a, &b, &active[..kc], &mut scratch))
+                .unwrap_or_else(|| normal_fit_value(&a, &b, &active[..dim], &mut scratch));
+            chi2.push(prep.fww - fit);
+            continue;
+        }
         solve_normal_into(&a, &b, &active[..dim], &mut c, &mut scratch);
-        if constrained && !amplitudes_feasible(&a, &c, k, g) {
+        if !amplitudes_feasible(&a, &c, k, g) {
             // the least-squares amplitudes break the constraint: the constrained optimum
             let cc = solve_constrained(&a, &b, &active[..dim], k, g, true);
             c.copy_from_slice(&cc);
@@ -522,9 +539,213 @@ fn solve_shifts(prep: &Prepared, unit: &Unit, out: &[f64], ns: usize) -> Vec<f64
     chi2
 }
 
+/// Most polynomial terms a [`PolyBlock`] holds (the engine allows 10).
+const MAX_POLY: usize = 10;
+
+/// The polynomial block of the normal equations, the same at every trial
+/// shift, factored once per curve: with the columns ordered polynomials
+/// first, bᵀA⁻¹b = |q|² + rᵀS⁻¹r, where L_P L_Pᵀ = P (the polynomial block),
+/// q = L_P⁻¹ b_P, W = L_P⁻¹ X (X the template × polynomial block),
+/// S = T − WᵀW (T the template block: the Schur complement) and
+/// r = b_T − Wᵀq. Per shift only the k × k complement is factored instead of
+/// the whole (k + j)² system. Everything is scaled to unit diagonal, as in
+/// [`solve_normal_into`], with the same relative pivot test.
+struct PolyBlock {
+    /// Offset of the polynomial columns (the template columns k·g).
+    kc: usize,
+    /// Number of polynomials.
+    j: usize,
+    /// 1/√diagonal of the polynomial block.
+    d: [f64; MAX_POLY],
+    /// Cholesky factor of the scaled polynomial block (row-major j × j, lower).
+    l: [f64; MAX_POLY * MAX_POLY],
+    /// L_P⁻¹ (scaled b_P).
+    q: [f64; MAX_POLY],
+    /// |q|².
+    qn: f64,
+}
+
+impl PolyBlock {
+    /// Factor the polynomial block of `a` (`dim = kc + j`); `None` when there
+    /// are too many polynomials or the block is singular.
+    fn new(a: &[f64], b: &[f64], kc: usize, j: usize) -> Option<PolyBlock> {
+        if j == 0 || j > MAX_POLY {
+            return None;
+        }
+        let dim = kc + j;
+        let mut p = PolyBlock {
+            kc,
+            j,
+            d: [0.0; MAX_POLY],
+            l: [0.0; MAX_POLY * MAX_POLY],
+            q: [0.0; MAX_POLY],
+            qn: 0.0,
+        };
+        for r in 0..j {
+            let v = a[(kc + r) * dim + kc + r];
+            if v.is_nan() || v <= 0.0 {
+                return None;
+            }
+            p.d[r] = 1.0 / v.sqrt();
+        }
+        for r in 0..j {
+            for c in 0..=r {
+                p.l[r * MAX_POLY + c] = a[(kc + r) * dim + kc + c] * p.d[r] * p.d[c];
+            }
+        }
+        for c in 0..j {
+            let mut s = p.l[c * MAX_POLY + c];
+            for t in 0..c {
+                s -= p.l[c * MAX_POLY + t] * p.l[c * MAX_POLY + t];
+            }
+            if s <= 1e-10 {
+                return None;
+            }
+            let piv = s.sqrt();
+            p.l[c * MAX_POLY + c] = piv;
+            for r in c + 1..j {
+                let mut s = p.l[r * MAX_POLY + c];
+                for t in 0..c {
+                    s -= p.l[r * MAX_POLY + t] * p.l[c * MAX_POLY + t];
+                }
+                p.l[r * MAX_POLY + c] = s / piv;
+            }
+        }
+        let mut bp = [0.0; MAX_POLY];
+        for r in 0..j {
+            bp[r] = b[kc + r] * p.d[r];
+        }
+        let mut q = [0.0; MAX_POLY];
+        p.forward(&bp, &mut q);
+        p.q = q;
+        p.qn = p.q[..j].iter().map(|v| v * v).sum();
+        Some(p)
+    }
+
+    /// L_P⁻¹ x into `out`.
+    fn forward(&self, x: &[f64; MAX_POLY], out: &mut [f64; MAX_POLY]) {
+        for r in 0..self.j {
+            let mut s = x[r];
+            for t in 0..r {
+                s -= self.l[r * MAX_POLY + t] * out[t];
+            }
+            out[r] = s / self.l[r * MAX_POLY + r];
+        }
+    }
+
+    /// bᵀA⁻¹b over the active template columns and every polynomial, from
+    /// the normal equations `a`, `b` of one shift; `None` when the Schur
+    /// complement is (nearly) singular.
+    fn fit_value(&self, a: &[f64], b: &[f64], active: &[bool], scratch: &mut Vec<f64>) -> Option<f64> {
+        let (kc, j) = (self.kc, self.j);
+        let dim = kc + j;
+        let mut idx = [0usize; MAX_COLUMNS];
+        let mut ka = 0;
+        for t in 0..kc {
+            if active[t] && a[t * dim + t] > 0.0 {
+                idx[ka] = t;
+                ka += 1;
+            }
+        }
+        // scratch (reused between shifts; only what is used is set, this
+        // runs at every trial shift): W (ka × MAX_POLY), then S (ka × ka)
+        scratch.clear();
+        scratch.resize(ka * MAX_POLY + ka * ka, 0.0);
+        let (w, s) = scratch.split_at_mut(ka * MAX_POLY);
+        let mut dt = [0.0; MAX_COLUMNS];
+        let mut r = [0.0; MAX_COLUMNS];
+        for (n, &t) in idx[..ka].iter().enumerate() {
+            dt[n] = 1.0 / a[t * dim + t].sqrt();
+            let mut x = [0.0; MAX_POLY];
+            for c in 0..j {
+                x[c] = a[t * dim + kc + c] * dt[n] * self.d[c];
+            }
+            let wn: &mut [f64; MAX_POLY] = (&mut w[n * MAX_POLY..(n + 1) * MAX_POLY]).try_into().ok()?;
+            self.forward(&x, wn);
+            let wq: f64 = wn[..j].iter().zip(&self.q[..j]).map(|(x, y)| x * y).sum();
+            r[n] = b[t] * dt[n] - wq;
+        }
+        // the Schur complement, factored in place (lower triangle)
+        for m in 0..ka {
+            for n in 0..=m {
+                let (wm, wn) = (
+                    &w[m * MAX_POLY..m * MAX_POLY + j],
+                    &w[n * MAX_POLY..n * MAX_POLY + j],
+                );
+                let ww: f64 = wm.iter().zip(wn).map(|(x, y)| x * y).sum();
+                s[m * ka + n] = a[idx[m] * dim + idx[n]] * dt[m] * dt[n] - ww;
+            }
+        }
+        let mut y = [0.0; MAX_COLUMNS];
+        let mut fit = self.qn;
+        for c in 0..ka {
+            let mut v = s[c * ka + c];
+            for t in 0..c {
+                v -= s[c * ka + t] * s[c * ka + t];
+            }
+            if v <= 1e-10 {
+                return None;
+            }
+            let piv = v.sqrt();
+            s[c * ka + c] = piv;
+            for m in c + 1..ka {
+                let mut v = s[m * ka + c];
+                for t in 0..c {
+                    v -= s[m * ka + t] * s[c * ka + t];
+                }
+                s[m * ka + c] = v / piv;
+            }
+            let mut v = r[c];
+            for t in 0..c {
+                v -= s[c * ka + t] * y[t];
+            }
+            y[c] = v / piv;
+            fit += y[c] * y[c];
+        }
+        Some(fit)
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn the_schur_complement_gives_the_full_solve() {
+        // a random symmetric positive definite system of 4 template columns
+        // and 3 polynomials: bᵀA⁻¹b by the polynomial block factored once
+        // equals the full solve's bᵀc, with and without an inactive column
+        let (kc, j) = (4, 3);
+        let dim = kc + j;
+        let mut x = vec![0.0; dim * 20];
+        let mut seed = 12345u64;
+        for v in x.iter_mut() {
+            seed = seed
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            *v = (seed >> 11) as f64 / (1u64 << 53) as f64 - 0.5;
+        }
+        let mut a = vec![0.0; dim * dim];
+        let mut b = vec![0.0; dim];
+        for row in x.chunks(dim) {
+            for r in 0..dim {
+                b[r] += row[r] * (r as f64 + 0.5);
+                for c in 0..dim {
+                    a[r * dim + c] += row[r] * row[c];
+                }
+            }
+        }
+        let p = PolyBlock::new(&a, &b, kc, j).expect("positive definite");
+        for off in [None, Some(2)] {
+            let mut active = vec![true; dim];
+            if let Some(o) = off {
+                active[o] = false;
+            }
+            let full = normal_fit_value(&a, &b, &active, &mut Vec::new());
+            let schur = p.fit_value(&a, &b, &active[..kc], &mut Vec::new()).unwrap();
+            assert!(((full - schur) / full).abs() < 1e-12, "{full} vs {schur}");
+        }
+    }
 
     #[test]
     fn nice_lengths_are_smooth_and_minimal() {

@@ -136,6 +136,7 @@ impl Unit {
             t: Vec::new(),
             names: Vec::new(),
             kinds: Vec::new(),
+            groups: self.groups,
         }
     }
 }

@@ -51,8 +51,9 @@ pub struct Prepared {
     pub nonneg: bool,
     /// x ∈ [−1, 1] across the grid (the argument of the Legendre polynomials).
     pub x: Vec<f64>,
-    /// Columns per template: 1 (T_k) or 2 (T_k and the throughput term T_k·x);
-    /// set by [`Prepared::set_groups`], which also makes the data arrays.
+    /// Most columns per template the data arrays serve: 1 (T_k) or 2 (T_k
+    /// and the throughput term T_k·x); set by [`Prepared::set_groups`], which
+    /// also makes the data arrays.
     groups: usize,
 }
 
@@ -61,6 +62,20 @@ pub struct Prepared {
 /// polynomial sums and q ≤ 2(g − 1) for the template products.
 pub fn n_legendre(j: usize, g: usize) -> usize {
     (j + g - 1).max(2 * g - 1)
+}
+
+/// [`legendre`] into `out` (P_0..P_{out.len()-1}), without allocating.
+pub fn legendre_into(x: f64, out: &mut [f64]) {
+    for k in 0..out.len() {
+        out[k] = match k {
+            0 => 1.0,
+            1 => x,
+            _ => {
+                let kf = k as f64;
+                ((2.0 * kf - 1.0) * x * out[k - 1] - (kf - 1.0) * out[k - 2]) / kf
+            }
+        };
+    }
 }
 
 /// Legendre polynomials P_0..P_{j-1} at x ∈ [−1, 1] (Bonnet's recursion).
@@ -139,11 +154,13 @@ impl Prepared {
         let (l0, l1) = (grid.wave(0), grid.wave(n - 1));
         let mut p = vec![vec![0.0; n]; poly_terms];
         let mut xs = vec![0.0; n];
+        let mut pj = vec![0.0; poly_terms];
         for i in 0..n {
             let x = 2.0 * (grid.wave(i) - l0) / (l1 - l0) - 1.0;
             xs[i] = x;
-            for (j, v) in legendre(poly_terms, x).into_iter().enumerate() {
-                p[j][i] = v;
+            legendre_into(x, &mut pj);
+            for (j, v) in pj.iter().enumerate() {
+                p[j][i] = *v;
             }
         }
         let j = poly_terms;
@@ -180,21 +197,33 @@ impl Prepared {
         Ok(prep)
     }
 
-    /// Columns per template: 1 (T_k) or 2 (T_k and the throughput term T_k·x).
-    pub fn groups(&self) -> usize {
+    /// Most columns per template the data arrays serve: 1 (T_k) or 2 (T_k
+    /// and the throughput term T_k·x). A unit of [`Unit::groups`](super::units::Unit::groups) ≤ this
+    /// uses the first [`n_legendre`]`(j, groups)` arrays of
+    /// [`Prepared::wl`] and the first `groups` of [`Prepared::wfx`].
+    pub fn max_groups(&self) -> usize {
         self.groups
     }
 
-    /// Set the columns per template (1, or 2 with throughput terms; clamped
-    /// to that) and make the data arrays w·P_q and w·f·x^u for it.
+    /// The data arrays w·P_q and w·f·x^u a unit of `groups` columns per
+    /// template uses.
+    pub fn data_for(&self, groups: usize) -> (&[Vec<f64>], &[Vec<f64>]) {
+        let g = groups.clamp(1, self.groups);
+        (&self.wl[..n_legendre(self.j(), g)], &self.wfx[..g])
+    }
+
+    /// Set the most columns per template (1, or 2 with throughput terms;
+    /// clamped to that) and make the data arrays w·P_q and w·f·x^u for it.
     pub fn set_groups(&mut self, groups: usize) {
         let g = groups.clamp(1, 2);
         self.groups = g;
         let n = self.grid.n;
         let nq = n_legendre(self.j(), g);
         self.wl = vec![vec![0.0; n]; nq];
+        let mut p = vec![0.0; nq];
         for &i in &self.good {
-            for (q, v) in legendre(nq, self.x[i]).into_iter().enumerate() {
+            legendre_into(self.x[i], &mut p);
+            for (q, v) in p.iter().enumerate() {
                 self.wl[q][i] = self.w[i] * v;
             }
         }
@@ -221,11 +250,6 @@ impl Prepared {
     /// Number of polynomial terms.
     pub fn j(&self) -> usize {
         self.p.len()
-    }
-
-    /// Number of template columns for a unit of `k` templates.
-    pub fn cols(&self, k: usize) -> usize {
-        k * self.groups
     }
 }
 
@@ -392,8 +416,32 @@ pub fn solve_normal(a: &[f64], b: &[f64], active: &[bool]) -> Vec<f64> {
 /// [`MAX_COLUMNS`] active columns take part. `scratch` holds the factor
 /// (reused between calls).
 pub fn solve_normal_into(a: &[f64], b: &[f64], active: &[bool], c: &mut [f64], scratch: &mut Vec<f64>) {
+    solve_normal_impl(a, b, active, Some(c), scratch);
+}
+
+/// bᵀc for the solution c of [`solve_normal_into`] (the part of χ² the fit
+/// explains: χ² = Σ w f² − bᵀc) without the coefficients: with the
+/// factorisation L Lᵀ of the (scaled) matrix, bᵀc = |L⁻¹ b|², so the back
+/// substitution is skipped. For the χ²(z) curves whose coefficients are not
+/// needed (the unconstrained bases), at every trial shift.
+pub fn normal_fit_value(a: &[f64], b: &[f64], active: &[bool], scratch: &mut Vec<f64>) -> f64 {
+    solve_normal_impl(a, b, active, None, scratch)
+}
+
+/// [`solve_normal_into`] (with `c`) or [`normal_fit_value`] (without);
+/// returns bᵀc either way.
+fn solve_normal_impl(
+    a: &[f64],
+    b: &[f64],
+    active: &[bool],
+    c: Option<&mut [f64]>,
+    scratch: &mut Vec<f64>,
+) -> f64 {
     let dim = b.len();
-    c[..dim].fill(0.0);
+    let mut c = c;
+    if let Some(c) = c.as_deref_mut() {
+        c[..dim].fill(0.0);
+    }
     let mut idx = [0usize; MAX_COLUMNS];
     let mut k = 0;
     for i in 0..dim {
@@ -403,7 +451,7 @@ pub fn solve_normal_into(a: &[f64], b: &[f64], active: &[bool], c: &mut [f64], s
         }
     }
     if k == 0 {
-        return;
+        return 0.0;
     }
     let idx = &idx[..k];
     // 1/√diagonal (multiplications below instead of divisions: this runs
@@ -455,6 +503,9 @@ pub fn solve_normal_into(a: &[f64], b: &[f64], active: &[bool], c: &mut [f64], s
             let s2 = v[i] - li.iter().zip(&y[..i]).map(|(a, b)| a * b).sum::<f64>();
             y[i] = s2 * inv[i];
         }
+        if c.is_none() {
+            return y[..k].iter().map(|v| v * v).sum();
+        }
         for i in (0..k).rev() {
             let mut s2 = y[i];
             for p in i + 1..k {
@@ -471,9 +522,12 @@ pub fn solve_normal_into(a: &[f64], b: &[f64], active: &[bool], c: &mut [f64], s
             }
         }
     }
-    for r in 0..k {
-        c[idx[r]] = x[r] * d[r];
+    if let Some(c) = c {
+        for r in 0..k {
+            c[idx[r]] = x[r] * d[r];
+        }
     }
+    x[..k].iter().zip(&v[..k]).map(|(x, v)| x * v).sum()
 }
 
 #[cfg(test)]
@@ -486,6 +540,9 @@ mod tests {
         // P2 = (3x²−1)/2, P3 = (5x³−3x)/2 (closed forms, common practice).
         for &x in &[-1.0, -0.3, 0.0, 0.7, 1.0] {
             let p = legendre(4, x);
+            let mut q = [0.0; 4];
+            legendre_into(x, &mut q);
+            assert_eq!(p, q);
             assert_relative_eq!(p[2], 0.5 * (3.0 * x * x - 1.0), epsilon = 1e-14);
             assert_relative_eq!(p[3], 0.5 * (5.0 * x * x * x - 3.0 * x), epsilon = 1e-14);
         }

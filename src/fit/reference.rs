@@ -20,7 +20,7 @@ use super::units::Unit;
 /// With `nonneg` the template amplitudes are constrained to be ≥ 0.
 pub fn direct_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg: bool) -> DirectFit {
     let k = unit.k();
-    let kc = prep.cols(k);
+    let (kc, g) = (unit.cols(), unit.groups);
     let j = prep.j();
     let dim = kc + j;
     let x0 = offset(prep, unit, shift);
@@ -33,7 +33,7 @@ pub fn direct_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg:
             let v = unit.interp(t, i as f64 + x0);
             // column u·k + t is T_t·x^u (u = 1: the throughput term)
             let mut m = v;
-            for u in 0..prep.groups() {
+            for u in 0..g {
                 row[u * k + t] = m;
                 m *= prep.x[i];
             }
@@ -57,7 +57,7 @@ pub fn direct_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg:
         }
     }
     let active = active_columns(&a, dim, k, kc, thr);
-    let coeffs = solve_constrained(&a, &b, &active, k, prep.groups(), nonneg);
+    let coeffs = solve_constrained(&a, &b, &active, k, g, nonneg);
     let mut chi2 = 0.0;
     for (gi, &i) in prep.good.iter().enumerate() {
         let model: f64 = coeffs

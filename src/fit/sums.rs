@@ -104,15 +104,15 @@ pub(crate) fn n_corr(k: usize, j: usize, g: usize) -> usize {
 /// and `b` of a unit of `k` templates from one shift's template sums `row`
 /// (in the order of [`n_corr`]) and the polynomial sums of `prep`.
 /// Column u·k + a is T_a·x^u; then the polynomials.
-pub(crate) fn assemble(prep: &Prepared, k: usize, row: &[f64], a: &mut [f64], b: &mut [f64]) {
-    assemble_templates(prep, k, row, a, b);
-    assemble_polynomials(prep, k, a, b);
+pub(crate) fn assemble(prep: &Prepared, k: usize, g: usize, row: &[f64], a: &mut [f64], b: &mut [f64]) {
+    assemble_templates(prep, k, g, row, a, b);
+    assemble_polynomials(prep, k, g, a, b);
 }
 
 /// The polynomial block of the normal equations (the same at every shift).
-pub(crate) fn assemble_polynomials(prep: &Prepared, k: usize, a: &mut [f64], b: &mut [f64]) {
+pub(crate) fn assemble_polynomials(prep: &Prepared, k: usize, g: usize, a: &mut [f64], b: &mut [f64]) {
     let j = prep.j();
-    let kc = k * prep.groups();
+    let kc = k * g;
     let dim = kc + j;
     for p in 0..j {
         b[kc + p] = prep.pf[p];
@@ -123,8 +123,15 @@ pub(crate) fn assemble_polynomials(prep: &Prepared, k: usize, a: &mut [f64], b: 
 }
 
 /// The rows and columns of the template terms (see [`assemble`]).
-pub(crate) fn assemble_templates(prep: &Prepared, k: usize, row: &[f64], a: &mut [f64], b: &mut [f64]) {
-    let (j, g) = (prep.j(), prep.groups());
+pub(crate) fn assemble_templates(
+    prep: &Prepared,
+    k: usize,
+    g: usize,
+    row: &[f64],
+    a: &mut [f64],
+    b: &mut [f64],
+) {
+    let j = prep.j();
     let nq = n_legendre(j, g);
     let kc = k * g;
     let dim = kc + j;
@@ -204,32 +211,33 @@ pub fn sums_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg: b
     };
     let t: Vec<Vec<f64>> = unit.t.iter().map(|t| shift_cubic(t, i0, &wts, n)).collect();
     // the template sums in the fast path's order, then its normal equations
-    let g = prep.groups();
+    let g = unit.groups;
+    let (wl, wfx) = prep.data_for(g);
     let mut row = Vec::with_capacity(n_corr(k, j, g));
     for a in 0..k {
         for b in a..k {
             for q in 0..2 * g - 1 {
-                row.push(dot3(&prep.wl[q], &t[a], &t[b]));
+                row.push(dot3(&wl[q], &t[a], &t[b]));
             }
         }
     }
     for ta in &t {
-        for d in &prep.wl {
+        for d in wl {
             row.push(dot(d, ta));
         }
     }
     for ta in &t {
-        for d in &prep.wfx {
+        for d in wfx {
             row.push(dot(d, ta));
         }
     }
-    let kc = prep.cols(k);
+    let kc = unit.cols();
     let dim = kc + j;
     let mut a = vec![0.0; dim * dim];
     let mut b = vec![0.0; dim];
-    assemble(prep, k, &row, &mut a, &mut b);
+    assemble(prep, k, g, &row, &mut a, &mut b);
     let active = active_columns(&a, dim, k, kc, thr);
-    let coeffs = solve_constrained(&a, &b, &active, k, prep.groups(), nonneg);
+    let coeffs = solve_constrained(&a, &b, &active, k, g, nonneg);
     let fit: f64 = coeffs.iter().zip(&b).map(|(c, b)| c * b).sum();
     DirectFit {
         chi2: prep.fww - fit,

@@ -28,12 +28,21 @@ pub struct Unit {
     pub names: Vec<String>,
     /// Kind of each template.
     pub kinds: Vec<TemplateKind>,
+    /// Columns per template: 1 (T_k) or 2 (T_k and its throughput term
+    /// T_k·x, x the first Legendre polynomial across the fitted range); set
+    /// by the engine from its configuration.
+    pub groups: usize,
 }
 
 impl Unit {
     /// Number of templates.
     pub fn k(&self) -> usize {
         self.t.len()
+    }
+
+    /// Number of template columns (templates × [`Unit::groups`]).
+    pub fn cols(&self) -> usize {
+        self.k() * self.groups
     }
 
     /// Length of the template arrays.
@@ -110,6 +119,7 @@ fn class_units(ct: &ClassTemplates, dll: f64) -> Result<Vec<Unit>, FitError> {
                 t: vec![sample(t, lo, hi, dll)],
                 names: vec![t.name.clone()],
                 kinds: vec![t.kind],
+                groups: 1,
             })
             .collect()),
         FitMode::Basis => {
@@ -129,6 +139,7 @@ fn class_units(ct: &ClassTemplates, dll: f64) -> Result<Vec<Unit>, FitError> {
                 t: ct.templates.iter().map(|t| sample(t, lo, hi, dll)).collect(),
                 names: ct.templates.iter().map(|t| t.name.clone()).collect(),
                 kinds: ct.templates.iter().map(|t| t.kind).collect(),
+                groups: 1,
             }])
         }
     }

@@ -305,7 +305,7 @@ impl FitMethod for XCorr {
             let thr = thresholds(prep, u);
             let f = sums_fit(prep, u, (1.0 + p.z).log10() / dll, &thr, prep.nonneg);
             if cands.is_empty() {
-                k_best = prep.cols(u.k());
+                k_best = u.cols();
             }
             cands.push(Candidate {
                 class: p.class,
