@@ -107,7 +107,8 @@ impl std::fmt::Debug for FftCache {
 }
 
 /// Most (unit, window, L) transform sets kept before the cache is emptied:
-/// the built-in set has 14 units, so this holds about ten spectral set-ups.
+/// the built-in set has 36 units (34 stars, two bases), so this holds about
+/// four spectral set-ups.
 const MAX_CACHED: usize = 160;
 
 /// Template windows start and end on multiples of this many pixels.
@@ -514,6 +515,16 @@ fn solve_shifts(prep: &Prepared, unit: &Unit, out: &[f64], ns: usize) -> Vec<f64
         for (ci, r) in row.iter_mut().enumerate() {
             *r = out[ci * ns + si];
         }
+        if g == 1 {
+            // a basis without throughput columns: straight from the sums
+            if let Some(fit) = poly
+                .as_ref()
+                .and_then(|p| p.fit_value_row(&row, k, &thr, &mut scratch))
+            {
+                chi2.push(prep.fww - fit);
+                continue;
+            }
+        }
         assemble_templates(prep, k, g, &row, &mut a, &mut b);
         active_columns_into(&a, dim, k, kc, &thr, &mut active[..dim]);
         if !constrained {
@@ -637,8 +648,7 @@ impl PolyBlock {
     /// the normal equations `a`, `b` of one shift; `None` when the Schur
     /// complement is (nearly) singular.
     fn fit_value(&self, a: &[f64], b: &[f64], active: &[bool], scratch: &mut Vec<f64>) -> Option<f64> {
-        let (kc, j) = (self.kc, self.j);
-        let dim = kc + j;
+        let (kc, dim) = (self.kc, self.kc + self.j);
         let mut idx = [0usize; MAX_COLUMNS];
         let mut ka = 0;
         for t in 0..kc {
@@ -647,6 +657,57 @@ impl PolyBlock {
                 ka += 1;
             }
         }
+        self.schur(
+            &idx[..ka],
+            |m, n| a[m * dim + n],
+            |t, c| a[t * dim + kc + c],
+            |t| b[t],
+            scratch,
+        )
+    }
+
+    /// [`PolyBlock::fit_value`] straight from one shift's template sums
+    /// `row` (in the order of [`n_corr`]) for a unit of `k` templates and no
+    /// throughput columns, without assembling the normal equations; the
+    /// template columns active as [`active_columns_into`] says.
+    fn fit_value_row(&self, row: &[f64], k: usize, thr: &[f64], scratch: &mut Vec<f64>) -> Option<f64> {
+        let j = self.j;
+        // Σ w T_p T_q (p ≤ q, packed), then Σ w P_q T_p (j per template), then Σ w f T_p
+        let tt_at = |p: usize, q: usize| {
+            let (p, q) = if p <= q { (p, q) } else { (q, p) };
+            row[p * k - p * (p + 1) / 2 + q]
+        };
+        let tt_len = k * (k + 1) / 2;
+        let mut idx = [0usize; MAX_COLUMNS];
+        let mut ka = 0;
+        for t in 0..k {
+            let d = tt_at(t, t);
+            if d > thr[t] && d > 0.0 {
+                idx[ka] = t;
+                ka += 1;
+            }
+        }
+        self.schur(
+            &idx[..ka],
+            tt_at,
+            |t, c| row[tt_len + t * j + c],
+            |t| row[tt_len + k * j + t],
+            scratch,
+        )
+    }
+
+    /// |q|² + rᵀS⁻¹r over the template columns `idx`, with the template
+    /// block, the template × polynomial block and the template part of b
+    /// read through `tt`, `tp` and `bt`.
+    fn schur(
+        &self,
+        idx: &[usize],
+        tt: impl Fn(usize, usize) -> f64,
+        tp: impl Fn(usize, usize) -> f64,
+        bt: impl Fn(usize) -> f64,
+        scratch: &mut Vec<f64>,
+    ) -> Option<f64> {
+        let (j, ka) = (self.j, idx.len());
         // scratch (reused between shifts; only what is used is set, this
         // runs at every trial shift): W (ka × MAX_POLY), then S (ka × ka)
         scratch.clear();
@@ -654,16 +715,16 @@ impl PolyBlock {
         let (w, s) = scratch.split_at_mut(ka * MAX_POLY);
         let mut dt = [0.0; MAX_COLUMNS];
         let mut r = [0.0; MAX_COLUMNS];
-        for (n, &t) in idx[..ka].iter().enumerate() {
-            dt[n] = 1.0 / a[t * dim + t].sqrt();
+        for (n, &t) in idx.iter().enumerate() {
+            dt[n] = 1.0 / tt(t, t).sqrt();
             let mut x = [0.0; MAX_POLY];
             for c in 0..j {
-                x[c] = a[t * dim + kc + c] * dt[n] * self.d[c];
+                x[c] = tp(t, c) * dt[n] * self.d[c];
             }
             let wn: &mut [f64; MAX_POLY] = (&mut w[n * MAX_POLY..(n + 1) * MAX_POLY]).try_into().ok()?;
             self.forward(&x, wn);
             let wq: f64 = wn[..j].iter().zip(&self.q[..j]).map(|(x, y)| x * y).sum();
-            r[n] = b[t] * dt[n] - wq;
+            r[n] = bt(t) * dt[n] - wq;
         }
         // the Schur complement, factored in place (lower triangle)
         for m in 0..ka {
@@ -673,7 +734,7 @@ impl PolyBlock {
                     &w[n * MAX_POLY..n * MAX_POLY + j],
                 );
                 let ww: f64 = wm.iter().zip(wn).map(|(x, y)| x * y).sum();
-                s[m * ka + n] = a[idx[m] * dim + idx[n]] * dt[m] * dt[n] - ww;
+                s[m * ka + n] = tt(idx[m], idx[n]) * dt[m] * dt[n] - ww;
             }
         }
         let mut y = [0.0; MAX_COLUMNS];
@@ -744,6 +805,24 @@ mod tests {
             let full = normal_fit_value(&a, &b, &active, &mut Vec::new());
             let schur = p.fit_value(&a, &b, &active[..kc], &mut Vec::new()).unwrap();
             assert!(((full - schur) / full).abs() < 1e-12, "{full} vs {schur}");
+            // the same from the sums in the fast path's order (n_corr, g = 1),
+            // the switched-off column below its threshold
+            let mut row = Vec::new();
+            for p in 0..kc {
+                for q in p..kc {
+                    row.push(a[p * dim + q]);
+                }
+            }
+            for t in 0..kc {
+                row.extend((0..j).map(|c| a[t * dim + kc + c]));
+            }
+            row.extend(&b[..kc]);
+            assert_eq!(row.len(), n_corr(kc, j, 1));
+            let thr: Vec<f64> = (0..kc)
+                .map(|t| if active[t] { 0.0 } else { f64::INFINITY })
+                .collect();
+            let from_row = p.fit_value_row(&row, kc, &thr, &mut Vec::new()).unwrap();
+            assert!(((full - from_row) / full).abs() < 1e-12, "{full} vs {from_row}");
         }
     }
 
