@@ -9,8 +9,9 @@ What to vet next: a queue order that a person can read and check.
    - 4 points: the photometric class and the automatic class disagree (a
      training label and a classifier error are at stake);
    - 2 points: the automatic fit is doubtful — Δχ² to the next solution below
-     [`crate::queue::SMALL_DELTA_CHI2`], or an `ambiguous` or `class_close`
-     warning;
+     [`crate::queue::SMALL_DELTA_CHI2`], or a warning that doubts the answer
+     ([`crate::fit::Warnings::doubts_answer`]: `ambiguous`, `class_close`,
+     `single_line`, `few_lines`);
    - 1 point: the object lies in a stratum whose accuracy interval is wider
      than the median over the unvetted objects (where one more verdict
      teaches the most).

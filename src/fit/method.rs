@@ -62,18 +62,35 @@ pub fn rests_on_one_line(
     if class == ObjectClass::Star || !dark {
         return false;
     }
+    emission_features(lines) == 1
+}
+
+/// The number of emission features detected at [`LINE_EVIDENCE_SNR`]
+/// (positive flux), lines closer than [`ONE_FEATURE_FRACTION`] of their
+/// wavelength counting as one (a tied doublet or blend).
+fn emission_features(lines: &[super::result::LineMeasurement]) -> usize {
     let mut waves: Vec<f64> = lines
         .iter()
         .filter(|m| m.flux > 0.0 && m.snr >= LINE_EVIDENCE_SNR && m.obs_wave.is_finite())
         .map(|m| m.obs_wave)
         .collect();
     waves.sort_by(f64::total_cmp);
-    let features = waves
+    waves
         .windows(2)
         .filter(|w| w[1] - w[0] > ONE_FEATURE_FRACTION * w[0])
         .count()
-        + usize::from(!waves.is_empty());
-    features == 1
+        + usize::from(!waves.is_empty())
+}
+
+/// True when a quasar answer rests on fewer than two emission features
+/// ([`emission_features`]): a quasar is known by its broad emission lines,
+/// and one broad "line" can take up a mismatch of the continuum's shape, so
+/// with one feature or none the class rests on the continuum, which a
+/// featureless star shares (a real DC white dwarf is fitted better by a
+/// quasar continuum at z ≈ 2.2, with a 2300 km/s-wide "Lyα" at S/N 10, than
+/// by the blackbody template: README, "Stars").
+pub fn has_few_lines(class: ObjectClass, lines: &[super::result::LineMeasurement]) -> bool {
+    class == ObjectClass::Quasar && emission_features(lines) < 2
 }
 
 /// Factor by which the Δχ² cuts grow with template mismatch: the reduced χ²
@@ -231,6 +248,9 @@ pub(crate) fn finish(
     if rests_on_one_line(best.class, &lines, snr_median) {
         warnings.set(Warnings::SINGLE_LINE);
     }
+    if has_few_lines(best.class, &lines) {
+        warnings.set(Warnings::FEW_LINES);
+    }
     Ok(FitResult {
         object_id: s.meta.id.clone(),
         candidates: sol.candidates,
@@ -268,6 +288,29 @@ mod tests {
             continuum: 0.0,
             abs_ew_rest: None,
         }
+    }
+
+    #[test]
+    fn a_quasar_on_fewer_than_two_emission_features_is_flagged() {
+        // Mg II and C III] at z = 1.2 (our line list): both at 5σ clear it,
+        // one or none does not
+        let z = 1.2;
+        let both = vec![line("Mg II", z, 6.0), line("C III]", z, 5.0)];
+        assert!(!has_few_lines(ObjectClass::Quasar, &both));
+        let mut one = both.clone();
+        one[1] = line("C III]", z, 4.9);
+        assert!(has_few_lines(ObjectClass::Quasar, &one));
+        assert!(has_few_lines(ObjectClass::Quasar, &[]));
+        // absorption (negative flux) is no emission feature
+        let mut neg = both.clone();
+        neg[0].flux = -6.0;
+        assert!(has_few_lines(ObjectClass::Quasar, &neg));
+        // the two lines of a tied doublet (1 % apart) are one feature
+        let doublet = vec![line("[O III] 4960", 0.3, 8.0), line("[O III] 5008", 0.3, 8.0)];
+        assert!(has_few_lines(ObjectClass::Quasar, &doublet));
+        // galaxies (passive ones have no line) and stars are not judged by it
+        assert!(!has_few_lines(ObjectClass::Galaxy, &one));
+        assert!(!has_few_lines(ObjectClass::Star, &one));
     }
 
     #[test]

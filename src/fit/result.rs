@@ -29,8 +29,13 @@ impl Warnings {
     /// signal (see `rests_on_one_line` in the engine): the line could be
     /// another line at another redshift.
     pub const SINGLE_LINE: u32 = 1 << 7;
+    /// A quasar answer resting on fewer than two emission features (see
+    /// `has_few_lines` in the engine): the class rests on the continuum's
+    /// shape, which a featureless star (a DC white dwarf) or a BL Lac object
+    /// shares.
+    pub const FEW_LINES: u32 = 1 << 8;
     /// Names of the bits, in bit order.
-    pub const NAMES: [(u32, &'static str); 8] = [
+    pub const NAMES: [(u32, &'static str); 9] = [
         (Self::AMBIGUOUS, "ambiguous"),
         (Self::AT_GRID_EDGE, "at_grid_edge"),
         (Self::NEGATIVE_TEMPLATE, "negative_template"),
@@ -39,6 +44,7 @@ impl Warnings {
         (Self::NOISE_ESTIMATED, "noise_estimated"),
         (Self::CLASS_CLOSE, "class_close"),
         (Self::SINGLE_LINE, "single_line"),
+        (Self::FEW_LINES, "few_lines"),
     ];
 
     /// True when bit `b` is set.
@@ -52,9 +58,9 @@ impl Warnings {
     }
 
     /// A warning that doubts the answer itself (another redshift or class
-    /// may be right): `ambiguous`, `class_close` or `single_line`.
+    /// may be right): `ambiguous`, `class_close`, `single_line` or `few_lines`.
     pub fn doubts_answer(self) -> bool {
-        self.has(Self::AMBIGUOUS | Self::CLASS_CLOSE | Self::SINGLE_LINE)
+        self.has(Self::AMBIGUOUS | Self::CLASS_CLOSE | Self::SINGLE_LINE | Self::FEW_LINES)
     }
 
     /// Names of the set bits joined by `|` (empty string when none).
