@@ -206,9 +206,16 @@ impl Prepared {
     }
 
     /// The data arrays w·P_q and w·f·x^u a unit of `groups` columns per
-    /// template uses.
+    /// template uses. Panics when they were not made for that many
+    /// ([`Prepared::set_groups`]): a unit's sums would be wrong, not merely
+    /// slow (the engine prepares every spectrum for its units).
     pub fn data_for(&self, groups: usize) -> (&[Vec<f64>], &[Vec<f64>]) {
-        let g = groups.clamp(1, self.groups);
+        assert!(
+            groups <= self.groups,
+            "data arrays made for {} columns per template, {groups} asked",
+            self.groups
+        );
+        let g = groups.max(1);
         (&self.wl[..n_legendre(self.j(), g)], &self.wfx[..g])
     }
 
