@@ -776,11 +776,11 @@ fn real_stars() -> Vec<RealStar> {
 
 fn describe(label: &str, r: &FitResult) -> String {
     let b = r.best().unwrap();
-    // the emission lines detected at 5σ (what a galaxy or quasar answer rests on)
+    // the emission lines a galaxy or quasar answer rests on (the engine's evidence cut)
     let lines: Vec<String> = r
         .lines
         .iter()
-        .filter(|m| m.flux > 0.0 && m.snr >= 5.0)
+        .filter(|m| m.flux > 0.0 && m.snr >= zvet::fit::LINE_EVIDENCE_SNR)
         .map(|m| format!("{} S/N {:.0} σ {:.0} km/s", m.name, m.snr, m.sigma_kms))
         .collect();
     format!(

@@ -441,6 +441,8 @@ impl FitMethod for Chi2 {
             // slightly worse minimum inside the plausible window (a
             // featureless white dwarf's flat χ²(v) has its lowest point
             // anywhere in the window, often beyond that speed)
+            // (the class tested first: the other classes' thousands of
+            // minima need no power of ten)
             let demoted = |m: &Minimum| {
                 class == ObjectClass::Star && too_fast_star(class, 10f64.powf(m.shift as f64 * dll) - 1.0)
             };

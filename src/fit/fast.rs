@@ -365,8 +365,8 @@ fn sums_fft(
     let ut = cache.unit_transforms(key, unit, win);
     let dt = data.get(cache, prep, len);
     // the data arrays this unit's columns use (a prefix of those made)
-    let (nq, nf) = (prep.data_for(g).0.len(), prep.data_for(g).1.len());
-    let (dwp, dwf) = (&dt.wp[..nq], &dt.wf[..nf]);
+    let (wl, wfx) = prep.data_for(g);
+    let (dwp, dwf) = (&dt.wp[..wl.len()], &dt.wf[..wfx.len()]);
     // the list of correlations: (data spectrum, template spectrum)
     let mut pairs: Vec<(&Scaled, &Scaled)> = Vec::new();
     for tt in &ut.tt {

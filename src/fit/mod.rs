@@ -32,8 +32,8 @@ pub use engine::Engine;
 pub use fast::CorrPlan;
 pub use lines::measure_at as measure_emission_lines;
 pub use method::{
-    mismatch_scale, velocity_sep_kms, AMBIGUOUS_DCHI2, CLASS_CLOSE_DCHI2, FEW_PIXELS, POOR_FIT_CHI2R,
-    STAR_VMAX_KMS,
+    mismatch_scale, velocity_sep_kms, AMBIGUOUS_DCHI2, CLASS_CLOSE_DCHI2, FEW_PIXELS, LINE_EVIDENCE_SNR,
+    POOR_FIT_CHI2R, STAR_VMAX_KMS,
 };
 pub use overlay::{Overlay, OverlayTemplate};
 pub use prep::Prepared;

@@ -80,18 +80,8 @@ pub fn legendre_into(x: f64, out: &mut [f64]) {
 
 /// Legendre polynomials P_0..P_{j-1} at x ∈ [−1, 1] (Bonnet's recursion).
 pub fn legendre(j: usize, x: f64) -> Vec<f64> {
-    let mut out = Vec::with_capacity(j);
-    for k in 0..j {
-        let v = match k {
-            0 => 1.0,
-            1 => x,
-            _ => {
-                let kf = k as f64;
-                ((2.0 * kf - 1.0) * x * out[k - 1] - (kf - 1.0) * out[k - 2]) / kf
-            }
-        };
-        out.push(v);
-    }
+    let mut out = vec![0.0; j];
+    legendre_into(x, &mut out);
     out
 }
 
@@ -226,23 +216,28 @@ impl Prepared {
         self.groups = g;
         let n = self.grid.n;
         let nq = n_legendre(self.j(), g);
-        self.wl = vec![vec![0.0; n]; nq];
-        let mut p = vec![0.0; nq];
-        for &i in &self.good {
-            legendre_into(self.x[i], &mut p);
-            for (q, v) in p.iter().enumerate() {
-                self.wl[q][i] = self.w[i] * v;
+        // both sets are prefixes of one sequence (q, u = 0, 1, …): those
+        // already made for fewer columns are kept, only the missing ones made
+        self.wl.truncate(nq);
+        let have = self.wl.len();
+        if have < nq {
+            self.wl.resize(nq, vec![0.0; n]);
+            let mut p = vec![0.0; nq];
+            for &i in &self.good {
+                legendre_into(self.x[i], &mut p);
+                for q in have..nq {
+                    self.wl[q][i] = self.w[i] * p[q];
+                }
             }
         }
-        self.wfx = (0..g)
-            .map(|u| {
-                (0..n)
-                    .map(|i| self.w[i] * self.flux[i] * self.x[i].powi(u as i32))
-                    .collect()
-            })
-            .collect();
+        self.wfx.truncate(g);
+        for u in self.wfx.len()..g {
+            let col = (0..n)
+                .map(|i| self.w[i] * self.flux[i] * self.x[i].powi(u as i32))
+                .collect();
+            self.wfx.push(col);
+        }
     }
-
     /// Number of good pixels.
     pub fn n_good(&self) -> usize {
         self.good.len()
@@ -563,6 +558,40 @@ mod tests {
         assert_relative_eq!(c[1], 0.0, epsilon = 1e-14);
         let c = solve_normal(&[4.0, 2.0, 2.0, 3.0], &[2.0, 1.0], &[true, false]);
         assert_relative_eq!(c[0], 0.5, epsilon = 1e-14);
+    }
+
+    #[test]
+    fn data_arrays_follow_the_columns_per_template() {
+        // w·P_q (q < n_legendre(j, g)) and w·f·x^u (u < g) by their
+        // definition, however often the number of columns changes
+        let wave: Vec<f64> = (0..300).map(|i| 5000.0 + 2.0 * i as f64).collect();
+        let flux: Vec<f64> = (0..300).map(|i| 1.0 + 0.01 * i as f64).collect();
+        let s = Spectrum::new(
+            wave,
+            flux,
+            Some(vec![4.0; 300]),
+            None,
+            crate::spectrum::SpectrumMeta::default(),
+        )
+        .unwrap();
+        let mut p = Prepared::new(&s, 1e-4, 3, (0.0, 1e9)).unwrap();
+        for g in [2, 1, 2, 2, 1] {
+            p.set_groups(g);
+            let nq = n_legendre(3, g);
+            assert_eq!((p.wl.len(), p.wfx.len(), p.max_groups()), (nq, g, g));
+            for i in 0..p.grid.n {
+                let l = legendre(nq, p.x[i]);
+                for q in 0..nq {
+                    // the same arithmetic: the same bits
+                    let want = if p.w[i] > 0.0 { p.w[i] * l[q] } else { 0.0 };
+                    assert_eq!(p.wl[q][i].to_bits(), want.to_bits(), "q {q} pixel {i}");
+                }
+                for u in 0..g {
+                    let want = p.w[i] * p.flux[i] * p.x[i].powi(u as i32);
+                    assert_relative_eq!(p.wfx[u][i], want, max_relative = 1e-15);
+                }
+            }
+        }
     }
 
     #[test]
