@@ -236,6 +236,16 @@ pub fn hydrogen_wave(n1: u32, n2: u32) -> f64 {
     1e8 / (r_h * (1.0 / (a * a) - 1.0 / (b * b)))
 }
 
+/// He II line wavelength (vacuum Å) for lower level `n1`, upper `n2`: the
+/// Rydberg formula for a nuclear charge of 2 (1/λ = 4 R_He (1/n1² − 1/n2²))
+/// with the reduced-mass constant of ⁴He (CODATA R∞ and m_α/mₑ =
+/// 7294.2995, from memory); fine structure (≲ 0.1 Å in the optical) ignored.
+pub fn helium_ii_wave(n1: u32, n2: u32) -> f64 {
+    let r_he = 109_737.315_68 / (1.0 + 1.0 / 7_294.299_5); // cm⁻¹
+    let (a, b) = (f64::from(n1), f64::from(n2));
+    1e8 / (4.0 * r_he * (1.0 / (a * a) - 1.0 / (b * b)))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -249,6 +259,24 @@ mod tests {
         assert_abs_diff_eq!(erf(1.0), 0.842_700_792_9, epsilon = 2e-7);
         assert_abs_diff_eq!(erf(-2.0), -0.995_322_265_0, epsilon = 2e-7);
         assert_abs_diff_eq!(erf(0.0), 0.0, epsilon = 2e-7);
+    }
+
+    #[test]
+    fn helium_ii_lines_fall_on_their_published_wavelengths() {
+        // air wavelengths of He II λ4686 and the Pickering lines n = 6, 7, 8,
+        // 9, 10 (NIST Atomic Spectra Database, from memory)
+        let published = [
+            (3, 4, 4685.71),
+            (4, 6, 6560.10),
+            (4, 7, 5411.52),
+            (4, 8, 4859.32),
+            (4, 9, 4541.59),
+            (4, 10, 4338.67),
+        ];
+        for (n1, n2, air) in published {
+            let vac = crate::templates::stars_cool::air_to_vacuum(air);
+            assert_abs_diff_eq!(helium_ii_wave(n1, n2), vac, epsilon = 0.15);
+        }
     }
 
     #[test]

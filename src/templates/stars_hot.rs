@@ -13,7 +13,9 @@ Wolf–Rayet lines as identified in the classification scheme of Smith,
 Shara & Moffat 1996 for WN and Crowther, De Marco & Barlow 1998 for WC),
 converted to vacuum with [`air_to_vacuum`].
 */
-use super::profiles::{add_gaussian, apply_tau, convolve_velocity, median_in, Absorber, Grid};
+use super::profiles::{
+    add_gaussian, apply_tau, convolve_velocity, helium_ii_wave, median_in, Absorber, Grid,
+};
 use super::stars::{continuum, grey_opacity, hydrogen_lines, StarType, STAR_SIGMA_KMS};
 use super::stars_cool::air_to_vacuum;
 use serde::Serialize;
@@ -95,8 +97,18 @@ const HE_I: &[(f64, f64)] = &[
     (7065.19, 0.5),
 ];
 
-/// He II lines (air Å, NIST from memory) with relative strength.
-const HE_II: &[(f64, f64)] = &[(4199.83, 0.4), (4541.59, 0.6), (4685.68, 1.0), (5411.52, 0.7)];
+/// He II lines of a hot subdwarf (vacuum Å) with relative strength: λ4686
+/// (n = 3–4) and the Pickering series (n = 4–6 … 4–15). The even members of
+/// the series (6560, 4859, 4339, 4100, …) sit about 2 Å blue of the Balmer
+/// lines; in a helium-rich sdO, the common kind, they dominate the blends,
+/// whose centres therefore lie blue of pure hydrogen. Strengths fall smoothly
+/// along the series (4.8/n relative to λ4686; a round rule from memory that
+/// keeps the earlier 5412/4542/4200 strengths within 0.05).
+fn he_ii_lines() -> Vec<(f64, f64)> {
+    let mut out = vec![(helium_ii_wave(3, 4), 1.0)];
+    out.extend((6..=15).map(|n| (helium_ii_wave(4, n), 4.8 / f64::from(n))));
+    out
+}
 
 /// Emission lines of a WN star: air Å, rest equivalent width (Å, emission
 /// positive; typical of WN4–6 stars, from memory).
@@ -125,9 +137,17 @@ const WC_LINES: &[(f64, f64)] = &[
     (7236.0, 30.0),  // C III/C IV blend
 ];
 
+/// He lines given in air Å (see [`he_lines_vacuum`]).
 fn he_lines(tau: &mut [f64], grid: &Grid, list: &[(f64, f64)], tau0: f64, gamma: f64, sigma_kms: f64) {
-    for &(air, rel) in list {
-        let center = air_to_vacuum(air);
+    let vacuum: Vec<(f64, f64)> = list.iter().map(|&(air, rel)| (air_to_vacuum(air), rel)).collect();
+    he_lines_vacuum(tau, grid, &vacuum, tau0, gamma, sigma_kms);
+}
+
+/// Absorption lines at vacuum wavelengths with relative strengths: central
+/// optical depth `tau0`·rel, Stark half width `gamma` Å at 4471 Å (scaled
+/// with λ), Doppler dispersion `sigma_kms`.
+fn he_lines_vacuum(tau: &mut [f64], grid: &Grid, list: &[(f64, f64)], tau0: f64, gamma: f64, sigma_kms: f64) {
+    for &(center, rel) in list {
         Absorber {
             center,
             tau0: tau0 * rel,
@@ -186,7 +206,7 @@ pub fn hot_star(st: &HotType, grid: &Grid, instrument_kms: f64) -> Vec<f64> {
         }
         HotKind::SubdwarfO => {
             hydrogen(&mut tau, grid, 0.35, 10.0, sigma);
-            he_lines(&mut tau, grid, HE_II, 0.5, 2.0, 60.0);
+            he_lines_vacuum(&mut tau, grid, &he_ii_lines(), 0.5, 2.0, 60.0);
             he_lines(&mut tau, grid, HE_I, 0.05, 0.0, 60.0);
         }
         HotKind::WhiteDwarfDB => {
