@@ -20,7 +20,7 @@ use super::method::{
 use super::prep::{legendre, Prepared};
 use super::refine::{grid_parabola, refine};
 use super::result::{Candidate, Chi2Curve, FitResult};
-use super::sums::{sums_fit, thresholds};
+use super::sums::{fit_from_sums, sums_fit, thresholds};
 use super::units::{build_units, Unit};
 use super::xcorr::{XCorr, XCorrPeak};
 use crate::constants::C_KMS;
@@ -33,6 +33,10 @@ use crate::ObjectClass;
 /// come from a parabola through the grid χ² (saves time, changes nothing
 /// that could reorder the leading solutions).
 pub const REFINE_DCHI2: f64 = 50.0;
+/// Relative round-off allowed between a constrained fit from the fast
+/// path's template sums and the curve's unconstrained χ² at the same shift
+/// (see the re-ranking in [`Chi2`]).
+const SUMS_ROUNDOFF: f64 = 1e-9;
 
 /// Legendre continuum terms of the second χ² fit of a spectrum whose first
 /// fit is poor (see [`Engine::fit`]): enough to follow the response of a
@@ -421,11 +425,18 @@ impl FitMethod for Chi2 {
         let dll = setup.config.dloglam;
         let mut data = DataCache::default();
         let mut curves_by_unit: Vec<Option<Vec<f64>>> = vec![None; setup.units.len()];
+        // the template sums at whole shifts of the units whose minima are
+        // ranked again with the constraint (from them, not from the pixels)
+        let mut sums_by_unit: Vec<Option<fast::ShiftSums>> = (0..setup.units.len()).map(|_| None).collect();
         let mut minima_by_class: Vec<(ObjectClass, Vec<Minimum>)> = Vec::new();
         for &(class, (lo, hi)) in ranges {
             let mut minima = Vec::new();
             for (ui, u) in setup.units.iter().enumerate().filter(|(_, u)| u.class == class) {
-                let chi2 = fast::chi2_curve(setup.cache, &mut data, prep, ui, u, lo, hi, CorrPlan::Auto);
+                let (chi2, sums) =
+                    fast::chi2_curve_sums(setup.cache, &mut data, prep, ui, u, lo, hi, CorrPlan::Auto);
+                if prep.nonneg && !fast::curve_constrained(prep, u) {
+                    sums_by_unit[ui] = Some(sums);
+                }
                 minima.extend(local_minima(&chi2).into_iter().map(|i| Minimum {
                     unit: ui,
                     shift: lo + i as i64,
@@ -452,7 +463,21 @@ impl FitMethod for Chi2 {
                 if prep.nonneg && !fast::curve_constrained(prep, u) {
                     // an unconstrained curve: rank its deepest minima again
                     // with non-negative template amplitudes
-                    m.chi2 = sums_fit(prep, u, m.shift as f64, &thresholds(prep, u), true).chi2;
+                    // with non-negative template amplitudes, from the curve's own
+                    // sums; a value below the curve's (the constraint can only
+                    // raise χ²) or below 0 shows the sums' round-off, amplified
+                    // by an ill-conditioned system (many polynomial terms): the
+                    // pixels are summed again
+                    let thr = thresholds(prep, u);
+                    let from_sums = sums_by_unit[m.unit]
+                        .as_ref()
+                        .and_then(|s| s.row(m.shift))
+                        .map(|row| fit_from_sums(prep, u, &row, &thr, true).chi2)
+                        .filter(|&c| c >= 0.0 && c >= m.chi2 - SUMS_ROUNDOFF * m.chi2.abs());
+                    m.chi2 = match from_sums {
+                        Some(c) => c,
+                        None => sums_fit(prep, u, m.shift as f64, &thr, true).chi2,
+                    };
                 }
             }
             minima_by_class.push((class, separated(kept, min_sep, n_cand, &demoted)));

@@ -315,6 +315,42 @@ pub fn chi2_curve(
     s_hi: i64,
     plan: CorrPlan,
 ) -> Vec<f64> {
+    chi2_curve_sums(cache, data, prep, key, unit, s_lo, s_hi, plan).0
+}
+
+/// The template sums of one unit at every whole shift, as
+/// [`chi2_curve_sums`] returns them (correlation-major).
+pub struct ShiftSums {
+    sums: Vec<f64>,
+    ns: usize,
+    s_lo: i64,
+}
+
+impl ShiftSums {
+    /// The sums at whole shift `shift` in the order of [`n_corr`] (the
+    /// order [`super::sums::fit_from_sums`] reads); `None` outside the curve.
+    pub fn row(&self, shift: i64) -> Option<Vec<f64>> {
+        let si = usize::try_from(shift - self.s_lo)
+            .ok()
+            .filter(|&si| si < self.ns)?;
+        Some(self.sums.iter().skip(si).step_by(self.ns).copied().collect())
+    }
+}
+
+/// [`chi2_curve`] and the template sums it was solved from, so that a fit at
+/// a whole shift (re-ranking a minimum with a constraint) needs no new pass
+/// over the pixels.
+#[allow(clippy::too_many_arguments)]
+pub fn chi2_curve_sums(
+    cache: &FftCache,
+    data: &mut DataCache,
+    prep: &Prepared,
+    key: usize,
+    unit: &Unit,
+    s_lo: i64,
+    s_hi: i64,
+    plan: CorrPlan,
+) -> (Vec<f64>, ShiftSums) {
     let n = prep.grid.n;
     let (k, j, g) = (unit.k(), prep.j(), unit.groups);
     let ns = (s_hi - s_lo + 1).max(0) as usize;
@@ -344,7 +380,8 @@ pub fn chi2_curve(
             }
         }
     };
-    solve_shifts(prep, unit, &out, ns)
+    let chi2 = solve_shifts(prep, unit, &out, ns);
+    (chi2, ShiftSums { sums: out, ns, s_lo })
 }
 
 /// The template sums at each shift by FFT, correlation-major: `out[ci · ns + si]`.
@@ -403,15 +440,16 @@ fn sums_fft(
     for chunk in pairs.chunks(2) {
         let (d1, t1) = (&chunk[0].0.x, &chunk[0].1.x);
         if let Some((d2, t2)) = chunk.get(1) {
-            let (d2, t2) = (&d2.x, &t2.x);
-            for x in 0..len {
-                // i·(d2·t2): both correlations are real, so they come back as Re and Im
-                let p = d2[x] * t2[x];
-                buf[x] = d1[x] * t1[x] + C::new(-p.im, p.re);
+            let (d2, t2) = (&d2.x[..len], &t2.x[..len]);
+            // i·(d2·t2): both correlations are real, so they come back as Re and Im
+            let terms = d1[..len].iter().zip(&t1[..len]).zip(d2.iter().zip(t2));
+            for (o, ((a1, b1), (a2, b2))) in buf.iter_mut().zip(terms) {
+                let p = a2 * b2;
+                *o = a1 * b1 + C::new(-p.im, p.re);
             }
         } else {
-            for x in 0..len {
-                buf[x] = d1[x] * t1[x];
+            for (o, (a1, b1)) in buf.iter_mut().zip(d1[..len].iter().zip(&t1[..len])) {
+                *o = a1 * b1;
             }
         }
         inv.process_with_scratch(&mut buf, &mut scratch);
@@ -710,8 +748,10 @@ impl PolyBlock {
         let (j, ka) = (self.j, idx.len());
         // scratch (reused between shifts; only what is used is set, this
         // runs at every trial shift): W (ka × MAX_POLY), then S (ka × ka)
-        scratch.clear();
-        scratch.resize(ka * MAX_POLY + ka * ka, 0.0);
+        // every entry read below is written first: grow only, never clear
+        if scratch.len() < ka * MAX_POLY + ka * ka {
+            scratch.resize(ka * MAX_POLY + ka * ka, 0.0);
+        }
         let (w, s) = scratch.split_at_mut(ka * MAX_POLY);
         let mut dt = [0.0; MAX_COLUMNS];
         let mut r = [0.0; MAX_COLUMNS];

@@ -11,6 +11,7 @@ use super::sums::{sums_fit, DirectFit};
 use super::units::Unit;
 use argmin::core::{CostFunction, Error, Executor};
 use argmin::solver::brent::BrentOpt;
+use std::cell::RefCell;
 
 /// Tolerance of the refined shift, in pixels (0.02 px ≈ 1.4 km/s at the default step).
 const SHIFT_TOL: f64 = 0.02;
@@ -21,13 +22,22 @@ struct Cost<'a> {
     prep: &'a Prepared,
     unit: &'a Unit,
     thr: &'a [f64],
+    /// The lowest fit evaluated so far and its shift (the search's best
+    /// point is one of them: kept instead of fitted again).
+    best: RefCell<Option<(f64, DirectFit)>>,
 }
 
 impl CostFunction for Cost<'_> {
     type Param = f64;
     type Output = f64;
     fn cost(&self, shift: &f64) -> Result<f64, Error> {
-        Ok(sums_fit(self.prep, self.unit, *shift, self.thr, self.prep.nonneg).chi2)
+        let fit = sums_fit(self.prep, self.unit, *shift, self.thr, self.prep.nonneg);
+        let chi2 = fit.chi2;
+        let mut best = self.best.borrow_mut();
+        if best.as_ref().is_none_or(|(_, b)| chi2 < b.chi2) {
+            *best = Some((*shift, fit));
+        }
+        Ok(chi2)
     }
 }
 
@@ -44,25 +54,24 @@ pub struct Refined {
 
 /// Refine the grid minimum at whole shift `s0` within ±1 pixel.
 pub fn refine(prep: &Prepared, unit: &Unit, thr: &[f64], s0: i64) -> Refined {
-    let cost = Cost { prep, unit, thr };
     let grid = sums_fit(prep, unit, s0 as f64, thr, prep.nonneg);
+    let cost = Cost {
+        prep,
+        unit,
+        thr,
+        best: RefCell::new(None),
+    };
     let lo = s0 as f64 - 1.0;
     let hi = s0 as f64 + 1.0;
     let solver = BrentOpt::new(lo, hi).set_tolerance(1e-10, SHIFT_TOL);
-    let best = Executor::new(cost, solver)
+    let evaluated = Executor::new(cost, solver)
         .configure(|st| st.max_iters(60))
         .run()
         .ok()
-        .and_then(|r| r.state.best_param);
-    let (shift, fit) = match best {
-        Some(x) if x.is_finite() => {
-            let f = sums_fit(prep, unit, x, thr, prep.nonneg);
-            if f.chi2 < grid.chi2 {
-                (x, f)
-            } else {
-                (s0 as f64, grid)
-            }
-        }
+        .and_then(|r| r.problem.problem)
+        .and_then(|c| c.best.into_inner());
+    let (shift, fit) = match evaluated {
+        Some((x, f)) if x.is_finite() && f.chi2 < grid.chi2 => (x, f),
         _ => (s0 as f64, grid),
     };
     let fp = sums_fit(prep, unit, shift + CURV_STEP, thr, prep.nonneg).chi2;

@@ -231,11 +231,25 @@ pub fn sums_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg: b
             row.push(dot(d, ta));
         }
     }
+    fit_from_sums(prep, unit, &row, thr, nonneg)
+}
+
+/// The fit at one shift from its template sums `row` (in the order of
+/// [`n_corr`]): the tail of [`sums_fit`], also fed with the sums the fast
+/// path computed at whole shifts ([`super::fast::chi2_curve_sums`]).
+pub(crate) fn fit_from_sums(
+    prep: &Prepared,
+    unit: &Unit,
+    row: &[f64],
+    thr: &[f64],
+    nonneg: bool,
+) -> DirectFit {
+    let (k, j, g) = (unit.k(), prep.j(), unit.groups);
     let kc = unit.cols();
     let dim = kc + j;
     let mut a = vec![0.0; dim * dim];
     let mut b = vec![0.0; dim];
-    assemble(prep, k, g, &row, &mut a, &mut b);
+    assemble(prep, k, g, row, &mut a, &mut b);
     let active = active_columns(&a, dim, k, kc, thr);
     let coeffs = solve_constrained(&a, &b, &active, k, g, nonneg);
     let fit: f64 = coeffs.iter().zip(&b).map(|(c, b)| c * b).sum();

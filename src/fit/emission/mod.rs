@@ -54,6 +54,11 @@ pub const ABS_BAND_REST: f64 = 20.0;
 pub const BROAD_TROUGH_REST: f64 = 10.0;
 /// Most Nelder–Mead iterations of the kinematics search.
 const MAX_ITERS: u64 = 300;
+/// The kinematics search stops when the χ² values at the simplex's corners
+/// differ by less than this (standard deviation): a thousandth of the Δχ² = 1
+/// that marks one σ, so stopping moves no line parameter by more than a
+/// few per cent of its own error.
+const NM_TOLERANCE: f64 = 1e-3;
 
 /// Measure the emission lines of `class`'s line list in `s` at redshift `z`.
 pub fn measure(s: &Spectrum, z: f64, class: ObjectClass) -> Vec<LineMeasurement> {
@@ -355,7 +360,7 @@ fn fit_kinematics(wins: &[&Window], class: ObjectClass) -> Option<([Kin; 2], [bo
         v[i] += steps[i];
         simplex.push(v);
     }
-    let nm = NelderMead::new(simplex).with_sd_tolerance(1e-4).ok()?;
+    let nm = NelderMead::new(simplex).with_sd_tolerance(NM_TOLERANCE).ok()?;
     let res = Executor::new(Profiled { wins, class, free }, nm)
         .configure(|st| st.max_iters(MAX_ITERS))
         .run()
