@@ -1075,3 +1075,39 @@ fn fast_star_curves_equal_the_oracle_on_real_stars() {
         }
     }
 }
+
+/// Diagnostic, not asserted: for each real star with a velocity, the scatter
+/// of the fitted velocity over mock observations at S/N 10 against the
+/// median σ_v the engine states (the README's "Stars" section).
+#[test]
+#[ignore = "diagnostic: cargo test --release --no-default-features --test integration stars::velocity_scatter -- --ignored --nocapture"]
+fn velocity_scatter_against_stated_sigma() {
+    let engine = Engine::new(templates::builtin(), FitConfig::default()).unwrap();
+    let per = 150;
+    for star in real_stars().iter().filter(|s| s.velocity.is_some()) {
+        let mut rng = ChaCha8Rng::seed_from_u64(7);
+        let (mut vs, mut es) = (Vec::new(), Vec::new());
+        for _ in 0..per {
+            let r = engine.fit(&mock(&star.spectrum, 10.0, &mut rng)).unwrap();
+            let b = r.best().unwrap();
+            if b.class == ObjectClass::Star {
+                vs.push(b.z * C_KMS);
+                es.push(b.z_err * C_KMS);
+            }
+        }
+        if vs.len() < 10 {
+            eprintln!("{}: {} of {per} are stars", star.label, vs.len());
+            continue;
+        }
+        let n = vs.len() as f64;
+        let mean = vs.iter().sum::<f64>() / n;
+        let sd = (vs.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / n).sqrt();
+        es.sort_by(f64::total_cmp);
+        eprintln!(
+            "{:<18} S/N 10: {} stars of {per}, mean v {mean:.0} km/s, scatter {sd:.0} km/s, median stated σ_v {:.0} km/s",
+            star.label,
+            vs.len(),
+            es[es.len() / 2]
+        );
+    }
+}
