@@ -731,6 +731,58 @@ mod tests {
     }
 
     #[test]
+    fn fits_from_the_curves_sums_equal_fits_from_the_pixels() {
+        // the re-ranking of a basis curve's minima reads the template sums
+        // the fast path kept; at whole shifts they must give the pixel
+        // pass's fit (sums_fit), constrained and not, and the curve's value
+        use rand::SeedableRng;
+        let e = Engine::new(crate::templates::builtin(), FitConfig::default()).unwrap();
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(3);
+        for (class, z) in [(ObjectClass::Galaxy, 0.41), (ObjectClass::Quasar, 2.2)] {
+            let spec = super::super::synth::SimSpec {
+                class,
+                z,
+                snr: 8.0,
+                ..Default::default()
+            };
+            let (s, _) = super::super::synth::simulate(crate::templates::builtin(), &spec, &mut rng).unwrap();
+            let prep = e.prepare(&s).unwrap();
+            let (ui, u) = e
+                .units
+                .iter()
+                .enumerate()
+                .find(|(_, u)| u.class == class)
+                .unwrap();
+            let (lo, hi) = shift_range(e.config.z_range(class), e.config.dloglam);
+            let mut data = DataCache::default();
+            let (curve, sums) =
+                fast::chi2_curve_sums(&e.cache, &mut data, &prep, ui, u, lo, hi, CorrPlan::Auto);
+            let thr = thresholds(&prep, u);
+            let best = lo
+                + (0..curve.len())
+                    .min_by(|&a, &b| curve[a].total_cmp(&curve[b]))
+                    .unwrap() as i64;
+            for shift in [best, best + 7, lo + 3, hi - 2] {
+                let row = sums.row(shift).unwrap();
+                let free = fit_from_sums(&prep, u, &row, &thr, false).chi2;
+                assert!(
+                    (free - curve[(shift - lo) as usize]).abs() <= 1e-8 * free.abs(),
+                    "{class} {shift}"
+                );
+                for nonneg in [false, true] {
+                    let a = fit_from_sums(&prep, u, &row, &thr, nonneg).chi2;
+                    let b = sums_fit(&prep, u, shift as f64, &thr, nonneg).chi2;
+                    assert!(
+                        (a - b).abs() <= 1e-8 * b.abs(),
+                        "{class} {shift} {nonneg}: {a} vs {b}"
+                    );
+                }
+            }
+            assert!(sums.row(lo - 1).is_none() && sums.row(hi + 1).is_none());
+        }
+    }
+
+    #[test]
     fn shift_range_brackets_the_redshifts() {
         let (lo, hi) = shift_range((-0.005, 0.005), 1e-4);
         assert!((10f64.powf(lo as f64 * 1e-4) - 1.0) >= -0.005);
