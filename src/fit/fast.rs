@@ -440,12 +440,22 @@ fn sums_fft(
     for chunk in pairs.chunks(2) {
         let (d1, t1) = (&chunk[0].0.x, &chunk[0].1.x);
         if let Some((d2, t2)) = chunk.get(1) {
+            let same = std::ptr::eq(chunk[0].1, *t2);
             let (d2, t2) = (&d2.x[..len], &t2.x[..len]);
             // i·(d2·t2): both correlations are real, so they come back as Re and Im
-            let terms = d1[..len].iter().zip(&t1[..len]).zip(d2.iter().zip(t2));
-            for (o, ((a1, b1), (a2, b2))) in buf.iter_mut().zip(terms) {
-                let p = a2 * b2;
-                *o = a1 * b1 + C::new(-p.im, p.re);
+            if same {
+                // one template for both (consecutive pairs mostly share one):
+                // t·(d1 + i·d2), one complex product instead of two
+                let terms = d1[..len].iter().zip(d2).zip(t2);
+                for (o, ((a1, a2), b)) in buf.iter_mut().zip(terms) {
+                    *o = b * C::new(a1.re - a2.im, a1.im + a2.re);
+                }
+            } else {
+                let terms = d1[..len].iter().zip(&t1[..len]).zip(d2.iter().zip(t2));
+                for (o, ((a1, b1), (a2, b2))) in buf.iter_mut().zip(terms) {
+                    let p = a2 * b2;
+                    *o = a1 * b1 + C::new(-p.im, p.re);
+                }
             }
         } else {
             for (o, (a1, b1)) in buf.iter_mut().zip(d1[..len].iter().zip(&t1[..len])) {
