@@ -462,12 +462,11 @@ impl FitMethod for Chi2 {
                 let u = &setup.units[m.unit];
                 if prep.nonneg && !fast::curve_constrained(prep, u) {
                     // an unconstrained curve: rank its deepest minima again
-                    // with non-negative template amplitudes
-                    // with non-negative template amplitudes, from the curve's own
-                    // sums; a value below the curve's (the constraint can only
-                    // raise χ²) or below 0 shows the sums' round-off, amplified
-                    // by an ill-conditioned system (many polynomial terms): the
-                    // pixels are summed again
+                    // with non-negative template amplitudes, from the curve's
+                    // own sums; a value below the curve's (the constraint can
+                    // only raise χ²) or below 0 shows the sums' round-off,
+                    // amplified by an ill-conditioned system (many polynomial
+                    // terms): the pixels are summed again
                     let thr = thresholds(prep, u);
                     let from_sums = sums_by_unit[m.unit]
                         .as_ref()
