@@ -350,7 +350,7 @@ impl Engine {
             .enumerate()
             .map(|(ui, u)| {
                 let (lo, hi) = shift_range(self.config.z_range(u.class), self.config.dloglam);
-                fast::chi2_curve(&self.cache, &mut data, &prep, ui, u, lo, hi, plan)
+                fast::chi2_curve(&self.cache, &mut data, &prep, ui, u, lo, hi, plan).0
             })
             .collect())
     }
@@ -425,16 +425,18 @@ impl FitMethod for Chi2 {
         let dll = setup.config.dloglam;
         let mut data = DataCache::default();
         let mut curves_by_unit: Vec<Option<Vec<f64>>> = vec![None; setup.units.len()];
-        // the template sums at whole shifts of the units whose minima are
-        // ranked again with the constraint (from them, not from the pixels)
+        // units with an unconstrained curve whose deepest minima are ranked
+        // again with non-negative amplitudes, and their template sums at
+        // whole shifts (the re-ranking reads them, not the pixels)
+        let ranked_again = |u: &Unit| prep.nonneg && !fast::curve_constrained(prep, u);
         let mut sums_by_unit: Vec<Option<fast::ShiftSums>> = (0..setup.units.len()).map(|_| None).collect();
         let mut minima_by_class: Vec<(ObjectClass, Vec<Minimum>)> = Vec::new();
         for &(class, (lo, hi)) in ranges {
             let mut minima = Vec::new();
             for (ui, u) in setup.units.iter().enumerate().filter(|(_, u)| u.class == class) {
                 let (chi2, sums) =
-                    fast::chi2_curve_sums(setup.cache, &mut data, prep, ui, u, lo, hi, CorrPlan::Auto);
-                if prep.nonneg && !fast::curve_constrained(prep, u) {
+                    fast::chi2_curve(setup.cache, &mut data, prep, ui, u, lo, hi, CorrPlan::Auto);
+                if ranked_again(u) {
                     sums_by_unit[ui] = Some(sums);
                 }
                 minima.extend(local_minima(&chi2).into_iter().map(|i| Minimum {
@@ -460,7 +462,7 @@ impl FitMethod for Chi2 {
             let mut kept = separated(minima, min_sep, 3 * n_cand, &demoted);
             for m in kept.iter_mut() {
                 let u = &setup.units[m.unit];
-                if prep.nonneg && !fast::curve_constrained(prep, u) {
+                if ranked_again(u) {
                     // an unconstrained curve: rank its deepest minima again
                     // with non-negative template amplitudes, from the curve's
                     // own sums; a value below the curve's (the constraint can
@@ -754,8 +756,7 @@ mod tests {
                 .unwrap();
             let (lo, hi) = shift_range(e.config.z_range(class), e.config.dloglam);
             let mut data = DataCache::default();
-            let (curve, sums) =
-                fast::chi2_curve_sums(&e.cache, &mut data, &prep, ui, u, lo, hi, CorrPlan::Auto);
+            let (curve, sums) = fast::chi2_curve(&e.cache, &mut data, &prep, ui, u, lo, hi, CorrPlan::Auto);
             let thr = thresholds(&prep, u);
             let best = lo
                 + (0..curve.len())

@@ -302,24 +302,8 @@ impl Window {
     }
 }
 
-/// χ² of `unit` at every shift `s_lo..=s_hi` by the fast path.
-/// `key` identifies the unit in the cache.
-#[allow(clippy::too_many_arguments)]
-pub fn chi2_curve(
-    cache: &FftCache,
-    data: &mut DataCache,
-    prep: &Prepared,
-    key: usize,
-    unit: &Unit,
-    s_lo: i64,
-    s_hi: i64,
-    plan: CorrPlan,
-) -> Vec<f64> {
-    chi2_curve_sums(cache, data, prep, key, unit, s_lo, s_hi, plan).0
-}
-
-/// The template sums of one unit at every whole shift, as
-/// [`chi2_curve_sums`] returns them (correlation-major).
+/// The template sums of one unit at every whole shift, as [`chi2_curve`]
+/// returns them (correlation-major).
 pub struct ShiftSums {
     sums: Vec<f64>,
     ns: usize,
@@ -337,11 +321,12 @@ impl ShiftSums {
     }
 }
 
-/// [`chi2_curve`] and the template sums it was solved from, so that a fit at
-/// a whole shift (re-ranking a minimum with a constraint) needs no new pass
-/// over the pixels.
+/// χ² of `unit` at every shift `s_lo..=s_hi` by the fast path (`key`
+/// identifies the unit in the cache), and the template sums it was solved
+/// from, so that a fit at a whole shift (re-ranking a minimum with a
+/// constraint) needs no new pass over the pixels.
 #[allow(clippy::too_many_arguments)]
-pub fn chi2_curve_sums(
+pub fn chi2_curve(
     cache: &FftCache,
     data: &mut DataCache,
     prep: &Prepared,

@@ -236,7 +236,7 @@ pub fn sums_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg: b
 
 /// The fit at one shift from its template sums `row` (in the order of
 /// [`n_corr`]): the tail of [`sums_fit`], also fed with the sums the fast
-/// path computed at whole shifts ([`super::fast::chi2_curve_sums`]).
+/// path computed at whole shifts ([`super::fast::chi2_curve`]).
 pub(crate) fn fit_from_sums(
     prep: &Prepared,
     unit: &Unit,
