@@ -112,41 +112,107 @@ fn compare_with_stored_table(names: &[&str]) -> (Vec<LineMeasurement>, Vec<Strin
 }
 
 #[test]
-fn balmer_and_forbidden_fluxes_of_a_real_dwarf_galaxy_match_its_stored_line_table() {
-    // Hγ and Hδ are checked by the ignored test below (they fail today);
-    // [N II] 6550 is tied to 6585 by the atomic ratio, which the stored table
-    // does not impose (its 6585/6550 is 3.8 ± 0.5)
+fn forbidden_lines_of_a_real_dwarf_galaxy_match_its_stored_table_and_balmer_lines_follow_recombination() {
+    // The forbidden lines against the stored table. Its Balmer lines are not
+    // a reference: its Hδ/Hβ lies above Case B while its Hα/Hβ asks for
+    // strong reddening, and every fit of this galaxy on published
+    // populations finds Hβ and Hγ two to three times the stored values
+    // (`published_populations_…`; README "Emission lines"). [N II] 6550 is
+    // tied to 6585 by the atomic ratio, which the stored table does not
+    // impose (its 6585/6550 is 3.8 ± 0.5).
     let checked = [
         "[Ne III] 3870",
         "[O III] 4364",
-        "Hβ",
         "[O III] 4960",
         "[O III] 5008",
-        "Hα",
         "[N II] 6585",
         "[S II] 6718",
         "[S II] 6733",
     ];
     let (lines, bad) = compare_with_stored_table(&checked);
     assert!(bad.is_empty(), "outside max(3σ, 10 %): {bad:?}");
-    // Hα and Hβ of a star-forming galaxy are emission, detected, and sit in
-    // stellar absorption troughs (positive absorption EW)
-    for name in ["Hα", "Hβ"] {
-        let m = lines.iter().find(|l| l.name == name).unwrap();
-        assert!(m.detected() && m.flux > 0.0, "{name}");
+    // The four Balmer lines of a star-forming galaxy are emission, detected,
+    // sitting in stellar absorption troughs (positive absorption EW) …
+    let get = |n: &str| lines.iter().find(|l| l.name == n).unwrap();
+    for name in ["Hα", "Hβ", "Hγ", "Hδ"] {
+        let m = get(name);
+        assert!(m.detected() && m.flux > 0.0, "{name}: {m:?}");
         assert!(
             m.abs_ew_rest.is_some_and(|e| e > 0.0),
             "{name}: {:?}",
             m.abs_ew_rest
         );
     }
+    // … and their ratios are those of recombination: Hγ/Hβ and Hδ/Hβ within
+    // 3σ of Case B (Storey & Hummer 1995) reddened by the E(B−V) that Hα/Hβ
+    // gives on the Cardelli et al. 1989 curve (both from memory, see
+    // CASE_B). Before the stellar templates' Balmer lines had a Doppler
+    // core, Hγ and Hδ came out negative (−42 and −46).
+    let balmer = ["Hα", "Hβ", "Hγ", "Hδ"].map(|n| (get(n).flux, get(n).flux_err));
+    for (name, r, e, pred, pe, ebv) in balmer_decrement_check(&balmer) {
+        eprintln!(
+            "{name}/Hβ {r:.3} ± {e:.3}, Case B at E(B−V) {ebv:.2} from Hα/Hβ: {pred:.3} ± {pe:.3} ({:+.1}σ)",
+            (r - pred) / (e * e + pe * pe).sqrt()
+        );
+        assert!(
+            (r - pred).abs() <= 3.0 * (e * e + pe * pe).sqrt(),
+            "{name}/Hβ {r:.3} ± {e:.3} vs Case B {pred:.3} ± {pe:.3}"
+        );
+    }
 }
 
 #[test]
-#[ignore = "known failure (Hγ −42, Hδ −46 vs stored 31, 30: our populations' Balmer troughs do not fit this galaxy's; on published populations ours and pPXF's fits give Hγ 82-102 but also Hβ 161-235 vs stored 82, so no model tried fits all four stored Balmer lines, see README Emission lines): cargo test --test integration emission::hgamma_hdelta -- --ignored --nocapture"]
-fn hgamma_hdelta_of_the_real_dwarf_galaxy_match_its_stored_line_table() {
-    let (_, bad) = compare_with_stored_table(&["Hγ", "Hδ"]);
-    assert!(bad.is_empty(), "outside max(3σ, 10 %): {bad:?}");
+#[ignore = "known failure (Hα 740 ± 19 against 857–876, Hβ 163 ± 13 against 193–207, Hγ 66 ± 12 against 86–102, Hδ 25 ± 7 against 40–60): cargo test --test integration emission::balmer_fluxes -- --ignored --nocapture"]
+fn balmer_fluxes_of_the_real_dwarf_galaxy_match_the_fits_ppxf_ships() {
+    // The Balmer reference for this galaxy: the two fits of it whose line
+    // fluxes ppxf 9.5.2 ships in its reference output (E-MILES and FSPS
+    // populations; `ppxf_reference_output`), consistent with each other, with
+    // Case B and with our code on the Bruzual & Charlot populations
+    // (`published_populations_…`). Within max(3σ, 10 %) of either.
+    let path = dwarf_galaxy();
+    let s = zvet::io::read_file(&path, &Default::default()).unwrap().remove(0);
+    let fit = Engine::new(zvet::templates::builtin(), FitConfig::default())
+        .unwrap()
+        .fit(&s)
+        .unwrap();
+    let z = fit.best().unwrap().z;
+    let shipped = ppxf_reference_output(&path, z);
+    let table = stored_line_table(&path);
+    let mut bad = Vec::new();
+    for (ours, theirs) in [
+        ("Hδ", "Hdelta"),
+        ("Hγ", "Hgamma"),
+        ("Hβ", "Hbeta"),
+        ("Hα", "Halpha"),
+    ] {
+        let m = fit.lines.iter().find(|l| l.name == ours).unwrap();
+        let st = table.iter().find(|r| r.0 == stored_name(ours)).unwrap();
+        let refs: Vec<(f64, f64)> = shipped
+            .iter()
+            .map(|(_, rows)| {
+                let r = rows.iter().find(|r| r.0 == theirs).unwrap();
+                (r.1, r.2)
+            })
+            .collect();
+        eprintln!(
+            "{ours:>3}: ours {:6.1} ± {:4.1}; pPXF shipped {}; stored table {:.1} ± {:.1}",
+            m.flux,
+            m.flux_err,
+            refs.iter()
+                .map(|(v, e)| format!("{v:.1} ± {e:.1}"))
+                .collect::<Vec<_>>()
+                .join(", "),
+            st.1,
+            st.2
+        );
+        if !refs
+            .iter()
+            .any(|&(v, e)| (m.flux - v).abs() <= (3.0 * e).max(0.1 * v))
+        {
+            bad.push(ours);
+        }
+    }
+    assert!(bad.is_empty(), "outside max(3σ, 10 %) of both pPXF fits: {bad:?}");
 }
 
 /// Bruzual & Charlot (2003) population spectra on the MILES empirical star
@@ -589,10 +655,7 @@ fn no_trough_model_on_our_populations_gives_all_four_stored_balmer_lines() {
             .iter()
             .zip(f)
             .all(|(n, v)| (v - stored(n).1).abs() <= (3.0 * stored(n).2).max(0.1 * stored(n).1));
-        assert!(
-            !inside,
-            "{t:?} fits the stored Balmer lines: {f:?} (un-ignore hgamma_hdelta_…)"
-        );
+        assert!(!inside, "{t:?} fits the stored Balmer lines: {f:?}");
     }
 }
 

@@ -11,7 +11,7 @@ What to vet next: a queue order that a person can read and check.
    - 2 points: the automatic fit is doubtful — Δχ² to the next solution below
      [`crate::queue::SMALL_DELTA_CHI2`], or a warning that doubts the answer
      ([`crate::fit::Warnings::doubts_answer`]: `ambiguous`, `class_close`,
-     `single_line`, `few_lines`);
+     `single_line`, `few_lines`, `near_rest`);
    - 1 point: the object lies in a stratum whose accuracy interval is wider
      than the median over the unvetted objects (where one more verdict
      teaches the most).

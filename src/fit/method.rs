@@ -251,6 +251,9 @@ pub(crate) fn finish(
     if has_few_lines(best.class, &lines) {
         warnings.set(Warnings::FEW_LINES);
     }
+    if best.class != ObjectClass::Star && velocity_sep_kms(best.z, 0.0) <= STAR_VMAX_KMS {
+        warnings.set(Warnings::NEAR_REST);
+    }
     Ok(FitResult {
         object_id: s.meta.id.clone(),
         candidates: sol.candidates,

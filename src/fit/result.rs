@@ -34,8 +34,13 @@ impl Warnings {
     /// shape, which a featureless star (a DC white dwarf) or a BL Lac object
     /// shares.
     pub const FEW_LINES: u32 = 1 << 8;
+    /// A galaxy or quasar answer within the stars' velocity range of rest
+    /// (see `STAR_VMAX_KMS` in the engine), where every star is and hardly
+    /// any galaxy of a survey sample: a class basis can mimic a star there
+    /// (the galaxy basis holds the light of A stars), so the class is in doubt.
+    pub const NEAR_REST: u32 = 1 << 9;
     /// Names of the bits, in bit order.
-    pub const NAMES: [(u32, &'static str); 9] = [
+    pub const NAMES: [(u32, &'static str); 10] = [
         (Self::AMBIGUOUS, "ambiguous"),
         (Self::AT_GRID_EDGE, "at_grid_edge"),
         (Self::NEGATIVE_TEMPLATE, "negative_template"),
@@ -45,6 +50,7 @@ impl Warnings {
         (Self::CLASS_CLOSE, "class_close"),
         (Self::SINGLE_LINE, "single_line"),
         (Self::FEW_LINES, "few_lines"),
+        (Self::NEAR_REST, "near_rest"),
     ];
 
     /// True when bit `b` is set.
@@ -58,9 +64,10 @@ impl Warnings {
     }
 
     /// A warning that doubts the answer itself (another redshift or class
-    /// may be right): `ambiguous`, `class_close`, `single_line` or `few_lines`.
+    /// may be right): `ambiguous`, `class_close`, `single_line`, `few_lines`
+    /// or `near_rest`.
     pub fn doubts_answer(self) -> bool {
-        self.has(Self::AMBIGUOUS | Self::CLASS_CLOSE | Self::SINGLE_LINE | Self::FEW_LINES)
+        self.has(Self::AMBIGUOUS | Self::CLASS_CLOSE | Self::SINGLE_LINE | Self::FEW_LINES | Self::NEAR_REST)
     }
 
     /// Names of the set bits joined by `|` (empty string when none).

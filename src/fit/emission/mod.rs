@@ -609,9 +609,11 @@ mod tests {
         );
         assert!(get("Hβ").width_fitted && get("Hβ").detected());
         // an absent line: flux near zero, not detected, a 3σ upper limit
+        // (Hγ's error, 0.4, is about twice the pixel noise's alone: the
+        // emission Gaussian shares its pixels with the stellar Balmer core)
         let hg = get("Hγ");
         assert!(
-            !hg.detected() && hg.upper_limit().is_some_and(|u| u > 0.0 && u < 1.0),
+            !hg.detected() && hg.upper_limit().is_some_and(|u| u > 0.0 && u < 1.5),
             "{hg:?}"
         );
     }
