@@ -221,7 +221,7 @@ fn fast_path_equals_oracle_on_random_spectra_masks_and_templates() {
         let good: Vec<bool> = (0..n).map(|_| rng.random_bool(0.85)).collect();
         let s = Spectrum::new(wave, flux, Some(ivar), Some(good), SpectrumMeta::default()).unwrap();
         let oracle = engine.chi2_curves_oracle(&s).unwrap();
-        for plan in [CorrPlan::Fft, CorrPlan::Direct, CorrPlan::Auto] {
+        for plan in [CorrPlan::Fft, CorrPlan::Direct, CorrPlan::Blocks, CorrPlan::Auto] {
             let fast = engine.chi2_curves_with(&s, plan).unwrap();
             assert_eq!(fast.len(), oracle.len());
             for (f, o) in fast.iter().zip(&oracle) {

@@ -32,6 +32,12 @@ overlap-save condition): with the cut template of m′ pixels and the wanted
 lags in a..=b, L ≥ max(m′ − a, b + n). Template transforms are cached per
 (unit, window, L) in the engine; two real correlations share one complex
 inverse FFT (real and imaginary part).
+
+For a narrow shift range (the stars' velocity window: a few dozen lags over
+thousands of pixels) most of that inverse transform is thrown away; there the
+correlations are partitioned instead ([`blocks`]): short transforms of data
+blocks and template segments whose products are summed before one short
+inverse transform.
 */
 // Index loops here mirror the sums of the normal equations term by term.
 #![allow(clippy::needless_range_loop)]
@@ -44,6 +50,9 @@ use rustfft::num_complex::Complex;
 use rustfft::{Fft, FftPlanner};
 use std::collections::HashMap;
 use std::sync::{Arc, Mutex, RwLock};
+
+mod blocks;
+use blocks::{BlockKey, DataBlocks, Partition, UnitBlocks};
 
 type C = Complex<f64>;
 
@@ -98,6 +107,8 @@ pub struct FftCache {
     plans: Mutex<PlanMap>,
     planner: Mutex<Option<FftPlanner<f64>>>,
     units: RwLock<HashMap<UnitKey, Arc<UnitTransforms>>>,
+    /// Segment transforms for partitioned correlation (see [`blocks`]).
+    blocks: RwLock<HashMap<BlockKey, Arc<UnitBlocks>>>,
 }
 
 impl std::fmt::Debug for FftCache {
@@ -230,10 +241,12 @@ pub struct DataTransforms {
     wf: Vec<Scaled>,
 }
 
-/// Data transforms per FFT length, made lazily for one spectrum.
+/// Data transforms per FFT length (and per partition, cut in blocks), made
+/// lazily for one spectrum.
 #[derive(Default)]
 pub struct DataCache {
     by_len: HashMap<usize, DataTransforms>,
+    blocks: HashMap<Partition, DataBlocks>,
 }
 
 impl DataCache {
@@ -264,6 +277,9 @@ pub enum CorrPlan {
     Fft,
     /// Direct sums at each needed lag.
     Direct,
+    /// Partitioned correlation (short transforms of blocks summed before
+    /// one inverse, as the module text says): for narrow shift ranges.
+    Blocks,
 }
 
 /// The template pixels some trial shift reaches, and the transform length.
@@ -345,28 +361,79 @@ pub fn chi2_curve(
     let out = match win {
         None => vec![0.0; ns * ncorr],
         Some(win) => {
-            let use_fft = match plan {
-                CorrPlan::Fft => true,
-                CorrPlan::Direct => false,
+            let part = Partition::choose(n, ns);
+            let plan = match plan {
                 CorrPlan::Auto => {
                     // measured costs (release build): a direct multiply-add
                     // ≈ 0.35 ns; a complex FFT ≈ 0.5 ns · L log2 L, one per pair
-                    // of correlations (the data's own are shared by all units)
+                    // of correlations (the data's own are shared by all units);
+                    // partitioned: its blocks' products and a short inverse
+                    // against the full transform and its products
                     let len = win.len as f64;
+                    let pairs = ncorr.div_ceil(2) as f64;
                     let direct = 0.35 * (ns * n) as f64 * ncorr as f64;
-                    let fft = 0.5 * len * len.log2() * ncorr.div_ceil(2) as f64;
-                    fft < direct
+                    let fft = blocks::NS_PER_FFT_OP * len * len.log2() * pairs;
+                    let full = fft + blocks::NS_PER_PRODUCT * len * pairs;
+                    // (only for a narrow range, transforms of at most a
+                    // quarter of the full length: over the wide ranges of the
+                    // bases a few long blocks model cheaper than the full
+                    // transform, but their accumulated products over the
+                    // bases' many correlations measured dearer)
+                    if part.q * 4 <= win.len && part.cost(n) * pairs < full.min(direct) {
+                        CorrPlan::Blocks
+                    } else if fft < direct {
+                        CorrPlan::Fft
+                    } else {
+                        CorrPlan::Direct
+                    }
                 }
+                p => p,
             };
-            if use_fft {
-                sums_fft(cache, data, prep, key, unit, s_lo, ns, &win)
-            } else {
-                sums_direct(prep, unit, s_lo, ns)
+            match plan {
+                CorrPlan::Direct => sums_direct(prep, unit, s_lo, ns),
+                CorrPlan::Blocks => {
+                    let c0 = base - s_lo;
+                    let phase = (c0 - ns as i64 + 1).rem_euclid(part.b as i64) as usize;
+                    let ub = cache.unit_blocks(key, unit, part, phase);
+                    let db = data
+                        .blocks
+                        .entry(part)
+                        .or_insert_with(|| DataBlocks::of(cache, prep, part));
+                    let (wl, wfx) = prep.data_for(g);
+                    let pairs = corr_pairs(k, g, wl.len(), prep.wl.len(), wfx.len());
+                    debug_assert_eq!(pairs.len(), ncorr);
+                    blocks::sums_blocks(cache, db, &ub, &pairs, (n, unit.m()), c0, ns, part)
+                }
+                _ => sums_fft(cache, data, prep, key, unit, s_lo, ns, &win),
             }
         }
     };
     let chi2 = solve_shifts(prep, unit, &out, ns);
     (chi2, ShiftSums { sums: out, ns, s_lo })
+}
+
+/// The correlations of the template sums in the order of [`n_corr`], as
+/// (data array, template array): data arrays numbered w·P_q (q < `nwp`)
+/// then w·f·x^u (u < `nwf`) from `wf0`, templates T_a (a < k) then the
+/// products T_a·T_b in the order of [`template_products`].
+fn corr_pairs(k: usize, g: usize, nwp: usize, wf0: usize, nwf: usize) -> Vec<(usize, usize)> {
+    let mut pairs = Vec::new();
+    for tt in 0..k * (k + 1) / 2 {
+        for q in 0..2 * g - 1 {
+            pairs.push((q, k + tt));
+        }
+    }
+    for a in 0..k {
+        for q in 0..nwp {
+            pairs.push((q, a));
+        }
+    }
+    for a in 0..k {
+        for u in 0..nwf {
+            pairs.push((wf0 + u, a));
+        }
+    }
+    pairs
 }
 
 /// The template sums at each shift by FFT, correlation-major: `out[ci · ns + si]`.
