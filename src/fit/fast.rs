@@ -249,21 +249,21 @@ pub struct DataCache {
     blocks: HashMap<Partition, DataBlocks>,
 }
 
+/// The complex conjugates of transforms (the data side of a correlation).
+fn conjugated(v: Vec<Scaled>) -> Vec<Scaled> {
+    v.into_iter()
+        .map(|a| Scaled {
+            x: a.x.into_iter().map(|c| c.conj()).collect(),
+            norm: a.norm,
+        })
+        .collect()
+}
+
 impl DataCache {
     fn get(&mut self, cache: &FftCache, prep: &Prepared, len: usize) -> &DataTransforms {
-        self.by_len.entry(len).or_insert_with(|| {
-            let conj = |v: Vec<Scaled>| -> Vec<Scaled> {
-                v.into_iter()
-                    .map(|a| Scaled {
-                        x: a.x.into_iter().map(|c| c.conj()).collect(),
-                        norm: a.norm,
-                    })
-                    .collect()
-            };
-            DataTransforms {
-                wp: conj(cache.forward_many(&prep.wl, len)),
-                wf: conj(cache.forward_many(&prep.wfx, len)),
-            }
+        self.by_len.entry(len).or_insert_with(|| DataTransforms {
+            wp: conjugated(cache.forward_many(&prep.wl, len)),
+            wf: conjugated(cache.forward_many(&prep.wfx, len)),
         })
     }
 }

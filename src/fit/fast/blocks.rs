@@ -181,17 +181,9 @@ impl DataBlocks {
     ) -> DataBlocks {
         let count = part.blocks(n);
         let start = |j: usize| (j * part.b) as i64;
-        let conj = |v: Vec<Scaled>| -> Vec<Scaled> {
-            v.into_iter()
-                .map(|a| Scaled {
-                    x: a.x.into_iter().map(|c| c.conj()).collect(),
-                    norm: a.norm,
-                })
-                .collect()
-        };
         DataBlocks {
-            wp: conj(forward_segments(cache, wp, count, start, part.b, part.q)),
-            wf: conj(forward_segments(cache, wf, count, start, part.b, part.q)),
+            wp: super::conjugated(forward_segments(cache, wp, count, start, part.b, part.q)),
+            wf: super::conjugated(forward_segments(cache, wf, count, start, part.b, part.q)),
             count,
         }
     }
