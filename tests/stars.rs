@@ -583,8 +583,9 @@ fn library_file(dir: &str, prefix: &str, suffix: &str) -> std::path::PathBuf {
 /// code from the mean M7, M8 and M9 dwarfs of Bochanski et al. 2007
 /// (kastredux 1.1.4, `M[789]0_*_bochanski2007.txt`; vacuum and at rest: the
 /// M8's Na I 8183/8195 Å lines and Hα fall within 15 km/s of their
-/// laboratory wavelengths, measured with numpy). Why not the star's published radial velocity
-/// (−54 km/s, from memory): the file's scale is offset. Measured with numpy
+/// laboratory wavelengths, measured with numpy). Why not the star's
+/// published radial velocity (−54 km/s, from memory): the file's scale is
+/// offset. Measured with numpy
 /// on the file (air, as read here): its K I 7665/7699 and Na I 8183/8195 Å
 /// lines (NIST air wavelengths, from memory) sit at −200 to −260 km/s; the
 /// real rest-frame M7, M8, M9 means and two single M6 dwarfs of the same

@@ -422,29 +422,30 @@ pub(crate) fn atmosphere(st: &StarType, grid: &Grid, sigma_kms: f64) -> (Vec<f64
 
     // Hydrogen lines: pressure-broadened wings in dwarfs, very wide in white
     // dwarfs. The Balmer lines of non-degenerate stars are Lorentzian
-    // optical-depth profiles whose central depths and half widths at A0
-    // ([`BALMER_TAU`], [`BALMER_GAMMA`]) were fitted to α Lyr (see there);
-    // both scale with the hydrogen strength of the type. The Paschen lines
-    // keep the older profile (a Holtsmark-like wing on a thin Gaussian core,
-    // widths compared by eye with the same star). Upper members have smaller
-    // oscillator strengths but wider Stark profiles, so their equivalent
-    // widths fall only slowly and they merge towards the series limit (the
-    // Inglis–Teller effect).
+    // optical-depth wings on a Doppler core, fitted at A0 ([`BALMER_TAU`],
+    // [`BALMER_GAMMA`], [`BALMER_CORE_TAU`]); their widths scale with the
+    // type's hydrogen strength, their depths as [`balmer_scaling`] says. The
+    // white dwarfs' lines and the Paschen lines keep the older profile (a
+    // Holtsmark-like wing on a thin Gaussian core, widths compared by eye
+    // with real stars). Upper members have smaller oscillator strengths but
+    // wider Stark profiles, so their equivalent widths fall only slowly and
+    // they merge towards the series limit (the Inglis–Teller effect).
     for (lower, upper, w) in hydrogen_lines() {
-        let first = lower + 1;
-        let k = f64::from(upper - first);
+        let k = f64::from(upper - (lower + 1));
+        let series = if lower == 2 { 1.0 } else { 0.45 };
+        let holtsmark = |tau: f64, gamma: f64| Absorber {
+            center: w,
+            tau0: tau * series * (1.0 + k).powf(-0.3),
+            sigma_kms: sigma_kms.max(20.0),
+            gamma: gamma
+                * (w / 4_861.0)
+                * (1.0 + k.min(3.0)).powf(0.3)
+                * (1.0 + (k - 3.0).max(0.0)).powf(-0.2),
+            eta: 0.85,
+            wing: 1.25,
+        };
         let line = if st.white_dwarf {
-            Absorber {
-                center: w,
-                tau0: 2.5 * (1.0 + k).powf(-0.3) * if lower == 2 { 1.0 } else { 0.45 },
-                sigma_kms: sigma_kms.max(20.0),
-                gamma: 18.0
-                    * (w / 4_861.0)
-                    * (1.0 + k.min(3.0)).powf(0.3)
-                    * (1.0 + (k - 3.0).max(0.0)).powf(-0.2),
-                eta: 0.85,
-                wing: 1.25,
-            }
+            holtsmark(2.5, 18.0)
         } else if lower == 2 {
             let (tau0, gamma) = balmer_profile(upper);
             let (wings, core) = balmer_scaling(t);
@@ -458,18 +459,7 @@ pub(crate) fn atmosphere(st: &StarType, grid: &Grid, sigma_kms: f64) -> (Vec<f64
                 wing: 1.0,
             }
         } else {
-            Absorber {
-                center: w,
-                tau0: 0.8 * h * 0.45 * (1.0 + k).powf(-0.3),
-                sigma_kms: sigma_kms.max(20.0),
-                gamma: 16.0
-                    * h
-                    * (w / 4_861.0)
-                    * (1.0 + k.min(3.0)).powf(0.3)
-                    * (1.0 + (k - 3.0).max(0.0)).powf(-0.2),
-                eta: 0.85,
-                wing: 1.25,
-            }
+            holtsmark(0.8 * h, 16.0 * h)
         };
         line.add_to(&mut tau, grid);
     }
