@@ -62,8 +62,29 @@ const NM_TOLERANCE: f64 = 1e-3;
 
 /// Measure the emission lines of `class`'s line list in `s` at redshift `z`.
 pub fn measure(s: &Spectrum, z: f64, class: ObjectClass) -> Vec<LineMeasurement> {
-    let basis = (class != ObjectClass::Quasar).then(stellar::basis);
-    measure_on(s, z, class, basis, &[Trough::Gaussian(BROAD_TROUGH_REST)])
+    let troughs = [Trough::Gaussian(BROAD_TROUGH_REST)];
+    if class == ObjectClass::Quasar {
+        return measure_on(s, z, class, None, &troughs);
+    }
+    // the stellar dispersion: the broadening of the basis whose windows fit
+    // best at the lines' start kinematics (a sharp Balmer core of the wrong
+    // width leaves a residual under the emission line)
+    let start = LineKind::ALL.map(|k| Kin {
+        v: 0.0,
+        sigma: limits(class, k).sigma_start,
+    });
+    let best = stellar::bases()
+        .iter()
+        .map(|b| {
+            let chi2: f64 = windows_for(s, z, class, Some(b), &troughs)
+                .iter()
+                .filter_map(|w| w.chi2(&start))
+                .sum();
+            (b, chi2)
+        })
+        .min_by(|a, b| a.1.total_cmp(&b.1))
+        .map(|(b, _)| b);
+    measure_on(s, z, class, best, &troughs)
 }
 
 /// A trough column fitted with the stellar populations under each Balmer
@@ -101,6 +122,37 @@ fn measure_on(
     basis: Option<&'static stellar::Basis>,
     troughs: &[Trough],
 ) -> Vec<LineMeasurement> {
+    let windows = windows_for(s, z, class, basis, troughs);
+    let specs = lines_for(class);
+    // kinematics: one set for all windows of a galaxy, one per window of a quasar
+    let mut out: Vec<(usize, LineMeasurement)> = Vec::new();
+    let sets: Vec<Vec<&Window>> = if class == ObjectClass::Quasar {
+        windows.iter().map(|w| vec![w]).collect()
+    } else {
+        vec![windows.iter().collect()]
+    };
+    for set in sets {
+        let Some((kin, fitted)) = fit_kinematics(&set, class) else {
+            continue;
+        };
+        let extra = kinematic_variance(&set, &kin, fitted, class);
+        for (w, ex) in set.iter().zip(&extra) {
+            out.extend(report(w, &kin, fitted, specs, ex));
+        }
+    }
+    out.sort_by_key(|(k, _)| *k);
+    out.into_iter().map(|(_, m)| m).collect()
+}
+
+/// The fitting windows of `class`'s lines in `s` at `z`: lines whose
+/// continuum margins overlap share one window.
+fn windows_for(
+    s: &Spectrum,
+    z: f64,
+    class: ObjectClass,
+    basis: Option<&'static stellar::Basis>,
+    troughs: &[Trough],
+) -> Vec<Window> {
     if !(z > -1.0 && z.is_finite()) || s.len() < 2 {
         return Vec::new();
     }
@@ -216,24 +268,7 @@ fn measure_on(
             windows.push(w);
         }
     }
-    // kinematics: one set for all windows of a galaxy, one per window of a quasar
-    let mut out: Vec<(usize, LineMeasurement)> = Vec::new();
-    let sets: Vec<Vec<&Window>> = if class == ObjectClass::Quasar {
-        windows.iter().map(|w| vec![w]).collect()
-    } else {
-        vec![windows.iter().collect()]
-    };
-    for set in sets {
-        let Some((kin, fitted)) = fit_kinematics(&set, class) else {
-            continue;
-        };
-        let extra = kinematic_variance(&set, &kin, fitted, class);
-        for (w, ex) in set.iter().zip(&extra) {
-            out.extend(report(w, &kin, fitted, specs, ex));
-        }
-    }
-    out.sort_by_key(|(k, _)| *k);
-    out.into_iter().map(|(_, m)| m).collect()
+    windows
 }
 
 /// The profiled χ² of a set of windows as a function of the free kinematics.

@@ -79,6 +79,37 @@ impl Basis {
     }
 }
 
+/// Extra velocity dispersions (km/s) of [`bases`]: the basis as made, and
+/// broadened twice more, so that the measurement can choose the stellar
+/// dispersion of a galaxy (a dwarf's stars move at tens of km/s, a massive
+/// galaxy's at 200–300, common practice).
+pub const EXTRA_SIGMA_KMS: [f64; 3] = [0.0, 90.0, 180.0];
+
+/// The basis at each of [`EXTRA_SIGMA_KMS`] (generated once).
+pub fn bases() -> &'static [Basis] {
+    static B: OnceLock<Vec<Basis>> = OnceLock::new();
+    B.get_or_init(|| {
+        let b = basis();
+        EXTRA_SIGMA_KMS
+            .iter()
+            .map(|&extra| Basis {
+                grid: b.grid,
+                flux: b
+                    .flux
+                    .iter()
+                    .map(|f| {
+                        if extra > 0.0 {
+                            crate::templates::profiles::convolve_velocity(f, &b.grid, extra)
+                        } else {
+                            f.clone()
+                        }
+                    })
+                    .collect(),
+            })
+            .collect()
+    })
+}
+
 /// The shared basis (generated once).
 pub fn basis() -> &'static Basis {
     static B: OnceLock<Basis> = OnceLock::new();
