@@ -17,7 +17,7 @@ const GRID: (f64, f64, f64) = (2.95, 4.08, 1e-4);
 
 /// The basis: log10 λ of the first pixel, step, and one flux array per population.
 pub struct Basis {
-    grid: Grid,
+    pub(crate) grid: Grid,
     /// Flux of each population on the grid (normalised at 5400–5600 Å).
     pub flux: Vec<Vec<f64>>,
 }
