@@ -168,7 +168,6 @@ fn forbidden_lines_of_a_real_dwarf_galaxy_match_its_stored_table_and_balmer_line
 }
 
 #[test]
-#[ignore = "known failure (Hα 760 ± 21 against 857–876, Hβ 169 ± 14 against 193–207, Hγ 70 ± 12 against 86–102; Hδ 42 ± 7 passes): cargo test --test integration emission::balmer_fluxes -- --ignored --nocapture"]
 fn balmer_fluxes_of_the_real_dwarf_galaxy_match_the_fits_ppxf_ships() {
     // The Balmer reference for this galaxy: the two fits of it whose line
     // fluxes ppxf 9.5.2 ships in its reference output (E-MILES and FSPS
@@ -686,13 +685,49 @@ fn nebula() -> Vec<(&'static str, f64)> {
     ]
 }
 
+/// Stellar velocity dispersions (km/s) of the simulated galaxies' stars:
+/// from a dwarf's to a massive galaxy's, none of them one the measurement
+/// has a basis for (`stellar::EXTRA_SIGMA_KMS`).
+const SIM_STAR_SIGMA_KMS: [f64; 4] = [40.0, 80.0, 150.0, 220.0];
+
+/// The simulated galaxies' stellar continuum on the grid of
+/// [`simulated_galaxy`] at each of [`SIM_STAR_SIGMA_KMS`]: a population that
+/// is **not** one of the fit's bases (another mix of our stellar
+/// templates), normalised to 1 at 4800–4920 Å.
+fn simulated_continua() -> Vec<Vec<f64>> {
+    let grid = Grid::new(3.45, 4.02, 1e-4);
+    let mix = [
+        ("star-A", 0.30),
+        ("star-F", 0.30),
+        ("star-G", 0.25),
+        ("star-K", 0.15),
+    ];
+    // made on pixels four times finer and sampled at ours: the stars' own
+    // 40 km/s lines are narrower than our 69 km/s pixels, and a profile
+    // point-sampled that coarsely before the broadening has the wrong depth
+    let fine = Grid::new(3.45, 4.02, 2.5e-5);
+    SIM_STAR_SIGMA_KMS
+        .iter()
+        .map(|&sigma| {
+            let mut rest: Vec<f64> = population(&fine, &mix, sigma).into_iter().step_by(4).collect();
+            assert_eq!(rest.len(), grid.n);
+            let norm = zvet::templates::profiles::median_in(&rest, &grid, 4800.0, 4920.0);
+            for x in rest.iter_mut() {
+                *x /= norm;
+            }
+            rest
+        })
+        .collect()
+}
+
 /// A galaxy at redshift `10^(shift·1e-4) − 1` (whole pixels, so no
-/// interpolation touches the lines): a stellar population that is **not**
-/// one of the fit's bases (another mix of our stellar templates, another
-/// velocity dispersion), the nebula's lines (pixel-integrated Gaussians of
-/// σ `sigma_kms` moved by `v_kms`), and Gaussian noise for a continuum S/N
-/// per pixel of `snr`. Returns the spectrum, z, and the true line fluxes.
+/// interpolation touches the lines): the stellar continuum `rest` (one of
+/// [`simulated_continua`]), the nebula's lines (pixel-integrated Gaussians
+/// of σ `sigma_kms` moved by `v_kms`), and Gaussian noise for a continuum
+/// S/N per pixel of `snr`. Returns the spectrum, z, and the true line
+/// fluxes.
 fn simulated_galaxy(
+    rest: &[f64],
     shift: i64,
     snr: f64,
     hbeta_ew: f64,
@@ -701,17 +736,6 @@ fn simulated_galaxy(
     rng: &mut ChaCha8Rng,
 ) -> (Spectrum, f64, Vec<(&'static str, f64)>) {
     let grid = Grid::new(3.45, 4.02, 1e-4);
-    let mix = [
-        ("star-A", 0.30),
-        ("star-F", 0.30),
-        ("star-G", 0.25),
-        ("star-K", 0.15),
-    ];
-    let mut rest = population(&grid, &mix, 110.0);
-    let norm = zvet::templates::profiles::median_in(&rest, &grid, 4800.0, 4920.0);
-    for x in rest.iter_mut() {
-        *x /= norm;
-    }
     // the continuum near Hβ is 1, so Hβ's flux is its EW (rest Å)
     let hbeta = hbeta_ew;
     let neb = nebula();
@@ -749,6 +773,7 @@ type LineRun = (&'static str, Vec<f64>, Vec<f64>, Vec<f64>);
 /// Per line: relative flux errors, pulls and fitted widths over `n` simulated galaxies.
 fn simulation_run(n: usize, seed: u64) -> Vec<LineRun> {
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    let continua = simulated_continua();
     let names = ["Hα", "Hβ", "[O III] 5008", "[N II] 6585"];
     let mut out: Vec<LineRun> = names
         .iter()
@@ -759,7 +784,8 @@ fn simulation_run(n: usize, seed: u64) -> Vec<LineRun> {
         let shift = rng.random_range(50..1200); // z ≈ 0.012–0.32
         let sigma = rng.random_range(50.0..120.0);
         let v = rng.random_range(-40.0..40.0);
-        let (s, z, truth) = simulated_galaxy(shift, snr, 6.0, sigma, v, &mut rng);
+        let rest = &continua[rng.random_range(0..continua.len())];
+        let (s, z, truth) = simulated_galaxy(rest, shift, snr, 6.0, sigma, v, &mut rng);
         let m = measure_emission_lines(&s, z, ObjectClass::Galaxy);
         for (name, rel, pull, width) in out.iter_mut() {
             let Some(t) = truth.iter().find(|t| t.0 == *name).map(|t| t.1) else {
@@ -811,7 +837,7 @@ fn simulated_galaxies_on_stellar_absorption_have_unbiased_fluxes_and_calibrated_
 }
 
 #[test]
-#[ignore = "long: cargo test --release --test integration emission::simulation_large -- --ignored --nocapture"]
+#[ignore = "long, and a known failure (Hβ bias +3.0 % ± 0.3 %, Hα +1.4 %, from the spectra at S/N 5–10): cargo test --release --no-default-features --test integration emission::simulation_large -- --ignored --nocapture"]
 fn simulation_large() {
     check_simulation(1000, 11);
 }

@@ -213,10 +213,15 @@ fn normalise(f: &mut [f64], grid: &Grid) {
 
 /// The passive population, normalised at 5400–5600 Å.
 pub fn old(grid: &Grid) -> Vec<f64> {
-    let mut f = population(grid, OLD_MIX, OLD_SIGMA_KMS);
+    old_at(grid, OLD_SIGMA_KMS)
+}
+
+/// The passive population with its stars moving at `sigma_kms`.
+pub fn old_at(grid: &Grid, sigma_kms: f64) -> Vec<f64> {
+    let mut f = population(grid, OLD_MIX, sigma_kms);
     // The ultraviolet upturn: a trace of hot stars (0.1 % of the light at 5500 Å,
     // giving f_λ(1500 Å) of a few per cent of f_λ(5500 Å); from memory).
-    let hot = population(grid, &[("star-B", 0.001)], OLD_SIGMA_KMS);
+    let hot = population(grid, &[("star-B", 0.001)], sigma_kms);
     for (a, b) in f.iter_mut().zip(hot) {
         *a += b;
     }
@@ -226,14 +231,24 @@ pub fn old(grid: &Grid) -> Vec<f64> {
 
 /// The intermediate-age population, normalised at 5400–5600 Å.
 pub fn intermediate(grid: &Grid) -> Vec<f64> {
-    let mut f = population(grid, INTERMEDIATE_MIX, OLD_SIGMA_KMS);
+    intermediate_at(grid, OLD_SIGMA_KMS)
+}
+
+/// The intermediate-age population with its stars moving at `sigma_kms`.
+pub fn intermediate_at(grid: &Grid, sigma_kms: f64) -> Vec<f64> {
+    let mut f = population(grid, INTERMEDIATE_MIX, sigma_kms);
     normalise(&mut f, grid);
     f
 }
 
 /// The young stellar continuum alone (with dust and interstellar lines), normalised.
 pub fn young_continuum(grid: &Grid) -> Vec<f64> {
-    let mut f = population(grid, YOUNG_MIX, YOUNG_SIGMA_KMS);
+    young_continuum_at(grid, YOUNG_SIGMA_KMS)
+}
+
+/// The young stellar continuum with its stars moving at `sigma_kms`.
+pub fn young_continuum_at(grid: &Grid, sigma_kms: f64) -> Vec<f64> {
+    let mut f = population(grid, YOUNG_MIX, sigma_kms);
     let mut tau: Vec<f64> = grid
         .waves()
         .iter()

@@ -7,13 +7,23 @@ late-B stars). Their Balmer absorption ranges from weak
 (passive) to strong (A-star dominated), so a non-negative combination plus a
 low-order polynomial reproduces the absorption trough under each Balmer
 emission line.
+
+Unlike the fit's galaxy templates (stars moving at 90–180 km/s), the basis is
+made with the stars at rest, seen only through their own lines' width and the
+instrument's, on pixels four times finer than the fit's; [`bases`] broadens it
+to a ladder of galaxy dispersions. A dwarf galaxy's Balmer cores are sharper
+than any population at 180 km/s, and an emission line measured in a trough
+too broad and too shallow comes out low.
 */
 use crate::templates::galaxies;
 use crate::templates::profiles::Grid;
 use std::sync::OnceLock;
 
-/// Rest-frame grid of the basis (the built-in galaxy grid, 891–12023 Å).
-const GRID: (f64, f64, f64) = (2.95, 4.08, 1e-4);
+/// Rest-frame grid of the basis: the built-in galaxy grid's range
+/// (891–12023 Å) at a quarter of its step (17 km/s pixels), so that the
+/// sharpest troughs (72 km/s: the stars' 40 and the instrument's 60 in
+/// quadrature) are not smoothed by the interpolation onto the data's pixels.
+const GRID: (f64, f64, f64) = (2.95, 4.08, 2.5e-5);
 
 /// The basis: log10 λ of the first pixel, step, and one flux array per population.
 pub struct Basis {
@@ -79,11 +89,14 @@ impl Basis {
     }
 }
 
-/// Extra velocity dispersions (km/s) of [`bases`]: the basis as made, and
-/// broadened twice more, so that the measurement can choose the stellar
-/// dispersion of a galaxy (a dwarf's stars move at tens of km/s, a massive
-/// galaxy's at 200–300, common practice).
-pub const EXTRA_SIGMA_KMS: [f64; 3] = [0.0, 90.0, 180.0];
+/// Stellar velocity dispersions (km/s) of [`bases`]: the basis as made
+/// (stars at rest) and broadened to galaxies whose stars move at 60 to 250
+/// km/s, so that the measurement can choose the stellar dispersion of a
+/// galaxy (a dwarf's stars move at tens of km/s, a massive galaxy's at
+/// 200–300, common practice). The steps grow with σ: the troughs' total
+/// widths (with the 72 km/s of [`basis`]) are 72, 94, 131, 184 and 260 km/s,
+/// about 1.4 times apart.
+pub const EXTRA_SIGMA_KMS: [f64; 5] = [0.0, 60.0, 110.0, 170.0, 250.0];
 
 /// The basis at each of [`EXTRA_SIGMA_KMS`] (generated once).
 pub fn bases() -> &'static [Basis] {
@@ -118,13 +131,13 @@ pub fn basis() -> &'static Basis {
         Basis {
             grid,
             flux: vec![
-                galaxies::old(&grid),
-                galaxies::intermediate(&grid),
-                galaxies::young_continuum(&grid),
-                // single hot-star populations at the young population's
-                // dispersion: the deepest and the broadest Balmer troughs
-                galaxies::population(&grid, &[("star-A", 1.0)], galaxies::YOUNG_SIGMA_KMS),
-                galaxies::population(&grid, &[("star-B8", 1.0)], galaxies::YOUNG_SIGMA_KMS),
+                galaxies::old_at(&grid, 0.0),
+                galaxies::intermediate_at(&grid, 0.0),
+                galaxies::young_continuum_at(&grid, 0.0),
+                // single hot-star populations: the deepest and the broadest
+                // Balmer troughs
+                galaxies::population(&grid, &[("star-A", 1.0)], 0.0),
+                galaxies::population(&grid, &[("star-B8", 1.0)], 0.0),
             ],
         }
     })

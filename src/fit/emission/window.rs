@@ -91,7 +91,7 @@ impl TroughColumn {
 }
 
 /// The pixels and continuum columns of one window.
-pub struct Window {
+pub struct Window<'b> {
     z: f64,
     lam: Vec<f64>,
     f: Vec<f64>,
@@ -110,7 +110,7 @@ pub struct Window {
     half: f64,
     /// Line columns.
     pub cols: Vec<Column>,
-    basis: Option<&'static Basis>,
+    basis: Option<&'b Basis>,
     /// Buffers of [`Window::solve`], reused from call to call.
     scratch: RefCell<Scratch>,
 }
@@ -155,7 +155,7 @@ fn legendre_into(x: f64, out: &mut [f64]) {
     }
 }
 
-impl Window {
+impl<'b> Window<'b> {
     /// A window over observed `[lo, hi]` Å at redshift `z`; `None` when too
     /// few good pixels remain for its columns or the basis does not cover.
     #[allow(clippy::too_many_arguments)]
@@ -167,10 +167,10 @@ impl Window {
         z: f64,
         (lo, hi): (f64, f64),
         np: usize,
-        basis: Option<&'static Basis>,
+        basis: Option<&'b Basis>,
         broad: Vec<TroughColumn>,
         cols: Vec<Column>,
-    ) -> Option<Window> {
+    ) -> Option<Window<'b>> {
         let nt = basis.map_or(0, |b| b.len());
         let m = nt + np + broad.len();
         if m + cols.len() > MAX_COLUMNS || cols.is_empty() {
@@ -241,6 +241,21 @@ impl Window {
             row[self.nt + self.np + k] = t.at(lam);
         }
         true
+    }
+
+    /// The factor by which the formal variances of `sol`, the solution at
+    /// `kin`, are scaled: the window's reduced χ², at least 1. Where the
+    /// stellar populations do not match the spectrum to its noise the
+    /// residuals are wider than the errors say, and the formal errors are too
+    /// small by √χ²_r (common practice, as for the redshift's Δχ² cuts:
+    /// [`crate::fit::mismatch_scale`]).
+    pub fn mismatch_scale(&self, kin: &[Kin; 2], sol: &Solution) -> f64 {
+        let free = sol.active.iter().filter(|&&a| a).count();
+        let dof = self.lam.len().saturating_sub(free);
+        match self.chi2(kin) {
+            Some(chi2) if dof > 0 => crate::fit::mismatch_scale(chi2 / dof as f64),
+            _ => 1.0,
+        }
     }
 
     /// Continuum columns.
