@@ -1,6 +1,7 @@
 /*!
 Refinement of a grid minimum on a continuous redshift: Brent's method (argmin)
-on χ² with the templates interpolated in log λ (cubic convolution;
+on χ² with the templates interpolated in log λ (a Lanczos kernel,
+[`super::units::shift_weights`];
 [`super::sums::sums_fit`], the same χ² as the direct oracle), and σ_z from
 the curvature of χ² at the minimum (Δχ² = 1).
 */

@@ -8,7 +8,7 @@ oracle ([`super::reference`]) is apart from all of them and serves the tests.
 // Index loops here mirror the sums of the normal equations term by term.
 #![allow(clippy::needless_range_loop)]
 use super::prep::{n_legendre, solve_constrained, Prepared};
-use super::units::Unit;
+use super::units::{shift_weights, Unit, FIRST_TAP, SHIFT_TAPS};
 /// A template column whose Σ w T² is below this fraction of
 /// `max(w) · Σ T²` (the most it could be) is treated as absent: the shifted
 /// template hardly touches the good pixels and its coefficient is set to 0.
@@ -187,8 +187,8 @@ pub(crate) fn assemble_templates(
 }
 
 /// The same fit as the oracle's [`direct_fit`](super::reference::direct_fit) computed for speed (the refinement's cost
-/// function): the shift's sub-pixel part gives one set of cubic weights for
-/// every pixel, so each shifted template is a 4-tap filter of its array; the
+/// function): the shift's sub-pixel part gives one set of kernel weights for
+/// every pixel, so each shifted template is an 8-tap filter of its array; the
 /// template sums are the fast path's (the same data arrays, the same order,
 /// here as plain dot products at one fractional shift) and so is the
 /// assembly of the normal equations; χ² = Σ w f² − c·b.
@@ -198,18 +198,15 @@ pub fn sums_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg: b
     let fl = x0.floor();
     let d = x0 - fl;
     let i0 = fl as i64;
-    // Keys (1981) cubic-convolution weights for taps −1, 0, 1, 2 (as Unit::interp)
+    // the weights of Unit::interp, one set for every pixel
     let wts = if d == 0.0 {
-        [0.0, 1.0, 0.0, 0.0]
+        let mut w = [0.0; SHIFT_TAPS];
+        w[(-FIRST_TAP) as usize] = 1.0;
+        w
     } else {
-        [
-            ((-0.5 * d + 1.0) * d - 0.5) * d,
-            (1.5 * d - 2.5) * d * d + 1.0,
-            ((-1.5 * d + 2.0) * d + 0.5) * d,
-            (0.5 * d - 0.5) * d * d,
-        ]
+        shift_weights(d)
     };
-    let t: Vec<Vec<f64>> = unit.t.iter().map(|t| shift_cubic(t, i0, &wts, n)).collect();
+    let t: Vec<Vec<f64>> = unit.t.iter().map(|t| shift_kernel(t, i0, &wts, n)).collect();
     // the template sums in the fast path's order, then its normal equations
     let g = unit.groups;
     let (wl, wfx) = prep.data_for(g);
@@ -259,25 +256,30 @@ pub(crate) fn fit_from_sums(
     }
 }
 
-/// `out[i] = Σ_q wts[q] · t[i + i0 + q − 1]` for i < n, zero-padded outside `t`
-/// (the 4-tap cubic-convolution filter; edges by index checks, the interior
-/// without them).
-fn shift_cubic(t: &[f64], i0: i64, wts: &[f64; 4], n: usize) -> Vec<f64> {
+/// `out[i] = Σ_q wts[q] · t[i + i0 + q + FIRST_TAP]` for i < n, zero-padded
+/// outside `t` (the [`shift_weights`] filter; edges by index checks, the
+/// interior without them).
+fn shift_kernel(t: &[f64], i0: i64, wts: &[f64; SHIFT_TAPS], n: usize) -> Vec<f64> {
     let m = t.len() as i64;
+    let taps = SHIFT_TAPS as i64;
     let at = |j: i64| if j >= 0 && j < m { t[j as usize] } else { 0.0 };
-    let edge = |i: i64| -> f64 { (0..4).map(|q| wts[q] * at(i + i0 + q as i64 - 1)).sum() };
+    let edge = |i: i64| -> f64 {
+        (0..SHIFT_TAPS)
+            .map(|q| wts[q] * at(i + i0 + q as i64 + FIRST_TAP))
+            .sum()
+    };
     let mut out = vec![0.0; n];
-    // interior: 0 ≤ i + i0 − 1 and i + i0 + 2 < m
-    let lo = (1 - i0).clamp(0, n as i64) as usize;
-    let hi = (m - 2 - i0).clamp(lo as i64, n as i64) as usize;
+    // interior: 0 ≤ i + i0 + FIRST_TAP and i + i0 + FIRST_TAP + taps − 1 < m
+    let lo = (-FIRST_TAP - i0).clamp(0, n as i64) as usize;
+    let hi = (m - taps - FIRST_TAP - i0 + 1).clamp(lo as i64, n as i64) as usize;
     for i in (0..lo).chain(hi..n) {
         out[i] = edge(i as i64);
     }
     if hi > lo {
-        let base = (lo as i64 + i0 - 1) as usize;
-        let src = &t[base..base + (hi - lo) + 3];
-        for (o, w) in out[lo..hi].iter_mut().zip(src.windows(4)) {
-            *o = wts[0] * w[0] + wts[1] * w[1] + wts[2] * w[2] + wts[3] * w[3];
+        let base = (lo as i64 + i0 + FIRST_TAP) as usize;
+        let src = &t[base..base + (hi - lo) + SHIFT_TAPS - 1];
+        for (o, w) in out[lo..hi].iter_mut().zip(src.windows(SHIFT_TAPS)) {
+            *o = w.iter().zip(wts).map(|(a, b)| a * b).sum();
         }
     }
     out
