@@ -966,6 +966,8 @@ struct MockCounts {
     confident_wrong_class: usize,
     /// class star but the velocity wrong, with no warning
     confident_velocity_miss: usize,
+    /// any warning but `noise_estimated` (the answer is flagged for a look)
+    flagged: usize,
 }
 
 impl MockCounts {
@@ -975,6 +977,7 @@ impl MockCounts {
         self.right += o.right;
         self.confident_wrong_class += o.confident_wrong_class;
         self.confident_velocity_miss += o.confident_velocity_miss;
+        self.flagged += o.flagged;
     }
 }
 
@@ -988,6 +991,7 @@ fn real_star_mocks(per: usize, seed: u64) -> MockCounts {
     // (kind, per-S/N counts), in first-seen order
     let mut kinds: Vec<(&str, [MockCounts; 3])> = Vec::new();
     let mut total = MockCounts::default();
+    let mut at_snr_5_up = MockCounts::default();
     eprintln!("mock observations of real stars, per star: class star / trials (confident wrong class), per S/N 3, 5, 10");
     for star in &stars {
         let mut row = [MockCounts::default(); 3];
@@ -1007,6 +1011,7 @@ fn real_star_mocks(per: usize, seed: u64) -> MockCounts {
                 c.trials += 1;
                 c.class_ok += usize::from(is_star);
                 c.right += usize::from(is_star && v_ok);
+                c.flagged += usize::from(warned);
                 if !is_star && !warned {
                     c.confident_wrong_class += 1;
                     eprintln!(
@@ -1032,6 +1037,7 @@ fn real_star_mocks(per: usize, seed: u64) -> MockCounts {
             None => kinds.push((star.kind, row)),
         }
         row.iter().for_each(|r| total.add(*r));
+        row[1..].iter().for_each(|r| at_snr_5_up.add(*r));
     }
     eprintln!("per stellar type: class star / trials (confident wrong class) [velocity right too; unflagged velocity misses], per S/N 3, 5, 10");
     for (kind, row) in &kinds {
@@ -1049,6 +1055,14 @@ fn real_star_mocks(per: usize, seed: u64) -> MockCounts {
     eprintln!(
         "total: {} trials, class star {}, confident wrong class {}, unflagged velocity misses {}",
         total.trials, total.class_ok, total.confident_wrong_class, total.confident_velocity_miss
+    );
+    eprintln!(
+        "S/N ≥ 5: {} trials, flagged {} ({:.1} %), confident wrong class {} ({:.2} %)",
+        at_snr_5_up.trials,
+        at_snr_5_up.flagged,
+        100.0 * at_snr_5_up.flagged as f64 / at_snr_5_up.trials.max(1) as f64,
+        at_snr_5_up.confident_wrong_class,
+        100.0 * at_snr_5_up.confident_wrong_class as f64 / at_snr_5_up.trials.max(1) as f64
     );
     total
 }

@@ -21,7 +21,7 @@ pub mod stars_cool;
 pub mod stars_hot;
 pub mod train;
 
-pub use builtin::{builtin, generate as generate_builtin, write_builtin, DEFAULT_DIR};
+pub use builtin::{builtin, generate as generate_builtin, write_builtin, DEFAULT_DIR, NAME as BUILTIN_NAME};
 pub use fits_io::{
     read_descriptor, read_set, set_files, write_set, write_set_with, Descriptor, DescriptorEntry,
     TemplateError, DESCRIPTOR_FORMAT,
