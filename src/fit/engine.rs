@@ -748,7 +748,7 @@ fn local_minima(v: &[f64]) -> Vec<usize> {
 
 /// Mean over good pixels of the template part Σ a_k T_k of the model.
 fn template_part_mean(prep: &Prepared, u: &Unit, shift: f64, coeffs: &[f64]) -> f64 {
-    let x0 = super::sums::offset(prep, u, shift);
+    let (x0i, wts) = super::units::shift_at(super::sums::offset(prep, u, shift));
     let mut sum = 0.0;
     let k = u.k();
     for &i in &prep.good {
@@ -758,7 +758,7 @@ fn template_part_mean(prep: &Prepared, u: &Unit, shift: f64, coeffs: &[f64]) -> 
             } else {
                 coeffs[a]
             };
-            sum += amp * u.interp(a, i as f64 + x0);
+            sum += amp * u.interp_with(a, i as i64 + x0i, &wts);
         }
     }
     sum / prep.good.len().max(1) as f64

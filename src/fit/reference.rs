@@ -23,14 +23,14 @@ pub fn direct_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg:
     let (kc, g) = (unit.cols(), unit.groups);
     let j = prep.j();
     let dim = kc + j;
-    let x0 = offset(prep, unit, shift);
+    let (x0i, wts) = super::units::shift_at(offset(prep, unit, shift));
     let mut a = vec![0.0; dim * dim];
     let mut b = vec![0.0; dim];
     let mut row = vec![0.0; dim];
     let mut rows = vec![0.0; dim * prep.good.len()];
     for (gi, &i) in prep.good.iter().enumerate() {
         for t in 0..k {
-            let v = unit.interp(t, i as f64 + x0);
+            let v = unit.interp_with(t, i as i64 + x0i, &wts);
             // column u·k + t is T_t·x^u (u = 1: the throughput term)
             let mut m = v;
             for u in 0..g {

@@ -8,7 +8,7 @@ oracle ([`super::reference`]) is apart from all of them and serves the tests.
 // Index loops here mirror the sums of the normal equations term by term.
 #![allow(clippy::needless_range_loop)]
 use super::prep::{n_legendre, solve_constrained, Prepared};
-use super::units::{shift_weights, Unit, FIRST_TAP, SHIFT_TAPS};
+use super::units::{shift_at, Unit, FIRST_TAP, SHIFT_TAPS};
 /// A template column whose Σ w T² is below this fraction of
 /// `max(w) · Σ T²` (the most it could be) is treated as absent: the shifted
 /// template hardly touches the good pixels and its coefficient is set to 0.
@@ -194,18 +194,8 @@ pub(crate) fn assemble_templates(
 /// assembly of the normal equations; χ² = Σ w f² − c·b.
 pub fn sums_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg: bool) -> DirectFit {
     let (k, j, n) = (unit.k(), prep.j(), prep.grid.n);
-    let x0 = offset(prep, unit, shift);
-    let fl = x0.floor();
-    let d = x0 - fl;
-    let i0 = fl as i64;
     // the weights of Unit::interp, one set for every pixel
-    let wts = if d == 0.0 {
-        let mut w = [0.0; SHIFT_TAPS];
-        w[(-FIRST_TAP) as usize] = 1.0;
-        w
-    } else {
-        shift_weights(d)
-    };
+    let (i0, wts) = shift_at(offset(prep, unit, shift));
     let t: Vec<Vec<f64>> = unit.t.iter().map(|t| shift_kernel(t, i0, &wts, n)).collect();
     // the template sums in the fast path's order, then its normal equations
     let g = unit.groups;

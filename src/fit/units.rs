@@ -62,12 +62,35 @@ impl Unit {
         if d == 0.0 {
             return at(i);
         }
-        shift_weights(d)
-            .iter()
+        self.interp_with(a, i, &shift_weights(d))
+    }
+
+    /// Template `a` at pixel `i` plus the fraction whose [`shift_weights`]
+    /// are `w` (for many pixels at one fraction: the weights once).
+    pub fn interp_with(&self, a: usize, i: i64, w: &[f64; SHIFT_TAPS]) -> f64 {
+        let t = &self.t[a];
+        let m = t.len() as i64;
+        let at = |j: i64| if j >= 0 && j < m { t[j as usize] } else { 0.0 };
+        w.iter()
             .enumerate()
-            .map(|(q, w)| w * at(i + q as i64 + FIRST_TAP))
+            .map(|(q, wq)| wq * at(i + q as i64 + FIRST_TAP))
             .sum()
     }
+}
+
+/// The whole part of `x0` and the weights of its fraction: the shift of
+/// every pixel `i` to `i + x0` is [`Unit::interp_with`] at `i + whole`.
+pub fn shift_at(x0: f64) -> (i64, [f64; SHIFT_TAPS]) {
+    let fl = x0.floor();
+    let d = x0 - fl;
+    let w = if d == 0.0 {
+        let mut w = [0.0; SHIFT_TAPS];
+        w[(-FIRST_TAP) as usize] = 1.0;
+        w
+    } else {
+        shift_weights(d)
+    };
+    (fl as i64, w)
 }
 
 /// Taps of the sub-pixel shift kernel ([`shift_weights`]).
@@ -89,19 +112,44 @@ pub const FIRST_TAP: i64 = 1 - (SHIFT_TAPS as i64) / 2;
 /// 1/8–1/4 cycle per pixel within 1 % at every offset
 /// (`shift_kernel_keeps_line_depths` in the tests).
 pub fn shift_weights(d: f64) -> [f64; SHIFT_TAPS] {
+    use std::f64::consts::{FRAC_1_SQRT_2, PI};
+    // sin and cos of π·n/4 for the taps n = FIRST_TAP … FIRST_TAP + 7 (−3 … 4)
+    const SIN_N4: [f64; SHIFT_TAPS] = [
+        -FRAC_1_SQRT_2,
+        -1.0,
+        -FRAC_1_SQRT_2,
+        0.0,
+        FRAC_1_SQRT_2,
+        1.0,
+        FRAC_1_SQRT_2,
+        0.0,
+    ];
+    const COS_N4: [f64; SHIFT_TAPS] = [
+        -FRAC_1_SQRT_2,
+        0.0,
+        FRAC_1_SQRT_2,
+        1.0,
+        FRAC_1_SQRT_2,
+        0.0,
+        -FRAC_1_SQRT_2,
+        -1.0,
+    ];
     let a = (SHIFT_TAPS / 2) as f64;
-    let sinc = |x: f64| {
-        if x.abs() < 1e-12 {
-            1.0
-        } else {
-            let px = std::f64::consts::PI * x;
-            px.sin() / px
-        }
-    };
+    // x = n − d: sin πx = (−1)^(n+1) sin πd and sin(πx/4) by the angle
+    // difference, so one sin and one sin_cos serve all eight taps
+    let s1 = (PI * d).sin();
+    let (s4, c4) = (PI * d / a).sin_cos();
     let mut w = [0.0; SHIFT_TAPS];
     for (q, wq) in w.iter_mut().enumerate() {
-        let x = (q as i64 + FIRST_TAP) as f64 - d;
-        *wq = sinc(x) * sinc(x / a);
+        let n = q as i64 + FIRST_TAP;
+        let x = n as f64 - d;
+        if x.abs() < 1e-12 {
+            *wq = 1.0;
+            continue;
+        }
+        let sin_px = if n % 2 == 0 { -s1 } else { s1 };
+        let sin_px4 = SIN_N4[q] * c4 - COS_N4[q] * s4;
+        *wq = (sin_px / (PI * x)) * (sin_px4 / (PI * x / a));
     }
     let sum: f64 = w.iter().sum();
     w.iter_mut().for_each(|v| *v /= sum);
@@ -224,6 +272,32 @@ mod tests {
             ((-1.5 * d + 2.0) * d + 0.5) * d,
             (0.5 * d - 0.5) * d * d,
         ]
+    }
+
+    #[test]
+    fn shift_weights_are_the_lanczos_kernel() {
+        // the angle-difference evaluation against sinc(x)·sinc(x/4) summed
+        // directly, normalised
+        let sinc = |x: f64| {
+            let px = std::f64::consts::PI * x;
+            if x.abs() < 1e-12 {
+                1.0
+            } else {
+                px.sin() / px
+            }
+        };
+        for d in [0.01, 0.2, 0.5, 0.73, 0.99] {
+            let direct: Vec<f64> = (0..SHIFT_TAPS)
+                .map(|q| {
+                    let x = (q as i64 + FIRST_TAP) as f64 - d;
+                    sinc(x) * sinc(x / 4.0)
+                })
+                .collect();
+            let sum: f64 = direct.iter().sum();
+            for (a, b) in shift_weights(d).iter().zip(&direct) {
+                assert!((a - b / sum).abs() < 1e-14, "d = {d}: {a} against {}", b / sum);
+            }
+        }
     }
 
     #[test]
