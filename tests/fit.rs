@@ -872,7 +872,7 @@ fn zvet_fit_writes_an_error_row_for_a_file_without_good_pixels_and_goes_on() {
 #[test]
 fn refinement_sums_equal_the_direct_fit_at_fractional_shifts() {
     use zvet::fit::reference::{direct_fit, thresholds};
-    use zvet::fit::sums::sums_fit;
+    use zvet::fit::sums::{residual_chi2, sums_fit};
     use zvet::fit::Prepared;
     let set = synthetic_set();
     let engine = Engine::new(&set, FitConfig::default()).unwrap();
@@ -889,8 +889,17 @@ fn refinement_sums_equal_the_direct_fit_at_fractional_shifts() {
             for _ in 0..5 {
                 let shift = rng.random_range(-20.0..800.0);
                 for nonneg in [false, true] {
-                    let a = direct_fit(&prep, u, shift, &thr, nonneg).chi2;
+                    let direct = direct_fit(&prep, u, shift, &thr, nonneg);
+                    let a = direct.chi2;
                     let b = sums_fit(&prep, u, shift, &thr, nonneg).chi2;
+                    // the refined candidates' χ²: the oracle's residual sum
+                    // for the oracle's coefficients (the same pixels, weights and kernel)
+                    let c = residual_chi2(&prep, u, shift, &direct.coeffs);
+                    assert!(
+                        ((a - c) / a).abs() < 1e-12,
+                        "{} groups {groups} shift {shift}: residual χ² {c} vs oracle {a}",
+                        u.name
+                    );
                     // With throughput columns T_a and T_a·x are nearly collinear where a
                     // template covers only part of the range, so the normal equations lose
                     // digits and χ² = Σwf² − c·b carries more rounding (up to 2e-6 relative

@@ -968,6 +968,10 @@ struct MockCounts {
     confident_velocity_miss: usize,
     /// any warning but `noise_estimated` (the answer is flagged for a look)
     flagged: usize,
+    /// a warning that doubts the answer ([`Warnings::doubts_answer`])
+    doubted: usize,
+    /// another class with no warning that doubts the answer
+    undoubted_wrong_class: usize,
 }
 
 impl MockCounts {
@@ -978,6 +982,8 @@ impl MockCounts {
         self.confident_wrong_class += o.confident_wrong_class;
         self.confident_velocity_miss += o.confident_velocity_miss;
         self.flagged += o.flagged;
+        self.doubted += o.doubted;
+        self.undoubted_wrong_class += o.undoubted_wrong_class;
     }
 }
 
@@ -995,11 +1001,21 @@ fn real_star_mocks(per: usize, seed: u64) -> MockCounts {
     eprintln!("mock observations of real stars, per star: class star / trials (confident wrong class), per S/N 3, 5, 10");
     for star in &stars {
         let mut row = [MockCounts::default(); 3];
+        // warning names at S/N ≥ 5 and how often each was set
+        let mut tally: Vec<(&str, usize)> = Vec::new();
         for (k, &snr) in snrs.iter().enumerate() {
             for _ in 0..per {
                 let m = mock(&star.spectrum, snr, &mut rng);
                 let r = engine.fit(&m).unwrap();
                 let b = r.best().unwrap();
+                // a χ² is a sum of squares: a negative one (the normal
+                // equations' rounding on a near-singular refit) once made a
+                // real M4 dwarf a quasar at z = 1.70 with χ² = −66 475
+                assert!(
+                    r.candidates.iter().all(|c| c.chi2 >= 0.0),
+                    "negative χ²: {}",
+                    describe(star.label, &r)
+                );
                 let is_star = b.class == ObjectClass::Star;
                 // the velocity within 150 km/s or, for these low-resolution
                 // files (R ≈ 500–2000), within 3 σ_v
@@ -1012,6 +1028,25 @@ fn real_star_mocks(per: usize, seed: u64) -> MockCounts {
                 c.class_ok += usize::from(is_star);
                 c.right += usize::from(is_star && v_ok);
                 c.flagged += usize::from(warned);
+                c.doubted += usize::from(r.warnings.doubts_answer());
+                c.undoubted_wrong_class += usize::from(!is_star && !r.warnings.doubts_answer());
+                if !is_star && warned && !r.warnings.doubts_answer() {
+                    eprintln!(
+                        "  wrong class, no doubt at S/N {snr}: {}",
+                        describe(star.label, &r)
+                    );
+                }
+                if snr >= 5.0 {
+                    for &(bit, name) in Warnings::NAMES.iter().filter(|(b, _)| r.warnings.has(*b)) {
+                        if bit == Warnings::NOISE_ESTIMATED {
+                            continue;
+                        }
+                        match tally.iter_mut().find(|(n, _)| *n == name) {
+                            Some((_, count)) => *count += 1,
+                            None => tally.push((name, 1)),
+                        }
+                    }
+                }
                 if !is_star && !warned {
                     c.confident_wrong_class += 1;
                     eprintln!(
@@ -1031,7 +1066,16 @@ fn real_star_mocks(per: usize, seed: u64) -> MockCounts {
             .iter()
             .map(|c| format!("{:>3}/{:<3} ({})", c.class_ok, c.trials, c.confident_wrong_class))
             .collect();
-        eprintln!("  {:<18} {}", star.label, cells.join("  "));
+        let flagged_5 = row[1].flagged + row[2].flagged;
+        let doubted_5 = row[1].doubted + row[2].doubted;
+        let undoubted: usize = row.iter().map(|c| c.undoubted_wrong_class).sum();
+        let names: Vec<String> = tally.iter().map(|(n, c)| format!("{n} {c}")).collect();
+        eprintln!(
+            "  {:<18} {}  flagged at S/N ≥ 5: {flagged_5} [{}] doubted {doubted_5}, wrong class undoubted {undoubted}",
+            star.label,
+            cells.join("  "),
+            names.join(", ")
+        );
         match kinds.iter_mut().find(|(k, _)| *k == star.kind) {
             Some((_, acc)) => acc.iter_mut().zip(&row).for_each(|(a, r)| a.add(*r)),
             None => kinds.push((star.kind, row)),
@@ -1055,6 +1099,10 @@ fn real_star_mocks(per: usize, seed: u64) -> MockCounts {
     eprintln!(
         "total: {} trials, class star {}, confident wrong class {}, unflagged velocity misses {}",
         total.trials, total.class_ok, total.confident_wrong_class, total.confident_velocity_miss
+    );
+    eprintln!(
+        "S/N ≥ 5: doubted {}, wrong class undoubted (all S/N) {}",
+        at_snr_5_up.doubted, total.undoubted_wrong_class
     );
     eprintln!(
         "S/N ≥ 5: {} trials, flagged {} ({:.1} %), confident wrong class {} ({:.2} %)",

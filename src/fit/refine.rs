@@ -8,7 +8,7 @@ the curvature of χ² at the minimum (Δχ² = 1).
 // Index loops here mirror the sums of the normal equations term by term.
 #![allow(clippy::needless_range_loop)]
 use super::prep::Prepared;
-use super::sums::{sums_fit, DirectFit};
+use super::sums::{residual_chi2, sums_fit, DirectFit};
 use super::units::Unit;
 use argmin::core::{CostFunction, Error, Executor};
 use argmin::solver::brent::BrentOpt;
@@ -71,13 +71,37 @@ pub fn refine(prep: &Prepared, unit: &Unit, thr: &[f64], s0: i64) -> Refined {
         .ok()
         .and_then(|r| r.problem.problem)
         .and_then(|c| c.best.into_inner());
-    let (shift, fit) = match evaluated {
-        Some((x, f)) if x.is_finite() && f.chi2 < grid.chi2 => (x, f),
-        _ => (s0 as f64, grid),
+    // the search's best point against the grid's, each at the χ² of its
+    // residuals (see residual_chi2: the sums' χ² can lose its digits)
+    let grid_chi2 = residual_chi2(prep, unit, s0 as f64, &grid.coeffs);
+    let (shift, fit, sums_chi2) = match evaluated {
+        Some((x, f)) if x.is_finite() => {
+            let c = residual_chi2(prep, unit, x, &f.coeffs);
+            if c < grid_chi2 {
+                (x, DirectFit { chi2: c, ..f.clone() }, f.chi2)
+            } else {
+                (
+                    s0 as f64,
+                    DirectFit {
+                        chi2: grid_chi2,
+                        ..grid.clone()
+                    },
+                    grid.chi2,
+                )
+            }
+        }
+        _ => (
+            s0 as f64,
+            DirectFit {
+                chi2: grid_chi2,
+                ..grid.clone()
+            },
+            grid.chi2,
+        ),
     };
     let fp = sums_fit(prep, unit, shift + CURV_STEP, thr, prep.nonneg).chi2;
     let fm = sums_fit(prep, unit, shift - CURV_STEP, thr, prep.nonneg).chi2;
-    let d2 = (fp + fm - 2.0 * fit.chi2) / (CURV_STEP * CURV_STEP);
+    let d2 = (fp + fm - 2.0 * sums_chi2) / (CURV_STEP * CURV_STEP);
     // χ² ≈ χ²_min + ½ d2 (x − x0)²; Δχ² = 1 at |x − x0| = sqrt(2 / d2)
     let sigma_shift = if d2 > 0.0 && d2.is_finite() {
         (2.0 / d2).sqrt()
@@ -96,6 +120,10 @@ pub fn refine(prep: &Prepared, unit: &Unit, thr: &[f64], s0: i64) -> Refined {
 /// (χ², coefficients) is the one at the whole shift `s0`.
 pub fn grid_parabola(prep: &Prepared, unit: &Unit, thr: &[f64], s0: i64, curve: &[f64], lo: i64) -> Refined {
     let fit = sums_fit(prep, unit, s0 as f64, thr, prep.nonneg);
+    let fit = DirectFit {
+        chi2: residual_chi2(prep, unit, s0 as f64, &fit.coeffs),
+        ..fit
+    };
     let at = |s: i64| usize::try_from(s - lo).ok().and_then(|i| curve.get(i).copied());
     let (shift, sigma_shift) = match (at(s0 - 1), at(s0), at(s0 + 1)) {
         (Some(a), Some(b), Some(c)) if a + c - 2.0 * b > 0.0 => {

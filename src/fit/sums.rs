@@ -221,6 +221,38 @@ pub fn sums_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg: b
     fit_from_sums(prep, unit, &row, thr, nonneg)
 }
 
+/// χ² of `coeffs` at `shift` from the residuals, pixel by pixel: the χ² a
+/// refined candidate reports. The normal equations' Σ w f² − c·b loses its
+/// digits where they are near-singular (ten continuum terms against a
+/// template that barely overlaps the spectrum) and can even go negative, so
+/// that a meaningless fit would outrank every other; a sum of squares cannot.
+pub fn residual_chi2(prep: &Prepared, unit: &Unit, shift: f64, coeffs: &[f64]) -> f64 {
+    let (k, j, n, g) = (unit.k(), prep.j(), prep.grid.n, unit.groups);
+    let kc = k * g;
+    if coeffs.len() != kc + j {
+        return f64::INFINITY;
+    }
+    let (i0, wts) = shift_at(offset(prep, unit, shift));
+    let t: Vec<Vec<f64>> = unit.t.iter().map(|t| shift_kernel(t, i0, &wts, n)).collect();
+    let mut chi2 = 0.0;
+    for &i in &prep.good {
+        let mut model = 0.0;
+        let mut xu = 1.0;
+        for u in 0..g {
+            for (p, tp) in t.iter().enumerate() {
+                model += coeffs[u * k + p] * tp[i] * xu;
+            }
+            xu *= prep.x[i];
+        }
+        for q in 0..j {
+            model += coeffs[kc + q] * prep.p[q][i];
+        }
+        let r = prep.flux[i] - model;
+        chi2 += prep.w[i] * r * r;
+    }
+    chi2
+}
+
 /// The fit at one shift from its template sums `row` (in the order of
 /// [`n_corr`]): the tail of [`sums_fit`], also fed with the sums the fast
 /// path computed at whole shifts ([`super::fast::chi2_curve`]).
