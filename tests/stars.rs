@@ -968,9 +968,12 @@ struct MockCounts {
     confident_velocity_miss: usize,
     /// any warning but `noise_estimated` (the answer is flagged for a look)
     flagged: usize,
-    /// a warning that doubts the answer ([`Warnings::doubts_answer`])
+    /// a warning that doubts the answer itself ([`Warnings::doubts_answer`]:
+    /// not `poor_fit`, which says the model is imperfect, not that another
+    /// answer is better)
     doubted: usize,
-    /// another class with no warning that doubts the answer
+    /// another class with no warning that doubts the answer (`poor_fit`
+    /// alone does not count here)
     undoubted_wrong_class: usize,
 }
 
@@ -1101,8 +1104,11 @@ fn real_star_mocks(per: usize, seed: u64) -> MockCounts {
         total.trials, total.class_ok, total.confident_wrong_class, total.confident_velocity_miss
     );
     eprintln!(
-        "S/N ≥ 5: doubted {}, wrong class undoubted (all S/N) {}",
-        at_snr_5_up.doubted, total.undoubted_wrong_class
+        "S/N ≥ 5: {} trials, a warning doubting the answer {} ({:.1} %); all S/N: wrong class with no such warning {}",
+        at_snr_5_up.trials,
+        at_snr_5_up.doubted,
+        100.0 * at_snr_5_up.doubted as f64 / at_snr_5_up.trials.max(1) as f64,
+        total.undoubted_wrong_class
     );
     eprintln!(
         "S/N ≥ 5: {} trials, flagged {} ({:.1} %), confident wrong class {} ({:.2} %)",
@@ -1128,6 +1134,15 @@ fn mock_observations_of_real_stars_are_stars_or_flagged() {
         t.confident_wrong_class,
         t.trials
     );
+    // and the stronger form: `poor_fit` alone (the model is imperfect) is
+    // not what keeps a wrong class from passing; a warning that doubts the
+    // answer is there
+    assert!(
+        t.undoubted_wrong_class == 0,
+        "{} wrong classes of {} carry no warning that doubts them",
+        t.undoubted_wrong_class,
+        t.trials
+    );
 }
 
 #[test]
@@ -1145,6 +1160,12 @@ fn real_star_recovery() {
         t.confident_wrong_class as f64 <= 0.005 * t.trials as f64,
         "confident wrong: {} classes of {}",
         t.confident_wrong_class,
+        t.trials
+    );
+    assert!(
+        t.undoubted_wrong_class as f64 <= 0.005 * t.trials as f64,
+        "wrong class with no warning doubting it: {} of {}",
+        t.undoubted_wrong_class,
         t.trials
     );
 }
