@@ -27,6 +27,7 @@ use crate::constants::C_KMS;
 use crate::spectrum::Spectrum;
 use crate::templates::{TemplateKind, TemplateSet};
 use crate::ObjectClass;
+use std::sync::{Arc, OnceLock};
 
 /// Minima whose grid χ² is more than this above the lowest are not refined
 /// by Brent's method (except each class's best); their sub-pixel z and σ_z
@@ -56,7 +57,22 @@ pub struct Engine {
     /// Engines whose templates are seen through a broader instrument, each
     /// with the instrumental σ (km/s) it stands for, narrowest first (see
     /// [`COARSE_INSTRUMENT_KMS`]); empty for a set of unknown resolution.
-    coarse: Vec<(f64, Engine)>,
+    /// Each is built the first time a spectrum needs it.
+    coarse: Vec<CoarseCopy>,
+    /// The templates the copies are made from (the built-in set only).
+    source: Option<Arc<TemplateSet>>,
+}
+
+/// A copy of the engine for spectra sampled more coarsely than the
+/// templates' resolution, made on first use: most surveys never need one,
+/// and making all of them costs a quarter of a second and 25 MiB at start.
+#[derive(Debug)]
+struct CoarseCopy {
+    /// Instrumental σ (km/s) of its templates.
+    sigma: f64,
+    /// The engine, once made (`None` if it could not be: the spectrum is then
+    /// fitted with the templates as they are).
+    engine: OnceLock<Option<Engine>>,
 }
 
 /// Instrumental dispersions (km/s) of the built-in set's coarser copies.
@@ -84,26 +100,18 @@ struct Minimum {
 impl Engine {
     /// Prepare `templates` for `config` (resampling them onto the engine step).
     pub fn new(templates: &TemplateSet, config: FitConfig) -> Result<Engine, FitError> {
-        let mut engine = Self::at_resolution(templates, config.clone())?;
+        let mut engine = Self::at_resolution(templates, config)?;
         // only the built-in set's resolution is known; a user's or trained
         // set is fitted as it is
         if templates.name == crate::templates::BUILTIN_NAME {
-            let inst = crate::templates::stars::INSTRUMENT_SIGMA_KMS;
-            for sigma in COARSE_INSTRUMENT_KMS {
-                let extra = (sigma * sigma - inst * inst).sqrt();
-                let mut set = templates.clone();
-                for t in set.classes.iter_mut().flat_map(|c| c.templates.iter_mut()) {
-                    let grid = crate::templates::profiles::Grid {
-                        loglam0: t.loglam0,
-                        dloglam: t.dloglam,
-                        n: t.flux.len(),
-                    };
-                    t.flux = crate::templates::profiles::convolve_velocity(&t.flux, &grid, extra);
-                }
-                engine
-                    .coarse
-                    .push((sigma, Self::at_resolution(&set, config.clone())?));
-            }
+            engine.source = Some(Arc::new(templates.clone()));
+            engine.coarse = COARSE_INSTRUMENT_KMS
+                .iter()
+                .map(|&sigma| CoarseCopy {
+                    sigma,
+                    engine: OnceLock::new(),
+                })
+                .collect();
         }
         Ok(engine)
     }
@@ -114,11 +122,35 @@ impl Engine {
         let Some(limit) = sampling_sigma_kms(s, self.reach) else {
             return self;
         };
-        self.coarse
-            .iter()
-            .rev()
-            .find(|(sigma, _)| *sigma <= limit)
-            .map_or(self, |(_, e)| e)
+        match self.coarse.iter().rposition(|c| c.sigma <= limit) {
+            Some(i) => self.copy(i),
+            None => self,
+        }
+    }
+
+    /// Coarser copy `i` of [`COARSE_INSTRUMENT_KMS`], made now if it was not
+    /// yet: the source templates broadened by the extra dispersion.
+    fn copy(&self, i: usize) -> &Engine {
+        let (Some(c), Some(src)) = (self.coarse.get(i), self.source.as_ref()) else {
+            return self;
+        };
+        c.engine
+            .get_or_init(|| {
+                let inst = crate::templates::stars::INSTRUMENT_SIGMA_KMS;
+                let extra = (c.sigma * c.sigma - inst * inst).sqrt();
+                let mut set = (**src).clone();
+                for t in set.classes.iter_mut().flat_map(|c| c.templates.iter_mut()) {
+                    let grid = crate::templates::profiles::Grid {
+                        loglam0: t.loglam0,
+                        dloglam: t.dloglam,
+                        n: t.flux.len(),
+                    };
+                    t.flux = crate::templates::profiles::convolve_velocity(&t.flux, &grid, extra);
+                }
+                Self::at_resolution(&set, self.config.clone()).ok()
+            })
+            .as_ref()
+            .unwrap_or(self)
     }
 
     /// [`Engine::new`] for templates as they are.
@@ -176,6 +208,7 @@ impl Engine {
             units,
             cache: FftCache::default(),
             coarse: Vec::new(),
+            source: None,
         })
     }
 
@@ -788,12 +821,19 @@ mod tests {
         assert_eq!(e.coarse.len(), COARSE_INSTRUMENT_KMS.len());
         // the copy a spectrum gets, by its instrumental σ (km/s); None = the
         // templates as made
+        // none is made before a spectrum needs it
+        assert!(e.coarse.iter().all(|c| c.engine.get().is_none()));
         let sigma_of = |s: &Spectrum| {
             let m = e.matched(s);
             e.coarse
                 .iter()
-                .find(|(_, c)| std::ptr::eq(c, m))
-                .map(|(sigma, _)| *sigma)
+                .find(|c| {
+                    c.engine
+                        .get()
+                        .and_then(|x| x.as_ref())
+                        .is_some_and(|x| std::ptr::eq(x, m))
+                })
+                .map(|c| c.sigma)
         };
         // by hand (Nyquist sampling, two pixels per FWHM: σ = 2 Δv / 2.3548):
         // 4000 pixels over 3600–9800 Å are 1.55 Å, 69.4 km/s at the median
@@ -807,7 +847,7 @@ mod tests {
         assert!((limit - 117.9).abs() < 0.5, "{limit}");
         // a copy's templates are those of the engine, broadened: the same
         // units in the same order, the same light, shallower lines
-        let (_, c) = &e.coarse[3];
+        let c = e.copy(3);
         assert_eq!(c.units.len(), e.units.len());
         fn star_a(e: &Engine) -> &[f64] {
             &e.units.iter().find(|u| u.name == "star-A").unwrap().t[0]
