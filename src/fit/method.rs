@@ -218,7 +218,19 @@ pub(crate) fn finish(
     };
     let delta_chi2 = delta_chi2(&sol.candidates, config.min_separation_kms);
     let n_good = prep.n_good();
-    let chi2_reduced = best.chi2 / prep.dof(sol.n_par);
+    let dof = prep.dof(sol.n_par);
+    let chi2_reduced = best.chi2 / dof;
+    let mut sol = sol;
+    if sol.dchi2_cut {
+        // σ_z from the χ² curvature (Δχ² = 1) assumes the model fits to the
+        // noise; where it does not, the residuals are wider than the errors
+        // say and σ_z is rescaled by √χ²_r (common practice, as for the Δχ²
+        // cuts below), each candidate by its own fit's
+        for c in &mut sol.candidates {
+            c.z_err *= mismatch_scale(c.chi2 / dof).sqrt();
+        }
+    }
+    let best = sol.candidates[0].clone();
     let per_class = ClassSolution::from_candidates(&sol.candidates);
     let scale = mismatch_scale(chi2_reduced);
     let mut warnings = Warnings::default();
