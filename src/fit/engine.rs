@@ -27,7 +27,7 @@ use crate::constants::C_KMS;
 use crate::spectrum::Spectrum;
 use crate::templates::{TemplateKind, TemplateSet};
 use crate::ObjectClass;
-use std::sync::{Arc, OnceLock};
+use std::sync::OnceLock;
 
 /// Minima whose grid χ² is more than this above the lowest are not refined
 /// by Brent's method (except each class's best); their sub-pixel z and σ_z
@@ -60,7 +60,7 @@ pub struct Engine {
     /// Each is built the first time a spectrum needs it.
     coarse: Vec<CoarseCopy>,
     /// The templates the copies are made from (the built-in set only).
-    source: Option<Arc<TemplateSet>>,
+    source: Option<TemplateSet>,
 }
 
 /// A copy of the engine for spectra sampled more coarsely than the
@@ -104,7 +104,7 @@ impl Engine {
         // only the built-in set's resolution is known; a user's or trained
         // set is fitted as it is
         if templates.name == crate::templates::BUILTIN_NAME {
-            engine.source = Some(Arc::new(templates.clone()));
+            engine.source = Some(templates.clone());
             engine.coarse = COARSE_INSTRUMENT_KMS
                 .iter()
                 .map(|&sigma| CoarseCopy {
@@ -138,7 +138,7 @@ impl Engine {
             .get_or_init(|| {
                 let inst = crate::templates::stars::INSTRUMENT_SIGMA_KMS;
                 let extra = (c.sigma * c.sigma - inst * inst).sqrt();
-                let mut set = (**src).clone();
+                let mut set = src.clone();
                 for t in set.classes.iter_mut().flat_map(|c| c.templates.iter_mut()) {
                     let grid = crate::templates::profiles::Grid {
                         loglam0: t.loglam0,

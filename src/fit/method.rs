@@ -211,16 +211,14 @@ pub(crate) fn finish(
     s: &Spectrum,
     prep: &Prepared,
     config: &FitConfig,
-    sol: Solution,
+    mut sol: Solution,
 ) -> Result<FitResult, FitError> {
-    let Some(best) = sol.candidates.first().cloned() else {
+    if sol.candidates.is_empty() {
         return Err(FitError::NoCoverage);
-    };
+    }
     let delta_chi2 = delta_chi2(&sol.candidates, config.min_separation_kms);
     let n_good = prep.n_good();
     let dof = prep.dof(sol.n_par);
-    let chi2_reduced = best.chi2 / dof;
-    let mut sol = sol;
     if sol.dchi2_cut {
         // σ_z from the χ² curvature (Δχ² = 1) assumes the model fits to the
         // noise; where it does not, the residuals are wider than the errors
@@ -231,6 +229,7 @@ pub(crate) fn finish(
         }
     }
     let best = sol.candidates[0].clone();
+    let chi2_reduced = best.chi2 / dof;
     let per_class = ClassSolution::from_candidates(&sol.candidates);
     let scale = mismatch_scale(chi2_reduced);
     let mut warnings = Warnings::default();

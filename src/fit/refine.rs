@@ -8,7 +8,7 @@ the curvature of χ² at the minimum (Δχ² = 1).
 // Index loops here mirror the sums of the normal equations term by term.
 #![allow(clippy::needless_range_loop)]
 use super::prep::Prepared;
-use super::sums::{residual_chi2, sums_fit, DirectFit};
+use super::sums::{residual_chi2, sums_fit, sums_fit_at_residuals, DirectFit};
 use super::units::Unit;
 use argmin::core::{CostFunction, Error, Executor};
 use argmin::solver::brent::BrentOpt;
@@ -55,7 +55,7 @@ pub struct Refined {
 
 /// Refine the grid minimum at whole shift `s0` within ±1 pixel.
 pub fn refine(prep: &Prepared, unit: &Unit, thr: &[f64], s0: i64) -> Refined {
-    let grid = sums_fit(prep, unit, s0 as f64, thr, prep.nonneg);
+    let grid = sums_fit_at_residuals(prep, unit, s0 as f64, thr, prep.nonneg);
     let cost = Cost {
         prep,
         unit,
@@ -72,33 +72,18 @@ pub fn refine(prep: &Prepared, unit: &Unit, thr: &[f64], s0: i64) -> Refined {
         .and_then(|r| r.problem.problem)
         .and_then(|c| c.best.into_inner());
     // the search's best point against the grid's, each at the χ² of its
-    // residuals (see residual_chi2: the sums' χ² can lose its digits)
-    let grid_chi2 = residual_chi2(prep, unit, s0 as f64, &grid.coeffs);
-    let (shift, fit, sums_chi2) = match evaluated {
-        Some((x, f)) if x.is_finite() => {
-            let c = residual_chi2(prep, unit, x, &f.coeffs);
-            if c < grid_chi2 {
-                (x, DirectFit { chi2: c, ..f.clone() }, f.chi2)
-            } else {
-                (
-                    s0 as f64,
-                    DirectFit {
-                        chi2: grid_chi2,
-                        ..grid.clone()
-                    },
-                    grid.chi2,
-                )
-            }
+    // residuals (see residual_chi2: the sums' χ² can lose its digits); the
+    // sums' χ² of the one kept is the curvature's centre
+    let (grid_fit, grid_sums_chi2) = grid;
+    let mut kept = (s0 as f64, grid_fit, grid_sums_chi2);
+    if let Some((x, f)) = evaluated.filter(|(x, _)| x.is_finite()) {
+        let chi2 = residual_chi2(prep, unit, x, &f.coeffs);
+        if chi2 < kept.1.chi2 {
+            let sums_chi2 = f.chi2;
+            kept = (x, DirectFit { chi2, ..f }, sums_chi2);
         }
-        _ => (
-            s0 as f64,
-            DirectFit {
-                chi2: grid_chi2,
-                ..grid.clone()
-            },
-            grid.chi2,
-        ),
-    };
+    }
+    let (shift, fit, sums_chi2) = kept;
     let fp = sums_fit(prep, unit, shift + CURV_STEP, thr, prep.nonneg).chi2;
     let fm = sums_fit(prep, unit, shift - CURV_STEP, thr, prep.nonneg).chi2;
     let d2 = (fp + fm - 2.0 * sums_chi2) / (CURV_STEP * CURV_STEP);
@@ -119,11 +104,7 @@ pub fn refine(prep: &Prepared, unit: &Unit, thr: &[f64], s0: i64) -> Refined {
 /// `s0 − 1, s0, s0 + 1` (`curve[i]` is χ² at shift `lo + i`); the fit itself
 /// (χ², coefficients) is the one at the whole shift `s0`.
 pub fn grid_parabola(prep: &Prepared, unit: &Unit, thr: &[f64], s0: i64, curve: &[f64], lo: i64) -> Refined {
-    let fit = sums_fit(prep, unit, s0 as f64, thr, prep.nonneg);
-    let fit = DirectFit {
-        chi2: residual_chi2(prep, unit, s0 as f64, &fit.coeffs),
-        ..fit
-    };
+    let (fit, _) = sums_fit_at_residuals(prep, unit, s0 as f64, thr, prep.nonneg);
     let at = |s: i64| usize::try_from(s - lo).ok().and_then(|i| curve.get(i).copied());
     let (shift, sigma_shift) = match (at(s0 - 1), at(s0), at(s0 + 1)) {
         (Some(a), Some(b), Some(c)) if a + c - 2.0 * b > 0.0 => {

@@ -193,10 +193,39 @@ pub(crate) fn assemble_templates(
 /// here as plain dot products at one fractional shift) and so is the
 /// assembly of the normal equations; χ² = Σ w f² − c·b.
 pub fn sums_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg: bool) -> DirectFit {
-    let (k, j, n) = (unit.k(), prep.j(), prep.grid.n);
-    // the weights of Unit::interp, one set for every pixel
+    sums_fit_on(prep, unit, &shifted(prep, unit, shift), thr, nonneg)
+}
+
+/// [`sums_fit`] at the shift, with χ² from the residuals
+/// ([`residual_chi2`]); also the sums' own χ². The shifted templates are made
+/// once for both.
+pub fn sums_fit_at_residuals(
+    prep: &Prepared,
+    unit: &Unit,
+    shift: f64,
+    thr: &[f64],
+    nonneg: bool,
+) -> (DirectFit, f64) {
+    let t = shifted(prep, unit, shift);
+    let fit = sums_fit_on(prep, unit, &t, thr, nonneg);
+    let sums_chi2 = fit.chi2;
+    let chi2 = residual_chi2_on(prep, unit, &t, &fit.coeffs);
+    (DirectFit { chi2, ..fit }, sums_chi2)
+}
+
+/// Every template of `unit` on the grid pixels of `prep` at `shift` (the
+/// weights of [`Unit::interp`], one set for every pixel).
+fn shifted(prep: &Prepared, unit: &Unit, shift: f64) -> Vec<Vec<f64>> {
     let (i0, wts) = shift_at(offset(prep, unit, shift));
-    let t: Vec<Vec<f64>> = unit.t.iter().map(|t| shift_kernel(t, i0, &wts, n)).collect();
+    unit.t
+        .iter()
+        .map(|t| shift_kernel(t, i0, &wts, prep.grid.n))
+        .collect()
+}
+
+/// [`sums_fit`] on the templates `t` already shifted.
+fn sums_fit_on(prep: &Prepared, unit: &Unit, t: &[Vec<f64>], thr: &[f64], nonneg: bool) -> DirectFit {
+    let (k, j) = (unit.k(), prep.j());
     // the template sums in the fast path's order, then its normal equations
     let g = unit.groups;
     let (wl, wfx) = prep.data_for(g);
@@ -208,12 +237,12 @@ pub fn sums_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg: b
             }
         }
     }
-    for ta in &t {
+    for ta in t {
         for d in wl {
             row.push(dot(d, ta));
         }
     }
-    for ta in &t {
+    for ta in t {
         for d in wfx {
             row.push(dot(d, ta));
         }
@@ -227,13 +256,16 @@ pub fn sums_fit(prep: &Prepared, unit: &Unit, shift: f64, thr: &[f64], nonneg: b
 /// template that barely overlaps the spectrum) and can even go negative, so
 /// that a meaningless fit would outrank every other; a sum of squares cannot.
 pub fn residual_chi2(prep: &Prepared, unit: &Unit, shift: f64, coeffs: &[f64]) -> f64 {
-    let (k, j, n, g) = (unit.k(), prep.j(), prep.grid.n, unit.groups);
+    residual_chi2_on(prep, unit, &shifted(prep, unit, shift), coeffs)
+}
+
+/// [`residual_chi2`] on the templates `t` already shifted.
+fn residual_chi2_on(prep: &Prepared, unit: &Unit, t: &[Vec<f64>], coeffs: &[f64]) -> f64 {
+    let (k, j, g) = (unit.k(), prep.j(), unit.groups);
     let kc = k * g;
     if coeffs.len() != kc + j {
         return f64::INFINITY;
     }
-    let (i0, wts) = shift_at(offset(prep, unit, shift));
-    let t: Vec<Vec<f64>> = unit.t.iter().map(|t| shift_kernel(t, i0, &wts, n)).collect();
     let mut chi2 = 0.0;
     for &i in &prep.good {
         let mut model = 0.0;

@@ -53,16 +53,8 @@ impl Unit {
     /// Template `a` at fractional pixel `x` through the
     /// [`shift_weights`] kernel; zero-padded outside, exact at whole pixels.
     pub fn interp(&self, a: usize, x: f64) -> f64 {
-        let t = &self.t[a];
-        let m = t.len() as i64;
-        let fl = x.floor();
-        let i = fl as i64;
-        let d = x - fl;
-        let at = |j: i64| if j >= 0 && j < m { t[j as usize] } else { 0.0 };
-        if d == 0.0 {
-            return at(i);
-        }
-        self.interp_with(a, i, &shift_weights(d))
+        let (i, w) = shift_at(x);
+        self.interp_with(a, i, &w)
     }
 
     /// Template `a` at pixel `i` plus the fraction whose [`shift_weights`]
@@ -113,7 +105,8 @@ pub const FIRST_TAP: i64 = 1 - (SHIFT_TAPS as i64) / 2;
 /// (`shift_kernel_keeps_line_depths` in the tests).
 pub fn shift_weights(d: f64) -> [f64; SHIFT_TAPS] {
     use std::f64::consts::{FRAC_1_SQRT_2, PI};
-    // sin and cos of π·n/4 for the taps n = FIRST_TAP … FIRST_TAP + 7 (−3 … 4)
+    // sin(π·n/4) for the taps n = FIRST_TAP … FIRST_TAP + 7 (−3 … 4), one
+    // whole period: cos(π·n/4) = sin(π·(n + 2)/4) is the entry two taps on
     const SIN_N4: [f64; SHIFT_TAPS] = [
         -FRAC_1_SQRT_2,
         -1.0,
@@ -123,16 +116,6 @@ pub fn shift_weights(d: f64) -> [f64; SHIFT_TAPS] {
         1.0,
         FRAC_1_SQRT_2,
         0.0,
-    ];
-    const COS_N4: [f64; SHIFT_TAPS] = [
-        -FRAC_1_SQRT_2,
-        0.0,
-        FRAC_1_SQRT_2,
-        1.0,
-        FRAC_1_SQRT_2,
-        0.0,
-        -FRAC_1_SQRT_2,
-        -1.0,
     ];
     let a = (SHIFT_TAPS / 2) as f64;
     // x = n − d: sin πx = (−1)^(n+1) sin πd and sin(πx/4) by the angle
@@ -148,7 +131,7 @@ pub fn shift_weights(d: f64) -> [f64; SHIFT_TAPS] {
             continue;
         }
         let sin_px = if n % 2 == 0 { -s1 } else { s1 };
-        let sin_px4 = SIN_N4[q] * c4 - COS_N4[q] * s4;
+        let sin_px4 = SIN_N4[q] * c4 - SIN_N4[(q + 2) % SHIFT_TAPS] * s4;
         *wq = (sin_px / (PI * x)) * (sin_px4 / (PI * x / a));
     }
     let sum: f64 = w.iter().sum();
