@@ -536,7 +536,7 @@ fn report(
         return Vec::new();
     };
     let z = w.z();
-    let scale = w.mismatch_scale(kin, &sol);
+    let scale = w.mismatch_scale(&sol);
     let mut out = Vec::new();
     for (j, col) in w.cols.iter().enumerate() {
         let var = scale * (w.variance(&sol, j) + extra.get(j).copied().unwrap_or(0.0));

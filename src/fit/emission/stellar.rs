@@ -98,47 +98,46 @@ impl Basis {
 /// about 1.4 times apart.
 pub const EXTRA_SIGMA_KMS: [f64; 5] = [0.0, 60.0, 110.0, 170.0, 250.0];
 
-/// The basis at each of [`EXTRA_SIGMA_KMS`] (generated once).
+/// The basis at each of [`EXTRA_SIGMA_KMS`] (generated once; the first is
+/// [`basis`]).
 pub fn bases() -> &'static [Basis] {
     static B: OnceLock<Vec<Basis>> = OnceLock::new();
     B.get_or_init(|| {
-        let b = basis();
-        EXTRA_SIGMA_KMS
+        let b = at_rest();
+        let broadened: Vec<Basis> = EXTRA_SIGMA_KMS
             .iter()
+            .filter(|&&extra| extra > 0.0)
             .map(|&extra| Basis {
                 grid: b.grid,
                 flux: b
                     .flux
                     .iter()
-                    .map(|f| {
-                        if extra > 0.0 {
-                            crate::templates::profiles::convolve_velocity(f, &b.grid, extra)
-                        } else {
-                            f.clone()
-                        }
-                    })
+                    .map(|f| crate::templates::profiles::convolve_velocity(f, &b.grid, extra))
                     .collect(),
             })
-            .collect()
+            .collect();
+        std::iter::once(b).chain(broadened).collect()
     })
 }
 
-/// The shared basis (generated once).
+/// The shared basis, the stars at rest (generated once).
 pub fn basis() -> &'static Basis {
-    static B: OnceLock<Basis> = OnceLock::new();
-    B.get_or_init(|| {
-        let grid = Grid::new(GRID.0, GRID.1, GRID.2);
-        Basis {
-            grid,
-            flux: vec![
-                galaxies::old_at(&grid, 0.0),
-                galaxies::intermediate_at(&grid, 0.0),
-                galaxies::young_continuum_at(&grid, 0.0),
-                // single hot-star populations: the deepest and the broadest
-                // Balmer troughs
-                galaxies::population(&grid, &[("star-A", 1.0)], 0.0),
-                galaxies::population(&grid, &[("star-B8", 1.0)], 0.0),
-            ],
-        }
-    })
+    &bases()[0]
+}
+
+/// The basis as made: the populations with their stars at rest.
+fn at_rest() -> Basis {
+    let grid = Grid::new(GRID.0, GRID.1, GRID.2);
+    Basis {
+        grid,
+        flux: vec![
+            galaxies::old_at(&grid, 0.0),
+            galaxies::intermediate_at(&grid, 0.0),
+            galaxies::young_continuum_at(&grid, 0.0),
+            // single hot-star populations: the deepest and the broadest
+            // Balmer troughs
+            galaxies::population(&grid, &[("star-A", 1.0)], 0.0),
+            galaxies::population(&grid, &[("star-B8", 1.0)], 0.0),
+        ],
+    }
 }

@@ -135,6 +135,8 @@ pub struct Solution {
     pub coef: Vec<f64>,
     active: Vec<bool>,
     ata: Vec<f64>,
+    /// χ² of the window at this solution.
+    chi2: f64,
 }
 
 fn legendre_into(x: f64, out: &mut [f64]) {
@@ -243,18 +245,19 @@ impl<'b> Window<'b> {
         true
     }
 
-    /// The factor by which the formal variances of `sol`, the solution at
-    /// `kin`, are scaled: the window's reduced χ², at least 1. Where the
+    /// The factor by which the formal variances of `sol` are scaled: the
+    /// window's reduced χ² at that solution, at least 1. Where the
     /// stellar populations do not match the spectrum to its noise the
     /// residuals are wider than the errors say, and the formal errors are too
     /// small by √χ²_r (common practice, as for the redshift's Δχ² cuts:
     /// [`crate::fit::mismatch_scale`]).
-    pub fn mismatch_scale(&self, kin: &[Kin; 2], sol: &Solution) -> f64 {
+    pub fn mismatch_scale(&self, sol: &Solution) -> f64 {
         let free = sol.active.iter().filter(|&&a| a).count();
         let dof = self.lam.len().saturating_sub(free);
-        match self.chi2(kin) {
-            Some(chi2) if dof > 0 => crate::fit::mismatch_scale(chi2 / dof as f64),
-            _ => 1.0,
+        if dof > 0 {
+            crate::fit::mismatch_scale(sol.chi2 / dof as f64)
+        } else {
+            1.0
         }
     }
 
@@ -275,11 +278,12 @@ impl<'b> Window<'b> {
     /// most negative is dropped and the fit repeated).
     pub fn solve(&self, kin: &[Kin; 2]) -> Option<Solution> {
         let mut sc = self.scratch.borrow_mut();
-        self.solve_into(kin, &mut sc)?;
+        let chi2 = self.solve_into(kin, &mut sc)?;
         Some(Solution {
             coef: sc.coef.clone(),
             active: sc.active.clone(),
             ata: sc.ata.clone(),
+            chi2,
         })
     }
 
