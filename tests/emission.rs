@@ -831,13 +831,11 @@ fn check_simulation(n: usize, seed: u64) {
     }
 }
 
+/// The numbers on 1000 galaxies: a smaller run's bias has a
+/// standard error of a large part of the 2 % allowed (200 galaxies: 0.5 %),
+/// and its pull width is set by the two or three galaxies whose Balmer
+/// troughs the populations miss most.
 #[test]
 fn simulated_galaxies_on_stellar_absorption_have_unbiased_fluxes_and_calibrated_errors() {
-    check_simulation(40, 7);
-}
-
-#[test]
-#[ignore = "long, and a known failure (Hβ bias +3.0 % ± 0.3 %, Hα +1.4 %, from the spectra at S/N 5–10): cargo test --release --no-default-features --test integration emission::simulation_large -- --ignored --nocapture"]
-fn simulation_large() {
     check_simulation(1000, 11);
 }

@@ -31,6 +31,7 @@ are found by Nelder–Mead (argmin) on the profiled χ².
 */
 pub mod stellar;
 pub mod table;
+mod whole;
 mod window;
 
 use crate::fit::result::LineMeasurement;
@@ -66,7 +67,7 @@ const NM_TOLERANCE: f64 = 1e-3;
 pub fn measure(s: &Spectrum, z: f64, class: ObjectClass) -> Vec<LineMeasurement> {
     let troughs = [Trough::Gaussian(BROAD_TROUGH_REST)];
     if class == ObjectClass::Quasar {
-        return measure_on(s, z, class, None, &troughs);
+        return measure_windows(&windows_for(s, z, class, None, &troughs), class);
     }
     choose_dispersion(s, z, class, &troughs).map_or_else(Vec::new, |d| measure_windows(&d.windows, class))
 }
@@ -95,6 +96,7 @@ struct Dispersion {
 fn choose_dispersion(s: &Spectrum, z: f64, class: ObjectClass, troughs: &[Trough]) -> Option<Dispersion> {
     let bases = stellar::bases();
     let mid = bases.len() / 2;
+    let lines = line_waves(z, class);
     let first = windows_for(s, z, class, Some(&bases[mid]), troughs);
     let set: Vec<&Window> = first.iter().collect();
     let kin = match fit_kinematics(&set, class) {
@@ -109,10 +111,11 @@ fn choose_dispersion(s: &Spectrum, z: f64, class: ObjectClass, troughs: &[Trough
         .iter()
         .enumerate()
         .map(|(index, b)| {
-            let windows = match first.take().filter(|_| index == mid) {
+            let mut windows = match first.take().filter(|_| index == mid) {
                 Some(w) => w,
                 None => windows_for(s, z, class, Some(b), troughs),
             };
+            restrict(&mut windows, whole::support(s, z, b, &lines).as_deref(), &kin);
             let chi2: f64 = windows.iter().filter_map(|w| w.chi2(&kin)).sum();
             (chi2, Dispersion { index, windows, kin })
         })
@@ -146,17 +149,33 @@ pub fn measure_with_basis(
     basis: &stellar::Basis,
     troughs: &[Trough],
 ) -> Vec<LineMeasurement> {
-    measure_on(s, z, class, Some(basis), troughs)
+    let mut windows = windows_for(s, z, class, Some(basis), troughs);
+    let set: Vec<&Window> = windows.iter().collect();
+    if let Some((kin, _)) = fit_kinematics(&set, class) {
+        let support = whole::support(s, z, basis, &line_waves(z, class));
+        restrict(&mut windows, support.as_deref(), &kin);
+    }
+    measure_windows(&windows, class)
 }
 
-fn measure_on(
-    s: &Spectrum,
-    z: f64,
-    class: ObjectClass,
-    basis: Option<&stellar::Basis>,
-    troughs: &[Trough],
-) -> Vec<LineMeasurement> {
-    measure_windows(&windows_for(s, z, class, basis, troughs), class)
+/// Each window keeps to the populations of `support` (those the whole
+/// spectrum holds) unless the others are needed at the lines' kinematics
+/// `kin` ([`Window::restrict`]); all populations without a support.
+fn restrict(windows: &mut [Window], support: Option<&[bool]>, kin: &[Kin; 2]) {
+    if let Some(sup) = support {
+        for w in windows {
+            w.restrict(sup, kin);
+        }
+    }
+}
+
+/// Observed wavelengths of `class`'s lines at `z` (the pixels the
+/// whole-spectrum fit leaves out).
+fn line_waves(z: f64, class: ObjectClass) -> Vec<f64> {
+    lines_for(class)
+        .iter()
+        .map(|l| crate::lines::wave_of(l.name) * (1.0 + z))
+        .collect()
 }
 
 /// The lines of `windows`: their kinematics, fluxes and errors.

@@ -14,6 +14,10 @@ use crate::fit::prep::{solve_normal, solve_normal_into, MAX_COLUMNS};
 use crate::fit::C_KMS;
 use std::cell::RefCell;
 
+/// The χ² of 1, 2, 3, 4 and 5 degrees of freedom exceeded with the
+/// probability of a 3σ Gaussian deviation, 0.27 % (standard tables).
+pub const CHI2_3SIGMA: [f64; 5] = [9.0, 11.83, 14.16, 16.25, 18.21];
+
 /// Velocity offset and Gaussian σ (both km/s) of one kind.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct Kin {
@@ -111,6 +115,8 @@ pub struct Window<'b> {
     /// Line columns.
     pub cols: Vec<Column>,
     basis: Option<&'b Basis>,
+    /// Which stellar populations take part ([`Window::restrict`]).
+    allowed: Vec<bool>,
     /// Buffers of [`Window::solve`], reused from call to call.
     scratch: RefCell<Scratch>,
 }
@@ -139,7 +145,7 @@ pub struct Solution {
     chi2: f64,
 }
 
-fn legendre_into(x: f64, out: &mut [f64]) {
+pub(super) fn legendre_into(x: f64, out: &mut [f64]) {
     let mut p0 = 1.0;
     let mut p1 = x;
     for (q, o) in out.iter_mut().enumerate() {
@@ -208,6 +214,7 @@ impl<'b> Window<'b> {
             half: 0.5 * (hi - lo),
             cols,
             basis,
+            allowed: vec![true; nt],
             scratch: RefCell::new(Scratch::default()),
         };
         let mut row = vec![0.0; m];
@@ -368,6 +375,7 @@ impl<'b> Window<'b> {
         }
         active.clear();
         active.resize(dim, true);
+        active[..self.nt].copy_from_slice(&self.allowed);
         coef.clear();
         coef.resize(dim, 0.0);
         solve_normal_into(ata, atb, active, coef, chol);
@@ -384,6 +392,35 @@ impl<'b> Window<'b> {
         }
         let chi2 = self.fww - coef.iter().zip(atb.iter()).map(|(c, b)| c * b).sum::<f64>();
         (chi2.is_finite() && coef.iter().all(|c| c.is_finite())).then_some(chi2)
+    }
+
+    /// Keep to the populations of `support` (those the whole spectrum
+    /// holds, [`super::whole::support`]) unless the others lower the
+    /// window's χ² at kinematics `kin` by more than the 3σ level of a χ²
+    /// of as many degrees of freedom as they add ([`CHI2_3SIGMA`]): a
+    /// population the galaxy lacks enters where the spectrum's own stars
+    /// differ from the mix beyond the noise, not where noise alone asks
+    /// for it (and the non-negativity would keep only its positive side).
+    pub fn restrict(&mut self, support: &[bool], kin: &[Kin; 2]) {
+        if support.len() != self.nt || support.iter().all(|&a| a) {
+            return;
+        }
+        let mut sc = self.scratch.borrow_mut();
+        let Some(all) = self.solve_into(kin, &mut sc) else {
+            return;
+        };
+        let extra = (0..self.nt)
+            .filter(|&p| !support[p] && sc.active[p] && sc.coef[p] > 0.0)
+            .count();
+        if extra == 0 {
+            self.allowed.copy_from_slice(support);
+            return;
+        }
+        self.allowed.copy_from_slice(support);
+        let kept = self.solve_into(kin, &mut sc);
+        if kept.is_none_or(|c| c - all > CHI2_3SIGMA[extra.min(CHI2_3SIGMA.len()) - 1]) {
+            self.allowed.fill(true);
+        }
     }
 
     /// Cross terms of the kinematic parameters with the linear ones at
