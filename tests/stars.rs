@@ -8,7 +8,7 @@ use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, Normal};
 use zvet::fit::{Engine, FitConfig, FitResult, Warnings, C_KMS};
 use zvet::spectrum::SpectrumMeta;
-use zvet::templates::{self, profiles::Grid, stars_cool, Template};
+use zvet::templates::{self, stars_cool, Template};
 use zvet::{ObjectClass, Spectrum};
 
 fn star(name: &str) -> &'static Template {
@@ -16,14 +16,6 @@ fn star(name: &str) -> &'static Template {
         .class(ObjectClass::Star)
         .and_then(|g| g.templates.iter().find(|t| t.name == name))
         .unwrap_or_else(|| panic!("star template {name} missing"))
-}
-
-fn grid_of(t: &Template) -> Grid {
-    Grid {
-        loglam0: t.loglam0,
-        dloglam: t.dloglam,
-        n: t.flux.len(),
-    }
 }
 
 #[test]
@@ -35,7 +27,7 @@ fn m_dwarfs_follow_the_published_band_index_relations() {
     // 1.5 subtypes (the relations' own scatter is about ±0.5–1 subtype, from memory).
     for sp in 0..=9 {
         let t = star(&format!("star-M{sp}"));
-        let (tio5, cah2, cah3) = stars_cool::m_indices(&t.flux, &grid_of(t));
+        let (tio5, cah2, cah3) = stars_cool::m_indices(&t.flux, &t.grid());
         let s = f64::from(sp);
         eprintln!("M{sp}: TiO5 {tio5:.3} CaH2 {cah2:.3} CaH3 {cah3:.3}");
         assert!(
@@ -56,8 +48,8 @@ fn m_dwarfs_follow_the_published_band_index_relations() {
     // (gravity-sensitive hydride; common practice in luminosity classification).
     let g = star("star-M2III");
     let d = star("star-M2");
-    let (tg, cg, _) = stars_cool::m_indices(&g.flux, &grid_of(g));
-    let (td, cd, _) = stars_cool::m_indices(&d.flux, &grid_of(d));
+    let (tg, cg, _) = stars_cool::m_indices(&g.flux, &g.grid());
+    let (td, cd, _) = stars_cool::m_indices(&d.flux, &d.grid());
     assert!(tg < td, "TiO5 giant {tg} dwarf {td}");
     assert!(cg / tg > cd / td, "CaH2/TiO5 giant {} dwarf {}", cg / tg, cd / td);
 }
@@ -89,7 +81,7 @@ fn band_depth(wave: &[f64], flux: &[f64], good: &[bool], head_air: f64, to_viole
 
 /// [`band_depth`] of a template.
 fn template_depth(t: &Template, head_air: f64, to_violet: bool) -> f64 {
-    let g = grid_of(t);
+    let g = t.grid();
     band_depth(
         &g.waves(),
         &t.flux,
@@ -282,7 +274,7 @@ fn m_dwarf_emission_and_wolf_rayet_lines_have_published_strengths() {
 /// `centre` within ± `half` Å, against a straight continuum through the
 /// mean flux of two side bands.
 fn emission_ew(t: &Template, centre: f64, half: f64, blue: (f64, f64), red: (f64, f64)) -> f64 {
-    emission_ew_of(&grid_of(t).waves(), &t.flux, centre, half, blue, red)
+    emission_ew_of(&t.grid().waves(), &t.flux, centre, half, blue, red)
 }
 
 /// [`emission_ew`] of any sampled spectrum (wavelengths increasing): each
@@ -320,7 +312,7 @@ fn emission_ew_of(
 /// at `teff` (the continuum's own slope), so that D measures the jump alone.
 fn balmer_jump(t: &Template, teff: f64) -> f64 {
     let mean = |lo: f64, hi: f64| {
-        let g = grid_of(t);
+        let g = t.grid();
         let r = g.range(lo, hi);
         t.flux[r.clone()].iter().sum::<f64>() / r.len() as f64
     };
@@ -403,7 +395,7 @@ fn a_and_solar_type_templates_have_the_shapes_of_real_stars() {
         ("star-G", None, &sun, "the Sun"),
     ] {
         let t = star(name);
-        let (tj, tb, tr) = shape(&grid_of(t).waves(), &t.flux, &vec![true; t.flux.len()], teff);
+        let (tj, tb, tr) = shape(&t.grid().waves(), &t.flux, &vec![true; t.flux.len()], teff);
         let (rj, rb, rr) = shape(real.wave(), real.flux(), real.good(), teff);
         let index = if teff.is_some() { "D" } else { "D4000n" };
         eprintln!(

@@ -19,14 +19,6 @@ fn get<'a>(set: &'a TemplateSet, name: &str) -> &'a Template {
         .unwrap_or_else(|| panic!("template {name} missing"))
 }
 
-fn grid_of(t: &Template) -> Grid {
-    Grid {
-        loglam0: t.loglam0,
-        dloglam: t.dloglam,
-        n: t.flux.len(),
-    }
-}
-
 /// ∫ f dλ over the pixels whose centres lie in [lo, hi] Å.
 fn integral(f: &[f64], g: &Grid, lo: f64, hi: f64) -> f64 {
     (0..g.n)
@@ -37,7 +29,7 @@ fn integral(f: &[f64], g: &Grid, lo: f64, hi: f64) -> f64 {
 
 /// Mean f_ν (∝ f_λ λ²) over [lo, hi] Å, weighted by pixel width.
 fn mean_fnu(t: &Template, lo: f64, hi: f64) -> f64 {
-    let g = grid_of(t);
+    let g = t.grid();
     let fnu: Vec<f64> = (0..g.n).map(|i| t.flux[i] * g.wave(i as f64).powi(2)).collect();
     let ones = vec![1.0; g.n];
     integral(&fnu, &g, lo, hi) / integral(&ones, &g, lo, hi)
@@ -360,7 +352,7 @@ fn emission_lines_peak_at_their_listed_wavelengths() {
         ),
     ] {
         let t = get(set, tname);
-        let g = grid_of(t);
+        let g = t.grid();
         for &(n, fwhm) in &comps {
             let w = lines::wave_of(n);
             // Only unblended lines: no other line within 8 Å or within this
@@ -455,7 +447,7 @@ fn spectral_sequence_behaves_as_in_the_textbooks() {
         "star-O", "star-B", "star-A", "star-F", "star-G", "star-K", "star-M0", "star-M4",
     ];
     let ew = |t: &Template, center: f64, half: f64, cont: (f64, f64)| {
-        let g = grid_of(t);
+        let g = t.grid();
         let c = 0.5 * (t.at(cont.0).unwrap() + t.at(cont.1).unwrap());
         let deficit: Vec<f64> = t.flux.iter().map(|f| 1.0 - f / c).collect();
         integral(&deficit, &g, center - half, center + half)
@@ -642,7 +634,7 @@ fn a_star_balmer_profiles_match_alpha_lyr() {
     // Tolerance: rms 0.02 and 0.04 at any pixel, about twice the fit's
     // residual (0.8–1.5 %).
     let t = get(templates::builtin(), "star-A");
-    let g = grid_of(t);
+    let g = t.grid();
     let vega = zvet::io::read_file(&support::a0v_star(), &Default::default())
         .unwrap()
         .remove(0);

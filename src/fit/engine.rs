@@ -140,12 +140,7 @@ impl Engine {
                 let extra = (c.sigma * c.sigma - inst * inst).sqrt();
                 let mut set = src.clone();
                 for t in set.classes.iter_mut().flat_map(|c| c.templates.iter_mut()) {
-                    let grid = crate::templates::profiles::Grid {
-                        loglam0: t.loglam0,
-                        dloglam: t.dloglam,
-                        n: t.flux.len(),
-                    };
-                    t.flux = crate::templates::profiles::convolve_velocity(&t.flux, &grid, extra);
+                    t.flux = crate::templates::profiles::convolve_velocity(&t.flux, &t.grid(), extra);
                 }
                 Self::at_resolution(&set, self.config.clone()).ok()
             })

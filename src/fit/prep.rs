@@ -421,6 +421,31 @@ pub fn solve_normal_into(a: &[f64], b: &[f64], active: &[bool], c: &mut [f64], s
     solve_normal_impl(a, b, active, Some(c), scratch);
 }
 
+/// [`solve_normal_into`] with the columns for which `constrained` holds kept
+/// non-negative greedily: the most negative of them leaves `active` and the
+/// system is solved again, at most `rounds` times. Not the exact optimum of
+/// [`solve_constrained`] (which tries every subset), but one solve per
+/// dropped column, for the line windows' many solves per spectrum.
+pub fn solve_nonneg_greedy(
+    a: &[f64],
+    b: &[f64],
+    active: &mut [bool],
+    c: &mut [f64],
+    scratch: &mut Vec<f64>,
+    constrained: impl Fn(usize) -> bool,
+    rounds: usize,
+) {
+    solve_normal_into(a, b, active, c, scratch);
+    for _ in 0..rounds {
+        let worst = (0..b.len())
+            .filter(|&p| constrained(p) && active[p] && c[p] < 0.0)
+            .min_by(|&x, &y| c[x].total_cmp(&c[y]));
+        let Some(p) = worst else { break };
+        active[p] = false;
+        solve_normal_into(a, b, active, c, scratch);
+    }
+}
+
 /// bᵀc for the solution c of [`solve_normal_into`] (the part of χ² the fit
 /// explains: χ² = Σ w f² − bᵀc) without the coefficients: with the
 /// factorisation L Lᵀ of the (scaled) matrix, bᵀc = |L⁻¹ b|², so the back

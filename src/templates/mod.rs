@@ -66,6 +66,15 @@ pub struct Template {
 }
 
 impl Template {
+    /// The template's log-λ grid.
+    pub fn grid(&self) -> profiles::Grid {
+        profiles::Grid {
+            loglam0: self.loglam0,
+            dloglam: self.dloglam,
+            n: self.flux.len(),
+        }
+    }
+
     /// Rest wavelength (Å) of pixel `i`.
     pub fn wave(&self, i: usize) -> f64 {
         10f64.powf(self.loglam0 + i as f64 * self.dloglam)

@@ -15,7 +15,7 @@ populations present are told from those absent by every absorption line at
 once.
 */
 use super::stellar::Basis;
-use crate::fit::prep::{solve_normal_into, MAX_COLUMNS};
+use crate::fit::prep::{legendre_into, solve_nonneg_greedy, MAX_COLUMNS};
 use crate::fit::C_KMS;
 use crate::spectrum::Spectrum;
 
@@ -93,7 +93,7 @@ pub fn support(s: &Spectrum, z: f64, basis: &Basis, lines: &[f64]) -> Option<Vec
         if !basis.at(lam / (1.0 + z), &mut row[..nt]) {
             return None;
         }
-        super::window::legendre_into((lam - mid) / halfw, &mut row[nt..]);
+        legendre_into((lam - mid) / halfw, &mut row[nt..]);
         let (w, f) = (s.ivar()[i], s.flux()[i]);
         for (a, r) in mean.iter_mut().zip(&row) {
             *a += r;
@@ -112,20 +112,18 @@ pub fn support(s: &Spectrum, z: f64, basis: &Basis, lines: &[f64]) -> Option<Vec
             ata[p * m + q] = ata[q * m + p];
         }
     }
-    // non-negative population amplitudes: the most negative is dropped and
-    // the fit repeated (as in the windows)
+    // non-negative population amplitudes, dropped greedily (as in the windows)
     let mut active = vec![true; m];
     let mut coef = vec![0.0; m];
-    let mut scratch = Vec::new();
-    solve_normal_into(&ata, &atb, &active, &mut coef, &mut scratch);
-    for _ in 0..nt {
-        let worst = (0..nt)
-            .filter(|&p| active[p] && coef[p] < 0.0)
-            .min_by(|&a, &b| coef[a].total_cmp(&coef[b]));
-        let Some(p) = worst else { break };
-        active[p] = false;
-        solve_normal_into(&ata, &atb, &active, &mut coef, &mut scratch);
-    }
+    solve_nonneg_greedy(
+        &ata,
+        &atb,
+        &mut active,
+        &mut coef,
+        &mut Vec::new(),
+        |p| p < nt,
+        nt,
+    );
     let amp: Vec<f64> = coef[..nt].iter().map(|&c| c.max(0.0)).collect();
     let total: f64 = amp.iter().sum();
     let light: f64 = amp.iter().zip(&mean).map(|(a, m)| a * m).sum();

@@ -10,7 +10,7 @@ of the normal equations is computed once, the line columns at each call.
 #![allow(clippy::needless_range_loop)]
 use super::stellar::Basis;
 use super::table::LineKind;
-use crate::fit::prep::{solve_normal, solve_normal_into, MAX_COLUMNS};
+use crate::fit::prep::{legendre_into, solve_nonneg_greedy, solve_normal, MAX_COLUMNS};
 use crate::fit::C_KMS;
 use std::cell::RefCell;
 
@@ -143,24 +143,6 @@ pub struct Solution {
     ata: Vec<f64>,
     /// χ² of the window at this solution.
     chi2: f64,
-}
-
-pub(super) fn legendre_into(x: f64, out: &mut [f64]) {
-    let mut p0 = 1.0;
-    let mut p1 = x;
-    for (q, o) in out.iter_mut().enumerate() {
-        *o = match q {
-            0 => 1.0,
-            1 => x,
-            _ => {
-                let k = q as f64;
-                let p2 = ((2.0 * k - 1.0) * x * p1 - (k - 1.0) * p0) / k;
-                p0 = p1;
-                p1 = p2;
-                p2
-            }
-        };
-    }
 }
 
 impl<'b> Window<'b> {
@@ -378,18 +360,18 @@ impl<'b> Window<'b> {
         active[..self.nt].copy_from_slice(&self.allowed);
         coef.clear();
         coef.resize(dim, 0.0);
-        solve_normal_into(ata, atb, active, coef, chol);
         // the stellar amplitudes, and the troughs that may only absorb
         let base = self.nt + self.np;
-        let constrained = |p: usize| p < self.nt || (p >= base && self.broad[p - base].absorb);
-        for _ in 0..self.nt + self.broad.len() {
-            let worst = (0..m)
-                .filter(|&p| constrained(p) && active[p] && coef[p] < 0.0)
-                .min_by(|&a, &b| coef[a].total_cmp(&coef[b]));
-            let Some(p) = worst else { break };
-            active[p] = false;
-            solve_normal_into(ata, atb, active, coef, chol);
-        }
+        let constrained = |p: usize| p < self.nt || (p >= base && p < m && self.broad[p - base].absorb);
+        solve_nonneg_greedy(
+            ata,
+            atb,
+            active,
+            coef,
+            chol,
+            constrained,
+            self.nt + self.broad.len(),
+        );
         let chi2 = self.fww - coef.iter().zip(atb.iter()).map(|(c, b)| c * b).sum::<f64>();
         (chi2.is_finite() && coef.iter().all(|c| c.is_finite())).then_some(chi2)
     }
