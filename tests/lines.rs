@@ -485,6 +485,34 @@ fn telluric_bands_match_a_reduction_package_and_a_transmission_spectrum() {
 }
 
 #[test]
+fn the_far_red_water_band_depth_matches_a_transmission_spectrum() {
+    // The fit's telluric floor (FitConfig::telluric_floor) weighs each band by
+    // its typical absorption in an uncorrected spectrum. For the water band
+    // past 8950 Å that is checked against the transmission pypeit ships
+    // (airmass 1, 1 mm of water vapour) scaled to 6 mm·airmass — 5 mm of
+    // water at airmass 1.2, a typical site and night (common practice, from
+    // memory) — with the optical depth in proportion to the water column
+    // (T⁶): its mean absorption over our band, 5 Å samples, was 0.233 when
+    // this was written, and the dry table itself absorbs only 0.048.
+    let (lo, hi) = *lines::telluric_bands().last().expect("bands");
+    let band: Vec<f64> = atmospheric_transmission()
+        .into_iter()
+        .filter(|&(l, _)| (lo..=hi).contains(&l))
+        .map(|(_, t)| t)
+        .collect();
+    assert!(band.len() > 100, "{} samples in {lo}–{hi} Å", band.len());
+    let mean_absorbed =
+        |column: i32| band.iter().map(|t| 1.0 - t.powi(column)).sum::<f64>() / band.len() as f64;
+    let (dry, typical) = (mean_absorbed(1), mean_absorbed(6));
+    let ours = lines::telluric_depth(0.5 * (lo + hi));
+    eprintln!("water band {lo}–{hi} Å: ours {ours}, transmission table {dry:.3} (1 mm), {typical:.3} (6 mm·airmass)");
+    assert!((ours - typical).abs() < 0.05, "ours {ours} vs {typical:.3}");
+    assert!(ours > dry);
+    // and outside every band there is no floor
+    assert!(lines::telluric_depth(5_000.0) == 0.0 && lines::telluric_depth(7_650.0) > 0.0);
+}
+
+#[test]
 fn the_sky_list_covers_the_brightest_lines_of_a_real_night_sky() {
     // Completeness of our sky lines and telluric bands (what the optional sky
     // mask of the fit masks) on the real night-sky spectrum pypeit ships: take

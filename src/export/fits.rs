@@ -237,6 +237,12 @@ pub fn write_fits(path: &Path, rows: &[ExportRow], prov: &Provenance) -> Result<
             ),
         )
         .map_err(&fe)?;
+        hdu.write_key(
+            &mut f,
+            "TELLFLR",
+            (i64::from(e.telluric_floor), "telluric-band error floor (1/0)"),
+        )
+        .map_err(&fe)?;
         // What the library's close wrote is checked too.
         crate::campaign::close_fits(f, rows.len()).map_err(Step::Io)
     });
@@ -332,6 +338,8 @@ pub fn read_fits(path: &Path) -> Result<(Vec<ExportRow>, Provenance), ExportErro
         throughput_terms: i(&mut f, "TPUTTERM")? != 0,
         // exports written before the keyword existed were fitted without it
         star_throughput_terms: hdu.read_key::<i64>(&mut f, "STARTPUT").is_ok_and(|v| v != 0),
+        // the same for the telluric floor
+        telluric_floor: hdu.read_key::<i64>(&mut f, "TELLFLR").is_ok_and(|v| v != 0),
     };
     let minconf = s(&mut f, "MINCONF")?;
     let min_confidence = match minconf.as_str() {

@@ -75,6 +75,18 @@ pub struct FitConfig {
     /// spectral fitting. 0 turns it off.
     #[serde(default = "default_sys_floor")]
     pub sys_floor: f64,
+    /// Inside the telluric absorption bands (observed frame, the bands of
+    /// [`crate::lines::telluric_bands`]) each pixel's variance gains
+    /// (d·|F̄|)², d the band's typical depth in a spectrum not corrected for
+    /// the atmosphere ([`crate::lines::telluric_depth`]; F̄ as for
+    /// [`FitConfig::sys_floor`]). Whether and how well a file was corrected
+    /// is unknown to the fit: an uncorrected O₂ A band takes 40 % or more of a
+    /// red star's flux at 7600 Å, which no template has, and without the
+    /// floor that difference was read as template mismatch (real M dwarfs
+    /// fitted at χ²_r ≈ 2.8 at S/N 10 instead of 1.5; README, "Stars"). In a
+    /// corrected spectrum the bands merely weigh less. On by default.
+    #[serde(default = "yes")]
+    pub telluric_floor: bool,
     /// Inside the star window (|cz| ≤
     /// [`STAR_VMAX_KMS`](super::engine::STAR_VMAX_KMS)) a star solution
     /// ranks before a galaxy solution of lower χ² when the difference is
@@ -137,6 +149,7 @@ impl Default for FitConfig {
             method: Method::Chi2,
             nonnegative: true,
             sys_floor: DEFAULT_SYS_FLOOR,
+            telluric_floor: true,
             star_window_prefers_stars: true,
             throughput_terms: false,
             star_throughput_terms: true,
@@ -199,7 +212,8 @@ impl FitConfig {
         format!(
             "method={} dloglam={} classes={} z_galaxy={}..{} z_quasar={}..{} z_star={}..{} \
              poly_terms={} n_candidates={} min_separation_kms={} mask_sky={} nonnegative={} \
-             sys_floor={} star_window_prefers_stars={} throughput_terms={} star_throughput_terms={}",
+             sys_floor={} telluric_floor={} star_window_prefers_stars={} throughput_terms={} \
+             star_throughput_terms={}",
             self.method.as_str(),
             self.dloglam,
             classes.join(","),
@@ -215,6 +229,7 @@ impl FitConfig {
             self.mask_sky,
             self.nonnegative,
             self.sys_floor,
+            self.telluric_floor,
             self.star_window_prefers_stars,
             self.throughput_terms,
             self.star_throughput_terms

@@ -403,9 +403,23 @@ impl Engine {
         let mut p = if self.config.mask_sky {
             let mut m = s.clone();
             super::sky::mask(&mut m);
-            Prepared::with_floor(&m, dll, j, self.reach, self.config.sys_floor)?
+            Prepared::with_floor(
+                &m,
+                dll,
+                j,
+                self.reach,
+                self.config.sys_floor,
+                self.config.telluric_floor,
+            )?
         } else {
-            Prepared::with_floor(s, dll, j, self.reach, self.config.sys_floor)?
+            Prepared::with_floor(
+                s,
+                dll,
+                j,
+                self.reach,
+                self.config.sys_floor,
+                self.config.telluric_floor,
+            )?
         };
         p.nonneg = self.config.nonnegative;
         p.set_groups(self.units.iter().map(|u| u.groups).max().unwrap_or(1));

@@ -108,14 +108,33 @@ pub fn mismatch_scale(chi2_reduced: f64) -> f64 {
 
 /// The best star against the best solution of a non-star class: true when
 /// their χ² differ by less than [`CLASS_CLOSE_DCHI2`] × `scale`, whichever
-/// of them is the better. `per_class` is best class first.
-fn class_close(per_class: &[ClassSolution], scale: f64) -> bool {
-    let star = per_class.iter().find(|s| s.class == ObjectClass::Star);
-    let other = per_class.iter().find(|s| s.class != ObjectClass::Star);
+/// of them is the better. `cands` is best first. When a star is the answer,
+/// galaxy and quasar solutions inside the star window are left out
+/// ([`star_shadow`]).
+fn class_close(cands: &[Candidate], scale: f64) -> bool {
+    let Some(best) = cands.first() else {
+        return false;
+    };
+    let star = cands.iter().find(|c| c.class == ObjectClass::Star);
+    let other = cands
+        .iter()
+        .find(|c| c.class != ObjectClass::Star && !star_shadow(best, c));
     match (star, other) {
         (Some(s), Some(o)) => (s.chi2 - o.chi2).abs() < CLASS_CLOSE_DCHI2 * scale,
         _ => false,
     }
+}
+
+/// True when `best` is a star and `c` a galaxy or quasar solution within
+/// [`STAR_VMAX_KMS`] of rest: there a class basis takes up the star's own
+/// light (the galaxy basis holds that of A stars), and such a solution, had
+/// it won, would itself be doubted (`near_rest`). It is the star seen through
+/// another basis, not another interpretation, so it does not make a star
+/// answer's class close.
+fn star_shadow(best: &Candidate, c: &Candidate) -> bool {
+    best.class == ObjectClass::Star
+        && c.class != ObjectClass::Star
+        && velocity_sep_kms(c.z, 0.0) <= STAR_VMAX_KMS
 }
 
 /// What a method may use of the engine.
@@ -236,7 +255,7 @@ pub(crate) fn finish(
     if sol.ambiguous || (sol.dchi2_cut && delta_chi2 < AMBIGUOUS_DCHI2 * scale) {
         warnings.set(Warnings::AMBIGUOUS);
     }
-    if class_close(&per_class, scale) {
+    if class_close(&sol.candidates, scale) {
         warnings.set(Warnings::CLASS_CLOSE);
     }
     if sol.at_edge {
@@ -372,5 +391,37 @@ mod tests {
         let q = [line("C IV", 2.1, 12.0), line("C III]", 2.1, 6.0)];
         assert!(!rests_on_one_line(ObjectClass::Quasar, &q, 0.5));
         assert!(rests_on_one_line(ObjectClass::Quasar, &q[..1], 0.5));
+    }
+
+    fn cand(class: ObjectClass, z: f64, chi2: f64) -> Candidate {
+        Candidate {
+            class,
+            template: class.to_string(),
+            z,
+            z_err: 1e-4,
+            chi2,
+            coeffs: Vec::new(),
+        }
+    }
+
+    #[test]
+    fn a_galaxy_at_rest_does_not_make_a_star_answer_class_close() {
+        use ObjectClass::{Galaxy, Quasar, Star};
+        // a star at −21 km/s; the galaxy basis takes up its light at rest,
+        // 5 worse in χ² (as for a real A0 dwarf), and the next galaxy
+        // solution, at z = 0.3, is far behind
+        let star = cand(Star, -7e-5, 1000.0);
+        let at_rest = cand(Galaxy, 1e-4, 1005.0);
+        let far = cand(Galaxy, 0.3, 1100.0);
+        assert!(!class_close(&[star.clone(), at_rest.clone(), far.clone()], 1.0));
+        // a galaxy or quasar solution away from rest within the cut doubts it
+        let near_in_chi2 = cand(Quasar, 2.1, 1010.0);
+        assert!(class_close(&[star.clone(), at_rest.clone(), near_in_chi2], 1.0));
+        // 800 km/s is the edge of the star window (cz of z = 0.0027 is 809 km/s)
+        assert!(class_close(&[star.clone(), cand(Galaxy, 0.0027, 1005.0)], 1.0));
+        // the scale widens the cut: 100 apart is close at χ²_r 5
+        assert!(class_close(&[star.clone(), at_rest.clone(), far.clone()], 5.0));
+        // a galaxy answer at rest is still judged against the best star
+        assert!(class_close(&[at_rest, star], 1.0));
     }
 }

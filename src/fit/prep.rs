@@ -89,18 +89,21 @@ impl Prepared {
     /// Resample `s` onto its grid of step `dll`, cut to the observed range
     /// `lam` (Å), and prepare the sums.
     pub fn new(s: &Spectrum, dll: f64, poly_terms: usize, lam: (f64, f64)) -> Result<Prepared, FitError> {
-        Prepared::with_floor(s, dll, poly_terms, lam, 0.0)
+        Prepared::with_floor(s, dll, poly_terms, lam, 0.0, false)
     }
 
     /// As [`Prepared::new`] with a systematic error floor: each good pixel's
     /// variance becomes σ² + (`sys_floor`·|F̄|)² with F̄ the running mean of
-    /// the good flux over [`SYS_FLOOR_WINDOW`] pixels.
+    /// the good flux over [`SYS_FLOOR_WINDOW`] pixels; with `telluric`, plus
+    /// (d·|F̄|)² where d is the typical depth of the telluric band the pixel
+    /// lies in ([`crate::lines::telluric_depth`], observed frame).
     pub fn with_floor(
         s: &Spectrum,
         dll: f64,
         poly_terms: usize,
         lam: (f64, f64),
         sys_floor: f64,
+        telluric: bool,
     ) -> Result<Prepared, FitError> {
         let w = s.wave();
         let lo = w[0].max(lam.0);
@@ -126,11 +129,21 @@ impl Prepared {
                 good.push(i);
             }
         }
-        if sys_floor > 0.0 && sys_floor.is_finite() {
+        let sys_floor = if sys_floor > 0.0 && sys_floor.is_finite() {
+            sys_floor
+        } else {
+            0.0
+        };
+        if sys_floor > 0.0 || telluric {
             let fbar = running_mean(&flux, &w, SYS_FLOOR_WINDOW);
             for &i in &good {
-                // w = ivar / Σρ; the floor is a variance per pixel like σ²
-                let var = 1.0 / r.ivar[i] + (sys_floor * fbar[i]).powi(2);
+                let d = if telluric {
+                    crate::lines::telluric_depth(grid.wave(i))
+                } else {
+                    0.0
+                };
+                // w = ivar / Σρ; the floors are variances per pixel like σ²
+                let var = 1.0 / r.ivar[i] + (sys_floor * fbar[i]).powi(2) + (d * fbar[i]).powi(2);
                 w[i] = 1.0 / var / r.correlation[i];
             }
         }
@@ -296,6 +309,14 @@ pub(crate) fn running_mean(f: &[f64], w: &[f64], width: usize) -> Vec<f64> {
 /// normal matrix). A template with a single line in the range then has that
 /// line's amplitude constrained, not the amplitude at the grid's centre,
 /// where the template is empty and the value means nothing.
+///
+/// A single template with its throughput term (a star, fitted alone) has its
+/// amplitude c_0 + c_1·x kept ≥ 0 over the whole span of its information,
+/// not only at x̄, and the optimum is found exactly ([`solve_one_tilted`]):
+/// a steep tilt through zero at x̄ let a star template stand upside down in
+/// half the range, and the subset search, which could only take the template
+/// out with its tilt, made χ²(z) jump where that began (a real K giant's
+/// velocity sat on such a step, 200–250 km/s off, σ_v ≈ 1 km/s).
 pub fn solve_constrained(
     a: &[f64],
     b: &[f64],
@@ -307,6 +328,9 @@ pub fn solve_constrained(
     let dim = b.len();
     if !nonneg || groups < 2 {
         return solve_nonneg_leading(a, b, active, k, groups, nonneg);
+    }
+    if k == 1 && groups == 2 && active[0] && active[1] {
+        return solve_one_tilted(a, b, active);
     }
     // θ = M θ′: c_a = c′_a − x̄_a c_{k+a}, so that c′_a is the amplitude at x̄_a
     let xbar: Vec<f64> = (0..k).map(|t| information_centre(a, dim, k, t)).collect();
@@ -336,11 +360,98 @@ pub fn solve_constrained(
     c
 }
 
+/// The least-squares solution for one template (column 0), its throughput
+/// term (column 1) and free columns after them, with the template's
+/// amplitude c_0 + c_1·x ≥ 0 at both ends of the template's information
+/// ([`information_ends`]). The optimum of a quadratic over that cone is the
+/// unconstrained one when it is feasible, else the best of its two faces
+/// (amplitude β·(x − x₁) or β·(x₂ − x), β ≥ 0) and its vertex (the template
+/// out): exact, and it moves continuously with the data, so χ²(z) has no
+/// step where the constraint begins to bind.
+fn solve_one_tilted(a: &[f64], b: &[f64], active: &[bool]) -> Vec<f64> {
+    let dim = b.len();
+    let c = solve_normal(a, b, active);
+    let (x1, x2) = information_ends(a, dim);
+    if c[0] + c[1] * x1 >= 0.0 && c[0] + c[1] * x2 >= 0.0 {
+        return c;
+    }
+    // the vertex: the free columns alone
+    let mut out = active.to_vec();
+    out[0] = false;
+    out[1] = false;
+    let c_out = solve_normal(a, b, &out);
+    let value = |c: &[f64]| -> f64 { c.iter().zip(b).map(|(x, y)| x * y).sum() };
+    let mut best = (value(&c_out), c_out);
+    // a face: columns 0 and 1 merged into T·(u0 + u1·x), coefficient ≥ 0
+    let m = dim - 1;
+    for (u0, u1) in [(-x1, 1.0), (x2, -1.0)] {
+        // (A M)[i][r] with M mapping the reduced θ to c: c_0 = u0 θ_0,
+        // c_1 = u1 θ_0, c_{r+1} = θ_r
+        let am = |i: usize, r: usize| -> f64 {
+            if r == 0 {
+                u0 * a[i * dim] + u1 * a[i * dim + 1]
+            } else {
+                a[i * dim + r + 1]
+            }
+        };
+        let mut af = vec![0.0; m * m];
+        let mut bf = vec![0.0; m];
+        for q in 0..m {
+            for r in 0..m {
+                af[q * m + r] = if q == 0 {
+                    u0 * am(0, r) + u1 * am(1, r)
+                } else {
+                    am(q + 1, r)
+                };
+            }
+            bf[q] = if q == 0 { u0 * b[0] + u1 * b[1] } else { b[q + 1] };
+        }
+        let mut act = vec![true; m];
+        act[1..].copy_from_slice(&active[2..]);
+        let th = solve_normal(&af, &bf, &act);
+        if th[0] < 0.0 {
+            continue;
+        }
+        let mut c = vec![0.0; dim];
+        c[0] = u0 * th[0];
+        c[1] = u1 * th[0];
+        c[2..].copy_from_slice(&th[1..]);
+        let v = value(&c);
+        if v > best.0 {
+            best = (v, c);
+        }
+    }
+    best.1
+}
+
+/// Where the information of template 0 lies along x, from the normal matrix
+/// `a` (dim × dim) whose column 1 is its throughput term: x̄ ∓ √3·s with x̄
+/// and s² the mean and variance of x weighted by w·T² (Σ w T² x / Σ w T²,
+/// Σ w T² x² / Σ w T² − x̄²), kept within the grid's [−1, 1]. For
+/// information spread evenly over the grid these are its ends (a uniform
+/// spread reaches √3 standard deviations either side of its mean); for one
+/// line they meet at the line.
+fn information_ends(a: &[f64], dim: usize) -> (f64, f64) {
+    let d = a[0];
+    if d.is_nan() || d <= 0.0 {
+        return (-1.0, 1.0);
+    }
+    let xbar = a[1] / d;
+    let sd = (a[dim + 1] / d - xbar * xbar).max(0.0).sqrt();
+    let h = 3f64.sqrt() * sd;
+    ((xbar - h).max(-1.0), (xbar + h).min(1.0))
+}
+
 /// Whether coefficients `c` of a system with normal matrix `a` meet the
 /// constraint of [`solve_constrained`]: every template amplitude ≥ 0, taken
-/// at the template's x̄ when there are throughput terms.
+/// at the template's x̄ when there are throughput terms (for a single
+/// template with its throughput term: at both ends of the grid).
 pub fn amplitudes_feasible(a: &[f64], c: &[f64], k: usize, groups: usize) -> bool {
     let dim = c.len();
+    if k == 1 && groups == 2 {
+        let (x1, x2) = information_ends(a, dim);
+        return c[0] + c[1] * x1 >= 0.0 && c[0] + c[1] * x2 >= 0.0;
+    }
     (0..k).all(|t| {
         if groups < 2 {
             return c[t] >= 0.0;
@@ -633,7 +744,7 @@ mod tests {
         )
         .unwrap();
         let a = Prepared::new(&s, 1e-4, 2, (0.0, 1e9)).unwrap();
-        let b = Prepared::with_floor(&s, 1e-4, 2, (0.0, 1e9), 0.1).unwrap();
+        let b = Prepared::with_floor(&s, 1e-4, 2, (0.0, 1e9), 0.1, false).unwrap();
         assert_eq!(a.good, b.good);
         let rho = s.resample(&s.log_grid(1e-4)).correlation;
         for &i in &a.good {
@@ -641,6 +752,127 @@ mod tests {
             assert_relative_eq!(b.w[i], 1.0 / var / rho[i], max_relative = 1e-12);
         }
         assert!(b.fww < a.fww);
+    }
+
+    #[test]
+    fn telluric_floor_adds_the_band_depth_inside_the_bands_only() {
+        // flat spectrum of flux 10 and σ = 1 across the O₂ A band: inside it
+        // the variance gains (d·10)², d = crate::lines::telluric_depth;
+        // outside nothing (definition of FitConfig::telluric_floor)
+        let wave: Vec<f64> = (0..500).map(|i| 7400.0 + i as f64).collect();
+        let s = Spectrum::new(
+            wave,
+            vec![10.0; 500],
+            Some(vec![1.0; 500]),
+            None,
+            crate::spectrum::SpectrumMeta::default(),
+        )
+        .unwrap();
+        let a = Prepared::new(&s, 1e-4, 2, (0.0, 1e9)).unwrap();
+        let b = Prepared::with_floor(&s, 1e-4, 2, (0.0, 1e9), 0.0, true).unwrap();
+        let rho = s.resample(&s.log_grid(1e-4)).correlation;
+        let (mut inside, mut outside) = (0, 0);
+        for &i in &a.good {
+            let d = crate::lines::telluric_depth(a.grid.wave(i));
+            let var = 1.0 / (a.w[i] * rho[i]) + (d * 10.0).powi(2);
+            assert_relative_eq!(b.w[i], 1.0 / var / rho[i], max_relative = 1e-9);
+            if d > 0.0 {
+                inside += 1;
+            } else {
+                assert_eq!(a.w[i].to_bits(), b.w[i].to_bits());
+                outside += 1;
+            }
+        }
+        assert!(inside > 50 && outside > 50, "{inside} in, {outside} out");
+    }
+
+    /// Normal matrix and right-hand side of `cols` against `data` (w = 1).
+    fn normal(cols: &[Vec<f64>], data: &[f64]) -> (Vec<f64>, Vec<f64>) {
+        let dim = cols.len();
+        let mut a = vec![0.0; dim * dim];
+        let mut b = vec![0.0; dim];
+        for r in 0..dim {
+            b[r] = cols[r].iter().zip(data).map(|(u, v)| u * v).sum();
+            for c in 0..dim {
+                a[r * dim + c] = cols[r].iter().zip(&cols[c]).map(|(u, v)| u * v).sum();
+            }
+        }
+        (a, b)
+    }
+
+    #[test]
+    fn a_tilted_star_stays_positive_where_it_has_flux_and_its_chi2_has_no_step() {
+        // a star-like template over the whole grid, its throughput term, and
+        // three Legendre terms; the data are the template times (α + x) plus
+        // a smooth continuum. For α < 1 that amplitude is negative at one end,
+        // which the constraint forbids there (x̄ ∓ √3·s, computed here from
+        // the definition). Each constrained answer must equal a brute-force
+        // search over the feasible amplitudes at the two ends (the Legendre
+        // terms solved for each), and χ²(α) must move without a step.
+        let n = 600;
+        let xs: Vec<f64> = (0..n).map(|i| -1.0 + 2.0 * i as f64 / (n - 1) as f64).collect();
+        let t: Vec<f64> = xs.iter().map(|x| 1.0 + 0.3 * (9.0 * x).sin() + 0.2 * x).collect();
+        let mut cols = vec![
+            t.clone(),
+            t.iter().zip(&xs).map(|(t, x)| t * x).collect::<Vec<f64>>(),
+        ];
+        for q in 0..3 {
+            cols.push(xs.iter().map(|&x| legendre(3, x)[q]).collect());
+        }
+        let (s0, s1, s2) = t.iter().zip(&xs).fold((0.0, 0.0, 0.0), |acc, (t, x)| {
+            (acc.0 + t * t, acc.1 + t * t * x, acc.2 + t * t * x * x)
+        });
+        let xbar = s1 / s0;
+        let half = 3f64.sqrt() * (s2 / s0 - xbar * xbar).sqrt();
+        let (x1, x2) = ((xbar - half).max(-1.0), (xbar + half).min(1.0));
+        let mut chi2s = Vec::new();
+        for step in 0..=40 {
+            let alpha = -1.0 + 0.05 * step as f64;
+            let data: Vec<f64> = t
+                .iter()
+                .zip(&xs)
+                .map(|(t, x)| t * (alpha + x) + 0.5 + 0.2 * x)
+                .collect();
+            let fww: f64 = data.iter().map(|v| v * v).sum();
+            let (a, b) = normal(&cols, &data);
+            let c = solve_constrained(&a, &b, &[true; 5], 1, 2, true);
+            assert!(
+                c[0] + c[1] * x1 >= -1e-9 && c[0] + c[1] * x2 >= -1e-9,
+                "α {alpha}: {c:?}"
+            );
+            let chi2 = fww - c.iter().zip(&b).map(|(c, b)| c * b).sum::<f64>();
+            // brute force: amplitudes p1, p2 ≥ 0 at x1, x2 on a grid, the
+            // Legendre terms by least squares for each
+            let mut brute = f64::INFINITY;
+            for i in 0..=80 {
+                for j in 0..=80 {
+                    let (p1, p2) = (0.05 * i as f64, 0.05 * j as f64);
+                    let c1 = (p2 - p1) / (x2 - x1);
+                    let c0 = p1 - c1 * x1;
+                    let rest: Vec<f64> = (0..n)
+                        .map(|k| data[k] - c0 * cols[0][k] - c1 * cols[1][k])
+                        .collect();
+                    let (ap, bp) = normal(&cols[2..], &rest);
+                    let cp = solve_normal(&ap, &bp, &[true; 3]);
+                    let r: f64 = (0..n)
+                        .map(|k| (rest[k] - (0..3).map(|q| cp[q] * cols[2 + q][k]).sum::<f64>()).powi(2))
+                        .sum();
+                    brute = brute.min(r);
+                }
+            }
+            // the grid's best is feasible, so the exact optimum is at least as good
+            assert!(
+                chi2 <= brute + 1e-9 * fww,
+                "α {alpha}: χ² {chi2} above the brute-force {brute}"
+            );
+            chi2s.push(chi2);
+        }
+        // the constraint binds for part of the run (α + x < 0 at the blue end)
+        let range = chi2s.iter().cloned().fold(0.0, f64::max);
+        assert!(range > 1.0, "{chi2s:?}");
+        for w in chi2s.windows(2) {
+            assert!((w[1] - w[0]).abs() < 0.1 * range, "a step in χ²(α): {chi2s:?}");
+        }
     }
 
     #[test]

@@ -154,6 +154,22 @@ pub(super) static TELLURIC: &[(f64, f64)] = &[
     (8952.0, 9802.0), // H₂O (strongest 9300–9650)
 ];
 
+/// Typical fraction of the flux each band of [`TELLURIC`] absorbs, band
+/// averaged, in an uncorrected spectrum at resolution R ≈ 2000, airmass
+/// ≈ 1.2 and 5 mm of water vapour (a typical site and night): from memory,
+/// except the far-red water band, checked in tests/lines.rs against the
+/// transmission pypeit ships (1 mm at airmass 1, scaled to 6 mm·airmass:
+/// 0.233). The water bands scale with the vapour column, several-fold from
+/// a dry night to a humid one.
+pub(super) static TELLURIC_DEPTH: &[f64] = &[
+    0.05, // O₂ γ
+    0.15, // O₂ B
+    0.10, // H₂O 7162–7342
+    0.40, // O₂ A (the head, 7596–7630, absorbs most)
+    0.10, // H₂O 8122–8352
+    0.25, // H₂O 8952–9802
+];
+
 /// Names (in [`ALL`]) of the lines offered as close-ups, by wavelength.
 pub(super) static DIAGNOSTIC: &[&str] = &[
     "Lyα",

@@ -107,6 +107,18 @@ pub fn in_telluric_band(lam: f64) -> bool {
     telluric_bands().iter().any(|&(a, b)| lam >= a && lam <= b)
 }
 
+/// The typical fraction of the flux absorbed at observed vacuum wavelength
+/// `lam` in a spectrum not corrected for telluric absorption: the band's
+/// average depth inside a band of [`telluric_bands`], 0 outside (values from
+/// memory; see `data::TELLURIC_DEPTH`).
+pub fn telluric_depth(lam: f64) -> f64 {
+    telluric_bands()
+        .iter()
+        .zip(data::TELLURIC_DEPTH)
+        .find(|((a, b), _)| lam >= *a && lam <= *b)
+        .map_or(0.0, |(_, d)| *d)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -128,6 +140,8 @@ mod tests {
         for w in telluric_bands().windows(2) {
             assert!(w[0].1 < w[1].0);
         }
+        assert_eq!(data::TELLURIC_DEPTH.len(), telluric_bands().len());
+        assert!(data::TELLURIC_DEPTH.iter().all(|d| *d > 0.0 && *d < 1.0));
     }
 
     #[test]
