@@ -62,6 +62,9 @@ pub struct Prepared {
     pub lines: Vec<Marker>,
     /// Sky-line markers in range.
     pub sky: Vec<f64>,
+    /// Telluric absorption bands in range as (x from, x to): where the fit
+    /// weighs the pixels less (`FitConfig::telluric_floor`).
+    pub telluric: Vec<(f64, f64)>,
     /// Close-up windows, blue to red.
     pub closeups: Vec<Closeup>,
     /// A y range that ignores spikes (1st–99th percentile, padded).
@@ -268,6 +271,11 @@ pub fn prepare(
             .filter(|l| l.wave >= lam_lo && l.wave <= lam_hi)
             .map(|l| l.wave / zf)
             .collect();
+        p.telluric = lines::telluric_bands()
+            .iter()
+            .filter(|(a, b)| *b >= lam_lo && *a <= lam_hi)
+            .map(|(a, b)| (a.max(lam_lo) / zf, b.min(lam_hi) / zf))
+            .collect();
     }
     p
 }
@@ -375,5 +383,38 @@ mod tests {
         assert_relative_eq!(p.masked[0].0, 2001.25);
         assert_relative_eq!(p.masked[0].1, 2002.25);
         assert_relative_eq!(p.x_range.0, 2000.0);
+    }
+
+    #[test]
+    fn telluric_bands_are_shaded_with_the_sky_in_the_frame_shown() {
+        // 6000–8000 Å holds the O₂ γ, B and A bands and the 7162–7342 Å water
+        // band (lines::telluric_bands); in the rest frame of z = 0.5 they sit
+        // at observed / 1.5
+        let wave: Vec<f64> = (0..2001).map(|i| 6000.0 + i as f64).collect();
+        let n = wave.len();
+        let s = Spectrum::new(
+            wave,
+            vec![1.0; n],
+            Some(vec![1.0; n]),
+            None,
+            SpectrumMeta::default(),
+        )
+        .unwrap();
+        let mut view = ViewSettings {
+            show_sky: true,
+            ..ViewSettings::default()
+        };
+        let p = prepare(&s, Some(0.5), None, &[], &view);
+        let inside: Vec<&(f64, f64)> = lines::telluric_bands().iter().filter(|b| b.1 <= 8000.0).collect();
+        assert_eq!(p.telluric.len(), inside.len());
+        for ((a, b), (x, y)) in inside.iter().zip(&p.telluric) {
+            assert_relative_eq!(*x, *a);
+            assert_relative_eq!(*y, *b);
+        }
+        view.rest_frame = true;
+        let r = prepare(&s, Some(0.5), None, &[], &view);
+        assert_relative_eq!(r.telluric[0].0, inside[0].0 / 1.5);
+        view.show_sky = false;
+        assert!(prepare(&s, Some(0.5), None, &[], &view).telluric.is_empty());
     }
 }

@@ -138,6 +138,17 @@ pub fn ui(
                     .border_width(0.0),
             );
         }
+        // Telluric bands (with the sky lines): faintly shaded, where the fit
+        // weighs the pixels by the band's typical uncorrected depth; unnamed,
+        // so that no label crowds the line markers along the top (the legend
+        // row names them)
+        for &(a, b) in &p.telluric {
+            pui.span(
+                Span::new("", a..=b)
+                    .fill(super::SKY.gamma_multiply(0.12))
+                    .border_width(0.0),
+            );
+        }
         if state.view.show_sky && !p.sky.is_empty() {
             // Sky lines: a faint dotted line and a tick along the bottom.
             for &x in &p.sky {
@@ -235,7 +246,7 @@ fn legend(ui: &mut egui::Ui, state: &AppState) {
         item(ui, super::EMISSION, "emission lines");
         item(ui, super::ABSORPTION, "absorption lines (dashed)");
         if state.view.show_sky {
-            item(ui, super::SKY, "sky lines (dotted)");
+            item(ui, super::SKY, "sky lines (dotted), telluric bands (shaded)");
         }
         if let Some(o) = &state.tools.overlay {
             item(
