@@ -400,27 +400,17 @@ impl Engine {
     /// [`Engine::prepare`] with `config`'s continuum terms.
     fn prepare_with(&self, config: &FitConfig, s: &Spectrum) -> Result<Prepared, FitError> {
         let (dll, j) = (config.dloglam, config.poly_terms);
-        let mut p = if self.config.mask_sky {
+        let masked;
+        let source = if self.config.mask_sky {
             let mut m = s.clone();
             super::sky::mask(&mut m);
-            Prepared::with_floor(
-                &m,
-                dll,
-                j,
-                self.reach,
-                self.config.sys_floor,
-                self.config.telluric_floor,
-            )?
+            masked = m;
+            &masked
         } else {
-            Prepared::with_floor(
-                s,
-                dll,
-                j,
-                self.reach,
-                self.config.sys_floor,
-                self.config.telluric_floor,
-            )?
+            s
         };
+        let (floor, telluric) = (self.config.sys_floor, self.config.telluric_floor);
+        let mut p = Prepared::with_floor(source, dll, j, self.reach, floor, telluric)?;
         p.nonneg = self.config.nonnegative;
         p.set_groups(self.units.iter().map(|u| u.groups).max().unwrap_or(1));
         Ok(p)

@@ -445,7 +445,8 @@ fn information_ends(a: &[f64], dim: usize) -> (f64, f64) {
 /// Whether coefficients `c` of a system with normal matrix `a` meet the
 /// constraint of [`solve_constrained`]: every template amplitude ≥ 0, taken
 /// at the template's x̄ when there are throughput terms (for a single
-/// template with its throughput term: at both ends of the grid).
+/// template with its throughput term: at both ends of its information,
+/// [`information_ends`]).
 pub fn amplitudes_feasible(a: &[f64], c: &[f64], k: usize, groups: usize) -> bool {
     let dim = c.len();
     if k == 1 && groups == 2 {

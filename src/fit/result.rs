@@ -23,7 +23,9 @@ impl Warnings {
     /// The file had no error array; the noise was estimated.
     pub const NOISE_ESTIMATED: u32 = 1 << 5;
     /// The best star and the best non-star solution are close in χ²
-    /// (see `CLASS_CLOSE_DCHI2` in the engine): the class is uncertain.
+    /// (see `CLASS_CLOSE_DCHI2` in the engine; when a star is the answer, a
+    /// galaxy or quasar solution inside the star window does not count):
+    /// the class is uncertain.
     pub const CLASS_CLOSE: u32 = 1 << 6;
     /// The redshift rests on one emission feature over a continuum with no
     /// signal (see `rests_on_one_line` in the engine): the line could be
