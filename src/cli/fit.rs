@@ -52,6 +52,11 @@ pub struct Args {
     /// function of wavelength): for spectra with a poor relative flux calibration.
     #[arg(long)]
     pub tilt_terms: bool,
+    /// The spectra were corrected for telluric absorption: weigh the
+    /// telluric bands like every other pixel (without it their pixels carry
+    /// an extra error of the band's typical uncorrected depth).
+    #[arg(long)]
+    pub telluric_corrected: bool,
     /// A template set folder to use instead of the built-in one.
     #[arg(long)]
     pub templates: Option<PathBuf>,
@@ -82,6 +87,7 @@ pub fn run(args: Args) -> anyhow::Result<ExitCode> {
         method: args.method,
         mask_sky: args.mask_sky,
         throughput_terms: args.tilt_terms,
+        telluric_floor: !args.telluric_corrected,
         ..FitConfig::default()
     };
     let engine = pipeline::build_engine(args.templates.as_deref(), config)?;
