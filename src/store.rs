@@ -919,6 +919,7 @@ fn summary_of_line(line: &str) -> Result<Indexed, String> {
         curves: Vec::new(),
         lines: Vec::new(),
         per_class: Vec::new(),
+        refit_kept: false,
     };
     Ok((id, Some(fit)))
 }
@@ -964,6 +965,7 @@ mod tests {
             curves: vec![],
             lines: vec![],
             per_class: vec![],
+            refit_kept: false,
         }
     }
 

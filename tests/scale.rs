@@ -102,6 +102,7 @@ fn record(id: &str, k: usize) -> FitRecord {
     let fit = FitResult {
         object_id: id.to_string(),
         per_class: ClassSolution::from_candidates(&candidates),
+        refit_kept: false,
         candidates,
         delta_chi2: 100.0,
         chi2_reduced: 0.9,

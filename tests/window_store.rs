@@ -97,6 +97,7 @@ fn fit_of(k: usize) -> FitResult {
         curves: vec![],
         lines: vec![],
         per_class: vec![],
+        refit_kept: false,
     }
 }
 

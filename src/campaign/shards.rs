@@ -370,6 +370,7 @@ mod tests {
             curves: vec![],
             lines: vec![],
             per_class: vec![],
+            refit_kept: false,
         };
         FitRecord::fitted(fit, "f.fits", "chi2")
     }

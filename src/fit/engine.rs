@@ -285,6 +285,7 @@ impl Engine {
                 // not describe this spectrum (bad calibration, or a rare object)
                 let mut second = second;
                 second.warnings.set(super::Warnings::POOR_FIT);
+                second.refit_kept = true;
                 second
             } else {
                 first

@@ -295,6 +295,7 @@ pub(crate) fn finish(
         curves: sol.curves,
         lines,
         per_class,
+        refit_kept: false,
     })
 }
 

@@ -28,7 +28,7 @@ pub mod xcorr;
 
 pub use crate::constants::C_KMS;
 pub use config::{FitConfig, FitError, Method};
-pub use engine::Engine;
+pub use engine::{Engine, POOR_FIT_POLY_TERMS};
 pub use fast::CorrPlan;
 pub use lines::measure_at as measure_emission_lines;
 pub use method::{

@@ -233,6 +233,13 @@ pub struct FitResult {
     /// results read from files written before it existed).
     #[serde(default)]
     pub per_class: Vec<ClassSolution>,
+    /// The fit was a poor one with the configured continuum terms and its
+    /// refit with more (`POOR_FIT_POLY_TERMS` in the engine) was kept:
+    /// `chi2_reduced`, `delta_chi2` and the candidates are the refit's, while
+    /// `poor_fit` says the usual fit did not describe the spectrum (false in
+    /// results read from files written before it existed).
+    #[serde(default)]
+    pub refit_kept: bool,
 }
 
 impl FitResult {

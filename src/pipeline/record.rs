@@ -529,6 +529,7 @@ mod tests {
                 abs_ew_rest: None,
             }],
             per_class: vec![],
+            refit_kept: false,
         }
     }
 

@@ -311,6 +311,7 @@ mod tests {
             curves: vec![],
             lines: vec![],
             per_class: vec![],
+            refit_kept: false,
         };
         assert_eq!(FitSeen::of(&f), None);
         f.candidates.push(Candidate {

@@ -468,6 +468,7 @@ mod tests {
             curves: vec![],
             lines: vec![],
             per_class: vec![],
+            refit_kept: false,
         }
     }
 

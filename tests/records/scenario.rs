@@ -130,6 +130,7 @@ pub fn build_campaign(name: &str) -> (Campaign, Scenario) {
                 curves: vec![],
                 lines: vec![],
                 per_class: vec![],
+                refit_kept: false,
             }
         })
         .collect();
