@@ -334,30 +334,40 @@ pub fn solve_constrained(
     }
     // θ = M θ′: c_a = c′_a − x̄_a c_{k+a}, so that c′_a is the amplitude at x̄_a
     let xbar: Vec<f64> = (0..k).map(|t| information_centre(a, dim, k, t)).collect();
-    // A′ = Mᵀ A M and b′ = Mᵀ b; M differs from I only at (t, k + t) = −x̄_t
-    let mut am = a.to_vec();
-    for t in 0..k {
-        // columns: col(k+t) −= x̄_t · col(t)
-        for r in 0..dim {
-            am[r * dim + k + t] -= xbar[t] * a[r * dim + t];
-        }
-    }
-    let mut ap = am.clone();
-    for t in 0..k {
-        // rows: row(k+t) −= x̄_t · row(t)
-        for c in 0..dim {
-            ap[(k + t) * dim + c] -= xbar[t] * am[t * dim + c];
-        }
-    }
-    let mut bp = b.to_vec();
-    for t in 0..k {
-        bp[k + t] -= xbar[t] * b[t];
-    }
+    let (ap, bp) = tilted_about(a, b, k, &xbar);
     let mut c = solve_nonneg_leading(&ap, &bp, active, k, groups, true);
     for t in 0..k {
         c[t] -= xbar[t] * c[k + t];
     }
     c
+}
+
+/// The normal equations in the coefficients θ′ with c_t = c′_t − x_t·c_{k+t}
+/// for each template t < k (the others unchanged): A′ = Mᵀ A M and b′ = Mᵀ b,
+/// M the identity but for (t, k + t) = −x_t. The template's leading
+/// coefficient c′_t is then its amplitude at x = x_t, and its throughput
+/// column becomes T_t·(x − x_t).
+fn tilted_about(a: &[f64], b: &[f64], k: usize, x: &[f64]) -> (Vec<f64>, Vec<f64>) {
+    let dim = b.len();
+    let mut am = a.to_vec();
+    for t in 0..k {
+        // columns: col(k+t) −= x_t · col(t)
+        for r in 0..dim {
+            am[r * dim + k + t] -= x[t] * a[r * dim + t];
+        }
+    }
+    let mut ap = am.clone();
+    for t in 0..k {
+        // rows: row(k+t) −= x_t · row(t)
+        for c in 0..dim {
+            ap[(k + t) * dim + c] -= x[t] * am[t * dim + c];
+        }
+    }
+    let mut bp = b.to_vec();
+    for t in 0..k {
+        bp[k + t] -= x[t] * b[t];
+    }
+    (ap, bp)
 }
 
 /// The least-squares solution for one template (column 0), its throughput
@@ -366,8 +376,9 @@ pub fn solve_constrained(
 /// ([`information_ends`]). The optimum of a quadratic over that cone is the
 /// unconstrained one when it is feasible, else the best of its two faces
 /// (amplitude β·(x − x₁) or β·(x₂ − x), β ≥ 0) and its vertex (the template
-/// out): exact, and it moves continuously with the data, so χ²(z) has no
-/// step where the constraint begins to bind.
+/// out), each an ordinary solve in the coordinates of [`tilted_about`]:
+/// exact, and it moves continuously with the data, so χ²(z) has no step
+/// where the constraint begins to bind.
 fn solve_one_tilted(a: &[f64], b: &[f64], active: &[bool]) -> Vec<f64> {
     let dim = b.len();
     let c = solve_normal(a, b, active);
@@ -382,40 +393,18 @@ fn solve_one_tilted(a: &[f64], b: &[f64], active: &[bool]) -> Vec<f64> {
     let c_out = solve_normal(a, b, &out);
     let value = |c: &[f64]| -> f64 { c.iter().zip(b).map(|(x, y)| x * y).sum() };
     let mut best = (value(&c_out), c_out);
-    // a face: columns 0 and 1 merged into T·(u0 + u1·x), coefficient ≥ 0
-    let m = dim - 1;
-    for (u0, u1) in [(-x1, 1.0), (x2, -1.0)] {
-        // (A M)[i][r] with M mapping the reduced θ to c: c_0 = u0 θ_0,
-        // c_1 = u1 θ_0, c_{r+1} = θ_r
-        let am = |i: usize, r: usize| -> f64 {
-            if r == 0 {
-                u0 * a[i * dim] + u1 * a[i * dim + 1]
-            } else {
-                a[i * dim + r + 1]
-            }
-        };
-        let mut af = vec![0.0; m * m];
-        let mut bf = vec![0.0; m];
-        for q in 0..m {
-            for r in 0..m {
-                af[q * m + r] = if q == 0 {
-                    u0 * am(0, r) + u1 * am(1, r)
-                } else {
-                    am(q + 1, r)
-                };
-            }
-            bf[q] = if q == 0 { u0 * b[0] + u1 * b[1] } else { b[q + 1] };
-        }
-        let mut act = vec![true; m];
-        act[1..].copy_from_slice(&active[2..]);
-        let th = solve_normal(&af, &bf, &act);
-        if th[0] < 0.0 {
+    // a face: the amplitude 0 at one end x_e, so the template is its tilt
+    // column T·(x − x_e) alone (tilted_about), whose coefficient must keep
+    // the amplitude ≥ 0 at the other end: ≥ 0 at x₁, ≤ 0 at x₂
+    for (x_e, sign) in [(x1, 1.0), (x2, -1.0)] {
+        let (ap, bp) = tilted_about(a, b, 1, &[x_e]);
+        let mut act = active.to_vec();
+        act[0] = false;
+        let mut c = solve_normal(&ap, &bp, &act);
+        if sign * c[1] < 0.0 {
             continue;
         }
-        let mut c = vec![0.0; dim];
-        c[0] = u0 * th[0];
-        c[1] = u1 * th[0];
-        c[2..].copy_from_slice(&th[1..]);
+        c[0] = -x_e * c[1];
         let v = value(&c);
         if v > best.0 {
             best = (v, c);
@@ -731,19 +720,18 @@ mod tests {
         }
     }
 
+    /// A flat spectrum of flux 10 and σ = 1 at `wave`.
+    fn flat_ten(wave: Vec<f64>) -> Spectrum {
+        let n = wave.len();
+        let meta = crate::spectrum::SpectrumMeta::default();
+        Spectrum::new(wave, vec![10.0; n], Some(vec![1.0; n]), None, meta).unwrap()
+    }
+
     #[test]
     fn systematic_floor_adds_its_variance_to_every_pixel() {
         // flat spectrum of flux 10 and σ = 1: the floor ε = 0.1 adds (0.1·10)² = 1
         // to each pixel's variance (definition of FitConfig::sys_floor)
-        let wave: Vec<f64> = (0..400).map(|i| 5000.0 + 2.0 * i as f64).collect();
-        let s = Spectrum::new(
-            wave,
-            vec![10.0; 400],
-            Some(vec![1.0; 400]),
-            None,
-            crate::spectrum::SpectrumMeta::default(),
-        )
-        .unwrap();
+        let s = flat_ten((0..400).map(|i| 5000.0 + 2.0 * i as f64).collect());
         let a = Prepared::new(&s, 1e-4, 2, (0.0, 1e9)).unwrap();
         let b = Prepared::with_floor(&s, 1e-4, 2, (0.0, 1e9), 0.1, false).unwrap();
         assert_eq!(a.good, b.good);
@@ -760,15 +748,7 @@ mod tests {
         // flat spectrum of flux 10 and σ = 1 across the O₂ A band: inside it
         // the variance gains (d·10)², d = crate::lines::telluric_depth;
         // outside nothing (definition of FitConfig::telluric_floor)
-        let wave: Vec<f64> = (0..500).map(|i| 7400.0 + i as f64).collect();
-        let s = Spectrum::new(
-            wave,
-            vec![10.0; 500],
-            Some(vec![1.0; 500]),
-            None,
-            crate::spectrum::SpectrumMeta::default(),
-        )
-        .unwrap();
+        let s = flat_ten((0..500).map(|i| 7400.0 + i as f64).collect());
         let a = Prepared::new(&s, 1e-4, 2, (0.0, 1e9)).unwrap();
         let b = Prepared::with_floor(&s, 1e-4, 2, (0.0, 1e9), 0.0, true).unwrap();
         let rho = s.resample(&s.log_grid(1e-4)).correlation;

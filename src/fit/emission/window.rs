@@ -394,11 +394,10 @@ impl<'b> Window<'b> {
         let extra = (0..self.nt)
             .filter(|&p| !support[p] && sc.active[p] && sc.coef[p] > 0.0)
             .count();
+        self.allowed.copy_from_slice(support);
         if extra == 0 {
-            self.allowed.copy_from_slice(support);
             return;
         }
-        self.allowed.copy_from_slice(support);
         let kept = self.solve_into(kin, &mut sc);
         if kept.is_none_or(|c| c - all > CHI2_3SIGMA[extra.min(CHI2_3SIGMA.len()) - 1]) {
             self.allowed.fill(true);
