@@ -993,6 +993,11 @@ fn real_star_mocks(per: usize, seed: u64) -> MockCounts {
     let mut kinds: Vec<(&str, [MockCounts; 3])> = Vec::new();
     let mut total = MockCounts::default();
     let mut at_snr_5_up = MockCounts::default();
+    // ZVET_STAR_DUMP=FILE writes every trial as CSV (for calibrating the warnings)
+    let dump_path = std::env::var("ZVET_STAR_DUMP").ok();
+    let mut dump = dump_path.as_ref().map(|_| {
+        String::from("star,snr,is_star,v_ok,best_class,template,delta_chi2,chi2_reduced,star_minus_other,snr_median,warnings\n")
+    });
     eprintln!("mock observations of real stars, per star: class star / trials (confident wrong class), per S/N 3, 5, 10");
     for star in &stars {
         let mut row = [MockCounts::default(); 3];
@@ -1018,6 +1023,27 @@ fn real_star_mocks(per: usize, seed: u64) -> MockCounts {
                     .velocity
                     .is_none_or(|(v, tol)| (b.z * C_KMS - v).abs() < tol.max(3.0 * b.z_err * C_KMS));
                 let warned = r.warnings.0 & !Warnings::NOISE_ESTIMATED != 0;
+                if let Some(dump) = &mut dump {
+                    // one line per trial for calibrating the warning cuts
+                    let star_chi2 = r.class_best(ObjectClass::Star).map_or(f64::NAN, |s| s.chi2);
+                    let other = r
+                        .per_class
+                        .iter()
+                        .filter(|s| s.class != ObjectClass::Star)
+                        .map(|s| s.chi2)
+                        .fold(f64::INFINITY, f64::min);
+                    dump.push_str(&format!(
+                        "{},{snr},{is_star},{v_ok},{},{},{},{},{},{},{}\n",
+                        star.label,
+                        b.class,
+                        b.template,
+                        r.delta_chi2,
+                        r.chi2_reduced,
+                        star_chi2 - other,
+                        r.snr_median,
+                        r.warnings.0
+                    ));
+                }
                 let c = &mut row[k];
                 c.trials += 1;
                 c.class_ok += usize::from(is_star);
@@ -1077,6 +1103,9 @@ fn real_star_mocks(per: usize, seed: u64) -> MockCounts {
         }
         row.iter().for_each(|r| total.add(*r));
         row[1..].iter().for_each(|r| at_snr_5_up.add(*r));
+    }
+    if let (Some(path), Some(text)) = (&dump_path, &dump) {
+        std::fs::write(path, text).unwrap();
     }
     eprintln!("per stellar type: class star / trials (confident wrong class) [velocity right too; unflagged velocity misses], per S/N 3, 5, 10");
     for (kind, row) in &kinds {

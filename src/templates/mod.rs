@@ -13,6 +13,7 @@ use serde::{Deserialize, Serialize};
 mod builtin;
 mod fits_io;
 pub mod galaxies;
+mod m_dwarf_table;
 pub mod pca;
 pub mod profiles;
 pub mod quasars;

@@ -33,6 +33,7 @@ shapes, measured against the observed Pickles (1998) library
 */
 // Index loops here add several per-pixel arrays term by term.
 #![allow(clippy::needless_range_loop)]
+use super::m_dwarf_table::{M_DWARF_CORRECTION, M_DWARF_FLAT, M_DWARF_KNOTS};
 use super::profiles::{apply_tau, convolve_velocity, median_in, Absorber, Grid};
 use super::stars::{atmosphere, StarType, STAR_SIGMA_KMS};
 use serde::Serialize;
@@ -121,128 +122,53 @@ const fn dwarf(name: &'static str, teff: f64, subtype: f64) -> CoolType {
     }
 }
 
-/// The zone (vacuum Å) of the TiO5, CaH2 and CaH3 windows, where the
-/// correction is one constant so that the calibrated indices stay as solved.
-const M_DWARF_FLAT: (f64, f64) = (6800.0, 7150.0);
-
-/// Knots (vacuum Å) of [`M_DWARF_CORRECTION`].
-const M_DWARF_KNOTS: [f64; 56] = [
-    3800.0, 3900.0, 4000.0, 4100.0, 4200.0, 4300.0, 4400.0, 4500.0, 4600.0, 4700.0, 4800.0, 4900.0, 5000.0,
-    5100.0, 5200.0, 5300.0, 5400.0, 5500.0, 5600.0, 5700.0, 5800.0, 5900.0, 6000.0, 6100.0, 6200.0, 6300.0,
-    6400.0, 6500.0, 6600.0, 6700.0, 7200.0, 7300.0, 7400.0, 7500.0, 7600.0, 7700.0, 7800.0, 7900.0, 8000.0,
-    8100.0, 8200.0, 8300.0, 8400.0, 8500.0, 8600.0, 8700.0, 8800.0, 8900.0, 9000.0, 9100.0, 9200.0, 9300.0,
-    9400.0, 9500.0, 9600.0, 9700.0,
-];
-/// Factor per subtype M0–M6 at each of [`M_DWARF_KNOTS`], then the factor
-/// over [`M_DWARF_FLAT`]: the printout of `scripts/m-dwarf-correction.py`.
-const M_DWARF_CORRECTION: [([f64; 56], f64); 7] = [
-    // M0V
-    (
-        [
-            0.957, 1.014, 1.156, 0.994, 0.836, 0.907, 1.071, 1.283, 1.536, 1.362, 1.163, 1.134, 1.034, 0.806,
-            0.914, 1.019, 1.101, 1.195, 1.150, 1.143, 1.148, 1.070, 1.066, 1.050, 1.024, 0.975, 1.148, 1.125,
-            1.065, 1.288, 1.141, 1.093, 1.069, 1.038, 1.104, 1.227, 1.026, 0.981, 0.955, 0.953, 0.988, 0.945,
-            0.953, 1.046, 0.944, 0.936, 0.894, 0.931, 0.891, 0.886, 0.900, 0.923, 0.902, 0.894, 0.888, 0.875,
-        ],
-        1.274,
-    ),
-    // M1V
-    (
-        [
-            1.122, 1.208, 1.242, 0.995, 0.882, 0.883, 1.094, 1.270, 1.524, 1.358, 1.152, 1.121, 1.060, 0.847,
-            0.978, 1.068, 1.161, 1.184, 1.107, 1.093, 1.081, 0.958, 0.965, 1.002, 0.943, 0.898, 1.157, 1.083,
-            0.977, 1.304, 1.131, 1.116, 1.115, 1.085, 1.166, 1.261, 1.023, 0.974, 0.960, 0.952, 0.998, 0.946,
-            0.927, 1.039, 0.925, 0.919, 0.874, 0.936, 0.897, 0.880, 0.916, 0.899, 0.867, 0.878, 0.867, 0.861,
-        ],
-        1.303,
-    ),
-    // M2V
-    (
-        [
-            1.416, 1.412, 1.382, 1.095, 0.894, 0.884, 1.055, 1.240, 1.477, 1.269, 1.091, 1.112, 1.021, 0.850,
-            1.028, 1.105, 1.156, 1.170, 1.096, 1.064, 1.041, 0.925, 0.908, 0.959, 0.974, 0.914, 1.293, 1.168,
-            1.005, 1.517, 1.271, 1.167, 1.100, 1.056, 1.217, 1.394, 1.042, 0.977, 0.956, 0.934, 0.973, 0.919,
-            0.913, 1.051, 0.925, 0.899, 0.855, 0.952, 0.866, 0.848, 0.905, 0.896, 0.879, 0.854, 0.850, 0.856,
-        ],
-        1.489,
-    ),
-    // M3V
-    (
-        [
-            1.633, 1.844, 1.798, 1.121, 0.837, 0.856, 1.010, 1.191, 1.442, 1.215, 1.073, 1.098, 1.066, 0.934,
-            1.107, 1.125, 1.223, 1.140, 1.029, 0.999, 0.973, 0.757, 0.733, 0.839, 0.722, 0.748, 1.255, 1.196,
-            0.974, 1.517, 1.359, 1.302, 1.291, 1.223, 1.429, 1.482, 1.107, 1.057, 1.068, 1.076, 1.150, 1.065,
-            1.025, 1.175, 0.994, 0.967, 0.937, 1.058, 0.953, 0.939, 1.004, 0.970, 0.928, 0.911, 0.908, 0.907,
-        ],
-        1.612,
-    ),
-    // M4V
-    (
-        [
-            1.469, 1.774, 1.814, 1.267, 0.865, 0.832, 1.020, 1.401, 1.640, 1.389, 1.280, 1.274, 1.239, 1.057,
-            1.267, 1.295, 1.313, 1.237, 1.093, 1.033, 0.929, 0.680, 0.643, 0.737, 0.656, 0.667, 1.291, 1.188,
-            0.938, 1.845, 1.519, 1.525, 1.590, 1.485, 1.743, 1.691, 1.225, 1.111, 1.068, 1.141, 1.232, 1.148,
-            1.067, 1.211, 0.983, 0.985, 0.952, 1.108, 1.042, 0.986, 1.078, 1.080, 1.053, 1.032, 1.017, 0.977,
-        ],
-        1.937,
-    ),
-    // M5V
-    (
-        [
-            2.005, 2.818, 2.654, 1.527, 1.077, 0.990, 1.225, 1.658, 2.053, 1.662, 1.509, 1.464, 1.456, 1.190,
-            1.509, 1.397, 1.408, 1.408, 1.175, 1.087, 0.916, 0.760, 0.671, 0.708, 0.737, 0.701, 1.362, 1.148,
-            0.847, 2.068, 1.730, 1.595, 1.566, 1.432, 1.783, 1.732, 1.159, 1.058, 1.087, 1.138, 1.192, 1.123,
-            1.068, 1.219, 0.992, 0.930, 0.873, 1.042, 0.938, 0.888, 0.964, 0.871, 0.802, 0.814, 0.799, 0.824,
-        ],
-        2.008,
-    ),
-    // M6V
-    (
-        [
-            3.352, 3.521, 3.257, 1.451, 0.835, 0.904, 1.091, 1.524, 2.129, 1.704, 1.564, 1.559, 1.641, 1.287,
-            1.730, 1.465, 1.492, 1.406, 1.060, 0.989, 0.887, 0.760, 0.553, 0.576, 0.698, 0.583, 1.347, 1.093,
-            0.830, 2.542, 1.884, 1.749, 1.845, 1.723, 2.650, 1.788, 1.207, 1.084, 1.122, 1.322, 1.513, 1.366,
-            1.266, 1.412, 1.151, 1.061, 1.015, 1.334, 1.171, 1.073, 1.222, 1.249, 1.093, 1.061, 1.059, 1.065,
-        ],
-        2.427,
-    ),
-];
-
-/// The empirical pseudo-continuum correction of an M dwarf of subtype `sp`
-/// at `lam` (vacuum Å): the ratio of the observed library spectrum of that
-/// type (Pickles 1998, the mean M0V–M6V spectra) to the generated template,
-/// in 100 Å bins, linearly interpolated in λ and (in ln) between subtypes.
-/// The single-exponential band tails put the flux between the band heads in
-/// the wrong place by up to a factor 2–3 in mid-M types (e.g. far too little
-/// between 6700 and 7600 Å, too much at 5900–6300 Å); the heads, the indices
-/// and the colours stay from the physics above. The library stops at M6:
-/// the correction fades out over M6–M7, and M7 and later types keep the
-/// physics alone (with the M6 factors the real M8 dwarf of the tests was
-/// fitted ~200 km/s off, without them within 150 km/s).
+/// The empirical band-shape correction of an M dwarf of subtype `sp` at
+/// `lam` (vacuum Å): the ratio of an observed mean spectrum of that type
+/// (M0V–M6V: Pickles 1998; M7V–M9V: Bochanski et al. 2007) to the generated
+/// template, in 25 Å bins (`scripts/m-dwarf-correction.py` writes the table,
+/// [`super::m_dwarf_table`]), linearly interpolated in λ and (in ln) between
+/// subtypes, one constant over the index windows. The single-exponential
+/// band tails put the flux between and within the band heads in the wrong
+/// place by up to a factor 2–3 in mid-M types (e.g. far too little between
+/// 6700 and 7600 Å, too much at 5900–6300 Å); the heads, the indices and
+/// the colours stay from the physics above. The correction fades out over
+/// M9–L0: the L types keep the physics alone.
 pub fn m_dwarf_correction(sp: f64, lam: f64) -> f64 {
-    let fade = (7.0 - sp).clamp(0.0, 1.0);
+    let last = M_DWARF_CORRECTION.len() - 1;
+    let fade = (last as f64 + 1.0 - sp).clamp(0.0, 1.0);
     if fade == 0.0 {
         return 1.0;
     }
+    // ln factor of one row at `lam`: the flat zone's constant inside it and
+    // at its two ends, linear in λ between knots, the end values beyond
     let at = |row: &([f64; M_DWARF_KNOTS.len()], f64)| -> f64 {
         let (vals, flat) = row;
         if (M_DWARF_FLAT.0..=M_DWARF_FLAT.1).contains(&lam) {
             return flat.ln();
         }
-        // knots with the flat zone's two ends inserted
-        let mut pts: Vec<(f64, f64)> = M_DWARF_KNOTS
-            .iter()
-            .copied()
-            .zip(vals.iter().map(|v| v.ln()))
-            .collect();
-        let i = pts.partition_point(|p| p.0 < M_DWARF_FLAT.0);
-        pts.insert(i, (M_DWARF_FLAT.0, flat.ln()));
-        pts.insert(i + 1, (M_DWARF_FLAT.1, flat.ln()));
-        interp(&pts, lam)
+        let k = &M_DWARF_KNOTS;
+        let i = k.partition_point(|&x| x < lam);
+        let (left, right) = match i {
+            0 => return vals[0].ln(),
+            i if i == k.len() => return vals[k.len() - 1].ln(),
+            i => ((k[i - 1], vals[i - 1]), (k[i], vals[i])),
+        };
+        // a pair of knots that straddles the flat zone ends at its edges
+        let (left, right) = if left.0 < M_DWARF_FLAT.0 && right.0 > M_DWARF_FLAT.1 {
+            if lam < M_DWARF_FLAT.0 {
+                (left, (M_DWARF_FLAT.0, *flat))
+            } else {
+                ((M_DWARF_FLAT.1, *flat), right)
+            }
+        } else {
+            (left, right)
+        };
+        let t = (lam - left.0) / (right.0 - left.0);
+        (1.0 - t) * left.1.ln() + t * right.1.ln()
     };
-    let s = sp.clamp(0.0, 6.0);
+    let s = sp.clamp(0.0, last as f64);
     let lo = s.floor() as usize;
-    let hi = (lo + 1).min(6);
+    let hi = (lo + 1).min(last);
     let t = s - lo as f64;
     let ln = (1.0 - t) * at(&M_DWARF_CORRECTION[lo]) + t * at(&M_DWARF_CORRECTION[hi]);
     (fade * ln).exp()
