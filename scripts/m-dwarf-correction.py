@@ -141,7 +141,7 @@ def main():
             f"pub const M_DWARF_FLAT: (f64, f64) = ({FLAT[0]:.1f}, {FLAT[1]:.1f});",
             "/// Factor per subtype M0–M9 at each of [`M_DWARF_KNOTS`], then the factor",
             "/// over [`M_DWARF_FLAT`].",
-            f"pub const M_DWARF_CORRECTION: [([f64; {len(KNOTS)}], f64); {len(TYPES)}] = ["]
+            f"pub static M_DWARF_CORRECTION: [([f64; {len(KNOTS)}], f64); {len(TYPES)}] = ["]
     for t, row, flat in rows:
         out.append(f"    // {t}")
         out.append("    (")

@@ -30,7 +30,7 @@ pub const M_DWARF_KNOTS: [f64; 222] = [
 pub const M_DWARF_FLAT: (f64, f64) = (6800.0, 7150.0);
 /// Factor per subtype M0–M9 at each of [`M_DWARF_KNOTS`], then the factor
 /// over [`M_DWARF_FLAT`].
-pub const M_DWARF_CORRECTION: [([f64; 222], f64); 10] = [
+pub static M_DWARF_CORRECTION: [([f64; 222], f64); 10] = [
     // M0V
     (
         [
