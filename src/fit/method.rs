@@ -213,7 +213,10 @@ pub(crate) fn too_fast_star(class: ObjectClass, z: f64) -> bool {
 
 /// χ² of the runner-up distinct solution (another class, or at least the
 /// minimum separation away) minus the best; `f64::MAX` when there is none.
-/// Negative when a lower-χ² solution was ranked after the best.
+/// Negative when a lower-χ² solution was ranked after the best. For a star
+/// answer, another star solution inside the star window is not a distinct
+/// solution but the same answer, a star of the Galaxy, at another velocity:
+/// the answer's σ_z takes it up instead ([`star_velocity_spread`]).
 pub(crate) fn delta_chi2(cands: &[Candidate], min_separation_kms: f64) -> f64 {
     let Some(best) = cands.first() else {
         return f64::MAX;
@@ -221,8 +224,32 @@ pub(crate) fn delta_chi2(cands: &[Candidate], min_separation_kms: f64) -> f64 {
     cands
         .iter()
         .skip(1)
-        .find(|c| c.class != best.class || velocity_sep_kms(c.z, best.z) >= min_separation_kms)
+        .find(|c| distinct(best, c, min_separation_kms))
         .map_or(f64::MAX, |c| c.chi2 - best.chi2)
+}
+
+/// Whether `c` is another answer than `best` (see [`delta_chi2`]).
+fn distinct(best: &Candidate, c: &Candidate, min_separation_kms: f64) -> bool {
+    if best.class == ObjectClass::Star && c.class == ObjectClass::Star && !too_fast_star(c.class, c.z) {
+        return false;
+    }
+    c.class != best.class || velocity_sep_kms(c.z, best.z) >= min_separation_kms
+}
+
+/// For a star answer, the largest |Δz| to another star solution inside the
+/// star window whose χ² is within `cut` of the best: the velocities the data
+/// cannot tell apart (a featureless white dwarf's χ²(v) is flat across the
+/// window). 0 for other answers.
+fn star_velocity_spread(cands: &[Candidate], cut: f64) -> f64 {
+    let Some(best) = cands.first().filter(|b| b.class == ObjectClass::Star) else {
+        return 0.0;
+    };
+    cands
+        .iter()
+        .skip(1)
+        .filter(|c| c.class == ObjectClass::Star && !too_fast_star(c.class, c.z) && c.chi2 - best.chi2 < cut)
+        .map(|c| (c.z - best.z).abs())
+        .fold(0.0, f64::max)
 }
 
 /// The shared assembly: Δχ², reduced χ², warnings and line measurements.
@@ -247,10 +274,17 @@ pub(crate) fn finish(
             c.z_err *= mismatch_scale(c.chi2 / dof).sqrt();
         }
     }
-    let best = sol.candidates[0].clone();
-    let chi2_reduced = best.chi2 / dof;
-    let per_class = ClassSolution::from_candidates(&sol.candidates);
+    let chi2_reduced = sol.candidates[0].chi2 / dof;
     let scale = mismatch_scale(chi2_reduced);
+    if sol.dchi2_cut {
+        // star solutions the Δχ² cut cannot tell apart widen the velocity's σ
+        // rather than make the answer ambiguous (see `delta_chi2`)
+        let spread = star_velocity_spread(&sol.candidates, AMBIGUOUS_DCHI2 * scale);
+        let b = &mut sol.candidates[0];
+        b.z_err = b.z_err.max(spread);
+    }
+    let best = sol.candidates[0].clone();
+    let per_class = ClassSolution::from_candidates(&sol.candidates);
     let mut warnings = Warnings::default();
     if sol.ambiguous || (sol.dchi2_cut && delta_chi2 < AMBIGUOUS_DCHI2 * scale) {
         warnings.set(Warnings::AMBIGUOUS);
@@ -424,5 +458,35 @@ mod tests {
         assert!(class_close(&[star.clone(), at_rest.clone(), far.clone()], 5.0));
         // a galaxy answer at rest is still judged against the best star
         assert!(class_close(&[at_rest, star], 1.0));
+    }
+
+    #[test]
+    fn another_star_velocity_widens_sigma_instead_of_making_a_star_answer_ambiguous() {
+        use ObjectClass::{Galaxy, Star};
+        // a featureless star: its best velocity −300 km/s, another star
+        // solution at +700 km/s (1000 km/s away) 2 worse in χ², a galaxy far
+        // behind
+        let best = cand(Star, -1e-3, 1000.0);
+        let other_v = cand(Star, 2.33e-3, 1002.0);
+        let galaxy = cand(Galaxy, 0.4, 1100.0);
+        let cands = [best.clone(), other_v.clone(), galaxy.clone()];
+        // Δχ² is to the galaxy, the next distinct answer
+        assert_eq!(delta_chi2(&cands, 1000.0), 100.0);
+        // the two velocities within the cut become the velocity's σ
+        let spread = star_velocity_spread(&cands, AMBIGUOUS_DCHI2);
+        assert!((spread - 3.33e-3).abs() < 1e-12, "{spread}");
+        // beyond the cut they do not
+        assert_eq!(star_velocity_spread(&cands, 1.5), 0.0);
+        // a star solution faster than the star window is another answer
+        let too_fast = cand(Star, 0.004, 1002.0);
+        assert_eq!(
+            delta_chi2(&[best.clone(), too_fast.clone(), galaxy.clone()], 1000.0),
+            2.0
+        );
+        assert_eq!(star_velocity_spread(&[best, too_fast], AMBIGUOUS_DCHI2), 0.0);
+        // a galaxy answer keeps the old rule: another galaxy redshift 2 worse
+        // is a distinct solution
+        let g2 = cand(Galaxy, 0.5, 1102.0);
+        assert_eq!(delta_chi2(&[galaxy, g2, other_v], 1000.0), 2.0);
     }
 }
