@@ -243,6 +243,15 @@ pub fn write_fits(path: &Path, rows: &[ExportRow], prov: &Provenance) -> Result<
             (i64::from(e.telluric_floor), "telluric-band error floor (1/0)"),
         )
         .map_err(&fe)?;
+        hdu.write_key(
+            &mut f,
+            "STARBIC",
+            (
+                i64::from(e.stars_priced_by_bic),
+                "stars first within the BIC price (1/0)",
+            ),
+        )
+        .map_err(&fe)?;
         // What the library's close wrote is checked too.
         crate::campaign::close_fits(f, rows.len()).map_err(Step::Io)
     });
@@ -340,6 +349,8 @@ pub fn read_fits(path: &Path) -> Result<(Vec<ExportRow>, Provenance), ExportErro
         star_throughput_terms: hdu.read_key::<i64>(&mut f, "STARTPUT").is_ok_and(|v| v != 0),
         // the same for the telluric floor
         telluric_floor: hdu.read_key::<i64>(&mut f, "TELLFLR").is_ok_and(|v| v != 0),
+        // and for the star preference at every redshift
+        stars_priced_by_bic: hdu.read_key::<i64>(&mut f, "STARBIC").is_ok_and(|v| v != 0),
     };
     let minconf = s(&mut f, "MINCONF")?;
     let min_confidence = match minconf.as_str() {

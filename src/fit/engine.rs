@@ -617,20 +617,26 @@ impl FitMethod for Chi2 {
             let kb = any_other && implausible(&b.0);
             ka.cmp(&kb).then(a.0.chi2.total_cmp(&b.0.chi2))
         });
-        // inside the star window a galaxy solution yields to a star solution whose
-        // χ² is higher by less than the galaxy basis's extra freedom is worth
-        // (see FitConfig::star_window_prefers_stars); the inverted order leaves
-        // Δχ² < 0, so the answer is flagged ambiguous for the inspector
-        if setup.config.star_window_prefers_stars
-            && cands[0].0.class == ObjectClass::Galaxy
-            && velocity_sep_kms(cands[0].0.z, 0.0) <= STAR_VMAX_KMS
-        {
-            let galaxy_cols = setup.units[cands[0].1.unit].cols();
+        // a galaxy or quasar solution yields to a star solution whose χ² is
+        // higher by less than the class basis's extra freedom is worth: inside
+        // the star window a galaxy solution (FitConfig::star_window_prefers_stars),
+        // anywhere either class (FitConfig::stars_priced_by_bic); the inverted
+        // order leaves Δχ² < 0, so the answer is flagged ambiguous for the inspector
+        let config = setup.config;
+        let yields = |c: &Candidate| {
+            c.class != ObjectClass::Star
+                && (config.stars_priced_by_bic
+                    || (config.star_window_prefers_stars
+                        && c.class == ObjectClass::Galaxy
+                        && velocity_sep_kms(c.z, 0.0) <= STAR_VMAX_KMS))
+        };
+        if yields(&cands[0].0) {
+            let basis_cols = setup.units[cands[0].1.unit].cols();
             if let Some(i) = cands.iter().position(|(c, m, _)| {
                 c.class == ObjectClass::Star
                     && !implausible(c)
                     && c.chi2 - cands[0].0.chi2
-                        <= star_window_allowance(prep, galaxy_cols, setup.units[m.unit].cols())
+                        <= star_window_allowance(prep, basis_cols, setup.units[m.unit].cols())
             }) {
                 let star = cands.remove(i);
                 cands.insert(0, star);
@@ -733,13 +739,12 @@ fn sampling_sigma_kms(s: &Spectrum, reach: (f64, f64)) -> Option<f64> {
     Some(2.0 * *median / (8.0 * std::f64::consts::LN_2).sqrt())
 }
 
-/// How much higher a star's χ² may be than a galaxy's in the star window and
-/// still rank first: the Schwarz (1978) Bayesian information criterion's
-/// price of the galaxy basis's extra parameters, Δk · ln N, with N the
-/// independent good pixels. A galaxy that beats every star by more is a
-/// galaxy, however slow.
-fn star_window_allowance(prep: &Prepared, galaxy_cols: usize, star_cols: usize) -> f64 {
-    let extra = galaxy_cols.saturating_sub(star_cols) as f64;
+/// How much higher a star's χ² may be than a galaxy's or quasar's and still
+/// rank first: the Schwarz (1978) Bayesian information criterion's price of
+/// the class basis's extra parameters, Δk · ln N, with N the independent good
+/// pixels. A galaxy that beats every star by more is a galaxy, however slow.
+fn star_window_allowance(prep: &Prepared, basis_cols: usize, star_cols: usize) -> f64 {
+    let extra = basis_cols.saturating_sub(star_cols) as f64;
     let n = (prep.n_good() as f64 / prep.oversampling).max(2.0);
     extra * n.ln()
 }
