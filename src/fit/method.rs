@@ -479,10 +479,7 @@ mod tests {
         assert!(star_velocity_spread(&cands, 1.5).abs() < 1e-15);
         // a star solution faster than the star window is another answer
         let too_fast = cand(Star, 0.004, 1002.0);
-        assert_eq!(
-            delta_chi2(&[best.clone(), too_fast.clone(), galaxy.clone()], 1000.0),
-            2.0
-        );
+        assert!((delta_chi2(&[best.clone(), too_fast.clone(), galaxy.clone()], 1000.0) - 2.0).abs() < 1e-9);
         assert!(star_velocity_spread(&[best, too_fast], AMBIGUOUS_DCHI2).abs() < 1e-15);
         // a galaxy answer keeps the old rule: another galaxy redshift 2 worse
         // is a distinct solution
