@@ -235,9 +235,10 @@ pub struct FitResult {
     pub per_class: Vec<ClassSolution>,
     /// The fit was a poor one with the configured continuum terms and its
     /// refit with more (`POOR_FIT_POLY_TERMS` in the engine) was kept:
-    /// `chi2_reduced`, `delta_chi2` and the candidates are the refit's, while
-    /// `poor_fit` says the usual fit did not describe the spectrum (false in
-    /// results read from files written before it existed).
+    /// `chi2_reduced`, `delta_chi2`, the candidates and the warnings are the
+    /// refit's: `poor_fit` is then set only if the refit, too, misses the
+    /// spectrum by more than its noise (false in results read from files
+    /// written before it existed).
     #[serde(default)]
     pub refit_kept: bool,
 }

@@ -93,7 +93,7 @@ pub fn ui(ui: &mut egui::Ui, state: &AppState) {
                 ui.colored_label(super::WARN, format!("warnings: {}", fit.warnings.names()));
             }
             if fit.refit_kept {
-                // the numbers above are the refit's; poor_fit is the usual fit's
+                // the numbers and warnings above are the refit's
                 ui.weak(format!(
                     "refit with {} continuum terms kept: the usual fit was poor",
                     crate::fit::POOR_FIT_POLY_TERMS
