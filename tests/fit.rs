@@ -355,19 +355,12 @@ pub(crate) fn recovery_table_with(per_cell: usize, seed: u64, config: FitConfig)
             let pull = (b.z - z).abs() / b.z_err;
             if let Some(dump) = &dump {
                 // one line per trial for calibrating the warning cuts
-                let star = r.class_best(ObjectClass::Star).map_or(f64::NAN, |s| s.chi2);
-                let other = r
-                    .per_class
-                    .iter()
-                    .filter(|s| s.class != ObjectClass::Star)
-                    .map(|s| s.chi2)
-                    .fold(f64::INFINITY, f64::min);
                 let line = format!(
                     "{class},{name},{snr},{ok},{},{},{},{},{}\n",
                     b.class,
                     r.delta_chi2,
                     r.chi2_reduced,
-                    star - other,
+                    crate::support::star_minus_other(&r),
                     r.warnings.0
                 );
                 dump.lock().unwrap().push(line);

