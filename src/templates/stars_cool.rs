@@ -26,10 +26,11 @@ degraded to the violet.
 solved for (bisection on the band scale) so that the template's TiO5 and CaH2
 band-strength indices equal the published relation between index and
 subtype (see [`tio5_target`], [`cah2_target`]); the third index, CaH3, is left
-free and checked against its own published relation by the tests. The M0–M6
-dwarfs are then multiplied by a smooth empirical correction of their band
-shapes, measured against the observed Pickles (1998) library
-([`m_dwarf_correction`]), constant over the index windows.
+free and checked against its own published relation by the tests. The M0–M9
+dwarfs are then multiplied by an empirical correction of their band shapes in
+25 Å bins, measured against observed mean spectra (Pickles 1998 for M0–M6,
+Bochanski et al. 2007 for M7–M9; [`m_dwarf_correction`]), constant over the
+index windows.
 */
 // Index loops here add several per-pixel arrays term by term.
 #![allow(clippy::needless_range_loop)]
