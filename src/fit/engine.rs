@@ -15,7 +15,8 @@ polynomial is left to fit and χ² grows).
 use super::config::{FitConfig, FitError, Method};
 use super::fast::{self, CorrPlan, DataCache, FftCache};
 use super::method::{
-    finish, shift_range, too_fast_star, velocity_sep_kms, FitMethod, Setup, Solution, STAR_VMAX_KMS,
+    finish, plausible_star, shift_range, too_fast_star, velocity_sep_kms, FitMethod, Setup, Solution,
+    STAR_VMAX_KMS,
 };
 use super::prep::{legendre, Prepared};
 use super::refine::{grid_parabola, refine};
@@ -636,10 +637,9 @@ impl FitMethod for Chi2 {
         if yields(&cands[0].0) {
             let basis_cols = setup.units[cands[0].1.unit].cols();
             if let Some(i) = cands.iter().position(|(c, m, _)| {
-                c.class == ObjectClass::Star
-                    && !implausible(c)
+                plausible_star(c)
                     && c.chi2 - cands[0].0.chi2
-                        <= star_window_allowance(prep, basis_cols, setup.units[m.unit].cols())
+                        <= bic_star_allowance(prep, basis_cols, setup.units[m.unit].cols())
             }) {
                 let star = cands.remove(i);
                 cands.insert(0, star);
@@ -746,7 +746,7 @@ fn sampling_sigma_kms(s: &Spectrum, reach: (f64, f64)) -> Option<f64> {
 /// rank first: the Schwarz (1978) Bayesian information criterion's price of
 /// the class basis's extra parameters, Δk · ln N, with N the independent good
 /// pixels. A galaxy that beats every star by more is a galaxy, however slow.
-fn star_window_allowance(prep: &Prepared, basis_cols: usize, star_cols: usize) -> f64 {
+fn bic_star_allowance(prep: &Prepared, basis_cols: usize, star_cols: usize) -> f64 {
     let extra = basis_cols.saturating_sub(star_cols) as f64;
     let n = (prep.n_good() as f64 / prep.oversampling).max(2.0);
     extra * n.ln()

@@ -211,6 +211,11 @@ pub(crate) fn too_fast_star(class: ObjectClass, z: f64) -> bool {
     class == ObjectClass::Star && velocity_sep_kms(z, 0.0) > STAR_VMAX_KMS
 }
 
+/// A star solution inside the star window (not [`too_fast_star`]).
+pub(crate) fn plausible_star(c: &Candidate) -> bool {
+    c.class == ObjectClass::Star && !too_fast_star(c.class, c.z)
+}
+
 /// χ² of the runner-up distinct solution (another class, or at least the
 /// minimum separation away) minus the best; `f64::MAX` when there is none.
 /// Negative when a lower-χ² solution was ranked after the best. For a star
@@ -230,7 +235,7 @@ pub(crate) fn delta_chi2(cands: &[Candidate], min_separation_kms: f64) -> f64 {
 
 /// Whether `c` is another answer than `best` (see [`delta_chi2`]).
 fn distinct(best: &Candidate, c: &Candidate, min_separation_kms: f64) -> bool {
-    if best.class == ObjectClass::Star && c.class == ObjectClass::Star && !too_fast_star(c.class, c.z) {
+    if best.class == ObjectClass::Star && plausible_star(c) {
         return false;
     }
     c.class != best.class || velocity_sep_kms(c.z, best.z) >= min_separation_kms
@@ -247,7 +252,7 @@ fn star_velocity_spread(cands: &[Candidate], cut: f64) -> f64 {
     cands
         .iter()
         .skip(1)
-        .filter(|c| c.class == ObjectClass::Star && !too_fast_star(c.class, c.z) && c.chi2 - best.chi2 < cut)
+        .filter(|c| plausible_star(c) && c.chi2 - best.chi2 < cut)
         .map(|c| (c.z - best.z).abs())
         .fold(0.0, f64::max)
 }

@@ -240,7 +240,7 @@ pub fn galaxy_at_z_0_047() -> PathBuf {
 }
 
 /// χ² of the best star minus that of the best galaxy or quasar solution of a
-/// fit (NaN without a star; +∞ without another class): the quantity the
+/// fit (NaN without a star; −∞ without another class): the quantity the
 /// `class_close` cut is calibrated on, written by the runs' CSV dumps.
 pub fn star_minus_other(r: &zvet::fit::FitResult) -> f64 {
     let star = r.class_best(zvet::ObjectClass::Star).map_or(f64::NAN, |s| s.chi2);
