@@ -1344,3 +1344,164 @@ fn a_featureless_white_dwarf_is_a_star_once_the_bases_pay_for_their_freedom() {
     assert_eq!(on_flagged, on);
     assert!(off <= 5, "{off} of 10 stars without the price");
 }
+
+/// rms of ln(star / template) on scales below 100 Å over 4500–9000 Å, as
+/// `scripts/m-dwarf-mismatch.py` measures it: both on a 2 Å grid (the star
+/// interpolated between its good pixels), a quadratic in λ removed (tilt
+/// and scale), the telluric bands left out, a 100 Å boxcar over the kept
+/// pixels subtracted, the 50 pixels at either end not counted.
+fn small_scale_mismatch(s: &Spectrum, t: &Template) -> f64 {
+    let grid: Vec<f64> = (0..2250).map(|i| 4500.0 + 2.0 * i as f64).collect();
+    let (w, f, g) = (s.wave(), s.flux(), s.good());
+    let (gw, gf): (Vec<f64>, Vec<f64>) = (0..s.len()).filter(|&i| g[i]).map(|i| (w[i], f[i])).unzip();
+    let interp = |l: f64| {
+        let j = gw.partition_point(|&x| x < l).clamp(1, gw.len() - 1);
+        let u = (l - gw[j - 1]) / (gw[j] - gw[j - 1]);
+        gf[j - 1] * (1.0 - u) + gf[j] * u
+    };
+    let keep: Vec<bool> = grid
+        .iter()
+        .map(|&l| {
+            !zvet::lines::telluric_bands()
+                .iter()
+                .any(|(a, b)| l >= *a && l <= *b)
+        })
+        .collect();
+    let mut r: Vec<f64> = grid
+        .iter()
+        .map(|&l| (interp(l) / t.at(l).unwrap()).ln())
+        .collect();
+    // least-squares quadratic over the kept pixels (normal equations, 3×3)
+    let mean = grid.iter().sum::<f64>() / grid.len() as f64;
+    let basis = |l: f64| [1.0, l - mean, (l - mean).powi(2)];
+    let mut a = nalgebra::Matrix3::<f64>::zeros();
+    let mut b = nalgebra::Vector3::<f64>::zeros();
+    for i in (0..grid.len()).filter(|&i| keep[i]) {
+        let x = basis(grid[i]);
+        for p in 0..3 {
+            b[p] += x[p] * r[i];
+            for q in 0..3 {
+                a[(p, q)] += x[p] * x[q];
+            }
+        }
+    }
+    let c = a.lu().solve(&b).unwrap();
+    for (i, v) in r.iter_mut().enumerate() {
+        let x = basis(grid[i]);
+        *v -= c[0] * x[0] + c[1] * x[1] + c[2] * x[2];
+    }
+    let n = 50;
+    let (mut sum, mut count) = (0.0, 0usize);
+    for i in n / 2..grid.len() - n / 2 {
+        if !keep[i] {
+            continue;
+        }
+        // numpy's convolve(mode="same") with 50 ones: pixels i−25 … i+24
+        let (mut num, mut den) = (0.0, 0.0);
+        for j in i - n / 2..i + n / 2 {
+            if keep[j] {
+                num += r[j];
+                den += 1.0;
+            }
+        }
+        sum += (r[i] - num / den).powi(2);
+        count += 1;
+    }
+    (sum / count as f64).sqrt()
+}
+
+#[test]
+fn m_dwarf_templates_are_as_accurate_as_they_state_against_held_out_dwarfs() {
+    // the accuracy `poor_fit` allows a late-M answer is measured against
+    // single real dwarfs (Kesseli et al. 2019, kastredux) that neither the
+    // M-dwarf correction (Pickles 1998, Bochanski et al. 2007 means) nor the
+    // real-star recovery runs use; the stated values must be what these
+    // files give (within 5 %), and the M6 must be the worst of the three
+    for (prefix, name) in [
+        ("M20_Gl393", "star-M2"),
+        ("M40_NLTT3247", "star-M4"),
+        ("M60_Teegarden", "star-M6"),
+    ] {
+        let s = read_text_table(
+            &library_file("spectral_standards", prefix, "_kesseli2019.txt"),
+            Medium::Vacuum,
+            Errors::Column3,
+            4_000.0,
+            9_500.0,
+        );
+        let measured = small_scale_mismatch(&s, star(name));
+        let stated = stars_cool::known_accuracy(name);
+        eprintln!("{prefix} against {name}: small-scale rms {measured:.3}, stated {stated:.3}");
+        assert!(
+            (measured / stated - 1.0).abs() < 0.05,
+            "{prefix}: {measured} against {stated}"
+        );
+    }
+    assert!(stars_cool::known_accuracy("star-M6") > stars_cool::known_accuracy("star-M2"));
+    // only the M dwarfs are measured: every other template keeps 0
+    for name in ["star-G", "star-K5III", "star-L3", "star-WD-DC", "galaxy-old"] {
+        assert!(stars_cool::known_accuracy(name) == 0.0, "{name}");
+    }
+}
+
+/// `t` at rest on 3600–9800 Å (4000 pixels), each pixel off the template by
+/// a factor 1 + e·g (g standard normal: a template error of rms e), with
+/// noise for S/N 100 per pixel.
+fn scattered_star(t: &Template, e: f64, rng: &mut ChaCha8Rng) -> Spectrum {
+    let n = 4000;
+    let wave: Vec<f64> = (0..n)
+        .map(|i| 3_600.0 + 6_200.0 * i as f64 / (n - 1) as f64)
+        .collect();
+    let clean: Vec<f64> = wave.iter().map(|&l| t.at(l).unwrap()).collect();
+    let normal = Normal::new(0.0, 1.0).unwrap();
+    let sigma: Vec<f64> = clean.iter().map(|v| v.abs() / 100.0).collect();
+    let flux = clean
+        .iter()
+        .zip(&sigma)
+        .map(|(v, s)| v * (1.0 + e * normal.sample(rng)) + s * normal.sample(rng))
+        .collect();
+    let ivar = sigma.iter().map(|s| 1.0 / (s * s)).collect();
+    Spectrum::new(wave, flux, Some(ivar), None, SpectrumMeta::default()).unwrap()
+}
+
+#[test]
+fn poor_fit_allows_a_template_its_stated_accuracy_and_no_more() {
+    // an M6 dwarf whose every pixel strays from the template by the
+    // template's stated accuracy (0.19) is as good a fit as that template
+    // can give: χ²_r is far above 2 at S/N 100, but `poor_fit` is not set;
+    // three times that scatter is set, and so is the same scatter on a
+    // template with no measured accuracy (the G dwarf: the 3 % floor alone)
+    let engine = Engine::new(
+        templates::builtin(),
+        FitConfig {
+            classes: vec![ObjectClass::Star],
+            ..FitConfig::default()
+        },
+    )
+    .unwrap();
+    let mut rng = ChaCha8Rng::seed_from_u64(7);
+    let e = stars_cool::known_accuracy("star-M6");
+    for _ in 0..3 {
+        let as_stated = engine.fit(&scattered_star(star("star-M6"), e, &mut rng)).unwrap();
+        assert!(as_stated.chi2_reduced > 5.0, "χ²_r {}", as_stated.chi2_reduced);
+        assert!(
+            !as_stated.warnings.has(Warnings::POOR_FIT),
+            "{}",
+            describe("M6 at its accuracy", &as_stated)
+        );
+        let worse = engine
+            .fit(&scattered_star(star("star-M6"), 3.0 * e, &mut rng))
+            .unwrap();
+        assert!(
+            worse.warnings.has(Warnings::POOR_FIT),
+            "{}",
+            describe("M6 at 3× its accuracy", &worse)
+        );
+        let unmeasured = engine.fit(&scattered_star(star("star-G"), e, &mut rng)).unwrap();
+        assert!(
+            unmeasured.warnings.has(Warnings::POOR_FIT),
+            "{}",
+            describe("G at 0.19", &unmeasured)
+        );
+    }
+}

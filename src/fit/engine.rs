@@ -241,7 +241,8 @@ impl Engine {
     }
 
     /// The χ² fit over `ranges`; when its best solution is a poor fit
-    /// (χ²_r > [`POOR_FIT_CHI2R`](super::POOR_FIT_CHI2R)) the fit is
+    /// (`poor_fit`: the reduced χ², with the winning template's stated
+    /// accuracy allowed for, above [`POOR_FIT_CHI2R`](super::POOR_FIT_CHI2R)) the fit is
     /// repeated with [`POOR_FIT_POLY_TERMS`] continuum terms and that one
     /// is kept when the Bayesian information criterion prefers it (Schwarz
     /// 1978: χ² + k ln N, N the good pixels, k the extra terms) and its best

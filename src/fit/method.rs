@@ -28,7 +28,8 @@ pub const AMBIGUOUS_DCHI2: f64 = 9.0;
 pub const STAR_VMAX_KMS: f64 = 800.0;
 /// Fewer good grid pixels than this set [`Warnings::FEW_PIXELS`].
 pub const FEW_PIXELS: usize = 100;
-/// Reduced χ² above this sets [`Warnings::POOR_FIT`].
+/// `fit_quality` (the reduced χ² with the winning template's stated
+/// accuracy allowed for) above this sets [`Warnings::POOR_FIT`].
 pub const POOR_FIT_CHI2R: f64 = 2.0;
 /// Δχ² between the best star and the best solution of another class below
 /// which [`Warnings::CLASS_CLOSE`] is set (before the mismatch scaling of
@@ -221,7 +222,9 @@ pub(crate) fn plausible_star(c: &Candidate) -> bool {
 /// Negative when a lower-χ² solution was ranked after the best. For a star
 /// answer, another star solution inside the star window is not a distinct
 /// solution but the same answer, a star of the Galaxy, at another velocity:
-/// the answer's σ_z takes it up instead ([`star_velocity_spread`]).
+/// the answer's σ_z takes it up instead ([`star_velocity_spread`]); nor is a
+/// galaxy or quasar solution inside the star window, the star's own light
+/// taken up by a class basis ([`star_shadow`], as for `class_close`).
 pub(crate) fn delta_chi2(cands: &[Candidate], min_separation_kms: f64) -> f64 {
     let Some(best) = cands.first() else {
         return f64::MAX;
@@ -235,7 +238,7 @@ pub(crate) fn delta_chi2(cands: &[Candidate], min_separation_kms: f64) -> f64 {
 
 /// Whether `c` is another answer than `best` (see [`delta_chi2`]).
 fn distinct(best: &Candidate, c: &Candidate, min_separation_kms: f64) -> bool {
-    if best.class == ObjectClass::Star && plausible_star(c) {
+    if best.class == ObjectClass::Star && (plausible_star(c) || star_shadow(best, c)) {
         return false;
     }
     c.class != best.class || velocity_sep_kms(c.z, best.z) >= min_separation_kms
@@ -255,6 +258,22 @@ fn star_velocity_spread(cands: &[Candidate], cut: f64) -> f64 {
         .filter(|c| plausible_star(c) && c.chi2 - best.chi2 < cut)
         .map(|c| (c.z - best.z).abs())
         .fold(0.0, f64::max)
+}
+
+/// The reduced χ² that `poor_fit` judges: the best χ² over what the noise
+/// and the winning template's known small-scale accuracy e
+/// ([`crate::templates::stars_cool::known_accuracy`]) would give,
+/// dof + (e² − sys_floor²)₊ · Σ w m², m the model (a template error added to
+/// the noise in quadrature, as the template error function of Brammer, van
+/// Dokkum & Coppi 2008, from memory; the part of e the `sys_floor` already
+/// carries is not counted twice). For least squares the residual is
+/// orthogonal to the model, so Σ w m² = Σ w f² − χ². For a template with no
+/// measured accuracy (e = 0) this is χ²_r itself.
+pub(crate) fn fit_quality(prep: &Prepared, config: &FitConfig, best: &Candidate, dof: f64) -> f64 {
+    let e = crate::templates::stars_cool::known_accuracy(&best.template);
+    let extra = (e * e - config.sys_floor * config.sys_floor).max(0.0);
+    let model_power = (prep.fww - best.chi2).max(0.0);
+    best.chi2 / (dof + extra * model_power)
 }
 
 /// The shared assembly: Δχ², reduced χ², warnings and line measurements.
@@ -306,7 +325,7 @@ pub(crate) fn finish(
     if n_good < FEW_PIXELS {
         warnings.set(Warnings::FEW_PIXELS);
     }
-    if chi2_reduced > POOR_FIT_CHI2R {
+    if fit_quality(prep, config, &best, dof) > POOR_FIT_CHI2R {
         warnings.set(Warnings::POOR_FIT);
     }
     if s.meta.noise_estimated {

@@ -18,7 +18,9 @@ impl Warnings {
     pub const NEGATIVE_TEMPLATE: u32 = 1 << 2;
     /// Too few good pixels for a trustworthy fit.
     pub const FEW_PIXELS: u32 = 1 << 3;
-    /// Reduced χ² of the best fit is far above 1.
+    /// The best fit misses the data by far more than their noise and the
+    /// template's stated accuracy allow (reduced χ² far above 1 for a
+    /// template with none stated; `fit::method::fit_quality`).
     pub const POOR_FIT: u32 = 1 << 4;
     /// The file had no error array; the noise was estimated.
     pub const NOISE_ESTIMATED: u32 = 1 << 5;

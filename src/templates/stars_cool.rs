@@ -175,6 +175,36 @@ pub fn m_dwarf_correction(sp: f64, lam: f64) -> f64 {
     (fade * ln).exp()
 }
 
+/// Small-scale accuracy of the built-in M-dwarf templates, measured
+/// against single real dwarfs that neither the calibration above nor the
+/// recovery tests use: the rms of ln(star / template) on scales below 100 Å
+/// over 4500–9000 Å, telluric bands left out (`scripts/m-dwarf-mismatch.py`
+/// on the Kesseli et al. 2019 dwarfs of the kastredux wheel): (subtype,
+/// rms) for Gl 393 (M2, star-M2), NLTT 3247 (M4, star-M4) and Teegarden's
+/// star (M6 in its file name, star-M6). Between them linear in the subtype;
+/// beyond them the nearest value (M0–M1 and M7–M9 are not measured).
+const M_DWARF_ACCURACY: [(f64, f64); 3] = [(2.0, 0.064), (4.0, 0.098), (6.0, 0.192)];
+
+/// How closely the built-in template `name` is known to follow real stars
+/// of its type on small scales (fraction of the flux, rms): the M0–M9
+/// dwarfs and the M dwarf with emission from [`M_DWARF_ACCURACY`]; 0 for
+/// every other template (not measured: the fit's `sys_floor` alone stands
+/// for its mismatch). The fit's `poor_fit` judgement allows for it
+/// ([`crate::fit::FitConfig`], `poor_fit` in the README).
+pub fn known_accuracy(name: &str) -> f64 {
+    let Some(st) = COOL.iter().find(|c| c.name == name) else {
+        return 0.0;
+    };
+    if !matches!(st.family, Family::Dwarf | Family::EmissionDwarf) || st.subtype > 9.0 {
+        return 0.0;
+    }
+    let a = &M_DWARF_ACCURACY;
+    let sp = st.subtype.clamp(a[0].0, a[a.len() - 1].0);
+    let i = a.partition_point(|p| p.0 < sp).clamp(1, a.len() - 1);
+    let ((x0, y0), (x1, y1)) = (a[i - 1], a[i]);
+    y0 + (y1 - y0) * (sp - x0) / (x1 - x0)
+}
+
 /// Vacuum wavelength from an air wavelength (Å): the standard dispersion
 /// formula of Edlén (1966) in the form of Morton (2000), common practice.
 pub fn air_to_vacuum(air: f64) -> f64 {

@@ -84,6 +84,14 @@ pub fn ui(ui: &mut egui::Ui, state: &AppState) {
                         .color(super::object_colour(b.class)),
                 );
                 ui.label(format!("template: {}", b.template));
+                let accuracy = crate::templates::stars_cool::known_accuracy(&b.template);
+                if accuracy > 0.0 {
+                    // why a χ²/dof far above 1 may carry no poor_fit
+                    ui.weak(format!(
+                        "known to {:.0} % on small scales: poor_fit allows for it",
+                        100.0 * accuracy
+                    ));
+                }
             }
             ui.label(format!(
                 "Δχ² = {:.1}   χ²/dof = {:.2}   S/N = {:.1}",
