@@ -136,15 +136,7 @@ fn cool_star_band_heads_are_as_deep_as_in_real_stars() {
     let mean_depth = |stars: &[Spectrum], head: f64| {
         stars.iter().map(|s| real_depth(s, head)).sum::<f64>() / stars.len() as f64
     };
-    let kesseli_star = |prefix: &str| {
-        read_text_table(
-            &library_file("spectral_standards", prefix, "_kesseli2019.txt"),
-            Medium::Vacuum,
-            Errors::Column3,
-            6_800.0,
-            9_800.0,
-        )
-    };
+    let kesseli_star = |prefix: &str| kesseli_dwarf(prefix, 6_800.0, 9_800.0);
     let m1 = vec![kesseli_star("M10_Gl229A")];
     let m2 = vec![kesseli_star("M20_Gl393"), kesseli_star("M20_Gl411")];
     let m4 = vec![kesseli_star("M40_Gl402"), kesseli_star("M40_NLTT3247")];
@@ -242,13 +234,7 @@ fn m_dwarf_emission_and_wolf_rayet_lines_have_published_strengths() {
     // the quiet M1 and M2 do not, so the windows measure what the criterion
     // means.
     let real_ew = |prefix: &str| {
-        let s = read_text_table(
-            &library_file("spectral_standards", prefix, "_kesseli2019.txt"),
-            Medium::Vacuum,
-            Errors::Column3,
-            6_400.0,
-            6_700.0,
-        );
+        let s = kesseli_dwarf(prefix, 6_400.0, 6_700.0);
         emission_ew_of(s.wave(), s.flux(), ha, 10.0, (6520.0, 6545.0), (6585.0, 6610.0))
     };
     let (active, quiet1, quiet2) = (real_ew("M60_Gl406"), real_ew("M10_Gl229A"), real_ew("M20_Gl411"));
@@ -562,6 +548,18 @@ fn read_text_table(path: &std::path::Path, medium: Medium, errors: Errors, lo: f
     };
     Spectrum::new(wave, flux, Some(ivar), Some(good), meta)
         .unwrap_or_else(|e| panic!("{}: {e:?}", path.display()))
+}
+
+/// A single dwarf of Kesseli et al. (2019) from the [`LIBRARY`] wheel
+/// (vacuum wavelengths, σ in the third column), cut to [lo, hi] Å.
+fn kesseli_dwarf(prefix: &str, lo: f64, hi: f64) -> Spectrum {
+    read_text_table(
+        &library_file("spectral_standards", prefix, "_kesseli2019.txt"),
+        Medium::Vacuum,
+        Errors::Column3,
+        lo,
+        hi,
+    )
 }
 
 /// A file of the [`LIBRARY`] wheel: the first in `dir` whose name starts
@@ -1422,13 +1420,7 @@ fn m_dwarf_templates_are_as_accurate_as_they_state_against_held_out_dwarfs() {
         ("M40_NLTT3247", "star-M4"),
         ("M60_Teegarden", "star-M6"),
     ] {
-        let s = read_text_table(
-            &library_file("spectral_standards", prefix, "_kesseli2019.txt"),
-            Medium::Vacuum,
-            Errors::Column3,
-            4_000.0,
-            9_500.0,
-        );
+        let s = kesseli_dwarf(prefix, 4_000.0, 9_500.0);
         let measured = small_scale_mismatch(&s, star(name));
         let stated = stars_cool::known_accuracy(name);
         eprintln!("{prefix} against {name}: small-scale rms {measured:.3}, stated {stated:.3}");
