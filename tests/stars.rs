@@ -1463,8 +1463,21 @@ fn poor_fit_allows_a_template_its_stated_accuracy_and_no_more() {
     // can give: χ²_r is far above 2 at S/N 100, but `poor_fit` is not set;
     // three times that scatter is set, and so is the same scatter on a
     // template with no measured accuracy (the G dwarf: the 3 % floor alone)
+    // or on an M6 of a set other than the built-in one
     let engine = Engine::new(
         templates::builtin(),
+        FitConfig {
+            classes: vec![ObjectClass::Star],
+            ..FitConfig::default()
+        },
+    )
+    .unwrap();
+    // a set of one's own (here the built-in set renamed: a trained set may
+    // call its templates the same) states no accuracy, whatever the names
+    let mut own = templates::builtin().clone();
+    own.name = "own".into();
+    let own_engine = Engine::new(
+        &own,
         FitConfig {
             classes: vec![ObjectClass::Star],
             ..FitConfig::default()
@@ -1488,6 +1501,14 @@ fn poor_fit_allows_a_template_its_stated_accuracy_and_no_more() {
             worse.warnings.has(Warnings::POOR_FIT),
             "{}",
             describe("M6 at 3× its accuracy", &worse)
+        );
+        let own_set = own_engine
+            .fit(&scattered_star(star("star-M6"), e, &mut rng))
+            .unwrap();
+        assert!(
+            own_set.warnings.has(Warnings::POOR_FIT),
+            "{}",
+            describe("M6 of one's own set", &own_set)
         );
         let unmeasured = engine.fit(&scattered_star(star("star-G"), e, &mut rng)).unwrap();
         assert!(

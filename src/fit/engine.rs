@@ -62,6 +62,11 @@ pub struct Engine {
     coarse: Vec<CoarseCopy>,
     /// The templates the copies are made from (the built-in set only).
     source: Option<TemplateSet>,
+    /// The templates are the built-in set (or a broadened copy of it), whose
+    /// M dwarfs have a stated accuracy that `poor_fit` allows for
+    /// ([`crate::templates::stars_cool::known_accuracy`]); a user's or
+    /// trained set's templates have none, whatever their names.
+    stated_accuracy: bool,
 }
 
 /// A copy of the engine for spectra sampled more coarsely than the
@@ -205,6 +210,7 @@ impl Engine {
             cache: FftCache::default(),
             coarse: Vec::new(),
             source: None,
+            stated_accuracy: templates.name == crate::templates::BUILTIN_NAME,
         })
     }
 
@@ -491,7 +497,7 @@ impl Engine {
         let e = self.matched(s);
         let prep = e.prepare_with(config, s)?;
         let solution = method.solve(e.setup_with(config), &prep, ranges)?;
-        finish(s, &prep, config, solution)
+        finish(s, &prep, config, solution, e.stated_accuracy)
     }
 
     /// Cross-correlate `s` with every template of the configured classes

@@ -261,27 +261,30 @@ fn star_velocity_spread(cands: &[Candidate], cut: f64) -> f64 {
 }
 
 /// The reduced χ² that `poor_fit` judges: the best χ² over what the noise
-/// and the winning template's known small-scale accuracy e
-/// ([`crate::templates::stars_cool::known_accuracy`]) would give,
+/// and the winning template's known small-scale accuracy e (for the
+/// built-in set [`crate::templates::stars_cool::known_accuracy`], else 0)
+/// would give,
 /// dof + (e² − sys_floor²)₊ · Σ w m², m the model (a template error added to
 /// the noise in quadrature, as the template error function of Brammer, van
 /// Dokkum & Coppi 2008, from memory; the part of e the `sys_floor` already
 /// carries is not counted twice). For least squares the residual is
 /// orthogonal to the model, so Σ w m² = Σ w f² − χ². For a template with no
 /// measured accuracy (e = 0) this is χ²_r itself.
-pub(crate) fn fit_quality(prep: &Prepared, config: &FitConfig, best: &Candidate, dof: f64) -> f64 {
-    let e = crate::templates::stars_cool::known_accuracy(&best.template);
+pub(crate) fn fit_quality(prep: &Prepared, config: &FitConfig, best: &Candidate, dof: f64, e: f64) -> f64 {
     let extra = (e * e - config.sys_floor * config.sys_floor).max(0.0);
     let model_power = (prep.fww - best.chi2).max(0.0);
     best.chi2 / (dof + extra * model_power)
 }
 
 /// The shared assembly: Δχ², reduced χ², warnings and line measurements.
+/// `stated_accuracy`: the templates are the built-in set, whose M dwarfs' stated
+/// accuracy `poor_fit` allows for ([`fit_quality`]).
 pub(crate) fn finish(
     s: &Spectrum,
     prep: &Prepared,
     config: &FitConfig,
     mut sol: Solution,
+    stated_accuracy: bool,
 ) -> Result<FitResult, FitError> {
     if sol.candidates.is_empty() {
         return Err(FitError::NoCoverage);
@@ -325,7 +328,12 @@ pub(crate) fn finish(
     if n_good < FEW_PIXELS {
         warnings.set(Warnings::FEW_PIXELS);
     }
-    if fit_quality(prep, config, &best, dof) > POOR_FIT_CHI2R {
+    let accuracy = if stated_accuracy {
+        crate::templates::stars_cool::known_accuracy(&best.template)
+    } else {
+        0.0
+    };
+    if fit_quality(prep, config, &best, dof, accuracy) > POOR_FIT_CHI2R {
         warnings.set(Warnings::POOR_FIT);
     }
     if s.meta.noise_estimated {

@@ -84,11 +84,15 @@ pub fn ui(ui: &mut egui::Ui, state: &AppState) {
                         .color(super::object_colour(b.class)),
                 );
                 ui.label(format!("template: {}", b.template));
+                // a χ²/dof above the poor_fit cut without the warning: the
+                // template's stated accuracy (built-in M dwarfs) allowed it
                 let accuracy = crate::templates::stars_cool::known_accuracy(&b.template);
-                if accuracy > 0.0 {
-                    // why a χ²/dof far above 1 may carry no poor_fit
+                if fit.chi2_reduced > crate::fit::POOR_FIT_CHI2R
+                    && !fit.warnings.has(crate::fit::Warnings::POOR_FIT)
+                    && accuracy > 0.0
+                {
                     ui.weak(format!(
-                        "known to {:.0} % on small scales: poor_fit allows for it",
+                        "template known to {:.0} % on small scales: poor_fit allows for it",
                         100.0 * accuracy
                     ));
                 }
