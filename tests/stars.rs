@@ -1347,7 +1347,7 @@ fn a_featureless_white_dwarf_is_a_star_once_the_bases_pay_for_their_freedom() {
 /// `scripts/m-dwarf-mismatch.py` measures it: both on a 2 Å grid (the star
 /// interpolated between its good pixels), a quadratic in λ removed (tilt
 /// and scale), the telluric bands left out, a 100 Å boxcar over the kept
-/// pixels subtracted, the 50 pixels at either end not counted.
+/// pixels subtracted, the 25 pixels at either end not counted.
 fn small_scale_mismatch(s: &Spectrum, t: &Template) -> f64 {
     let grid: Vec<f64> = (0..2250).map(|i| 4500.0 + 2.0 * i as f64).collect();
     let (w, f, g) = (s.wave(), s.flux(), s.good());

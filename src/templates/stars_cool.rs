@@ -189,8 +189,9 @@ const M_DWARF_ACCURACY: [(f64, f64); 3] = [(2.0, 0.064), (4.0, 0.098), (6.0, 0.1
 /// of its type on small scales (fraction of the flux, rms): the M0–M9
 /// dwarfs and the M dwarf with emission from [`M_DWARF_ACCURACY`]; 0 for
 /// every other template (not measured: the fit's `sys_floor` alone stands
-/// for its mismatch). The fit's `poor_fit` judgement allows for it
-/// ([`crate::fit::FitConfig`], `poor_fit` in the README).
+/// for its mismatch). The fit's `poor_fit` judgement allows for it when the
+/// engine's templates are the built-in set, not for a user's or trained set
+/// whose templates carry the same names (`poor_fit` in the README).
 pub fn known_accuracy(name: &str) -> f64 {
     let Some(st) = COOL.iter().find(|c| c.name == name) else {
         return 0.0;
