@@ -1464,26 +1464,16 @@ fn poor_fit_allows_a_template_its_stated_accuracy_and_no_more() {
     // three times that scatter is set, and so is the same scatter on a
     // template with no measured accuracy (the G dwarf: the 3 % floor alone)
     // or on an M6 of a set other than the built-in one
-    let engine = Engine::new(
-        templates::builtin(),
-        FitConfig {
-            classes: vec![ObjectClass::Star],
-            ..FitConfig::default()
-        },
-    )
-    .unwrap();
+    let stars_only = FitConfig {
+        classes: vec![ObjectClass::Star],
+        ..FitConfig::default()
+    };
+    let engine = Engine::new(templates::builtin(), stars_only.clone()).unwrap();
     // a set of one's own (here the built-in set renamed: a trained set may
     // call its templates the same) states no accuracy, whatever the names
     let mut own = templates::builtin().clone();
     own.name = "own".into();
-    let own_engine = Engine::new(
-        &own,
-        FitConfig {
-            classes: vec![ObjectClass::Star],
-            ..FitConfig::default()
-        },
-    )
-    .unwrap();
+    let own_engine = Engine::new(&own, stars_only).unwrap();
     let mut rng = ChaCha8Rng::seed_from_u64(7);
     let e = stars_cool::known_accuracy("star-M6");
     for _ in 0..3 {
